@@ -1,0 +1,1 @@
+//! 9th DIMACS Challenge import. (Being written.)

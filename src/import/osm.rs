@@ -1,0 +1,1 @@
+//! OpenStreetMap PBF import. (Being written.)

@@ -1,0 +1,1 @@
+//! OpenStreetMap tag rules. (Being written.)

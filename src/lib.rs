@@ -1,0 +1,12 @@
+//! hodos: travel times (ETAs) over customizable contraction hierarchies.
+//!
+//! # Layout
+//!
+//! - [`geo`]: haversine, local projection; pure arithmetic.
+//! - [`graph`]: the road graph (nodes at intersections, directed edges with
+//!   shape and external ids) and its builder.
+//! - [`import`]: OpenStreetMap PBF, DIMACS and the synthetic city → graph.
+
+pub mod geo;
+pub mod graph;
+pub mod import;
