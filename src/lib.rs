@@ -10,3 +10,6 @@
 pub mod geo;
 pub mod graph;
 pub mod import;
+pub mod cch;
+pub mod metric;
+pub mod order;

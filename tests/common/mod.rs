@@ -1,0 +1,91 @@
+//! Shared helpers for integration tests: reference Dijkstra (petgraph), data
+//! location, a deterministic pair sampler.
+#![allow(dead_code)]
+
+use hodos::graph::RoadGraph;
+use petgraph::graph::{DiGraph, NodeIndex};
+use std::path::PathBuf;
+
+/// Location of the shared open datasets (`HODOS_DATA_DIR`, set by .ci/run),
+/// or `../shared/data` next to the repository. `None` when absent.
+pub fn data_dir() -> Option<PathBuf> {
+    if let Ok(d) = std::env::var("HODOS_DATA_DIR") {
+        let p = PathBuf::from(d);
+        if p.is_dir() {
+            return Some(p);
+        }
+    }
+    let p = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../shared/data");
+    p.is_dir().then_some(p)
+}
+
+/// The DIMACS NY files, or a printed skip reason.
+pub fn dimacs_ny() -> Option<(PathBuf, PathBuf, PathBuf)> {
+    let Some(d) = data_dir() else {
+        eprintln!("SKIPPED: HODOS_DATA_DIR is unset and ../shared/data does not exist; DIMACS checks need USA-road-d.NY");
+        return None;
+    };
+    let d = d.join("dimacs");
+    let f = (
+        d.join("USA-road-d.NY.gr.gz"),
+        d.join("USA-road-d.NY.co.gz"),
+        d.join("USA-road-t.NY.gr.gz"),
+    );
+    if !(f.0.exists() && f.1.exists() && f.2.exists()) {
+        eprintln!("SKIPPED: {} lacks the USA-road-*.NY files", d.display());
+        return None;
+    }
+    Some(f)
+}
+
+/// The OSM fixtures copied into tests/data.
+pub fn fixture(name: &str) -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("tests/data").join(name)
+}
+
+/// petgraph graph with one weighted arc per road edge.
+pub fn petgraph_of(g: &RoadGraph, weights: &[u32]) -> DiGraph<(), u32> {
+    let mut pg = DiGraph::with_capacity(g.num_nodes(), g.num_edges());
+    for _ in 0..g.num_nodes() {
+        pg.add_node(());
+    }
+    for e in 0..g.num_edges() {
+        pg.add_edge(
+            NodeIndex::new(g.edge_tail[e] as usize),
+            NodeIndex::new(g.edge_head[e] as usize),
+            weights[e],
+        );
+    }
+    pg
+}
+
+/// Reference one-to-all distances from `s` with petgraph's Dijkstra.
+pub fn reference_dists(pg: &DiGraph<(), u32>, s: u32) -> Vec<Option<u64>> {
+    let m = petgraph::algo::dijkstra(pg, NodeIndex::new(s as usize), None, |e| {
+        u64::from(*e.weight())
+    });
+    let mut out = vec![None; pg.node_count()];
+    for (k, v) in m {
+        out[k.index()] = Some(v);
+    }
+    out
+}
+
+/// Small deterministic generator (SplitMix64) so test pairs are stable.
+pub struct Pairs(u64);
+
+impl Pairs {
+    pub fn new(seed: u64) -> Self {
+        Self(seed)
+    }
+    pub fn next_u64(&mut self) -> u64 {
+        self.0 = self.0.wrapping_add(0x9E3779B97F4A7C15);
+        let mut z = self.0;
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58476D1CE4E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D049BB133111EB);
+        z ^ (z >> 31)
+    }
+    pub fn below(&mut self, n: usize) -> u32 {
+        (self.next_u64() % n as u64) as u32
+    }
+}
