@@ -13,3 +13,8 @@ pub mod import;
 pub mod cch;
 pub mod metric;
 pub mod order;
+pub mod artifact;
+pub mod calibration;
+pub mod region;
+pub mod snap;
+pub mod build;

@@ -1,1 +1,233 @@
-fn main() {}
+//! The `hodos` command: a thin shell over the library.
+//!
+//! `hodos build` writes an artifact, `hodos info` describes one, `hodos eta`
+//! answers one trip from one, and `hodos demo` (also plain `hodos`) builds
+//! the fictional demo city and shows a sample answer.
+
+use anyhow::Context;
+use clap::{Args, Parser, Subcommand};
+use hodos::artifact::Artifact;
+use hodos::build::{build, Progress, Source};
+use hodos::cch::CchQuery;
+use hodos::geo::LatLon;
+use hodos::region::{Region, DEFAULT_MAX_SNAP_M};
+use indicatif::{ProgressBar, ProgressStyle};
+use std::path::PathBuf;
+use std::process::ExitCode;
+use std::time::Instant;
+
+#[derive(Parser)]
+#[command(name = "hodos", version, about = "Travel times over customizable contraction hierarchies")]
+struct Cli {
+    #[command(subcommand)]
+    command: Option<Command>,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Build an artifact from a road source.
+    Build(BuildArgs),
+    /// Describe an artifact.
+    Info {
+        file: PathBuf,
+    },
+    /// Travel time between two coordinates on an artifact (free-flow).
+    Eta {
+        file: PathBuf,
+        /// Origin as LAT,LON (WGS84 degrees).
+        #[arg(long, allow_hyphen_values = true)]
+        from: LatLon,
+        /// Destination as LAT,LON.
+        #[arg(long, allow_hyphen_values = true)]
+        to: LatLon,
+        /// Largest accepted distance from a coordinate to its road, metres.
+        #[arg(long, default_value_t = DEFAULT_MAX_SNAP_M)]
+        max_snap_m: f64,
+    },
+    /// Build the demo city and print a sample ETA (the default command).
+    Demo,
+}
+
+#[derive(Args)]
+#[group(required = true, multiple = false)]
+struct SourceArgs {
+    /// An OpenStreetMap PBF extract.
+    #[arg(long)]
+    osm: Option<PathBuf>,
+    /// A 9th DIMACS Challenge graph: the .gr and .co files (plain or gzip).
+    #[arg(long, num_args = 2, value_names = ["GR", "CO"])]
+    dimacs: Option<Vec<PathBuf>>,
+    /// A synthetic city with about this many intersections.
+    #[arg(long, value_name = "NODES")]
+    synthetic: Option<usize>,
+}
+
+#[derive(Args)]
+struct BuildArgs {
+    #[command(flatten)]
+    source: SourceArgs,
+    /// Seed for --synthetic.
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
+    /// Output artifact path.
+    #[arg(long)]
+    out: PathBuf,
+}
+
+/// Progress bars on stderr.
+struct Bars {
+    bar: Option<ProgressBar>,
+    started: Instant,
+}
+
+impl Progress for Bars {
+    fn start(&mut self, phase: &str, total: Option<u64>) {
+        let bar = match total {
+            Some(t) => ProgressBar::new(t).with_style(
+                ProgressStyle::with_template("{msg:32} [{bar:30}] {pos}/{len} {elapsed}")
+                    .expect("valid template")
+                    .progress_chars("=> "),
+            ),
+            None => ProgressBar::new_spinner().with_style(
+                ProgressStyle::with_template("{msg:32} {spinner} {elapsed}").expect("valid template"),
+            ),
+        };
+        bar.set_message(phase.to_string());
+        bar.enable_steady_tick(std::time::Duration::from_millis(120));
+        self.bar = Some(bar);
+        self.started = Instant::now();
+    }
+    fn advance(&mut self, done: u64) {
+        if let Some(b) = &self.bar {
+            b.set_position(done);
+        }
+    }
+    fn finish(&mut self) {
+        if let Some(b) = self.bar.take() {
+            b.finish_with_message(format!("{} ({:.2} s)", b.message(), self.started.elapsed().as_secs_f64()));
+        }
+    }
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    let result = match cli.command.unwrap_or(Command::Demo) {
+        Command::Build(args) => cmd_build(args),
+        Command::Info { file } => cmd_info(&file),
+        Command::Eta {
+            file,
+            from,
+            to,
+            max_snap_m,
+        } => cmd_eta(&file, from, to, max_snap_m),
+        Command::Demo => cmd_demo(),
+    };
+    match result {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("error: {e:#}");
+            ExitCode::FAILURE
+        }
+    }
+}
+
+fn source_of(args: &BuildArgs) -> Source {
+    let s = &args.source;
+    if let Some(p) = &s.osm {
+        Source::Osm(p.clone())
+    } else if let Some(v) = &s.dimacs {
+        Source::Dimacs {
+            gr: v[0].clone(),
+            co: v[1].clone(),
+        }
+    } else {
+        Source::Synthetic {
+            nodes: s.synthetic.unwrap_or(20_000),
+            seed: args.seed,
+        }
+    }
+}
+
+fn bars() -> Bars {
+    Bars {
+        bar: None,
+        started: Instant::now(),
+    }
+}
+
+fn cmd_build(args: BuildArgs) -> anyhow::Result<()> {
+    let source = source_of(&args);
+    let art = build(&source, &mut bars())?;
+    let bytes = art
+        .save(&args.out)
+        .with_context(|| format!("writing {}", args.out.display()))?;
+    print_summary(&art);
+    println!("wrote {} ({:.1} MB)", args.out.display(), bytes as f64 / 1e6);
+    Ok(())
+}
+
+fn print_summary(art: &Artifact) {
+    let m = &art.meta;
+    println!("source        {}", m.source);
+    println!("nodes         {}", m.nodes);
+    println!("edges         {}", m.edges);
+    println!(
+        "dropped       {} nodes, {} edges outside the largest strongly connected component ({} components)",
+        m.dropped.dropped_nodes, m.dropped.dropped_edges, m.dropped.components
+    );
+    println!("arcs          {} ({} shortcuts)", m.arcs, m.shortcuts);
+    println!("separator     {} nodes at the top level", m.top_separator);
+    println!("tree depth    {}", m.elimination_tree_depth);
+    let phases: Vec<String> = m.phase_seconds.iter().map(|(p, s)| format!("{p} {s:.2}s")).collect();
+    println!("times         {}", phases.join(", "));
+    println!("calibration   {} pairs; circuity, free-flow km/h by great-circle band:", art.calibration.pairs);
+    for b in &art.calibration.bands {
+        let hi = if b.hi_km.is_finite() { format!("{}", b.hi_km) } else { "∞".into() };
+        println!(
+            "  {:>4}–{:<4} km  circuity {:.3}  speed {:6.1}  (n={})",
+            b.lo_km, hi, b.circuity, b.speed_kmh, b.count
+        );
+    }
+}
+
+fn cmd_info(file: &PathBuf) -> anyhow::Result<()> {
+    let art = Artifact::load(file)?;
+    print_summary(&art);
+    println!("built at      {} (unix seconds), hodos {}", art.meta.built_at_unix, art.meta.hodos_version);
+    Ok(())
+}
+
+fn cmd_eta(file: &PathBuf, from: LatLon, to: LatLon, max_snap_m: f64) -> anyhow::Result<()> {
+    let region = Region::from_artifact(Artifact::load(file)?);
+    let metric = region.free_flow();
+    let mut q = CchQuery::new(&region.cch);
+    let eta = region.eta(&metric, &mut q, from, to, max_snap_m)?;
+    println!("eta_s        {:.1}", eta.time_s);
+    println!("meters       {:.1}", eta.meters);
+    println!("from snap    {:.1} m (to {})", eta.from.distance_m, eta.from.point);
+    println!("to snap      {:.1} m (to {})", eta.to.distance_m, eta.to.point);
+    Ok(())
+}
+
+fn cmd_demo() -> anyhow::Result<()> {
+    let dir = std::env::temp_dir().join("hodos-demo");
+    std::fs::create_dir_all(&dir).with_context(|| format!("creating {}", dir.display()))?;
+    let out = dir.join("quellhaven.hodos");
+    let (_, city) = hodos::import::synthetic::generate_with_info(30_000, 7);
+    println!("building the demo city {} (about 30,000 intersections)", city.name);
+    let art = build(&Source::Synthetic { nodes: 30_000, seed: 7 }, &mut bars())?;
+    art.save(&out)?;
+    print_summary(&art);
+    let region = Region::from_artifact(Artifact::load(&out)?);
+    let metric = region.free_flow();
+    let mut q = CchQuery::new(&region.cch);
+    let (lo, hi) = region.graph.bbox();
+    let from = LatLon::new(lo.lat + (hi.lat - lo.lat) * 0.2, lo.lon + (hi.lon - lo.lon) * 0.2);
+    let to = LatLon::new(lo.lat + (hi.lat - lo.lat) * 0.8, lo.lon + (hi.lon - lo.lon) * 0.75);
+    let eta = region.eta(&metric, &mut q, from, to, DEFAULT_MAX_SNAP_M)?;
+    println!();
+    println!("sample ETA across {} (free-flow):", city.name);
+    println!("  from {from} to {to}: {:.0} s over {:.0} m", eta.time_s, eta.meters);
+    println!("try: cargo run --release -- eta {} --from {from} --to {to}", out.display());
+    Ok(())
+}

@@ -73,7 +73,10 @@ pub fn read_pbf_with_progress(
     }
     let mut asm = OsmAssembler::new();
     scan(path, Pass::Ways, &mut asm, 0, progress)?;
-    scan(path, Pass::Nodes, &mut asm, len, progress)?;
+    // Without a kept way there is nothing to look up; skip the node pass.
+    if !asm.ways.is_empty() {
+        scan(path, Pass::Nodes, &mut asm, len, progress)?;
+    }
     progress(2 * len);
     asm.finish(path)
 }
@@ -280,6 +283,9 @@ const MISSING: LatLon = LatLon::new(f64::NAN, f64::NAN);
 /// ([`add_way`](Self::add_way)), then nodes ([`add_node`](Self::add_node)),
 /// then [`finish`](Self::finish). A node given before the way that needs it
 /// is ignored, exactly as a node missing from the extract.
+///
+/// OSM ids become `way_id` / `node_ext` by `as u64`; the negative ids of
+/// not-yet-uploaded editor data would wrap, which keeps them distinct.
 #[derive(Debug, Default)]
 pub struct OsmAssembler {
     /// OSM node id → dense index into the per-node arrays below.
@@ -438,7 +444,8 @@ impl OsmAssembler {
                     interior.clear();
                     continue;
                 }
-                let border = (k > 0 && !present(r[k - 1])) || (k + 1 < r.len() && !present(r[k + 1]));
+                let border =
+                    (k > 0 && !present(r[k - 1])) || (k + 1 < r.len() && !present(r[k + 1]));
                 let boundary = self.uses[n as usize] >= 2 || border;
                 match tail {
                     None => {
@@ -493,9 +500,10 @@ impl Emitter<'_> {
     fn graph_node(&mut self, dense: u32) -> u32 {
         let g = &mut self.graph_id[dense as usize];
         if *g == NONE {
-            *g = self
-                .builder
-                .add_node(self.pos[dense as usize], self.node_id[dense as usize] as u64);
+            *g = self.builder.add_node(
+                self.pos[dense as usize],
+                self.node_id[dense as usize] as u64,
+            );
         }
         *g
     }
@@ -560,7 +568,10 @@ mod tests {
         LatLon::new(60.0 + i as f64 * 1e-3, 25.0 + (i % 3) as f64 * 1e-3)
     }
 
-    fn build(ways: &[(i64, &[(&str, &str)], &[i64])], nodes: &[i64]) -> (RoadGraph, OsmImportStats) {
+    /// A literal way: id, tags, node refs.
+    type LitWay<'a> = (i64, &'a [(&'a str, &'a str)], &'a [i64]);
+
+    fn build(ways: &[LitWay<'_>], nodes: &[i64]) -> (RoadGraph, OsmImportStats) {
         let mut a = OsmAssembler::new();
         for &(id, tags, refs) in ways {
             a.add_way(id, tags.iter().copied(), refs.iter().copied());
@@ -625,7 +636,10 @@ mod tests {
         // Node 3 is not in the extract: segments 2-3 and 3-4 go, 2 and 4
         // become dead ends.
         let (g, s) = build(&[(1, RES, &[1, 2, 3, 4, 5])], &[1, 2, 4, 5]);
-        assert_eq!(ext_edges(&g), vec![(1, 1, 2, 0), (1, 2, 1, 0), (1, 4, 5, 0), (1, 5, 4, 0)]);
+        assert_eq!(
+            ext_edges(&g),
+            vec![(1, 1, 2, 0), (1, 2, 1, 0), (1, 4, 5, 0), (1, 5, 4, 0)]
+        );
         assert_eq!((s.nodes_missing, s.ways_clipped), (1, 1));
     }
 

@@ -320,8 +320,10 @@ fn parse_single_maxspeed(value: &str) -> Option<f32> {
     if num.is_empty() {
         // Implicit zone codes: "DE:urban", "FI:zone30", "DE:zone:30".
         let (country, category) = v.split_once(':')?;
-        let country_ok =
-            (2..=6).contains(&country.len()) && country.bytes().all(|b| b.is_ascii_alphabetic() || b == b'-');
+        let country_ok = (2..=6).contains(&country.len())
+            && country
+                .bytes()
+                .all(|b| b.is_ascii_alphabetic() || b == b'-');
         return if country_ok {
             zone_speed_kmh(country, category)
         } else {
@@ -358,7 +360,9 @@ pub fn parse_maxspeed(value: &str) -> Option<f32> {
     value
         .split(';')
         .filter_map(parse_single_maxspeed)
-        .fold(None, |acc: Option<f32>, v| Some(acc.map_or(v, |a| a.min(v))))
+        .fold(None, |acc: Option<f32>, v| {
+            Some(acc.map_or(v, |a| a.min(v)))
+        })
 }
 
 /// The verdict on one way for car routing.
@@ -479,23 +483,44 @@ mod tests {
     #[test]
     fn oneway_values() {
         for v in ["yes", "true", "1"] {
-            assert_eq!(direction(&view(&[("highway", "residential"), ("oneway", v)])), Direction::Forward, "{v}");
+            assert_eq!(
+                direction(&view(&[("highway", "residential"), ("oneway", v)])),
+                Direction::Forward,
+                "{v}"
+            );
         }
         for v in ["-1", "reverse"] {
-            assert_eq!(direction(&view(&[("highway", "residential"), ("oneway", v)])), Direction::Backward, "{v}");
+            assert_eq!(
+                direction(&view(&[("highway", "residential"), ("oneway", v)])),
+                Direction::Backward,
+                "{v}"
+            );
         }
         for v in ["no", "false", "0"] {
-            assert_eq!(direction(&view(&[("highway", "residential"), ("oneway", v)])), Direction::Both, "{v}");
+            assert_eq!(
+                direction(&view(&[("highway", "residential"), ("oneway", v)])),
+                Direction::Both,
+                "{v}"
+            );
         }
-        assert_eq!(direction(&view(&[("highway", "residential")])), Direction::Both);
+        assert_eq!(
+            direction(&view(&[("highway", "residential")])),
+            Direction::Both
+        );
     }
 
     // Key:oneway "implied oneway" and Key:junction: motorways and
     // roundabouts are one-way unless oneway=no says otherwise.
     #[test]
     fn implied_oneway() {
-        assert_eq!(direction(&view(&[("highway", "motorway")])), Direction::Forward);
-        assert_eq!(direction(&view(&[("highway", "motorway_link")])), Direction::Forward);
+        assert_eq!(
+            direction(&view(&[("highway", "motorway")])),
+            Direction::Forward
+        );
+        assert_eq!(
+            direction(&view(&[("highway", "motorway_link")])),
+            Direction::Forward
+        );
         assert_eq!(
             direction(&view(&[("highway", "primary"), ("junction", "roundabout")])),
             Direction::Forward
@@ -505,30 +530,49 @@ mod tests {
             Direction::Forward
         );
         assert_eq!(
-            direction(&view(&[("highway", "primary"), ("junction", "roundabout"), ("oneway", "no")])),
+            direction(&view(&[
+                ("highway", "primary"),
+                ("junction", "roundabout"),
+                ("oneway", "no")
+            ])),
             Direction::Both
         );
-        assert_eq!(direction(&view(&[("highway", "motorway"), ("oneway", "no")])), Direction::Both);
+        assert_eq!(
+            direction(&view(&[("highway", "motorway"), ("oneway", "no")])),
+            Direction::Both
+        );
         assert_eq!(
             direction(&view(&[("highway", "motorway_link"), ("oneway", "-1")])),
             Direction::Backward
         );
         // junction=yes (a plain junction area) implies nothing.
-        assert_eq!(direction(&view(&[("highway", "primary"), ("junction", "yes")])), Direction::Both);
+        assert_eq!(
+            direction(&view(&[("highway", "primary"), ("junction", "yes")])),
+            Direction::Both
+        );
     }
 
     #[test]
     fn unusual_oneway_values() {
         // alternating: both directions, in turns → Both.
-        assert_eq!(direction(&view(&[("highway", "service"), ("oneway", "alternating")])), Direction::Both);
+        assert_eq!(
+            direction(&view(&[("highway", "service"), ("oneway", "alternating")])),
+            Direction::Both
+        );
         // reversible: Both here, but excluded by is_accessible.
         let rev = [("highway", "primary"), ("oneway", "reversible")];
         assert_eq!(direction(&view(&rev)), Direction::Both);
         assert!(!is_accessible(&view(&rev)));
         assert!(car_way(&view(&rev)).is_none());
         // Unknown text behaves as if absent: implied default applies.
-        assert_eq!(direction(&view(&[("highway", "residential"), ("oneway", "unknown")])), Direction::Both);
-        assert_eq!(direction(&view(&[("highway", "motorway"), ("oneway", "yes;no")])), Direction::Forward);
+        assert_eq!(
+            direction(&view(&[("highway", "residential"), ("oneway", "unknown")])),
+            Direction::Both
+        );
+        assert_eq!(
+            direction(&view(&[("highway", "motorway"), ("oneway", "yes;no")])),
+            Direction::Forward
+        );
     }
 
     // Key:access: the most specific transport-mode key wins.
@@ -537,24 +581,54 @@ mod tests {
         assert!(is_accessible(&view(&[("highway", "residential")])));
         assert!(!is_accessible(&view(&[("access", "no")])));
         assert!(!is_accessible(&view(&[("access", "private")])));
-        assert!(is_accessible(&view(&[("access", "no"), ("motor_vehicle", "yes")])));
-        assert!(is_accessible(&view(&[("access", "private"), ("motorcar", "yes")])));
-        assert!(!is_accessible(&view(&[("motor_vehicle", "yes"), ("motorcar", "no")])));
-        assert!(!is_accessible(&view(&[("access", "yes"), ("motor_vehicle", "no")])));
-        assert!(!is_accessible(&view(&[("access", "yes"), ("motor_vehicle", "private")])));
+        assert!(is_accessible(&view(&[
+            ("access", "no"),
+            ("motor_vehicle", "yes")
+        ])));
+        assert!(is_accessible(&view(&[
+            ("access", "private"),
+            ("motorcar", "yes")
+        ])));
+        assert!(!is_accessible(&view(&[
+            ("motor_vehicle", "yes"),
+            ("motorcar", "no")
+        ])));
+        assert!(!is_accessible(&view(&[
+            ("access", "yes"),
+            ("motor_vehicle", "no")
+        ])));
+        assert!(!is_accessible(&view(&[
+            ("access", "yes"),
+            ("motor_vehicle", "private")
+        ])));
         assert!(!is_accessible(&view(&[("vehicle", "no")])));
-        assert!(is_accessible(&view(&[("vehicle", "no"), ("motor_vehicle", "destination")])));
-        for v in ["yes", "destination", "permissive", "designated", "customers"] {
+        assert!(is_accessible(&view(&[
+            ("vehicle", "no"),
+            ("motor_vehicle", "destination")
+        ])));
+        for v in [
+            "yes",
+            "destination",
+            "permissive",
+            "designated",
+            "customers",
+        ] {
             assert!(is_accessible(&view(&[("access", v)])), "{v}");
         }
         for v in ["agricultural", "forestry", "emergency", "delivery"] {
             assert!(!is_accessible(&view(&[("motor_vehicle", v)])), "{v}");
         }
         // An unknown value defers to the less specific key.
-        assert!(!is_accessible(&view(&[("access", "no"), ("motorcar", "sometimes")])));
+        assert!(!is_accessible(&view(&[
+            ("access", "no"),
+            ("motorcar", "sometimes")
+        ])));
         assert!(is_accessible(&view(&[("motorcar", "sometimes")])));
         // Key:area: a highway area is not a road line.
-        assert!(!is_accessible(&view(&[("highway", "service"), ("area", "yes")])));
+        assert!(!is_accessible(&view(&[
+            ("highway", "service"),
+            ("area", "yes")
+        ])));
     }
 
     // Key:maxspeed: numbers and units.
@@ -609,7 +683,18 @@ mod tests {
     #[test]
     fn maxspeed_garbage_is_none() {
         for v in [
-            "", "fast", "0", "-30", "0.0", "50 furlongs", "inf", "NaN", "1e2", "5000", "50..0", "mph",
+            "",
+            "fast",
+            "0",
+            "-30",
+            "0.0",
+            "50 furlongs",
+            "inf",
+            "NaN",
+            "1e2",
+            "5000",
+            "50..0",
+            "mph",
             "30 mph mph",
         ] {
             assert_eq!(parse_maxspeed(v), None, "{v:?}");
@@ -634,7 +719,11 @@ mod tests {
         .unwrap();
         assert_eq!((w.speed_forward_kmh, w.speed_backward_kmh), (50.0, 30.0));
 
-        let w = car_way(&view(&[("highway", "tertiary"), ("maxspeed:forward", "70")])).unwrap();
+        let w = car_way(&view(&[
+            ("highway", "tertiary"),
+            ("maxspeed:forward", "70"),
+        ]))
+        .unwrap();
         assert_eq!((w.speed_forward_kmh, w.speed_backward_kmh), (70.0, 45.0));
 
         assert!(car_way(&view(&[("highway", "footway")])).is_none());
@@ -644,7 +733,11 @@ mod tests {
 
     #[test]
     fn tag_view_reads_only_known_keys() {
-        let t = view(&[("highway", "service"), ("name", "x"), ("maxspeed:forward", "20")]);
+        let t = view(&[
+            ("highway", "service"),
+            ("name", "x"),
+            ("maxspeed:forward", "20"),
+        ]);
         assert_eq!(t.get("highway"), Some("service"));
         assert_eq!(t.get("maxspeed:forward"), Some("20"));
         assert_eq!(t.get("name"), None);

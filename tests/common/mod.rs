@@ -89,3 +89,36 @@ impl Pairs {
         (self.next_u64() % n as u64) as u32
     }
 }
+
+use hodos::cch::CchQuery;
+use hodos::region::{Metric, Region};
+
+/// Checks `pairs` node-to-node queries (sources × targets) against petgraph's
+/// Dijkstra on the same graph and metric: equal travel times, exactly.
+/// Returns the number of pairs compared.
+pub fn assert_exact(region: &Region, metric: &Metric, sources: usize, targets_per_source: usize, seed: u64, label: &str) -> usize {
+    let g = &region.graph;
+    let pg = petgraph_of(g, &metric.weights);
+    let mut q = CchQuery::new(&region.cch);
+    let mut rng = Pairs::new(seed);
+    let mut compared = 0;
+    for _ in 0..sources {
+        let s = rng.below(g.num_nodes());
+        let reference = reference_dists(&pg, s);
+        for _ in 0..targets_per_source {
+            let t = rng.below(g.num_nodes());
+            let got = q
+                .node_to_node(&region.cch, &metric.customized, s, t)
+                .map(|r| u64::from(r.time));
+            assert_eq!(got, reference[t as usize], "{label}: {s} -> {t}");
+            compared += 1;
+        }
+    }
+    compared
+}
+
+/// Random per-edge speeds in 5..=120 km/h (a second metric unlike free-flow).
+pub fn random_speeds(g: &RoadGraph, seed: u64) -> Vec<f32> {
+    let mut rng = Pairs::new(seed);
+    (0..g.num_edges()).map(|_| 5.0 + rng.below(116) as f32).collect()
+}
