@@ -116,10 +116,11 @@ impl Artifact {
             source,
         })?;
         let mut bytes = Vec::new();
-        f.read_to_end(&mut bytes).map_err(|source| ArtifactError::Io {
-            path: path.to_path_buf(),
-            source,
-        })?;
+        f.read_to_end(&mut bytes)
+            .map_err(|source| ArtifactError::Io {
+                path: path.to_path_buf(),
+                source,
+            })?;
         Self::from_bytes(path, &bytes)
     }
 
@@ -162,7 +163,8 @@ impl Artifact {
             path: p(),
             msg: e.to_string(),
         })?;
-        art.validate().map_err(|msg| ArtifactError::Decode { path: p(), msg })?;
+        art.validate()
+            .map_err(|msg| ArtifactError::Decode { path: p(), msg })?;
         Ok(art)
     }
 
@@ -171,28 +173,52 @@ impl Artifact {
     fn validate(&self) -> Result<(), String> {
         let g = &self.graph;
         let (n, m) = (g.num_nodes(), g.num_edges());
-        let node_arrays = [g.node_lon.len(), g.node_ext.len(), self.cch.rank.len(), self.cch.order.len(), self.cch.parent.len()];
+        let node_arrays = [
+            g.node_lon.len(),
+            g.node_ext.len(),
+            self.cch.rank.len(),
+            self.cch.order.len(),
+            self.cch.parent.len(),
+        ];
         if node_arrays.iter().any(|&l| l != n) {
             return Err("node arrays differ in length".into());
         }
-        let edge_arrays = [g.edge_head.len(), g.edge_len_m.len(), g.edge_speed_kmh.len(), g.edge_way.len(), g.edge_class.len(), g.edge_twin.len(), self.cch.edge_arc.len()];
+        let edge_arrays = [
+            g.edge_head.len(),
+            g.edge_len_m.len(),
+            g.edge_speed_kmh.len(),
+            g.edge_way.len(),
+            g.edge_class.len(),
+            g.edge_twin.len(),
+            self.cch.edge_arc.len(),
+        ];
         if edge_arrays.iter().any(|&l| l != m) || g.edge_shape_first.len() != m + 1 {
             return Err("edge arrays differ in length".into());
         }
-        if g.edge_tail.iter().chain(&g.edge_head).any(|&v| v as usize >= n) {
+        if g.edge_tail
+            .iter()
+            .chain(&g.edge_head)
+            .any(|&v| v as usize >= n)
+        {
             return Err("edge end out of range".into());
         }
         if g.edge_shape_first.last().copied().unwrap_or(0) as usize != g.shape.len() {
             return Err("shape index out of range".into());
         }
         let c = &self.cch;
-        if c.first_out.len() != n + 1 || c.first_out.last().copied().unwrap_or(0) as usize != c.head.len() || c.tail.len() != c.head.len() {
+        if c.first_out.len() != n + 1
+            || c.first_out.last().copied().unwrap_or(0) as usize != c.head.len()
+            || c.tail.len() != c.head.len()
+        {
             return Err("hierarchy arrays inconsistent".into());
         }
         if c.rank.iter().any(|&r| r as usize >= n) || c.head.iter().any(|&h| h as usize >= n) {
             return Err("hierarchy index out of range".into());
         }
-        if c.edge_arc.iter().any(|&ea| (ea >> 1) as usize >= c.head.len()) {
+        if c.edge_arc
+            .iter()
+            .any(|&ea| (ea >> 1) as usize >= c.head.len())
+        {
             return Err("edge to arc map out of range".into());
         }
         Ok(())

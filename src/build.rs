@@ -26,7 +26,11 @@ pub enum Source {
 
 impl Source {
     pub fn describe(&self) -> String {
-        let name = |p: &PathBuf| p.file_name().map(|f| f.to_string_lossy().into_owned()).unwrap_or_default();
+        let name = |p: &PathBuf| {
+            p.file_name()
+                .map(|f| f.to_string_lossy().into_owned())
+                .unwrap_or_default()
+        };
         match self {
             Source::Osm(p) => format!("osm:{}", name(p)),
             Source::Dimacs { gr, co } => format!("dimacs:{}+{}", name(gr), name(co)),
@@ -109,11 +113,17 @@ pub fn build_from_graph(
     progress.start("order (inertial flow)", Some(n as u64));
     let ug = UndirectedGraph::from_edges(
         n,
-        graph.edge_tail.iter().copied().zip(graph.edge_head.iter().copied()),
+        graph
+            .edge_tail
+            .iter()
+            .copied()
+            .zip(graph.edge_head.iter().copied()),
     );
     let (lo, hi) = graph.bbox();
     let proj = LocalProjection::new((lo.lat + hi.lat) / 2.0);
-    let xy: Vec<[f64; 2]> = (0..n as u32).map(|v| proj.project(graph.node_pos(v))).collect();
+    let xy: Vec<[f64; 2]> = (0..n as u32)
+        .map(|v| proj.project(graph.node_pos(v)))
+        .collect();
     let order = nested_dissection(&ug, &xy, &mut |d| progress.advance(d as u64));
     drop((ug, xy));
     progress.finish();

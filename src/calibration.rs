@@ -8,7 +8,7 @@
 //! kept as medians per great-circle band, with the sample count, because
 //! short trips wind more and drive slower than long ones.
 
-use crate::cch::{CchQuery, CustomizedMetric, Cch};
+use crate::cch::{Cch, CchQuery, CustomizedMetric};
 use crate::geo::{haversine_m, LatLon, EARTH_RADIUS_M};
 use crate::graph::RoadGraph;
 use crate::snap::SnapIndex;
@@ -93,7 +93,9 @@ pub fn calibrate(
     let mut q = CchQuery::new(cch);
     let n = g.num_nodes();
     let lows = std::iter::once(0.0).chain(BAND_EDGES_KM);
-    let highs = BAND_EDGES_KM.into_iter().chain(std::iter::once(f64::INFINITY));
+    let highs = BAND_EDGES_KM
+        .into_iter()
+        .chain(std::iter::once(f64::INFINITY));
     let ranges: Vec<(f64, f64)> = lows.zip(highs).collect();
     let mut samples: Vec<Vec<(f64, f64)>> = vec![Vec::new(); ranges.len()];
     let mut all = Vec::new();
@@ -196,5 +198,8 @@ pub fn destination(p: LatLon, bearing: f64, d_m: f64) -> LatLon {
     let phi2 = (phi1.sin() * delta.cos() + phi1.cos() * delta.sin() * bearing.cos()).asin();
     let lam2 = lam1
         + (bearing.sin() * delta.sin() * phi1.cos()).atan2(delta.cos() - phi1.sin() * phi2.sin());
-    LatLon::new(phi2.to_degrees(), ((lam2.to_degrees() + 540.0) % 360.0) - 180.0)
+    LatLon::new(
+        phi2.to_degrees(),
+        ((lam2.to_degrees() + 540.0) % 360.0) - 180.0,
+    )
 }

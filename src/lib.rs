@@ -7,14 +7,14 @@
 //!   shape and external ids) and its builder.
 //! - [`import`]: OpenStreetMap PBF, DIMACS and the synthetic city → graph.
 
+pub mod artifact;
+pub mod build;
+pub mod calibration;
+pub mod cch;
 pub mod geo;
 pub mod graph;
 pub mod import;
-pub mod cch;
 pub mod metric;
 pub mod order;
-pub mod artifact;
-pub mod calibration;
 pub mod region;
 pub mod snap;
-pub mod build;

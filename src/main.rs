@@ -17,7 +17,11 @@ use std::process::ExitCode;
 use std::time::Instant;
 
 #[derive(Parser)]
-#[command(name = "hodos", version, about = "Travel times over customizable contraction hierarchies")]
+#[command(
+    name = "hodos",
+    version,
+    about = "Travel times over customizable contraction hierarchies"
+)]
 struct Cli {
     #[command(subcommand)]
     command: Option<Command>,
@@ -28,9 +32,7 @@ enum Command {
     /// Build an artifact from a road source.
     Build(BuildArgs),
     /// Describe an artifact.
-    Info {
-        file: PathBuf,
-    },
+    Info { file: PathBuf },
     /// Travel time between two coordinates on an artifact (free-flow).
     Eta {
         file: PathBuf,
@@ -89,7 +91,8 @@ impl Progress for Bars {
                     .progress_chars("=> "),
             ),
             None => ProgressBar::new_spinner().with_style(
-                ProgressStyle::with_template("{msg:32} {spinner} {elapsed}").expect("valid template"),
+                ProgressStyle::with_template("{msg:32} {spinner} {elapsed}")
+                    .expect("valid template"),
             ),
         };
         bar.set_message(phase.to_string());
@@ -104,7 +107,11 @@ impl Progress for Bars {
     }
     fn finish(&mut self) {
         if let Some(b) = self.bar.take() {
-            b.finish_with_message(format!("{} ({:.2} s)", b.message(), self.started.elapsed().as_secs_f64()));
+            b.finish_with_message(format!(
+                "{} ({:.2} s)",
+                b.message(),
+                self.started.elapsed().as_secs_f64()
+            ));
         }
     }
 }
@@ -162,7 +169,11 @@ fn cmd_build(args: BuildArgs) -> anyhow::Result<()> {
         .save(&args.out)
         .with_context(|| format!("writing {}", args.out.display()))?;
     print_summary(&art);
-    println!("wrote {} ({:.1} MB)", args.out.display(), bytes as f64 / 1e6);
+    println!(
+        "wrote {} ({:.1} MB)",
+        args.out.display(),
+        bytes as f64 / 1e6
+    );
     Ok(())
 }
 
@@ -178,11 +189,22 @@ fn print_summary(art: &Artifact) {
     println!("arcs          {} ({} shortcuts)", m.arcs, m.shortcuts);
     println!("separator     {} nodes at the top level", m.top_separator);
     println!("tree depth    {}", m.elimination_tree_depth);
-    let phases: Vec<String> = m.phase_seconds.iter().map(|(p, s)| format!("{p} {s:.2}s")).collect();
+    let phases: Vec<String> = m
+        .phase_seconds
+        .iter()
+        .map(|(p, s)| format!("{p} {s:.2}s"))
+        .collect();
     println!("times         {}", phases.join(", "));
-    println!("calibration   {} pairs; circuity, free-flow km/h by great-circle band:", art.calibration.pairs);
+    println!(
+        "calibration   {} pairs; circuity, free-flow km/h by great-circle band:",
+        art.calibration.pairs
+    );
     for b in &art.calibration.bands {
-        let hi = if b.hi_km.is_finite() { format!("{}", b.hi_km) } else { "∞".into() };
+        let hi = if b.hi_km.is_finite() {
+            format!("{}", b.hi_km)
+        } else {
+            "∞".into()
+        };
         println!(
             "  {:>4}–{:<4} km  circuity {:.3}  speed {:6.1}  (n={})",
             b.lo_km, hi, b.circuity, b.speed_kmh, b.count
@@ -190,22 +212,36 @@ fn print_summary(art: &Artifact) {
     }
 }
 
-fn cmd_info(file: &PathBuf) -> anyhow::Result<()> {
+fn cmd_info(file: &std::path::Path) -> anyhow::Result<()> {
     let art = Artifact::load(file)?;
     print_summary(&art);
-    println!("built at      {} (unix seconds), hodos {}", art.meta.built_at_unix, art.meta.hodos_version);
+    println!(
+        "built at      {} (unix seconds), hodos {}",
+        art.meta.built_at_unix, art.meta.hodos_version
+    );
     Ok(())
 }
 
-fn cmd_eta(file: &PathBuf, from: LatLon, to: LatLon, max_snap_m: f64) -> anyhow::Result<()> {
+fn cmd_eta(
+    file: &std::path::Path,
+    from: LatLon,
+    to: LatLon,
+    max_snap_m: f64,
+) -> anyhow::Result<()> {
     let region = Region::from_artifact(Artifact::load(file)?);
     let metric = region.free_flow();
     let mut q = CchQuery::new(&region.cch);
     let eta = region.eta(&metric, &mut q, from, to, max_snap_m)?;
     println!("eta_s        {:.1}", eta.time_s);
     println!("meters       {:.1}", eta.meters);
-    println!("from snap    {:.1} m (to {})", eta.from.distance_m, eta.from.point);
-    println!("to snap      {:.1} m (to {})", eta.to.distance_m, eta.to.point);
+    println!(
+        "from snap    {:.1} m (to {})",
+        eta.from.distance_m, eta.from.point
+    );
+    println!(
+        "to snap      {:.1} m (to {})",
+        eta.to.distance_m, eta.to.point
+    );
     Ok(())
 }
 
@@ -214,20 +250,41 @@ fn cmd_demo() -> anyhow::Result<()> {
     std::fs::create_dir_all(&dir).with_context(|| format!("creating {}", dir.display()))?;
     let out = dir.join("quellhaven.hodos");
     let (_, city) = hodos::import::synthetic::generate_with_info(30_000, 7);
-    println!("building the demo city {} (about 30,000 intersections)", city.name);
-    let art = build(&Source::Synthetic { nodes: 30_000, seed: 7 }, &mut bars())?;
+    println!(
+        "building the demo city {} (about 30,000 intersections)",
+        city.name
+    );
+    let art = build(
+        &Source::Synthetic {
+            nodes: 30_000,
+            seed: 7,
+        },
+        &mut bars(),
+    )?;
     art.save(&out)?;
     print_summary(&art);
     let region = Region::from_artifact(Artifact::load(&out)?);
     let metric = region.free_flow();
     let mut q = CchQuery::new(&region.cch);
     let (lo, hi) = region.graph.bbox();
-    let from = LatLon::new(lo.lat + (hi.lat - lo.lat) * 0.2, lo.lon + (hi.lon - lo.lon) * 0.2);
-    let to = LatLon::new(lo.lat + (hi.lat - lo.lat) * 0.8, lo.lon + (hi.lon - lo.lon) * 0.75);
+    let from = LatLon::new(
+        lo.lat + (hi.lat - lo.lat) * 0.2,
+        lo.lon + (hi.lon - lo.lon) * 0.2,
+    );
+    let to = LatLon::new(
+        lo.lat + (hi.lat - lo.lat) * 0.8,
+        lo.lon + (hi.lon - lo.lon) * 0.75,
+    );
     let eta = region.eta(&metric, &mut q, from, to, DEFAULT_MAX_SNAP_M)?;
     println!();
     println!("sample ETA across {} (free-flow):", city.name);
-    println!("  from {from} to {to}: {:.0} s over {:.0} m", eta.time_s, eta.meters);
-    println!("try: cargo run --release -- eta {} --from {from} --to {to}", out.display());
+    println!(
+        "  from {from} to {to}: {:.0} s over {:.0} m",
+        eta.time_s, eta.meters
+    );
+    println!(
+        "try: cargo run --release -- eta {} --from {from} --to {to}",
+        out.display()
+    );
     Ok(())
 }

@@ -291,8 +291,14 @@ impl Workspace {
         const DIRS: [[f64; 2]; 4] = [
             [1.0, 0.0],
             [0.0, 1.0],
-            [std::f64::consts::FRAC_1_SQRT_2, std::f64::consts::FRAC_1_SQRT_2],
-            [std::f64::consts::FRAC_1_SQRT_2, -std::f64::consts::FRAC_1_SQRT_2],
+            [
+                std::f64::consts::FRAC_1_SQRT_2,
+                std::f64::consts::FRAC_1_SQRT_2,
+            ],
+            [
+                std::f64::consts::FRAC_1_SQRT_2,
+                -std::f64::consts::FRAC_1_SQRT_2,
+            ],
         ];
         let k = nodes.len();
         let mut best: Option<(usize, usize, Vec<u32>)> = None;
@@ -469,14 +475,11 @@ impl Workspace {
 
     fn residual_reach(&mut self) -> Vec<bool> {
         let k = self.num_local();
-        let mut reach = vec![false; k];
+        let reach_init: Vec<bool> = self.role[..k].iter().map(|&r| r == 1).collect();
+        let mut reach = reach_init;
         self.queue.clear();
-        for u in 0..k {
-            if self.role[u] == 1 {
-                reach[u] = true;
-                self.queue.push(u as u32);
-            }
-        }
+        self.queue
+            .extend((0..k as u32).filter(|&u| reach[u as usize]));
         let mut head = 0;
         while head < self.queue.len() {
             let u = self.queue[head] as usize;

@@ -158,11 +158,17 @@ impl Region {
         match (graph_best, direct) {
             (Some(r), Some(d)) if d.time_ms > f64::from(r.time) => Ok((
                 eta(f64::from(r.time), r.len_cm as f64),
-                Via::Graph { source: r.source, target: r.target },
+                Via::Graph {
+                    source: r.source,
+                    target: r.target,
+                },
             )),
             (Some(r), None) => Ok((
                 eta(f64::from(r.time), r.len_cm as f64),
-                Via::Graph { source: r.source, target: r.target },
+                Via::Graph {
+                    source: r.source,
+                    target: r.target,
+                },
             )),
             (_, Some(d)) => Ok((eta(d.time_ms, d.len_m * 100.0), Via::Direct(d))),
             (None, None) => Err(EtaError::Unreachable),
@@ -213,10 +219,12 @@ impl Region {
         let len = g.edge_len_m[e].max(1e-9);
         let t = (s.offset_m / len).clamp(0.0, 1.0);
         let mut out = [Endpoint::at(0); 2];
-        let part = |w: u32, frac: f64, meters: f64| (
-            (f64::from(w) * frac).round() as u32,
-            (meters * 100.0).round() as u32,
-        );
+        let part = |w: u32, frac: f64, meters: f64| {
+            (
+                (f64::from(w) * frac).round() as u32,
+                (meters * 100.0).round() as u32,
+            )
+        };
         // Along the edge itself: origin leaves through its head, destination
         // is entered from its tail.
         let (node, frac, meters) = if origin {

@@ -43,14 +43,20 @@ pub struct SnapIndex {
 
 impl std::fmt::Debug for SnapIndex {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.debug_struct("SnapIndex").field("segments", &self.tree.size()).finish()
+        f.debug_struct("SnapIndex")
+            .field("segments", &self.tree.size())
+            .finish()
     }
 }
 
 impl SnapIndex {
     pub fn new(g: &RoadGraph) -> Self {
         let (lo, hi) = g.bbox();
-        let proj = LocalProjection::new(if lo.lat.is_finite() { (lo.lat + hi.lat) / 2.0 } else { 0.0 });
+        let proj = LocalProjection::new(if lo.lat.is_finite() {
+            (lo.lat + hi.lat) / 2.0
+        } else {
+            0.0
+        });
         let mut segs = Vec::with_capacity(g.num_edges() / 2 + g.shape.len());
         let mut poly = Vec::new();
         for e in 0..g.num_edges() as u32 {
@@ -65,7 +71,11 @@ impl SnapIndex {
                 let len = haversine_m(w[0], w[1]);
                 segs.push(Seg::new(
                     Line::new(proj.project(w[0]), proj.project(w[1])),
-                    SegInfo { edge: e, start_m: start, len_m: len },
+                    SegInfo {
+                        edge: e,
+                        start_m: start,
+                        len_m: len,
+                    },
                 ));
                 start += len;
             }

@@ -7,7 +7,14 @@ use hodos::build::{build, Quiet, Source};
 
 #[test]
 fn round_trip_and_every_kind_of_damage() {
-    let art = build(&Source::Synthetic { nodes: 3_000, seed: 5 }, &mut Quiet).expect("build");
+    let art = build(
+        &Source::Synthetic {
+            nodes: 3_000,
+            seed: 5,
+        },
+        &mut Quiet,
+    )
+    .expect("build");
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("city.hodos");
     art.save(&path).unwrap();
@@ -32,7 +39,10 @@ fn round_trip_and_every_kind_of_damage() {
 
     let mut b = bytes.clone();
     b[8] = 99;
-    assert!(matches!(try_bytes(&b), ArtifactError::BadVersion { found: 99, .. }));
+    assert!(matches!(
+        try_bytes(&b),
+        ArtifactError::BadVersion { found: 99, .. }
+    ));
 
     let mut b = bytes.clone();
     let mid = b.len() / 2;
@@ -42,7 +52,10 @@ fn round_trip_and_every_kind_of_damage() {
     for cut in [0, 4, 8, 20, 31, 32, 1000, bytes.len() - 1] {
         let e = try_bytes(&bytes[..cut]);
         assert!(
-            matches!(e, ArtifactError::Truncated { .. } | ArtifactError::BadMagic { .. }),
+            matches!(
+                e,
+                ArtifactError::Truncated { .. } | ArtifactError::BadMagic { .. }
+            ),
             "cut at {cut}: {e}"
         );
     }

@@ -5,7 +5,7 @@
 mod common;
 
 use common::{petgraph_of, reference_dists, Pairs};
-use hodos::cch::{customize::CustomizedMetric, CchQuery, Cch};
+use hodos::cch::{customize::CustomizedMetric, Cch, CchQuery};
 use hodos::geo::LatLon;
 use hodos::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
 use hodos::order::{nested_dissection, UndirectedGraph};
@@ -15,7 +15,10 @@ fn grid(w: u32, h: u32, seed: u64) -> RoadGraph {
     let mut b = GraphBuilder::default();
     for y in 0..h {
         for x in 0..w {
-            b.add_node(LatLon::new(45.0 + y as f64 * 0.001, 7.0 + x as f64 * 0.0013), (y * w + x) as u64);
+            b.add_node(
+                LatLon::new(45.0 + y as f64 * 0.001, 7.0 + x as f64 * 0.0013),
+                (y * w + x) as u64,
+            );
         }
     }
     let mut way = 0;
@@ -26,7 +29,15 @@ fn grid(w: u32, h: u32, seed: u64) -> RoadGraph {
             return; // missing link
         }
         let speed = 10.0 + rng.below(90) as f32;
-        let spec = |t, h| EdgeSpec { tail: t, head: h, length_m: None, speed_kmh: speed, way_id: way, class: RoadClass::Residential, shape: &[] };
+        let spec = |t, h| EdgeSpec {
+            tail: t,
+            head: h,
+            length_m: None,
+            speed_kmh: speed,
+            way_id: way,
+            class: RoadClass::Residential,
+            shape: &[],
+        };
         if kind != 1 {
             b.add_edge(spec(a, c));
         }
@@ -35,7 +46,10 @@ fn grid(w: u32, h: u32, seed: u64) -> RoadGraph {
         }
         if kind == 3 {
             // A parallel slower edge.
-            b.add_edge(EdgeSpec { speed_kmh: speed / 2.0, ..spec(a, c) });
+            b.add_edge(EdgeSpec {
+                speed_kmh: speed / 2.0,
+                ..spec(a, c)
+            });
         }
     };
     for y in 0..h {
@@ -56,9 +70,14 @@ fn grid(w: u32, h: u32, seed: u64) -> RoadGraph {
 }
 
 fn build(g: &RoadGraph) -> Cch {
-    let ug = UndirectedGraph::from_edges(g.num_nodes(), (0..g.num_edges()).map(|e| (g.edge_tail[e], g.edge_head[e])));
+    let ug = UndirectedGraph::from_edges(
+        g.num_nodes(),
+        (0..g.num_edges()).map(|e| (g.edge_tail[e], g.edge_head[e])),
+    );
     let proj = hodos::geo::LocalProjection::new(45.0);
-    let xy: Vec<[f64; 2]> = (0..g.num_nodes() as u32).map(|v| proj.project(g.node_pos(v))).collect();
+    let xy: Vec<[f64; 2]> = (0..g.num_nodes() as u32)
+        .map(|v| proj.project(g.node_pos(v)))
+        .collect();
     let order = nested_dissection(&ug, &xy, &mut |_| {});
     Cch::build(g, order.rank)
 }
@@ -79,7 +98,11 @@ fn grid_queries_equal_petgraph_dijkstra() {
             let reference = reference_dists(&pg, s);
             for t in 0..g.num_nodes() as u32 {
                 let got = q.node_to_node(&cch, &metric, s, t);
-                assert_eq!(got.map(|r| u64::from(r.time)), reference[t as usize], "{w}x{h} {s}->{t}");
+                assert_eq!(
+                    got.map(|r| u64::from(r.time)),
+                    reference[t as usize],
+                    "{w}x{h} {s}->{t}"
+                );
                 if let Some(r) = got {
                     edges.clear();
                     q.unpack_edges(&cch, &metric, &mut edges);

@@ -77,7 +77,12 @@ fn ny_counts_match_the_challenge_header() {
     // No self-loops in NY, so every arc becomes an edge.
     assert_eq!(ny.graph.num_edges(), 733_846);
     // Ids: node i is DIMACS id i+1.
-    assert!(ny.graph.node_ext.iter().enumerate().all(|(i, &e)| e == i as u64 + 1));
+    assert!(ny
+        .graph
+        .node_ext
+        .iter()
+        .enumerate()
+        .all(|(i, &e)| e == i as u64 + 1));
     // Weight range 1..36,946 (SOURCES.md, "What was verified").
     let (lo, hi) = ny
         .arcs
@@ -122,7 +127,10 @@ fn ny_weights_are_decimetres() {
     assert!(ratios.len() > 10_000, "sample of {}", ratios.len());
     ratios.sort_by(f64::total_cmp);
     let median = ratios[ratios.len() / 2];
-    eprintln!("median weight/haversine = {median:.4} over {} arcs", ratios.len());
+    eprintln!(
+        "median weight/haversine = {median:.4} over {} arcs",
+        ratios.len()
+    );
     assert!((9.9..=10.1).contains(&median), "median {median}");
     // And the importer turns that into metres: length = weight / 10.
     for (e, &(u, v, w)) in ny.arcs.iter().enumerate().step_by(101) {
@@ -146,7 +154,10 @@ fn ny_opposite_arcs_are_twins() {
         let t = g.edge_twin[e];
         if t != NONE {
             let t = t as usize;
-            assert_eq!((g.edge_tail[t], g.edge_head[t]), (g.edge_head[e], g.edge_tail[e]));
+            assert_eq!(
+                (g.edge_tail[t], g.edge_head[t]),
+                (g.edge_head[e], g.edge_tail[e])
+            );
             assert_eq!(g.edge_way[t], g.edge_way[e]);
         }
     }
@@ -159,7 +170,10 @@ fn ny_travel_time_graph_has_the_same_arcs() {
     // (u, v) arcs in the same order; only the weights differ."
     let t = dimacs::read_arc_weights(&ny.dir.join("USA-road-t.NY.gr.gz")).unwrap();
     assert_eq!(t.len(), ny.arcs.len());
-    assert!(t.iter().zip(&ny.arcs).all(|(a, b)| (a.0, a.1) == (b.0, b.1)));
+    assert!(t
+        .iter()
+        .zip(&ny.arcs)
+        .all(|(a, b)| (a.0, a.1) == (b.0, b.1)));
     // Weight range 2..92,366 (SOURCES.md, "What was verified").
     let lo = t.iter().map(|a| a.2).min().unwrap();
     let hi = t.iter().map(|a| a.2).max().unwrap();
@@ -269,7 +283,11 @@ fn gzip_reads_the_same_as_plain() {
 #[test]
 fn crlf_comments_and_blank_lines_are_fine() {
     let dir = tempfile::tempdir().unwrap();
-    let gr = write(dir.path(), "crlf.gr", &GOOD_GR.replace('\n', "\r\n").replace("p sp", "\nc\np sp"));
+    let gr = write(
+        dir.path(),
+        "crlf.gr",
+        &GOOD_GR.replace('\n', "\r\n").replace("p sp", "\nc\np sp"),
+    );
     let co = write(dir.path(), "crlf.co", &GOOD_CO.replace('\n', "\r\n"));
     let g = dimacs::read(&gr, &co).unwrap();
     assert_eq!((g.num_nodes(), g.num_edges()), (3, 4));
@@ -331,7 +349,11 @@ fn gr_missing_header() {
     assert!(matches!(err, ImportError::Invalid { .. }), "{err}");
     check_error(&err, "no_header.gr", None);
     let empty = write(dir.path(), "empty.gr", "");
-    check_error(&dimacs::read_arc_weights(&empty).unwrap_err(), "empty.gr", None);
+    check_error(
+        &dimacs::read_arc_weights(&empty).unwrap_err(),
+        "empty.gr",
+        None,
+    );
 }
 
 #[test]
@@ -351,10 +373,22 @@ fn co_duplicate_and_missing_ids() {
         Some(4),
     );
     // Duplicate among fewer lines than announced: still reported at the repeat.
-    expect_co_error("dup_short.co", "p aux sp co 3\nv 2 0 0\nc\nv 2 0 0\n", Some(4));
+    expect_co_error(
+        "dup_short.co",
+        "p aux sp co 3\nv 2 0 0\nc\nv 2 0 0\n",
+        Some(4),
+    );
     // A missing id is reported at the header that announced it.
-    expect_co_error("missing.co", "c\np aux sp co 3\nv 1 0 0\nv 3 0 0\n", Some(2));
-    expect_co_error("extra.co", "p aux sp co 3\nv 1 0 0\nv 2 0 0\nv 3 0 0\nv 3 0 0\n", Some(5));
+    expect_co_error(
+        "missing.co",
+        "c\np aux sp co 3\nv 1 0 0\nv 3 0 0\n",
+        Some(2),
+    );
+    expect_co_error(
+        "extra.co",
+        "p aux sp co 3\nv 1 0 0\nv 2 0 0\nv 3 0 0\nv 3 0 0\n",
+        Some(5),
+    );
     expect_co_error("id_out.co", "p aux sp co 3\nv 4 0 0\n", Some(2));
 }
 
@@ -366,7 +400,11 @@ fn co_header_problems() {
     expect_co_error("co_unknown.co", "p aux sp co 3\nw 1 0 0\n", Some(2));
     expect_co_error("co_none.co", "c only comments\n", None);
     // Node counts of .gr and .co disagree: Invalid naming the .co.
-    expect_co_error("co_four.co", "p aux sp co 4\nv 1 0 0\nv 2 0 0\nv 3 0 0\nv 4 0 0\n", None);
+    expect_co_error(
+        "co_four.co",
+        "p aux sp co 4\nv 1 0 0\nv 2 0 0\nv 3 0 0\nv 4 0 0\n",
+        None,
+    );
 }
 
 #[test]
@@ -392,5 +430,9 @@ fn corrupt_gzip_is_an_error_not_a_panic() {
     // Binary garbage that is not gzip: a syntax error, no panic.
     let junk = dir.path().join("junk.gr");
     std::fs::write(&junk, [0xffu8, 0xfe, 0x00, b'\n', b'a']).unwrap();
-    check_error(&dimacs::read_arc_weights(&junk).unwrap_err(), "junk.gr", Some(1));
+    check_error(
+        &dimacs::read_arc_weights(&junk).unwrap_err(),
+        "junk.gr",
+        Some(1),
+    );
 }

@@ -25,7 +25,14 @@ fn check(region: &Region, label: &str) {
     assert!(n >= 1000);
     let speeds = random_speeds(&region.graph, 99);
     let second = region.metric(hodos::metric::from_speeds(&region.graph, &speeds));
-    let n = assert_exact(region, &second, 20, 60, 12, &format!("{label} random speeds"));
+    let n = assert_exact(
+        region,
+        &second,
+        20,
+        60,
+        12,
+        &format!("{label} random speeds"),
+    );
     assert!(n >= 1000);
     check_snapped(region, &second, label);
 }
@@ -48,7 +55,9 @@ fn check_snapped(region: &Region, metric: &hodos::region::Metric, label: &str) {
             )
         };
         let (a, b) = (p(&mut rng), p(&mut rng));
-        let Ok(eta) = region.eta(metric, &mut q, a, b, 1e9) else { continue };
+        let Ok(eta) = region.eta(metric, &mut q, a, b, 1e9) else {
+            continue;
+        };
         // Ways out of the origin: (node, cost to reach it).
         let outs = ways(g, metric, eta.from.edge, eta.from.offset_m, true);
         let ins = ways(g, metric, eta.to.edge, eta.to.offset_m, false);
@@ -68,7 +77,9 @@ fn check_snapped(region: &Region, metric: &hodos::region::Metric, label: &str) {
             if oa <= ob {
                 best = best.min((metric.weights[e] as f64 * (ob - oa) / len).round());
             } else if g.edge_twin[e] != NONE {
-                best = best.min((metric.weights[g.edge_twin[e] as usize] as f64 * (oa - ob) / len).round());
+                best = best.min(
+                    (metric.weights[g.edge_twin[e] as usize] as f64 * (oa - ob) / len).round(),
+                );
             }
         }
         assert!(
@@ -80,7 +91,13 @@ fn check_snapped(region: &Region, metric: &hodos::region::Metric, label: &str) {
     }
 }
 
-fn ways(g: &hodos::graph::RoadGraph, m: &hodos::region::Metric, e: u32, off: f64, origin: bool) -> Vec<(u32, f64)> {
+fn ways(
+    g: &hodos::graph::RoadGraph,
+    m: &hodos::region::Metric,
+    e: u32,
+    off: f64,
+    origin: bool,
+) -> Vec<(u32, f64)> {
     let len = g.edge_len_m[e as usize];
     let t = off / len;
     let w = m.weights[e as usize] as f64;
@@ -103,7 +120,10 @@ fn ways(g: &hodos::graph::RoadGraph, m: &hodos::region::Metric, e: u32, off: f64
 
 #[test]
 fn helsinki_center_matches_dijkstra() {
-    check(&region_of(Source::Osm(fixture("helsinki-center.osm.pbf"))), "helsinki-center");
+    check(
+        &region_of(Source::Osm(fixture("helsinki-center.osm.pbf"))),
+        "helsinki-center",
+    );
 }
 
 #[test]
@@ -113,5 +133,11 @@ fn monaco_matches_dijkstra() {
 
 #[test]
 fn synthetic_city_matches_dijkstra() {
-    check(&region_of(Source::Synthetic { nodes: 20_000, seed: 3 }), "synthetic");
+    check(
+        &region_of(Source::Synthetic {
+            nodes: 20_000,
+            seed: 3,
+        }),
+        "synthetic",
+    );
 }

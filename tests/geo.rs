@@ -31,9 +31,15 @@ fn haversine_within_half_percent_of_ellipsoidal_geodesic() {
         // the meridional radius of curvature at the equator (WGS84 constants,
         // NIMA TR8350.2): north–south trips near the equator are the worst
         // case. Away from it (|lat| ≥ 15°) the error stays within 0.5%.
-        assert!(rel < 0.0057, "{lat1},{lon1} -> {lat2},{lon2}: haversine {h} vs geodesic {s12}");
+        assert!(
+            rel < 0.0057,
+            "{lat1},{lon1} -> {lat2},{lon2}: haversine {h} vs geodesic {s12}"
+        );
         if lat1.abs().min(lat2.abs()) >= 15.0 {
-            assert!(rel < 0.005, "{lat1},{lon1} -> {lat2},{lon2}: haversine {h} vs geodesic {s12}");
+            assert!(
+                rel < 0.005,
+                "{lat1},{lon1} -> {lat2},{lon2}: haversine {h} vs geodesic {s12}"
+            );
         }
     }
     eprintln!("worst relative difference {worst:.5}");
@@ -44,13 +50,20 @@ fn haversine_worked_example() {
     // Rosetta Code, "Haversine formula" task (from memory): BNA
     // (36.12, -86.67) to LAX (33.94, -118.40) on a sphere of R = 6372.8 km
     // is 2887.2599506071106 km.
-    let d = haversine_with_radius(LatLon::new(36.12, -86.67), LatLon::new(33.94, -118.40), 6372.8);
+    let d = haversine_with_radius(
+        LatLon::new(36.12, -86.67),
+        LatLon::new(33.94, -118.40),
+        6372.8,
+    );
     assert!((d - 2887.2599506071106).abs() < 1e-6, "{d}");
 }
 
 #[test]
 fn coordinates_parse_and_reject() {
-    assert_eq!("45.5,-30.25".parse::<LatLon>().unwrap(), LatLon::new(45.5, -30.25));
+    assert_eq!(
+        "45.5,-30.25".parse::<LatLon>().unwrap(),
+        LatLon::new(45.5, -30.25)
+    );
     for bad in ["95,0", "0,181", "abc,1", "1", "NaN,0", "inf,0"] {
         assert!(bad.parse::<LatLon>().is_err(), "{bad}");
     }

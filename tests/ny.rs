@@ -14,18 +14,35 @@ use std::time::Instant;
 
 #[test]
 fn ny_hierarchy_is_exact_small_and_calibrated() {
-    let Some((gr, co, t_gr)) = dimacs_ny() else { return };
+    let Some((gr, co, t_gr)) = dimacs_ny() else {
+        return;
+    };
     let t0 = Instant::now();
     let raw = dimacs::read(&gr, &co).expect("read NY");
     // 9th DIMACS Challenge, USA-road-d.NY header `p sp 264346 733846`
     // (SOURCES.md): every node is read; arcs minus self-loops become edges.
     assert_eq!(raw.num_nodes(), 264_346);
-    assert!(raw.num_edges() <= 733_846 && raw.num_edges() > 733_000, "{}", raw.num_edges());
-    let art = build_from_graph("dimacs:NY".into(), raw, t0.elapsed().as_secs_f64(), &mut Quiet).expect("build");
+    assert!(
+        raw.num_edges() <= 733_846 && raw.num_edges() > 733_000,
+        "{}",
+        raw.num_edges()
+    );
+    let art = build_from_graph(
+        "dimacs:NY".into(),
+        raw,
+        t0.elapsed().as_secs_f64(),
+        &mut Quiet,
+    )
+    .expect("build");
     eprintln!("NY build phases: {:?}", art.meta.phase_seconds);
     eprintln!(
         "NY: {} nodes, {} edges, {} arcs, top separator {}, tree depth {}, dropped {:?}",
-        art.meta.nodes, art.meta.edges, art.meta.arcs, art.meta.top_separator, art.meta.elimination_tree_depth, art.meta.dropped
+        art.meta.nodes,
+        art.meta.edges,
+        art.meta.arcs,
+        art.meta.top_separator,
+        art.meta.elimination_tree_depth,
+        art.meta.dropped
     );
 
     // Rule of thumb (common practice): a city-scale road network is cut by
@@ -44,8 +61,16 @@ fn ny_hierarchy_is_exact_small_and_calibrated() {
     let cal = &art.calibration;
     eprintln!("NY calibration: {cal:?}");
     assert!(cal.pairs >= 2000, "{} pairs", cal.pairs);
-    assert!((1.1..=1.6).contains(&cal.overall_circuity), "overall circuity {}", cal.overall_circuity);
-    for b in cal.bands.iter().filter(|b| b.count >= 100 && b.lo_km >= 1.0) {
+    assert!(
+        (1.1..=1.6).contains(&cal.overall_circuity),
+        "overall circuity {}",
+        cal.overall_circuity
+    );
+    for b in cal
+        .bands
+        .iter()
+        .filter(|b| b.count >= 100 && b.lo_km >= 1.0)
+    {
         assert!((1.1..=1.6).contains(&b.circuity), "band {b:?}");
     }
 
@@ -67,7 +92,12 @@ fn ny_hierarchy_is_exact_small_and_calibrated() {
     }
     let g = &region.graph;
     let t_weights: Vec<u32> = (0..g.num_edges())
-        .map(|e| by_pair[&(g.node_ext[g.edge_tail[e] as usize], g.node_ext[g.edge_head[e] as usize])])
+        .map(|e| {
+            by_pair[&(
+                g.node_ext[g.edge_tail[e] as usize],
+                g.node_ext[g.edge_head[e] as usize],
+            )]
+        })
         .collect();
     let tm = region.metric(t_weights);
     assert_exact(&region, &tm, 10, 100, 22, "NY USA-road-t");

@@ -61,8 +61,16 @@ impl CustomizedMetric {
 
     /// Recomputes all weights in place for a new metric (reuses buffers).
     pub fn customize(&mut self, cch: &Cch, weights: &[u32], edge_len_m: &[f64]) {
-        assert_eq!(weights.len(), cch.edge_arc.len(), "one weight per road edge");
-        assert_eq!(edge_len_m.len(), cch.edge_arc.len(), "one length per road edge");
+        assert_eq!(
+            weights.len(),
+            cch.edge_arc.len(),
+            "one weight per road edge"
+        );
+        assert_eq!(
+            edge_len_m.len(),
+            cch.edge_arc.len(),
+            "one length per road edge"
+        );
         self.up.fill(INFINITY);
         self.down.fill(INFINITY);
         self.up_via.fill(VIA_NONE);

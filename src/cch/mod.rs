@@ -130,10 +130,7 @@ impl Cch {
     pub fn find_arc(&self, lo: u32, hi: u32) -> Option<u32> {
         let r = self.arcs(lo);
         let s = r.start;
-        self.head[r]
-            .binary_search(&hi)
-            .ok()
-            .map(|i| (s + i) as u32)
+        self.head[r].binary_search(&hi).ok().map(|i| (s + i) as u32)
     }
 
     /// Number of hierarchy arcs that are not the image of a road edge.

@@ -33,7 +33,11 @@ pub struct Endpoint {
 
 impl Endpoint {
     pub fn at(node: u32) -> Self {
-        Self { node, time: 0, len_cm: 0 }
+        Self {
+            node,
+            time: 0,
+            len_cm: 0,
+        }
     }
 }
 
@@ -128,7 +132,12 @@ impl CchQuery {
         let mut visited = 0;
         // Walk the union of all chains in increasing rank.
         loop {
-            let x = fcur.iter().chain(bcur.iter()).copied().min().unwrap_or(NONE);
+            let x = fcur
+                .iter()
+                .chain(bcur.iter())
+                .copied()
+                .min()
+                .unwrap_or(NONE);
             if x == NONE {
                 break;
             }

@@ -222,10 +222,7 @@ fn parse_gr(path: &Path) -> Result<GrFile, ImportError> {
         return Err(ImportError::syntax(
             path,
             hl,
-            format!(
-                "header announces {m} arcs but the file has {}",
-                arcs.len()
-            ),
+            format!("header announces {m} arcs but the file has {}", arcs.len()),
         ));
     }
     Ok(GrFile { nodes, arcs })
@@ -345,10 +342,7 @@ fn parse_co(path: &Path) -> Result<Vec<(i32, i32)>, ImportError> {
         for &(id, lon, lat, ln) in &entries {
             let slot = &mut out[id as usize];
             if slot.1 != UNSET {
-                let first = entries
-                    .iter()
-                    .find(|e| e.0 == id)
-                    .map_or(0, |e| e.3);
+                let first = entries.iter().find(|e| e.0 == id).map_or(0, |e| e.3);
                 return Err(ImportError::syntax(
                     path,
                     ln as usize,
@@ -445,7 +439,10 @@ const MAX_TOKENS: usize = 6;
 
 /// `c` alone or followed by a blank, possibly after leading blanks.
 fn is_comment(line: &[u8]) -> bool {
-    let start = line.iter().position(|&b| !is_blank(b)).unwrap_or(line.len());
+    let start = line
+        .iter()
+        .position(|&b| !is_blank(b))
+        .unwrap_or(line.len());
     let rest = &line[start..];
     rest.first() == Some(&b'c') && rest.get(1).is_none_or(|&b| is_blank(b))
 }

@@ -184,7 +184,7 @@ impl Axis {
         for k in 1..total {
             let range = if river == Some(k - 1) {
                 RIVER_GAP
-            } else if k - 1 >= lo && k < hi {
+            } else if k > lo && k < hi {
                 DOWNTOWN_BLOCK
             } else {
                 OUTER_BLOCK
@@ -292,7 +292,11 @@ fn plan(nodes: usize) -> (usize, usize, usize) {
     let d = (3 * m + 1) as f64;
     // (tdc + s)(tdr + s) = target - d² + tdc·tdr, with s = 2·outer.
     let x = (target - d * d + tdc * tdr).max(0.0);
-    let s = (-(tdc + tdr) + ((tdc + tdr).powi(2) - 4.0 * (tdc * tdr - x)).max(0.0).sqrt()) / 2.0;
+    let s = (-(tdc + tdr)
+        + ((tdc + tdr).powi(2) - 4.0 * (tdc * tdr - x))
+            .max(0.0)
+            .sqrt())
+        / 2.0;
     let o0 = (s / 2.0).round() as usize;
     let mut best = (usize::MAX, 4, 4);
     for oc in o0.saturating_sub(2).max(4)..=o0.max(4) + 2 {
@@ -308,7 +312,10 @@ fn plan(nodes: usize) -> (usize, usize, usize) {
 
 fn to_latlon(x: f64, y: f64) -> LatLon {
     let m_per_deg_lon = M_PER_DEG * CITY_CENTER.lat.to_radians().cos();
-    LatLon::new(CITY_CENTER.lat + y / M_PER_DEG, CITY_CENTER.lon + x / m_per_deg_lon)
+    LatLon::new(
+        CITY_CENTER.lat + y / M_PER_DEG,
+        CITY_CENTER.lon + x / m_per_deg_lon,
+    )
 }
 
 /// One block of the lattice, from its west (or south) end `a` to `b`.
@@ -475,7 +482,11 @@ pub fn generate_with_info(nodes: usize, seed: u64) -> (RoadGraph, CityInfo) {
             if degree[a] >= 3 && degree[b] >= 3 {
                 degree[a] -= 1;
                 degree[b] -= 1;
-                gone[a] |= if blk.horizontal { GONE_EAST } else { GONE_NORTH };
+                gone[a] |= if blk.horizontal {
+                    GONE_EAST
+                } else {
+                    GONE_NORTH
+                };
             }
         }
     });
@@ -541,13 +552,13 @@ pub fn generate_with_info(nodes: usize, seed: u64) -> (RoadGraph, CityInfo) {
     let mut rev: Vec<LatLon> = Vec::new();
     // Adds a piece in one or both directions; returns the ids of the added edges.
     let add_piece = |b: &mut GraphBuilder,
-                         tail: u32,
-                         head: u32,
-                         class: RoadClass,
-                         way_id: u64,
-                         dir: i8,
-                         shape: &[LatLon],
-                         rev: &mut Vec<LatLon>|
+                     tail: u32,
+                     head: u32,
+                     class: RoadClass,
+                     way_id: u64,
+                     dir: i8,
+                     shape: &[LatLon],
+                     rev: &mut Vec<LatLon>|
      -> [u32; 2] {
         let mut ids = [NONE; 2];
         let spec = |t, h, s| EdgeSpec {
@@ -582,7 +593,11 @@ pub fn generate_with_info(nodes: usize, seed: u64) -> (RoadGraph, CityInfo) {
         if blk.over_river && !is_bridge_col(blk.street) {
             return;
         }
-        let flag = if blk.horizontal { GONE_EAST } else { GONE_NORTH };
+        let flag = if blk.horizontal {
+            GONE_EAST
+        } else {
+            GONE_NORTH
+        };
         if gone[blk.a as usize] & flag != 0 {
             return;
         }
@@ -593,11 +608,24 @@ pub fn generate_with_info(nodes: usize, seed: u64) -> (RoadGraph, CityInfo) {
             let (a, bb) = (blk.a as usize, blk.b as usize);
             let (mx, my) = ((xs[a] + xs[bb]) / 2.0, (ys[a] + ys[bb]) / 2.0);
             let off = rng.random_range(-10.0..10.0);
-            let (px, py) = if blk.horizontal { (mx, my + off) } else { (mx + off, my) };
+            let (px, py) = if blk.horizontal {
+                (mx, my + off)
+            } else {
+                (mx + off, my)
+            };
             shape.push(to_latlon(px, py));
         }
         let w = next_way();
-        let ids = add_piece(&mut b, blk.a, blk.b, class, w, ax.oneway[blk.street], &shape, &mut rev);
+        let ids = add_piece(
+            &mut b,
+            blk.a,
+            blk.b,
+            class,
+            w,
+            ax.oneway[blk.street],
+            &shape,
+            &mut rev,
+        );
         if blk.over_river {
             bridge_edges.push((blk.street, ids, blk.a, blk.b));
         }
@@ -633,23 +661,49 @@ pub fn generate_with_info(nodes: usize, seed: u64) -> (RoadGraph, CityInfo) {
             continue;
         }
         let r = ring_first + i as u32;
-        let (gx, gy, rx, ry) = (xs[g as usize], ys[g as usize], xs[r as usize], ys[r as usize]);
+        let (gx, gy, rx, ry) = (
+            xs[g as usize],
+            ys[g as usize],
+            xs[r as usize],
+            ys[r as usize],
+        );
         let (dx, dy) = (rx - gx, ry - gy);
         let len = (dx * dx + dy * dy).sqrt();
-        let (px, py) = if len < 1.0 { (1.0, 0.0) } else { (-dy / len, dx / len) };
+        let (px, py) = if len < 1.0 {
+            (1.0, 0.0)
+        } else {
+            (-dy / len, dx / len)
+        };
         let (mx, my) = ((gx + rx) / 2.0, (gy + ry) / 2.0);
         for (tail, head, side) in [(g, r, 1.0), (r, g, -1.0)] {
             shape.clear();
-            shape.push(to_latlon(mx + side * RAMP_OFFSET_M * px, my + side * RAMP_OFFSET_M * py));
+            shape.push(to_latlon(
+                mx + side * RAMP_OFFSET_M * px,
+                my + side * RAMP_OFFSET_M * py,
+            ));
             let w = next_way();
-            add_piece(&mut b, tail, head, RoadClass::MotorwayLink, w, 1, &shape, &mut rev);
+            add_piece(
+                &mut b,
+                tail,
+                head,
+                RoadClass::MotorwayLink,
+                w,
+                1,
+                &shape,
+                &mut rev,
+            );
         }
     }
     // Cul-de-sacs (two-way, slightly bent) and one-way dead-end stubs.
     for &(base, end, two_way) in &hangers {
         shape.clear();
         let class = if two_way {
-            let (bx, by, ex, ey) = (xs[base as usize], ys[base as usize], xs[end as usize], ys[end as usize]);
+            let (bx, by, ex, ey) = (
+                xs[base as usize],
+                ys[base as usize],
+                xs[end as usize],
+                ys[end as usize],
+            );
             let off = rng.random_range(-8.0..8.0);
             let (dx, dy) = (ex - bx, ey - by);
             let len = (dx * dx + dy * dy).sqrt();
@@ -662,7 +716,16 @@ pub fn generate_with_info(nodes: usize, seed: u64) -> (RoadGraph, CityInfo) {
             RoadClass::Service
         };
         let w = next_way();
-        add_piece(&mut b, base, end, class, w, if two_way { 0 } else { 1 }, &shape, &mut rev);
+        add_piece(
+            &mut b,
+            base,
+            end,
+            class,
+            w,
+            if two_way { 0 } else { 1 },
+            &shape,
+            &mut rev,
+        );
     }
     let graph = b.finish();
 
@@ -683,7 +746,11 @@ pub fn generate_with_info(nodes: usize, seed: u64) -> (RoadGraph, CityInfo) {
         }
     }
     for &(x, ids, south, north) in &ring_bridges {
-        let name = if x < 0.0 { "West Ring Viaduct" } else { "East Ring Viaduct" };
+        let name = if x < 0.0 {
+            "West Ring Viaduct"
+        } else {
+            "East Ring Viaduct"
+        };
         bridges.push((
             x,
             BridgeInfo {
@@ -695,7 +762,12 @@ pub fn generate_with_info(nodes: usize, seed: u64) -> (RoadGraph, CityInfo) {
         ));
     }
     bridges.sort_by(|a, b| a.0.total_cmp(&b.0));
-    let river = river_line(&lat.rows, lat.cols.pos[0] - 500.0, lat.cols.pos[nc - 1] + 500.0, &mut rng);
+    let river = river_line(
+        &lat.rows,
+        lat.cols.pos[0] - 500.0,
+        lat.cols.pos[nc - 1] + 500.0,
+        &mut rng,
+    );
     let info = CityInfo {
         name: CITY_NAME,
         center: CITY_CENTER,
@@ -772,8 +844,16 @@ fn river_line(rows: &Axis, x0: f64, x1: f64, rng: &mut ChaCha8Rng) -> Vec<LatLon
         None => RIVER_GAP.0,
     };
     let tau = 2.0 * std::f64::consts::PI;
-    let (a1, l1, p1) = (0.12 * gap, rng.random_range(1500.0..3000.0), rng.random_range(0.0..tau));
-    let (a2, l2, p2) = (0.06 * gap, rng.random_range(600.0..900.0), rng.random_range(0.0..tau));
+    let (a1, l1, p1) = (
+        0.12 * gap,
+        rng.random_range(1500.0..3000.0),
+        rng.random_range(0.0..tau),
+    );
+    let (a2, l2, p2) = (
+        0.06 * gap,
+        rng.random_range(600.0..900.0),
+        rng.random_range(0.0..tau),
+    );
     let step = 50.0;
     let n = ((x1 - x0) / step).ceil() as usize + 1;
     (0..n)
@@ -829,7 +909,10 @@ mod tests {
         let line = river_line(&rows, -5000.0, 5000.0, &mut rng);
         for p in line {
             let y = (p.lat - CITY_CENTER.lat) * M_PER_DEG;
-            assert!(y.abs() < half_gap - 2.0 * JITTER_M, "y = {y}, half gap {half_gap}");
+            assert!(
+                y.abs() < half_gap - 2.0 * JITTER_M,
+                "y = {y}, half gap {half_gap}"
+            );
         }
     }
 

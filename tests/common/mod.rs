@@ -40,7 +40,9 @@ pub fn dimacs_ny() -> Option<(PathBuf, PathBuf, PathBuf)> {
 
 /// The OSM fixtures copied into tests/data.
 pub fn fixture(name: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("tests/data").join(name)
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/data")
+        .join(name)
 }
 
 /// petgraph graph with one weighted arc per road edge.
@@ -49,12 +51,8 @@ pub fn petgraph_of(g: &RoadGraph, weights: &[u32]) -> DiGraph<(), u32> {
     for _ in 0..g.num_nodes() {
         pg.add_node(());
     }
-    for e in 0..g.num_edges() {
-        pg.add_edge(
-            NodeIndex::new(g.edge_tail[e] as usize),
-            NodeIndex::new(g.edge_head[e] as usize),
-            weights[e],
-        );
+    for ((&t, &h), &w) in g.edge_tail.iter().zip(&g.edge_head).zip(weights) {
+        pg.add_edge(NodeIndex::new(t as usize), NodeIndex::new(h as usize), w);
     }
     pg
 }
@@ -96,7 +94,14 @@ use hodos::region::{Metric, Region};
 /// Checks `pairs` node-to-node queries (sources × targets) against petgraph's
 /// Dijkstra on the same graph and metric: equal travel times, exactly.
 /// Returns the number of pairs compared.
-pub fn assert_exact(region: &Region, metric: &Metric, sources: usize, targets_per_source: usize, seed: u64, label: &str) -> usize {
+pub fn assert_exact(
+    region: &Region,
+    metric: &Metric,
+    sources: usize,
+    targets_per_source: usize,
+    seed: u64,
+    label: &str,
+) -> usize {
     let g = &region.graph;
     let pg = petgraph_of(g, &metric.weights);
     let mut q = CchQuery::new(&region.cch);
@@ -120,5 +125,7 @@ pub fn assert_exact(region: &Region, metric: &Metric, sources: usize, targets_pe
 /// Random per-edge speeds in 5..=120 km/h (a second metric unlike free-flow).
 pub fn random_speeds(g: &RoadGraph, seed: u64) -> Vec<f32> {
     let mut rng = Pairs::new(seed);
-    (0..g.num_edges()).map(|_| 5.0 + rng.below(116) as f32).collect()
+    (0..g.num_edges())
+        .map(|_| 5.0 + rng.below(116) as f32)
+        .collect()
 }
