@@ -18,3 +18,4 @@ pub mod metric;
 pub mod order;
 pub mod region;
 pub mod snap;
+pub mod speeds;

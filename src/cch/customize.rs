@@ -40,6 +40,70 @@ pub struct CustomizedMetric {
     /// Length in centimetres of the path realising `up[a]` / `down[a]`.
     pub(crate) up_len: Vec<u32>,
     pub(crate) down_len: Vec<u32>,
+    /// Forward search graph: per rank, the upward arcs still needed after
+    /// perfect customization (see [`PrunedArcs`]).
+    pub forward: PrunedArcs,
+    /// Backward search graph: the downward directions still needed.
+    pub backward: PrunedArcs,
+}
+
+/// The arcs of one search direction that can lie on a shortest path.
+///
+/// Perfect customization (Dibbelt, Strasser & Wagner 2016, §4.2) lowers each
+/// arc to the true shortest distance between its ends, using upper and
+/// intermediate triangles top-down. An arc direction whose basic weight is
+/// larger than that distance is never needed by an upward search: a shorter
+/// path through higher-ranked nodes exists and the search finds it along
+/// other arcs. Dropping those directions keeps queries exact and cuts the
+/// arcs a query relaxes. Kept arcs carry their basic weight (equal to the
+/// perfect one) and their arc id, for predecessors and path unpacking.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct PrunedArcs {
+    /// `first[x]..first[x+1]` index the kept arcs of rank `x`.
+    pub first: Vec<u32>,
+    /// The kept arcs, grouped by lower end: one array so a query's scan of a
+    /// node's arcs touches one stream of memory.
+    pub arcs: Vec<PrunedArc>,
+}
+
+/// One kept arc direction.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct PrunedArc {
+    /// Upper end (rank).
+    pub head: u32,
+    /// Weight in this direction.
+    pub weight: u32,
+    /// Hierarchy arc id (for predecessors and unpacking).
+    pub arc: u32,
+}
+
+impl PrunedArcs {
+    #[inline]
+    pub fn range(&self, x: u32) -> std::ops::Range<usize> {
+        self.first[x as usize] as usize..self.first[x as usize + 1] as usize
+    }
+
+    fn build(cch: &Cch, basic: &[u32], perfect: &[u32]) -> Self {
+        let n = cch.num_nodes();
+        let mut p = PrunedArcs {
+            first: Vec::with_capacity(n + 1),
+            ..Default::default()
+        };
+        p.first.push(0);
+        for x in 0..n as u32 {
+            for a in cch.arcs(x) {
+                if basic[a] < INFINITY && basic[a] == perfect[a] {
+                    p.arcs.push(PrunedArc {
+                        head: cch.head[a],
+                        weight: basic[a],
+                        arc: a as u32,
+                    });
+                }
+            }
+            p.first.push(p.arcs.len() as u32);
+        }
+        p
+    }
 }
 
 impl CustomizedMetric {
@@ -54,6 +118,8 @@ impl CustomizedMetric {
             down_via: vec![VIA_NONE; m],
             up_len: vec![0; m],
             down_len: vec![0; m],
+            forward: PrunedArcs::default(),
+            backward: PrunedArcs::default(),
         };
         c.customize(cch, weights, edge_len_m);
         c
@@ -128,10 +194,44 @@ impl CustomizedMetric {
                 }
             }
         }
+        self.prune(cch);
     }
 
     /// Bytes held by this metric.
     pub fn heap_bytes(&self) -> usize {
-        6 * 4 * self.up.len()
+        let pruned = |p: &PrunedArcs| 4 * (p.first.len() + 3 * p.arcs.len());
+        6 * 4 * self.up.len() + pruned(&self.forward) + pruned(&self.backward)
+    }
+
+    /// Perfect customization on copies of the basic weights, then the pruned
+    /// search graphs.
+    fn prune(&mut self, cch: &Cch) {
+        let mut up = self.up.clone();
+        let mut down = self.down.clone();
+        let n = cch.num_nodes();
+        for x in (0..n as u32).rev() {
+            let arcs = cch.arcs(x);
+            let (fx, lx) = (arcs.start, arcs.end);
+            for a_xy in fx..lx {
+                let y = cch.head[a_xy];
+                let mut k = cch.first_out[y as usize] as usize;
+                for a_xz in a_xy + 1..lx {
+                    let z = cch.head[a_xz];
+                    while cch.head[k] != z {
+                        k += 1;
+                    }
+                    // Triangle x < y < z; arc k joins y–z (final already).
+                    let (y_to_z, z_to_y) = (up[k], down[k]);
+                    // x→z through y, z→x through y (intermediate triangle).
+                    up[a_xz] = up[a_xz].min(up[a_xy].saturating_add(y_to_z));
+                    down[a_xz] = down[a_xz].min(z_to_y.saturating_add(down[a_xy]));
+                    // x→y through z, y→x through z (upper triangle).
+                    up[a_xy] = up[a_xy].min(up[a_xz].saturating_add(z_to_y));
+                    down[a_xy] = down[a_xy].min(y_to_z.saturating_add(down[a_xz]));
+                }
+            }
+        }
+        self.forward = PrunedArcs::build(cch, &self.up, &up);
+        self.backward = PrunedArcs::build(cch, &self.down, &down);
     }
 }

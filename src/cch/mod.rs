@@ -21,6 +21,7 @@
 //! HTTP, files or speed tables: it maps `&[u32]` edge weights to answers.
 
 pub mod customize;
+pub mod matrix;
 pub mod query;
 
 use crate::graph::{RoadGraph, NONE};

@@ -1,0 +1,501 @@
+//! The live layer: the most recent observed speed per edge.
+//!
+//! # Input
+//!
+//! An observation names an edge by its end nodes and carries a speed, when
+//! it was observed (RFC 3339) and how many samples it summarises:
+//!
+//! - JSON: a top-level array of [`Observation`] objects. Unknown fields are
+//!   refused; an element that is not such an object (wrong type, missing or
+//!   unknown field, negative `samples`) is one `malformed_row`, reported by
+//!   its 0-based index.
+//! - CSV: header naming exactly `from_node,to_node,speed_kmh,observed_at,samples`
+//!   (any order), errors reported by 1-based line.
+//!
+//! # Validation
+//!
+//! One [`ErrorKind`] per observation, checked in this order: (CSV) wrong
+//! field count, unparsable node id or speed → `malformed_row`; NaN/±inf →
+//! `not_a_number`; ≤ 0 → `nonpositive_speed`; above the maximum →
+//! `over_max_speed`; `observed_at` not RFC 3339 → `bad_timestamp`; more than
+//! `max_future_skew_s` ahead of `now` → `future_timestamp`; `samples` not an
+//! integer ≥ 1 → `bad_samples`; no edge with these ends → `unknown_edge`.
+//! A batch whose bad share exceeds `max_bad_share` is rejected whole and
+//! changes nothing. An empty batch is accepted and changes nothing (unlike an
+//! empty historical table it cannot wipe anything out).
+//!
+//! # Merging
+//!
+//! Newest observation per edge wins: an observation older than the one held
+//! is ignored and counted as `superseded`; an equal timestamp replaces (the
+//! later arrival wins). An observation naming parallel edges applies to all.
+//!
+//! # Storage
+//!
+//! Dense per-edge arrays (speed, observation time in Unix milliseconds,
+//! samples; 16 bytes per edge), so that blending is one branch-light pass
+//! over all edges and an update is O(1) per edge.
+
+use super::config::ValidationConfig;
+use super::csv_input::{line_of, map_header, parse_u64, reader, show};
+use super::edge_index::EdgeIndex;
+use super::error::SpeedsError;
+use super::historical::{check_speed, check_speed_value, speed_message};
+use super::report::{ErrorKind, Loc, ReportBuilder, TableReport};
+use chrono::{DateTime, SecondsFormat, Utc};
+use csv::ByteRecord;
+use serde::{Deserialize, Serialize};
+
+/// The live CSV columns, in their canonical order.
+pub const COLUMNS: [&str; 5] = [
+    "from_node",
+    "to_node",
+    "speed_kmh",
+    "observed_at",
+    "samples",
+];
+
+/// Marks "no observation held" in the time array.
+pub(crate) const NO_OBS: i64 = i64::MIN;
+
+/// One observed speed as uploaded.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Observation {
+    /// External id of the edge's tail node.
+    pub from_node: u64,
+    /// External id of the edge's head node.
+    pub to_node: u64,
+    pub speed_kmh: f64,
+    /// RFC 3339 timestamp, e.g. `2026-03-29T08:15:00Z`.
+    pub observed_at: String,
+    /// Number of measurements averaged into `speed_kmh` (≥ 1).
+    pub samples: u32,
+}
+
+/// What the layer holds for one edge.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LiveEntry {
+    pub speed_kmh: f32,
+    pub observed_at: DateTime<Utc>,
+    pub samples: u32,
+}
+
+/// Live speeds, one slot per edge.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LiveLayer {
+    speed: Vec<f32>,
+    /// Unix milliseconds of the held observation, [`NO_OBS`] when empty.
+    observed_ms: Vec<i64>,
+    samples: Vec<u32>,
+    /// Edges holding an observation.
+    held: usize,
+    /// Newest held observation time, [`NO_OBS`] when empty.
+    newest_ms: i64,
+    /// Bumped whenever an update changes the layer, so the service knows
+    /// when a re-blend is due.
+    generation: u64,
+}
+
+/// A validated observation, before it is applied.
+struct Valid<'a> {
+    edges: &'a [u32],
+    speed: f32,
+    observed_ms: i64,
+    samples: u32,
+}
+
+impl LiveLayer {
+    /// An empty layer for a graph with `num_edges` edges
+    /// ([`EdgeIndex::num_edges`]).
+    pub fn new(num_edges: usize) -> Self {
+        LiveLayer {
+            speed: vec![0.0; num_edges],
+            observed_ms: vec![NO_OBS; num_edges],
+            samples: vec![0; num_edges],
+            held: 0,
+            newest_ms: NO_OBS,
+            generation: 0,
+        }
+    }
+
+    pub fn num_edges(&self) -> usize {
+        self.speed.len()
+    }
+
+    /// Edges holding an observation.
+    pub fn len(&self) -> usize {
+        self.held
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.held == 0
+    }
+
+    /// Counter bumped by every update or expiry that changed the layer.
+    pub fn generation(&self) -> u64 {
+        self.generation
+    }
+
+    /// The observation held for an edge.
+    pub fn get(&self, edge: u32) -> Option<LiveEntry> {
+        let i = edge as usize;
+        let ms = *self.observed_ms.get(i)?;
+        if ms == NO_OBS {
+            return None;
+        }
+        Some(LiveEntry {
+            speed_kmh: self.speed[i],
+            observed_at: DateTime::from_timestamp_millis(ms)?,
+            samples: self.samples[i],
+        })
+    }
+
+    /// Time of the newest held observation.
+    pub fn newest_observed_at(&self) -> Option<DateTime<Utc>> {
+        if self.newest_ms == NO_OBS {
+            None
+        } else {
+            DateTime::from_timestamp_millis(self.newest_ms)
+        }
+    }
+
+    /// Per-edge speeds and observation times (Unix ms, `i64::MIN` = none)
+    /// for the blend.
+    pub(crate) fn columns(&self) -> (&[f32], &[i64]) {
+        (&self.speed, &self.observed_ms)
+    }
+
+    pub(crate) fn newest_ms(&self) -> Option<i64> {
+        (self.newest_ms != NO_OBS).then_some(self.newest_ms)
+    }
+
+    /// Validates and applies typed observations (errors by index).
+    pub fn apply(
+        &mut self,
+        index: &EdgeIndex,
+        batch: &[Observation],
+        now: DateTime<Utc>,
+        cfg: &ValidationConfig,
+    ) -> Result<TableReport, SpeedsError> {
+        self.check_index(index)?;
+        let now_ms = now.timestamp_millis();
+        let mut rb = ReportBuilder::new(cfg);
+        let mut valid = Vec::with_capacity(batch.len());
+        for (i, o) in batch.iter().enumerate() {
+            let checked = check_obs(
+                index,
+                o.from_node,
+                o.to_node,
+                check_speed_value(o.speed_kmh, cfg)
+                    .map_err(|k| (k, speed_message(k, &o.speed_kmh.to_string(), cfg))),
+                &o.observed_at,
+                Some(u64::from(o.samples)),
+                now_ms,
+                cfg,
+            );
+            record(&mut rb, &mut valid, Loc::Index(i as u64), checked);
+        }
+        self.commit(rb.finish(cfg, false), valid)
+    }
+
+    /// Validates and applies a JSON array of observations (errors by
+    /// 0-based index).
+    pub fn apply_json(
+        &mut self,
+        index: &EdgeIndex,
+        json: &[u8],
+        now: DateTime<Utc>,
+        cfg: &ValidationConfig,
+    ) -> Result<TableReport, SpeedsError> {
+        self.check_index(index)?;
+        let values: Vec<serde_json::Value> = serde_json::from_slice(json)
+            .map_err(|e| SpeedsError::Json(format!("expected an array of observations: {e}")))?;
+        let now_ms = now.timestamp_millis();
+        let mut rb = ReportBuilder::new(cfg);
+        let mut valid = Vec::with_capacity(values.len());
+        for (i, v) in values.iter().enumerate() {
+            let loc = Loc::Index(i as u64);
+            let o = match Observation::deserialize(v) {
+                Ok(o) => o,
+                Err(e) => {
+                    rb.bad(loc, ErrorKind::MalformedRow, || {
+                        format!("not an observation: {e}")
+                    });
+                    continue;
+                }
+            };
+            let checked = check_obs(
+                index,
+                o.from_node,
+                o.to_node,
+                check_speed_value(o.speed_kmh, cfg)
+                    .map_err(|k| (k, speed_message(k, &o.speed_kmh.to_string(), cfg))),
+                &o.observed_at,
+                Some(u64::from(o.samples)),
+                now_ms,
+                cfg,
+            );
+            record(&mut rb, &mut valid, loc, checked);
+        }
+        self.commit(rb.finish(cfg, false), valid)
+    }
+
+    /// Validates and applies a CSV file of observations (errors by 1-based
+    /// line, header = line 1).
+    pub fn apply_csv(
+        &mut self,
+        index: &EdgeIndex,
+        csv: &[u8],
+        now: DateTime<Utc>,
+        cfg: &ValidationConfig,
+    ) -> Result<TableReport, SpeedsError> {
+        self.check_index(index)?;
+        let mut rdr = reader(csv);
+        let [c_from, c_to, c_speed, c_at, c_samples] = map_header(&mut rdr, COLUMNS)?;
+        let want_fields = COLUMNS.len();
+        let now_ms = now.timestamp_millis();
+        let mut rb = ReportBuilder::new(cfg);
+        let mut valid = Vec::new();
+        let mut rec = ByteRecord::new();
+        loop {
+            match rdr.read_byte_record(&mut rec) {
+                Ok(true) => {}
+                Ok(false) => break,
+                Err(e) => return Err(SpeedsError::Csv(e.to_string())),
+            }
+            let loc = Loc::Line(line_of(&rec));
+            if rec.len() != want_fields {
+                let got = rec.len();
+                rb.bad(loc, ErrorKind::MalformedRow, || {
+                    format!("{got} fields, expected {want_fields}")
+                });
+                continue;
+            }
+            let (from_b, to_b) = (&rec[c_from], &rec[c_to]);
+            let (Some(from), Some(to)) = (parse_u64(from_b), parse_u64(to_b)) else {
+                rb.bad(loc, ErrorKind::MalformedRow, || {
+                    format!(
+                        "node ids `{}`, `{}`: expected unsigned integers",
+                        show(from_b),
+                        show(to_b)
+                    )
+                });
+                continue;
+            };
+            let at = String::from_utf8_lossy(&rec[c_at]);
+            let samples_b = &rec[c_samples];
+            let samples = parse_u64(samples_b);
+            let checked = check_obs(
+                index,
+                from,
+                to,
+                check_speed(&rec[c_speed], cfg)
+                    .map_err(|k| (k, speed_message(k, &show(&rec[c_speed]), cfg))),
+                &at,
+                samples,
+                now_ms,
+                cfg,
+            );
+            let checked = checked.map_err(|(k, m)| {
+                if k == ErrorKind::BadSamples && samples.is_none() {
+                    (
+                        k,
+                        format!("samples `{}`: expected an integer ≥ 1", show(samples_b)),
+                    )
+                } else {
+                    (k, m)
+                }
+            });
+            record(&mut rb, &mut valid, loc, checked);
+        }
+        self.commit(rb.finish(cfg, false), valid)
+    }
+
+    /// Drops observations older than `ttl` at `now` (age > ttl, the same
+    /// rule the blend uses); returns how many edges were cleared.
+    pub fn expire(&mut self, now: DateTime<Utc>, ttl: std::time::Duration) -> usize {
+        let limit = now.timestamp_millis().saturating_sub(ttl_ms(ttl));
+        let mut dropped = 0;
+        let mut newest = NO_OBS;
+        for (ms, sp) in self.observed_ms.iter_mut().zip(self.speed.iter_mut()) {
+            if *ms == NO_OBS {
+                continue;
+            }
+            if *ms < limit {
+                *ms = NO_OBS;
+                *sp = 0.0;
+                dropped += 1;
+            } else {
+                newest = newest.max(*ms);
+            }
+        }
+        if dropped > 0 {
+            for (s, &ms) in self.samples.iter_mut().zip(&self.observed_ms) {
+                if ms == NO_OBS {
+                    *s = 0;
+                }
+            }
+            self.held -= dropped;
+            self.generation += 1;
+        }
+        self.newest_ms = newest;
+        dropped
+    }
+
+    /// The held observations named by their ends, one per distinct end pair
+    /// (parallel edges share theirs), ascending by `(from_node, to_node)`.
+    /// Applying them to an empty layer gives this layer back.
+    pub fn to_observations(&self, index: &EdgeIndex) -> Vec<Observation> {
+        let mut out = Vec::new();
+        for ((from, to), edges) in index.groups() {
+            let best = edges
+                .iter()
+                .filter_map(|&e| self.get(e))
+                .max_by_key(|x| x.observed_at);
+            if let Some(x) = best {
+                out.push(Observation {
+                    from_node: from,
+                    to_node: to,
+                    speed_kmh: f64::from(x.speed_kmh),
+                    observed_at: x.observed_at.to_rfc3339_opts(SecondsFormat::Millis, true),
+                    samples: x.samples,
+                });
+            }
+        }
+        out
+    }
+
+    fn check_index(&self, index: &EdgeIndex) -> Result<(), SpeedsError> {
+        if index.num_edges() != self.num_edges() {
+            return Err(SpeedsError::LengthMismatch {
+                what: "edge index",
+                got: index.num_edges(),
+                expected: self.num_edges(),
+            });
+        }
+        Ok(())
+    }
+
+    /// Applies a validated batch unless its report rejects it.
+    fn commit(
+        &mut self,
+        mut report: TableReport,
+        valid: Vec<Valid<'_>>,
+    ) -> Result<TableReport, SpeedsError> {
+        if report.rejected {
+            return Err(SpeedsError::Rejected(Box::new(report)));
+        }
+        let mut changed = false;
+        for v in valid {
+            let mut took = false;
+            for &e in v.edges {
+                let i = e as usize;
+                let held = self.observed_ms[i];
+                if held == NO_OBS || v.observed_ms >= held {
+                    if held == NO_OBS {
+                        self.held += 1;
+                    }
+                    self.observed_ms[i] = v.observed_ms;
+                    self.speed[i] = v.speed;
+                    self.samples[i] = v.samples;
+                    took = true;
+                }
+            }
+            if took {
+                changed = true;
+                self.newest_ms = self.newest_ms.max(v.observed_ms);
+            } else {
+                report.superseded += 1;
+            }
+        }
+        if changed {
+            self.generation += 1;
+        }
+        Ok(report)
+    }
+}
+
+/// `ttl` in milliseconds, saturating.
+pub(crate) fn ttl_ms(d: std::time::Duration) -> i64 {
+    i64::try_from(d.as_millis()).unwrap_or(i64::MAX)
+}
+
+fn record<'a>(
+    rb: &mut ReportBuilder,
+    valid: &mut Vec<Valid<'a>>,
+    loc: Loc,
+    checked: Result<Valid<'a>, (ErrorKind, String)>,
+) {
+    match checked {
+        Ok(v) => {
+            rb.good();
+            valid.push(v);
+        }
+        Err((kind, msg)) => rb.bad(loc, kind, || msg),
+    }
+}
+
+/// The checks after parsing, in the documented order.
+#[allow(clippy::too_many_arguments)]
+fn check_obs<'a>(
+    index: &'a EdgeIndex,
+    from: u64,
+    to: u64,
+    speed: Result<f64, (ErrorKind, String)>,
+    observed_at: &str,
+    samples: Option<u64>,
+    now_ms: i64,
+    cfg: &ValidationConfig,
+) -> Result<Valid<'a>, (ErrorKind, String)> {
+    let speed = speed?;
+    let at = DateTime::parse_from_rfc3339(observed_at).map_err(|e| {
+        (
+            ErrorKind::BadTimestamp,
+            format!(
+                "observed_at `{}`: not an RFC 3339 timestamp ({e})",
+                show(observed_at.as_bytes())
+            ),
+        )
+    })?;
+    let observed_ms = at.timestamp_millis();
+    let skew_ms = i64::try_from(cfg.max_future_skew_s.saturating_mul(1000)).unwrap_or(i64::MAX);
+    if observed_ms > now_ms.saturating_add(skew_ms) {
+        return Err((
+            ErrorKind::FutureTimestamp,
+            format!(
+                "observed_at {observed_at} is {:.0} s in the future (allowed skew {} s)",
+                (observed_ms - now_ms) as f64 / 1000.0,
+                cfg.max_future_skew_s
+            ),
+        ));
+    }
+    let samples = match samples {
+        Some(n @ 1..) if n <= u64::from(u32::MAX) => n as u32,
+        Some(n) => {
+            return Err((
+                ErrorKind::BadSamples,
+                format!("samples {n}: expected an integer ≥ 1"),
+            ))
+        }
+        None => {
+            return Err((
+                ErrorKind::BadSamples,
+                "samples: expected an integer ≥ 1".into(),
+            ))
+        }
+    };
+    let edges = index.edges(from, to);
+    if edges.is_empty() {
+        return Err((
+            ErrorKind::UnknownEdge,
+            format!("no edge from node {from} to node {to}"),
+        ));
+    }
+    Ok(Valid {
+        edges,
+        speed: speed as f32,
+        observed_ms,
+        samples,
+    })
+}

@@ -1,0 +1,50 @@
+//! Speed data: the weekly historical profile, live observations, and their
+//! blend into one speed (km/h) per road edge.
+//!
+//! This is the layer the HTTP service feeds uploads through. It is pure
+//! library code apart from [`persist`], which saves accepted tables so a
+//! restart brings them back.
+//!
+//! # Pieces
+//!
+//! - [`edge_index`]: `(from_node, to_node)` external node ids → edge ids.
+//! - [`clock`]: an instant → hour of the week in the region's time zone.
+//! - [`historical`]: the 168-hour profile parsed from CSV; missing rows fall
+//!   back to free-flow.
+//! - [`live`]: recent observations (JSON batch or CSV), newest per edge wins.
+//! - [`blend`]: historical bucket + live layer → one speed vector, with
+//!   exponential decay of the live weight.
+//! - [`persist`]: atomic file writes and save/load of both tables.
+//! - [`report`]: the per-upload validation report (serde, returned as JSON).
+//! - [`config`]: validation limits (maximum speed, bad-row share, ...).
+//! - [`error`]: typed errors.
+//!
+//! # Validation in one place
+//!
+//! Both tables validate rows the same way and fill the same
+//! [`TableReport`]: bad rows are counted by [`ErrorKind`], the first few are
+//! reported with their line (CSV, 1-based, header = line 1) or index (JSON,
+//! 0-based), and a table whose bad share exceeds
+//! [`ValidationConfig::max_bad_share`] is rejected whole: nothing of it is
+//! applied and the error carries the report.
+
+pub mod blend;
+pub mod clock;
+pub mod config;
+mod csv_input;
+pub mod edge_index;
+pub mod error;
+pub mod historical;
+pub mod live;
+pub mod persist;
+pub mod report;
+
+pub use blend::{blend, blend_into, live_weight, BlendStats};
+pub use clock::{hour_of_week, HOURS_PER_WEEK};
+pub use config::ValidationConfig;
+pub use edge_index::EdgeIndex;
+pub use error::{PersistError, SpeedsError};
+pub use historical::HistoricalProfile;
+pub use live::{LiveEntry, LiveLayer, Observation};
+pub use persist::{load_historical, load_live, save_historical, save_live, write_atomic};
+pub use report::{ErrorKind, RowError, TableReport};

@@ -1,0 +1,256 @@
+//! Persistence: atomic file writes and saved copies of the accepted tables,
+//! so a restart brings back the historical profile and the live layer.
+//!
+//! # Saved file format
+//!
+//! One ASCII header line, then the payload:
+//!
+//! ```text
+//! hodos-speeds 1 <kind> <payload bytes> <CRC-32 of payload, 8 hex digits>\n
+//! <payload>
+//! ```
+//!
+//! `kind` is `historical` (payload: the accepted CSV table, byte for byte)
+//! or `live` (payload: a JSON array of [`Observation`](super::Observation)s,
+//! edges named by their end nodes so a saved layer survives a map rebuild
+//! that renumbers edges). The length and checksum make a truncated or
+//! damaged file a clear [`PersistError::Corrupt`] instead of a table that
+//! silently lost its tail. Loading re-validates the payload against the
+//! current graph exactly like an upload.
+//!
+//! Files are replaced atomically ([`write_atomic`]): a crash leaves either
+//! the old or the new file, never half of one.
+
+use super::config::ValidationConfig;
+use super::edge_index::EdgeIndex;
+use super::error::PersistError;
+use super::historical::HistoricalProfile;
+use super::live::LiveLayer;
+use super::report::TableReport;
+use chrono::{DateTime, Utc};
+use std::fs::{self, File, OpenOptions};
+use std::io::{self, Write};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicU64, Ordering};
+
+const MAGIC: &str = "hodos-speeds";
+const FORMAT_VERSION: u32 = 1;
+const KIND_HISTORICAL: &str = "historical";
+const KIND_LIVE: &str = "live";
+/// A header line is far shorter; a file without a newline this early is not
+/// ours.
+const MAX_HEADER: usize = 128;
+
+/// Writes `bytes` to `path` atomically: a temporary file in the same
+/// directory is written and fsynced, renamed over `path`, and the directory
+/// is fsynced (best effort: some platforms and file systems cannot sync a
+/// directory). On failure the temporary file is removed and `path` is
+/// untouched.
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> io::Result<()> {
+    static COUNTER: AtomicU64 = AtomicU64::new(0);
+    let dir = match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p,
+        _ => Path::new("."),
+    };
+    let name = path
+        .file_name()
+        .ok_or_else(|| io::Error::new(io::ErrorKind::InvalidInput, "path has no file name"))?;
+    let tmp = dir.join(format!(
+        ".{}.{}.{}.tmp",
+        name.to_string_lossy(),
+        std::process::id(),
+        COUNTER.fetch_add(1, Ordering::Relaxed)
+    ));
+    let written = (|| {
+        let mut f = OpenOptions::new().write(true).create_new(true).open(&tmp)?;
+        f.write_all(bytes)?;
+        f.sync_all()?;
+        drop(f);
+        fs::rename(&tmp, path)
+    })();
+    if written.is_err() {
+        let _ = fs::remove_file(&tmp);
+    }
+    written?;
+    sync_dir(dir);
+    Ok(())
+}
+
+#[cfg(unix)]
+fn sync_dir(dir: &Path) {
+    if let Ok(d) = File::open(dir) {
+        let _ = d.sync_all();
+    }
+}
+
+#[cfg(not(unix))]
+fn sync_dir(_dir: &Path) {}
+
+/// Saves the bytes of an accepted historical table.
+pub fn save_historical(path: &Path, csv: &[u8]) -> Result<(), PersistError> {
+    write_atomic(path, &envelope(KIND_HISTORICAL, csv)).map_err(|e| io_err(path, e))
+}
+
+/// Loads a saved historical table and re-validates it; `Ok(None)` when the
+/// file does not exist. The profile has the same [`version`](HistoricalProfile::version)
+/// as when it was uploaded.
+pub fn load_historical(
+    path: &Path,
+    index: &EdgeIndex,
+    cfg: &ValidationConfig,
+) -> Result<Option<(HistoricalProfile, TableReport)>, PersistError> {
+    let Some(bytes) = read_if_exists(path)? else {
+        return Ok(None);
+    };
+    let csv = open_envelope(&bytes, KIND_HISTORICAL).map_err(|reason| corrupt(path, reason))?;
+    HistoricalProfile::parse(csv, index, cfg)
+        .map(Some)
+        .map_err(|source| PersistError::Invalid {
+            path: path.to_path_buf(),
+            source,
+        })
+}
+
+/// Saves the live layer as observations named by their end nodes.
+pub fn save_live(path: &Path, live: &LiveLayer, index: &EdgeIndex) -> Result<(), PersistError> {
+    let json = serde_json::to_vec(&live.to_observations(index))
+        .map_err(|e| io_err(path, io::Error::other(e)))?;
+    write_atomic(path, &envelope(KIND_LIVE, &json)).map_err(|e| io_err(path, e))
+}
+
+/// Loads a saved live layer into a fresh layer for `index`'s graph,
+/// validating the observations as an upload at `now`; `Ok(None)` when the
+/// file does not exist. Expired observations are loaded too; the blend
+/// ignores them and [`LiveLayer::expire`] drops them.
+pub fn load_live(
+    path: &Path,
+    index: &EdgeIndex,
+    now: DateTime<Utc>,
+    cfg: &ValidationConfig,
+) -> Result<Option<(LiveLayer, TableReport)>, PersistError> {
+    let Some(bytes) = read_if_exists(path)? else {
+        return Ok(None);
+    };
+    let json = open_envelope(&bytes, KIND_LIVE).map_err(|reason| corrupt(path, reason))?;
+    let mut live = LiveLayer::new(index.num_edges());
+    let report =
+        live.apply_json(index, json, now, cfg)
+            .map_err(|source| PersistError::Invalid {
+                path: path.to_path_buf(),
+                source,
+            })?;
+    Ok(Some((live, report)))
+}
+
+fn envelope(kind: &str, payload: &[u8]) -> Vec<u8> {
+    let header = format!(
+        "{MAGIC} {FORMAT_VERSION} {kind} {} {:08x}\n",
+        payload.len(),
+        crc32fast::hash(payload)
+    );
+    let mut out = Vec::with_capacity(header.len() + payload.len());
+    out.extend_from_slice(header.as_bytes());
+    out.extend_from_slice(payload);
+    out
+}
+
+/// The payload of a saved file of `kind`, or why the file is not one.
+fn open_envelope<'a>(bytes: &'a [u8], kind: &str) -> Result<&'a [u8], String> {
+    let nl = bytes
+        .iter()
+        .take(MAX_HEADER)
+        .position(|&b| b == b'\n')
+        .ok_or_else(|| {
+            if bytes.is_empty() {
+                "empty file".to_string()
+            } else {
+                "no header line (not a saved speed table)".to_string()
+            }
+        })?;
+    let header = std::str::from_utf8(&bytes[..nl]).map_err(|_| "header is not text".to_string())?;
+    let payload = &bytes[nl + 1..];
+    let f: Vec<&str> = header.split(' ').collect();
+    if f.len() != 5 || f[0] != MAGIC {
+        return Err(format!("unrecognised header `{}`", header.escape_debug()));
+    }
+    if f[1] != FORMAT_VERSION.to_string() {
+        return Err(format!(
+            "format version {} (this build reads {FORMAT_VERSION})",
+            f[1].escape_debug()
+        ));
+    }
+    if f[2] != kind {
+        return Err(format!(
+            "holds a `{}` table, expected `{kind}`",
+            f[2].escape_debug()
+        ));
+    }
+    let len: usize = f[3]
+        .parse()
+        .map_err(|_| format!("bad length `{}`", f[3].escape_debug()))?;
+    let crc = u32::from_str_radix(f[4], 16)
+        .ok()
+        .filter(|_| f[4].len() == 8)
+        .ok_or_else(|| format!("bad checksum field `{}`", f[4].escape_debug()))?;
+    if payload.len() != len {
+        return Err(format!(
+            "truncated or padded: header says {len} payload bytes, file holds {}",
+            payload.len()
+        ));
+    }
+    let got = crc32fast::hash(payload);
+    if got != crc {
+        return Err(format!(
+            "checksum mismatch (stored {crc:08x}, computed {got:08x})"
+        ));
+    }
+    Ok(payload)
+}
+
+fn read_if_exists(path: &Path) -> Result<Option<Vec<u8>>, PersistError> {
+    match fs::read(path) {
+        Ok(b) => Ok(Some(b)),
+        Err(e) if e.kind() == io::ErrorKind::NotFound => Ok(None),
+        Err(e) => Err(io_err(path, e)),
+    }
+}
+
+fn io_err(path: &Path, source: io::Error) -> PersistError {
+    PersistError::Io {
+        path: PathBuf::from(path),
+        source,
+    }
+}
+
+fn corrupt(path: &Path, reason: String) -> PersistError {
+    PersistError::Corrupt {
+        path: PathBuf::from(path),
+        reason,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn envelope_round_trip_and_damage() {
+        let e = envelope("live", b"[1,2]");
+        assert_eq!(open_envelope(&e, "live").unwrap(), b"[1,2]");
+        assert!(open_envelope(&e, "historical")
+            .unwrap_err()
+            .contains("expected `historical`"));
+        assert!(open_envelope(&e[..e.len() - 1], "live")
+            .unwrap_err()
+            .contains("truncated"));
+        let mut flipped = e.clone();
+        *flipped.last_mut().unwrap() ^= 1;
+        assert!(open_envelope(&flipped, "live")
+            .unwrap_err()
+            .contains("checksum"));
+        assert!(open_envelope(b"", "live").unwrap_err().contains("empty"));
+        assert!(open_envelope(b"from_node,to_node\n", "live").is_err());
+        // Cut inside the header line.
+        assert!(open_envelope(&e[..10], "live").is_err());
+    }
+}
