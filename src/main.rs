@@ -46,8 +46,26 @@ enum Command {
         #[arg(long, default_value_t = DEFAULT_MAX_SNAP_M)]
         max_snap_m: f64,
     },
-    /// Build the demo city and print a sample ETA (the default command).
-    Demo,
+    /// Serve the HTTP API for the regions of a configuration file.
+    Serve {
+        /// TOML configuration (see config/hodos.toml).
+        #[arg(long)]
+        config: PathBuf,
+        /// Refuse to start if any region's artifact fails to load (default:
+        /// such a region starts degraded and answers from the heuristic tier).
+        #[arg(long)]
+        strict: bool,
+    },
+    /// Build the demo city and serve it on 127.0.0.1 with a simulated live
+    /// feed (the default command).
+    Demo {
+        /// Public API port (the admin API takes the next one).
+        #[arg(long, default_value_t = 8080)]
+        port: u16,
+        /// Build, answer one sample ETA and exit instead of serving.
+        #[arg(long)]
+        once: bool,
+    },
 }
 
 #[derive(Args)]
@@ -118,7 +136,7 @@ impl Progress for Bars {
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
-    let result = match cli.command.unwrap_or(Command::Demo) {
+    let result = match cli.command.unwrap_or(Command::Demo { port: 8080, once: false }) {
         Command::Build(args) => cmd_build(args),
         Command::Info { file } => cmd_info(&file),
         Command::Eta {
@@ -127,7 +145,14 @@ fn main() -> ExitCode {
             to,
             max_snap_m,
         } => cmd_eta(&file, from, to, max_snap_m),
-        Command::Demo => cmd_demo(),
+        Command::Serve { config, strict } => cmd_serve(&config, strict),
+        Command::Demo { port, once } => {
+            if once {
+                cmd_demo_once()
+            } else {
+                cmd_demo(port)
+            }
+        }
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
@@ -245,7 +270,7 @@ fn cmd_eta(
     Ok(())
 }
 
-fn cmd_demo() -> anyhow::Result<()> {
+fn cmd_demo_once() -> anyhow::Result<()> {
     let dir = std::env::temp_dir().join("hodos-demo");
     std::fs::create_dir_all(&dir).with_context(|| format!("creating {}", dir.display()))?;
     let out = dir.join("quellhaven.hodos");
@@ -287,4 +312,116 @@ fn cmd_demo() -> anyhow::Result<()> {
         out.display()
     );
     Ok(())
+}
+
+fn runtime() -> anyhow::Result<tokio::runtime::Runtime> {
+    Ok(tokio::runtime::Builder::new_multi_thread().enable_all().build()?)
+}
+
+fn init_tracing() {
+    let filter = tracing_subscriber::EnvFilter::try_from_env("HODOS_LOG")
+        .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info,tower_http=warn"));
+    let _ = tracing_subscriber::fmt().with_env_filter(filter).with_writer(std::io::stderr).try_init();
+}
+
+/// Resolves on Ctrl-C or SIGTERM.
+async fn shutdown_signal() {
+    let ctrl_c = async {
+        let _ = tokio::signal::ctrl_c().await;
+    };
+    #[cfg(unix)]
+    let term = async {
+        match tokio::signal::unix::signal(tokio::signal::unix::SignalKind::terminate()) {
+            Ok(mut s) => {
+                s.recv().await;
+            }
+            Err(_) => std::future::pending::<()>().await,
+        }
+    };
+    #[cfg(not(unix))]
+    let term = std::future::pending::<()>();
+    tokio::select! {
+        _ = ctrl_c => {},
+        _ = term => {},
+    }
+}
+
+fn cmd_serve(config: &std::path::Path, strict: bool) -> anyhow::Result<()> {
+    init_tracing();
+    let cfg = hodos::config::Config::load(config)?;
+    if cfg.admin.token.is_empty() {
+        tracing::warn!("no admin token configured (set {}): the admin API refuses every request", hodos::config::ADMIN_TOKEN_ENV);
+    }
+    runtime()?.block_on(async move {
+        let (listen, admin) = (cfg.server.listen, cfg.admin.listen);
+        let state = hodos::service::AppState::open(cfg).await;
+        let degraded = state.degraded();
+        for (name, why) in &degraded {
+            tracing::warn!(region = %name, reason = %why, "region degraded: answering from the heuristic tier");
+        }
+        if strict && !degraded.is_empty() {
+            anyhow::bail!("--strict: {} region(s) failed to load: {}", degraded.len(),
+                degraded.iter().map(|(n, w)| format!("{n} ({w})")).collect::<Vec<_>>().join("; "));
+        }
+        let public = hodos::service::bind(listen).await.with_context(|| format!("binding {listen}"))?;
+        let admin_l = hodos::service::bind(admin).await.with_context(|| format!("binding {admin}"))?;
+        tracing::info!(public = %public.local_addr()?, admin = %admin_l.local_addr()?, "serving");
+        hodos::service::serve(state, public, admin_l, shutdown_signal()).await?;
+        Ok(())
+    })
+}
+
+fn cmd_demo(port: u16) -> anyhow::Result<()> {
+    init_tracing();
+    let dir = std::env::temp_dir().join("hodos-demo");
+    let token = format!("demo-{:016x}", rand_token());
+    runtime()?.block_on(async move {
+        let public = match hodos::service::bind(([127, 0, 0, 1], port).into()).await {
+            Ok(l) => l,
+            Err(_) => hodos::service::bind(([127, 0, 0, 1], 0).into()).await?,
+        };
+        let admin = match hodos::service::bind(([127, 0, 0, 1], port.wrapping_add(1)).into()).await {
+            Ok(l) => l,
+            Err(_) => hodos::service::bind(([127, 0, 0, 1], 0).into()).await?,
+        };
+        let (pa, aa) = (public.local_addr()?, admin.local_addr()?);
+        println!("building the demo city {} ({} intersections)...", hodos::import::synthetic::CITY_NAME, hodos::demo::DEMO_NODES);
+        let files = {
+            let dir = dir.clone();
+            let token = token.clone();
+            tokio::task::spawn_blocking(move || hodos::demo::prepare(&dir, pa, aa, &token, &mut bars())).await??
+        };
+        let state = hodos::service::AppState::open(files.config.clone()).await;
+        if let Some((name, why)) = state.degraded().first() {
+            anyhow::bail!("demo region {name} failed to load: {why}");
+        }
+        let region = state.catalog.regions[0].clone();
+        let (tx, rx) = tokio::sync::watch::channel(false);
+        let mut rx2 = rx.clone();
+        let feed = tokio::spawn(hodos::demo::live_feed(region, files.bridge.1.clone(), async move {
+            let _ = rx2.wait_for(|v| *v).await;
+        }));
+        println!();
+        println!("serving {} on http://{pa} (admin on http://{aa}, token {token})", hodos::import::synthetic::CITY_NAME);
+        println!("live feed: {} slows to 8 km/h for a minute, then recovers, repeatedly", files.bridge.0);
+        println!("Ctrl-C to stop. Try:");
+        println!();
+        print!("{}", hodos::demo::curl_lines(&files, pa, aa, &token));
+        hodos::service::serve(state, public, admin, async move {
+            shutdown_signal().await;
+            let _ = tx.send(true);
+        })
+        .await?;
+        let _ = feed.await;
+        println!("stopped");
+        Ok(())
+    })
+}
+
+/// A token for the demo's admin API (not a secret worth more than a demo).
+fn rand_token() -> u64 {
+    use std::hash::{BuildHasher, Hasher};
+    let mut h = std::collections::hash_map::RandomState::new().build_hasher();
+    h.write_u128(std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map(|d| d.as_nanos()).unwrap_or(0));
+    h.finish()
 }

@@ -27,7 +27,46 @@ use hodos::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph, NONE};
 use hodos::order::{nested_dissection, UndirectedGraph};
 use hodos::region::{Metric, Region};
 use petgraph::graph::{DiGraph, NodeIndex};
+use std::alloc::{GlobalAlloc, Layout, System};
+use std::cell::Cell as Counter;
 use std::time::{Duration, Instant};
+
+/// Counts heap allocations per thread, to check that a warmed-up matrix
+/// call allocates nothing (tests run on several threads at once).
+struct CountingAlloc;
+
+thread_local! {
+    static ALLOCATIONS: Counter<usize> = const { Counter::new(0) };
+}
+
+fn count_allocation() {
+    let _ = ALLOCATIONS.try_with(|c| c.set(c.get() + 1));
+}
+
+// SAFETY: forwards every call to the system allocator unchanged.
+unsafe impl GlobalAlloc for CountingAlloc {
+    unsafe fn alloc(&self, layout: Layout) -> *mut u8 {
+        count_allocation();
+        unsafe { System.alloc(layout) }
+    }
+    unsafe fn dealloc(&self, ptr: *mut u8, layout: Layout) {
+        unsafe { System.dealloc(ptr, layout) }
+    }
+    unsafe fn realloc(&self, ptr: *mut u8, layout: Layout, new_size: usize) -> *mut u8 {
+        count_allocation();
+        unsafe { System.realloc(ptr, layout, new_size) }
+    }
+}
+
+#[global_allocator]
+static GLOBAL: CountingAlloc = CountingAlloc;
+
+/// Allocations made on this thread while running `f`.
+fn allocations_during(f: impl FnOnce()) -> usize {
+    let before = ALLOCATIONS.with(Counter::get);
+    f();
+    ALLOCATIONS.with(Counter::get) - before
+}
 
 fn region_of(source: Source) -> Region {
     Region::from_artifact(build(&source, &mut Quiet).expect("build"))
@@ -304,7 +343,7 @@ fn check_points(region: &Region, metric: &Metric, m2m: &mut ManyToMany, label: &
 
     // A passed deadline: nothing computed, no panic, scratch still clean.
     let mut late = PointMatrix::default();
-    let past = Instant::now() - Duration::from_millis(1);
+    let past = Instant::now();
     matrix(
         region,
         metric,
@@ -323,8 +362,20 @@ fn check_points(region: &Region, metric: &Metric, m2m: &mut ManyToMany, label: &
             _ => assert_eq!(*l, Cell::NotComputed),
         }
     }
+    // Warmed up (same sizes): the call again, allocation-free apart from
+    // snapping, which is the snap index's business.
     let mut again = PointMatrix::default();
     matrix(region, metric, m2m, &from, &to, max_snap, None, &mut again).expect("again");
+    let allocs = allocations_during(|| {
+        matrix(region, metric, m2m, &from, &to, max_snap, None, &mut again).expect("again");
+    });
+    let snapping = allocations_during(|| {
+        for &p in from.iter().chain(&to) {
+            let _ = region.snap_within(p, hodos::region::End::From, max_snap);
+        }
+    });
+    eprintln!("{label}: {allocs} allocations in a warmed-up coordinate matrix, {snapping} in snapping alone");
+    assert!(allocs <= snapping, "{label}: the matrix itself allocates");
     assert_eq!(again.cells, out.cells);
 }
 
@@ -484,6 +535,16 @@ fn passed_deadline_and_bad_input() {
         )
         .expect("run");
     assert_eq!(out.rows_done, nodes.len());
+
+    // Warmed up: the same call, and a smaller one, allocate nothing.
+    let few = &nodes[..30];
+    let allocs = allocations_during(|| {
+        m2m.run_nodes(&cch, &metric, &nodes, &nodes, None, &mut time, &mut len)
+            .expect("run");
+        m2m.run_nodes(&cch, &metric, few, &nodes[10..], None, &mut time, &mut len)
+            .expect("run");
+    });
+    assert_eq!(allocs, 0, "a warmed-up matrix call allocates nothing");
 
     // Bad input is an error, not a panic.
     let bad = [Endpoint::at(g.num_nodes() as u32)];

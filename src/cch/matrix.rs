@@ -10,7 +10,9 @@
 //!
 //! On a CCH both upward search spaces are ancestor chains of the elimination
 //! tree, so the searches are the priority-queue-free walks of
-//! [`super::query`], without pruning (there is no single target to bound by).
+//! [`super::query`] over the same perfectly customized (pruned) search
+//! graphs, but without stopping criterion (there is no single target to
+//! bound by).
 //! Buckets are dense: targets are sorted by the preorder position of their
 //! node in the elimination tree, which makes the targets below any node (the
 //! ones that can have an entry there) a contiguous run of slots. A bucket is
@@ -28,7 +30,7 @@
 //! every point once and gives per-cell answers equal to
 //! [`Region::eta`](crate::region::Region::eta) for the same pair.
 
-use super::customize::{CustomizedMetric, INFINITY};
+use super::customize::{CustomizedMetric, PrunedArc, PrunedArcs, INFINITY};
 use super::query::{Endpoint, MAX_ENDPOINTS};
 use super::Cch;
 use crate::geo::LatLon;
@@ -74,6 +76,10 @@ struct Bucket {
     offset: u32,
 }
 
+/// Target walks between deadline checks (a walk takes tens of µs on a
+/// city graph, so the check costs nothing and overshoots little).
+const DEADLINE_EVERY: usize = 16;
+
 const EMPTY: Bucket = Bucket {
     first: NONE,
     count: 0,
@@ -83,13 +89,8 @@ const EMPTY: Bucket = Bucket {
 /// Reusable many-to-many scratch for one hierarchy and one thread.
 #[derive(Debug, Clone)]
 pub struct ManyToMany {
-    /// Walk time per rank. INFINITY outside a walk: a walk resets each node
-    /// right after settling it, so nothing needs a reset pass.
-    dist: Vec<u32>,
-    /// Length (cm) of the path that set `dist`; read after a source walk for
-    /// the meeting nodes, so it is never reset (only trusted where `dist` was
-    /// set by the current walk).
-    len: Vec<u32>,
+    /// Per-node walk state.
+    walker: Walker,
     /// Preorder position of each rank in the elimination tree: sorting
     /// targets by it makes every bucket a contiguous slot range.
     preorder: Vec<u32>,
@@ -169,8 +170,11 @@ impl ManyToMany {
             next_free[x] = pos + 1;
         }
         Self {
-            dist: vec![INFINITY; n],
-            len: vec![0; n],
+            walker: Walker {
+                dist: vec![INFINITY; n],
+                pred: vec![NONE; n],
+                len: vec![0; n],
+            },
             preorder,
             bucket: vec![EMPTY; n],
             touched: Vec::new(),
@@ -188,10 +192,11 @@ impl ManyToMany {
     /// target is a list of at most [`MAX_ENDPOINTS`] endpoints (a snapped
     /// point leaves through both ends of its road), with partial costs.
     ///
-    /// All target walks run first; then source rows in order, checking
-    /// `deadline` before each. Rows from the first one found past the
-    /// deadline on are left INFINITY; [`MatrixOutcome::rows_done`] says how
-    /// many were computed.
+    /// All target walks run first (a deadline passing during them abandons
+    /// the matrix: no row can be computed without them); then source rows in
+    /// order, checking `deadline` before each. Rows from the first one found
+    /// past the deadline on are left INFINITY; [`MatrixOutcome::rows_done`]
+    /// says how many were computed.
     #[allow(clippy::too_many_arguments)]
     pub fn run(
         &mut self,
@@ -285,18 +290,26 @@ impl ManyToMany {
         out_len_cm: &mut Vec<u64>,
     ) -> Result<MatrixOutcome, MatrixError> {
         let n = cch.num_nodes();
-        if self.dist.len() != n || cch.parent.len() != n {
+        if self.walker.dist.len() != n || cch.parent.len() != n {
             return Err(MatrixError::ScratchMismatch {
-                scratch: self.dist.len(),
+                scratch: self.walker.dist.len(),
                 graph: n,
             });
         }
         let m = cch.num_arcs();
+        let pruned_ok = |p: &PrunedArcs| {
+            p.first.len() == n + 1 && p.first.last().is_some_and(|&l| l as usize == p.arcs.len())
+        };
         for l in [
             metric.up.len(),
             metric.down.len(),
             metric.up_len.len(),
             metric.down_len.len(),
+            if pruned_ok(&metric.forward) && pruned_ok(&metric.backward) {
+                m
+            } else {
+                usize::MAX
+            },
         ] {
             if l != m {
                 return Err(MatrixError::MetricMismatch {
@@ -387,10 +400,7 @@ impl ManyToMany {
             total += b.count as usize;
             if total > u32::MAX as usize {
                 // Undo so the scratch stays clean for the next call.
-                for &y in &self.touched {
-                    self.bucket[y as usize] = EMPTY;
-                }
-                self.touched.clear();
+                self.clear_buckets();
                 return Err(too_large);
             }
         }
@@ -399,34 +409,29 @@ impl ManyToMany {
         self.bucket_len.clear();
         self.bucket_len.resize(total, 0);
 
-        // Pass 2: backward walks (down arcs) fill the buckets.
+        // Pass 2: backward walks (down arcs) fill the buckets. No row can be
+        // computed without all of them, so a deadline passing here (checked
+        // every few walks) abandons the whole matrix.
         for k in 0..num_targets {
+            if k % DEADLINE_EVERY == DEADLINE_EVERY - 1 && past(deadline) {
+                self.clear_buckets();
+                return Ok(MatrixOutcome {
+                    rows_done: 0,
+                    bucket_cells: total,
+                });
+            }
             let j = self.slot_target[k];
             let eps = target(j as usize);
             let eps = eps.as_ref();
-            self.seed(eps, rank);
-            let mut walk = chains_of(eps, rank);
-            while let Some(x) = walk.next(&cch.parent) {
-                let xi = x as usize;
-                let d = self.dist[xi];
-                if d >= INFINITY {
-                    continue;
-                }
-                self.dist[xi] = INFINITY;
-                let l = self.len[xi];
-                for a in cch.arcs(x) {
-                    let y = cch.head[a] as usize;
-                    let nd = d + metric.down[a];
-                    if nd < self.dist[y] {
-                        self.dist[y] = nd;
-                        self.len[y] = l.saturating_add(metric.down_len[a]);
-                    }
-                }
-                let b = self.bucket[xi];
-                let at = b.offset as usize + k - b.first as usize;
-                self.bucket_time[at] = d;
-                self.bucket_len[at] = l;
-            }
+            let (bucket, bucket_time, bucket_len) =
+                (&self.bucket, &mut self.bucket_time, &mut self.bucket_len);
+            self.walker
+                .walk(cch, &metric.backward, &metric.down_len, eps, |x, d, l| {
+                    let b = bucket[x as usize];
+                    let at = b.offset as usize + k - b.first as usize;
+                    bucket_time[at] = d;
+                    bucket_len[at] = l;
+                });
         }
 
         // Source rows.
@@ -442,36 +447,27 @@ impl ManyToMany {
             }
             let eps = source(i);
             let eps = eps.as_ref();
-            self.seed(eps, rank);
-            let mut walk = chains_of(eps, rank);
-            while let Some(x) = walk.next(&cch.parent) {
-                let xi = x as usize;
-                let d = self.dist[xi];
-                if d >= INFINITY {
-                    continue;
-                }
-                self.dist[xi] = INFINITY;
-                let l = self.len[xi];
-                for a in cch.arcs(x) {
-                    let y = cch.head[a] as usize;
-                    let nd = d + metric.up[a];
-                    if nd < self.dist[y] {
-                        self.dist[y] = nd;
-                        self.len[y] = l.saturating_add(metric.up_len[a]);
+            let (bucket, bucket_time, row_time, row_meet) = (
+                &self.bucket,
+                &self.bucket_time,
+                &mut self.row_time,
+                &mut self.row_meet,
+            );
+            self.walker
+                .walk(cch, &metric.forward, &metric.up_len, eps, |x, d, _| {
+                    let b = bucket[x as usize];
+                    if b.first != NONE {
+                        let (lo, cnt, off) =
+                            (b.first as usize, b.count as usize, b.offset as usize);
+                        scan(
+                            d,
+                            x,
+                            &bucket_time[off..off + cnt],
+                            &mut row_time[lo..lo + cnt],
+                            &mut row_meet[lo..lo + cnt],
+                        );
                     }
-                }
-                let b = self.bucket[xi];
-                if b.first != NONE {
-                    let (lo, cnt, off) = (b.first as usize, b.count as usize, b.offset as usize);
-                    scan(
-                        d,
-                        x,
-                        &self.bucket_time[off..off + cnt],
-                        &mut self.row_time[lo..lo + cnt],
-                        &mut self.row_meet[lo..lo + cnt],
-                    );
-                }
-            }
+                });
             // The row, back in target order, with lengths from the meeting
             // nodes; then clear it for the next source.
             let base = i * num_targets;
@@ -486,36 +482,31 @@ impl ManyToMany {
                 let b = self.bucket[meet];
                 let back = self.bucket_len[b.offset as usize + k - b.first as usize];
                 out_time[base + j] = t;
-                out_len_cm[base + j] = u64::from(self.len[meet]) + u64::from(back);
+                out_len_cm[base + j] = u64::from(self.walker.len[meet]) + u64::from(back);
             }
         }
 
-        for &x in &self.touched {
-            self.bucket[x as usize] = EMPTY;
-        }
-        self.touched.clear();
+        self.clear_buckets();
         Ok(MatrixOutcome {
             rows_done,
             bucket_cells: total,
         })
     }
 
-    /// Seeds a walk: each endpoint's rank at its partial cost (the first of
-    /// equally cheap endpoints on one rank wins, as in the point query).
-    #[inline]
-    fn seed(&mut self, eps: &[Endpoint], rank: &[u32]) {
-        for e in eps {
-            let r = rank[e.node as usize] as usize;
-            if e.time < self.dist[r] {
-                self.dist[r] = e.time;
-                self.len[r] = e.len_cm;
-            }
+    /// Empties the buckets this call used (the per-node array is reused).
+    fn clear_buckets(&mut self) {
+        for &x in &self.touched {
+            self.bucket[x as usize] = EMPTY;
         }
+        self.touched.clear();
     }
 
     /// Bytes held by this scratch (per-node arrays plus reusable buffers).
     pub fn heap_bytes(&self) -> usize {
-        4 * (self.dist.capacity() + self.len.capacity() + self.preorder.capacity())
+        4 * (self.walker.dist.capacity()
+            + self.walker.pred.capacity()
+            + self.walker.len.capacity()
+            + self.preorder.capacity())
             + std::mem::size_of::<Bucket>() * self.bucket.capacity()
             + 4 * (self.touched.capacity()
                 + self.bucket_time.capacity()
@@ -523,6 +514,75 @@ impl ManyToMany {
                 + self.slot_target.capacity()
                 + self.row_time.capacity()
                 + self.row_meet.capacity())
+    }
+}
+
+/// Per-node state of one upward walk.
+#[derive(Debug, Clone)]
+struct Walker {
+    /// Time per rank. INFINITY outside a walk: a walk resets each node right
+    /// after settling it, so nothing needs a reset pass.
+    dist: Vec<u32>,
+    /// Arc that set `dist`, or NONE for a seeded endpoint; only trusted where
+    /// `dist` was set by the current walk.
+    pred: Vec<u32>,
+    /// Length (cm) of the path to a settled node, computed when it is
+    /// settled (from its predecessor's, already final). Read after a source
+    /// walk for the meeting nodes, so never reset.
+    len: Vec<u32>,
+}
+
+impl Walker {
+    /// Walks the ancestor chains of `eps` in increasing rank over one pruned
+    /// search graph (`arcs`, with per-arc lengths `arc_len`), calling
+    /// `settle(rank, time, length)` for every node reached.
+    #[inline(always)]
+    fn walk(
+        &mut self,
+        cch: &Cch,
+        arcs: &PrunedArcs,
+        arc_len: &[u32],
+        eps: &[Endpoint],
+        mut settle: impl FnMut(u32, u32, u32),
+    ) {
+        // Seeds: the first of equally cheap endpoints on one rank wins, as
+        // in the point query.
+        for e in eps {
+            let r = cch.rank[e.node as usize] as usize;
+            if e.time < self.dist[r] {
+                self.dist[r] = e.time;
+                self.pred[r] = NONE;
+                self.len[r] = e.len_cm;
+            }
+        }
+        let mut chains = chains_of(eps, &cch.rank);
+        while let Some(x) = chains.next(&cch.parent) {
+            let xi = x as usize;
+            let d = self.dist[xi];
+            if d >= INFINITY {
+                continue;
+            }
+            self.dist[xi] = INFINITY;
+            let p = self.pred[xi];
+            let l = if p == NONE {
+                self.len[xi]
+            } else {
+                let p = p as usize;
+                self.len[cch.tail[p] as usize].saturating_add(arc_len[p])
+            };
+            self.len[xi] = l;
+            // Branch-free relaxation, as in the point query.
+            for &PrunedArc { head, weight, arc } in &arcs.arcs[arcs.range(x)] {
+                let y = head as usize;
+                let nd = d + weight;
+                let old = self.dist[y];
+                let better = nd < old;
+                self.dist[y] = if better { nd } else { old };
+                let op = self.pred[y];
+                self.pred[y] = if better { arc } else { op };
+            }
+            settle(x, d, l);
+        }
     }
 }
 

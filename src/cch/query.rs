@@ -107,6 +107,11 @@ impl CchQuery {
         }
     }
 
+    /// Number of nodes this scratch is sized for.
+    pub fn num_nodes(&self) -> usize {
+        self.fwd.len()
+    }
+
     /// Shortest travel time between two road nodes, if connected.
     pub fn node_to_node(
         &mut self,

@@ -37,7 +37,7 @@
 
 use super::clock::HOURS_PER_WEEK;
 use super::config::ValidationConfig;
-use super::csv_input::{line_of, map_header, parse_f64, parse_u64, reader, show};
+use super::csv_input::{field, line_of, map_header, parse_f64, parse_u64, reader, show};
 use super::edge_index::EdgeIndex;
 use super::error::SpeedsError;
 use super::report::{ErrorKind, Loc, ReportBuilder, TableReport};
@@ -85,7 +85,7 @@ impl HistoricalProfile {
                 Ok(false) => break,
                 Err(e) => return Err(SpeedsError::Csv(e.to_string())),
             }
-            let line = Loc::Line(line_of(&rec));
+            let line = Loc::Line(line_of(&rec, csv));
             if rec.len() != want_fields {
                 let got = rec.len();
                 rb.bad(line, ErrorKind::MalformedRow, || {
@@ -93,7 +93,7 @@ impl HistoricalProfile {
                 });
                 continue;
             }
-            let (from_b, to_b) = (&rec[c_from], &rec[c_to]);
+            let (from_b, to_b) = (field(&rec, c_from), field(&rec, c_to));
             let (Some(from), Some(to)) = (parse_u64(from_b), parse_u64(to_b)) else {
                 rb.bad(line, ErrorKind::MalformedRow, || {
                     format!(
@@ -104,7 +104,7 @@ impl HistoricalProfile {
                 });
                 continue;
             };
-            let hour_b = &rec[c_hour];
+            let hour_b = field(&rec, c_hour);
             let hour = match parse_u64(hour_b) {
                 Some(h) if h < u64::from(HOURS_PER_WEEK) => h as usize,
                 _ => {
@@ -117,7 +117,7 @@ impl HistoricalProfile {
                     continue;
                 }
             };
-            let speed_b = &rec[c_speed];
+            let speed_b = field(&rec, c_speed);
             let speed = match check_speed(speed_b, cfg) {
                 Ok(s) => s,
                 Err(kind) => {

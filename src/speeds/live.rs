@@ -37,7 +37,7 @@
 //! over all edges and an update is O(1) per edge.
 
 use super::config::ValidationConfig;
-use super::csv_input::{line_of, map_header, parse_u64, reader, show};
+use super::csv_input::{field, line_of, map_header, parse_u64, reader, show};
 use super::edge_index::EdgeIndex;
 use super::error::SpeedsError;
 use super::historical::{check_speed, check_speed_value, speed_message};
@@ -264,7 +264,7 @@ impl LiveLayer {
                 Ok(false) => break,
                 Err(e) => return Err(SpeedsError::Csv(e.to_string())),
             }
-            let loc = Loc::Line(line_of(&rec));
+            let loc = Loc::Line(line_of(&rec, csv));
             if rec.len() != want_fields {
                 let got = rec.len();
                 rb.bad(loc, ErrorKind::MalformedRow, || {
@@ -272,7 +272,7 @@ impl LiveLayer {
                 });
                 continue;
             }
-            let (from_b, to_b) = (&rec[c_from], &rec[c_to]);
+            let (from_b, to_b) = (field(&rec, c_from), field(&rec, c_to));
             let (Some(from), Some(to)) = (parse_u64(from_b), parse_u64(to_b)) else {
                 rb.bad(loc, ErrorKind::MalformedRow, || {
                     format!(
@@ -283,15 +283,15 @@ impl LiveLayer {
                 });
                 continue;
             };
-            let at = String::from_utf8_lossy(&rec[c_at]);
-            let samples_b = &rec[c_samples];
+            let at = String::from_utf8_lossy(field(&rec, c_at));
+            let samples_b = field(&rec, c_samples);
             let samples = parse_u64(samples_b);
             let checked = check_obs(
                 index,
                 from,
                 to,
-                check_speed(&rec[c_speed], cfg)
-                    .map_err(|k| (k, speed_message(k, &show(&rec[c_speed]), cfg))),
+                check_speed(field(&rec, c_speed), cfg)
+                    .map_err(|k| (k, speed_message(k, &show(field(&rec, c_speed)), cfg))),
                 &at,
                 samples,
                 now_ms,

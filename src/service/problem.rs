@@ -1,0 +1,153 @@
+//! RFC 9457 problem details: every error response of the HTTP API.
+//!
+//! [`ApiError`] is the handlers' error type. Its `IntoResponse` writes
+//! `application/problem+json` with `type`, `title`, `status`, `detail` and,
+//! for validation failures, the `field` and `rule` that failed. It never
+//! carries internal error text: anything unexpected becomes a generic 500
+//! and the cause is logged by the tracing middleware, not returned.
+
+use axum::http::{header, StatusCode};
+use axum::response::{IntoResponse, Response};
+use serde::Serialize;
+
+/// Media type of problem details (RFC 9457 §3).
+pub const PROBLEM_JSON: &str = "application/problem+json";
+
+/// An error answer.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ApiError {
+    /// The body is not JSON, or a query string is malformed.
+    Malformed(String),
+    /// A field breaks a rule: `field` names it (`from.lat`), `rule` says what
+    /// it must be (`must be within -90..90`).
+    Invalid { field: String, rule: String },
+    /// The body is larger than the configured limit.
+    TooLarge { limit: usize },
+    /// The request asks for more than a configured limit allows.
+    OverLimit { field: String, rule: String },
+    /// Wrong or missing bearer token (admin API).
+    Unauthorized,
+    /// No such resource (e.g. an unknown region in the admin API).
+    NotFound(String),
+    /// The uploaded table was refused; `detail` summarises, `report` is the
+    /// validation report as JSON.
+    Rejected { detail: String, report: serde_json::Value },
+    /// Content type the endpoint does not take.
+    UnsupportedMediaType(String),
+    /// Something failed inside hodos; no detail leaves the process.
+    Internal,
+}
+
+#[derive(Serialize)]
+struct Problem<'a> {
+    #[serde(rename = "type")]
+    kind: &'a str,
+    title: &'a str,
+    status: u16,
+    detail: String,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    field: Option<&'a str>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    rule: Option<&'a str>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    report: Option<&'a serde_json::Value>,
+}
+
+impl ApiError {
+    pub fn invalid(field: impl Into<String>, rule: impl Into<String>) -> Self {
+        ApiError::Invalid {
+            field: field.into(),
+            rule: rule.into(),
+        }
+    }
+
+    pub fn status(&self) -> StatusCode {
+        match self {
+            ApiError::Malformed(_) => StatusCode::BAD_REQUEST,
+            ApiError::Invalid { .. } | ApiError::OverLimit { .. } | ApiError::Rejected { .. } => {
+                StatusCode::UNPROCESSABLE_ENTITY
+            }
+            ApiError::TooLarge { .. } => StatusCode::PAYLOAD_TOO_LARGE,
+            ApiError::Unauthorized => StatusCode::UNAUTHORIZED,
+            ApiError::NotFound(_) => StatusCode::NOT_FOUND,
+            ApiError::UnsupportedMediaType(_) => StatusCode::UNSUPPORTED_MEDIA_TYPE,
+            ApiError::Internal => StatusCode::INTERNAL_SERVER_ERROR,
+        }
+    }
+
+    /// Problem type URI (a URN: these types are documented in openapi.json).
+    pub fn type_uri(&self) -> &'static str {
+        match self {
+            ApiError::Malformed(_) => "urn:hodos:problem:malformed-request",
+            ApiError::Invalid { .. } => "urn:hodos:problem:invalid-field",
+            ApiError::TooLarge { .. } => "urn:hodos:problem:body-too-large",
+            ApiError::OverLimit { .. } => "urn:hodos:problem:over-limit",
+            ApiError::Unauthorized => "urn:hodos:problem:unauthorized",
+            ApiError::NotFound(_) => "urn:hodos:problem:not-found",
+            ApiError::Rejected { .. } => "urn:hodos:problem:table-rejected",
+            ApiError::UnsupportedMediaType(_) => "urn:hodos:problem:unsupported-media-type",
+            ApiError::Internal => "urn:hodos:problem:internal",
+        }
+    }
+
+    fn title(&self) -> &'static str {
+        match self {
+            ApiError::Malformed(_) => "Malformed request",
+            ApiError::Invalid { .. } => "Invalid field",
+            ApiError::TooLarge { .. } => "Request body too large",
+            ApiError::OverLimit { .. } => "Request over a configured limit",
+            ApiError::Unauthorized => "Missing or wrong bearer token",
+            ApiError::NotFound(_) => "Not found",
+            ApiError::Rejected { .. } => "Table rejected",
+            ApiError::UnsupportedMediaType(_) => "Unsupported media type",
+            ApiError::Internal => "Internal error",
+        }
+    }
+
+    pub fn detail(&self) -> String {
+        match self {
+            ApiError::Malformed(m) => m.clone(),
+            ApiError::Invalid { field, rule } | ApiError::OverLimit { field, rule } => format!("{field} {rule}"),
+            ApiError::TooLarge { limit } => format!("the request body is over the limit of {limit} bytes"),
+            ApiError::Unauthorized => "send `Authorization: Bearer <token>` with the admin token".into(),
+            ApiError::NotFound(m) => m.clone(),
+            ApiError::Rejected { detail, .. } => detail.clone(),
+            ApiError::UnsupportedMediaType(m) => m.clone(),
+            ApiError::Internal => "the request could not be completed; it has been logged".into(),
+        }
+    }
+}
+
+impl IntoResponse for ApiError {
+    fn into_response(self) -> Response {
+        let (field, rule) = match &self {
+            ApiError::Invalid { field, rule } | ApiError::OverLimit { field, rule } => {
+                (Some(field.as_str()), Some(rule.as_str()))
+            }
+            _ => (None, None),
+        };
+        let report = match &self {
+            ApiError::Rejected { report, .. } => Some(report),
+            _ => None,
+        };
+        let status = self.status();
+        let body = Problem {
+            kind: self.type_uri(),
+            title: self.title(),
+            status: status.as_u16(),
+            detail: self.detail(),
+            field,
+            rule,
+            report,
+        };
+        let bytes = serde_json::to_vec(&body).unwrap_or_else(|_| b"{}".to_vec());
+        let mut resp = (status, bytes).into_response();
+        resp.headers_mut()
+            .insert(header::CONTENT_TYPE, header::HeaderValue::from_static(PROBLEM_JSON));
+        if status == StatusCode::UNAUTHORIZED {
+            resp.headers_mut()
+                .insert(header::WWW_AUTHENTICATE, header::HeaderValue::from_static("Bearer"));
+        }
+        resp
+    }
+}

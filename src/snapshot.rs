@@ -1,0 +1,734 @@
+//! Per-region serving state: immutable snapshots behind `arc-swap`, the
+//! lazily customized historical buckets, and every update path (historical
+//! table, live observations, artifact reload).
+//!
+//! Readers call [`RegionHandle::snapshot`] and get an `Arc<Snapshot>`: a
+//! consistent set of graph, hierarchy, metrics, calibration and data
+//! versions that stays valid for as long as they hold it. They never take a
+//! lock. Writers build a complete new snapshot off to the side and publish
+//! it with one atomic swap; a request in flight keeps the snapshot it
+//! started with. Writers serialize among themselves on an async mutex that
+//! readers never touch. A table that fails validation never reaches a
+//! snapshot: the old one keeps serving, and the rejection is recorded in
+//! [`RegionStatus`] and in metrics.
+//!
+//! **Architecture Invariant:** nothing here knows about HTTP; the service
+//! layer calls these methods and converts results to its DTOs.
+
+use crate::artifact::Artifact;
+use crate::config::{Config, LiveConfig, RegionConfig};
+use crate::region::{Metric, Region};
+use crate::service::metrics as m;
+use crate::speeds::{
+    blend_into, load_historical, load_live, save_historical, save_live, BlendStats, EdgeIndex,
+    HistoricalProfile, LiveLayer, SpeedsError, TableReport, ValidationConfig,
+};
+use arc_swap::{ArcSwap, ArcSwapOption};
+use chrono::{DateTime, Utc};
+use serde::Serialize;
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::sync::{Arc, OnceLock};
+use std::time::{Duration, Instant};
+use tokio::sync::Notify;
+
+/// Everything a request needs, frozen.
+#[derive(Debug)]
+pub struct Snapshot {
+    /// Increases with every publish in this region (any data change).
+    pub generation: u64,
+    pub region: Arc<Region>,
+    pub index: Arc<EdgeIndex>,
+    /// Free-flow speed per edge (the base under the historical profile).
+    pub free_flow_kmh: Arc<Vec<f32>>,
+    pub historical: Option<Arc<HistoricalProfile>>,
+    /// When the serving historical table was accepted.
+    pub historical_at: Option<DateTime<Utc>>,
+    /// The blended live metric, once observations have arrived.
+    pub live: Option<Arc<LiveMetric>>,
+    /// Identifies the artifact load (bucket cache keys include it).
+    pub artifact_load: u64,
+    pub artifact_at: DateTime<Utc>,
+}
+
+impl Snapshot {
+    /// Cache key of the historical data: its version, or "free-flow".
+    pub fn historical_key(&self) -> String {
+        match &self.historical {
+            Some(h) => format!("{}:{}", self.artifact_load, h.version()),
+            None => format!("{}:free-flow", self.artifact_load),
+        }
+    }
+}
+
+/// A customized live blend.
+#[derive(Debug)]
+pub struct LiveMetric {
+    pub metric: Metric,
+    pub stats: BlendStats,
+    /// Newest observation held when this blend was made.
+    pub newest_observed_at: Option<DateTime<Utc>>,
+    pub built_at: DateTime<Utc>,
+}
+
+/// What the last update of each kind did (for `/admin/status`).
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct RegionStatus {
+    pub ready: bool,
+    /// Why the region serves no graph, when it does not.
+    pub degraded_reason: Option<String>,
+    pub generation: u64,
+    pub historical_version: Option<String>,
+    pub historical_rows: Option<u64>,
+    pub historical_age_s: Option<f64>,
+    pub live_edges: u64,
+    pub live_newest_age_s: Option<f64>,
+    pub last_reload: Option<ReloadOutcome>,
+    pub last_live_batch: Option<ReloadOutcome>,
+}
+
+/// One update's outcome.
+#[derive(Debug, Clone, Serialize)]
+pub struct ReloadOutcome {
+    /// `historical`, `live` or `artifact`.
+    pub table: &'static str,
+    /// `accepted`, `rejected` or `failed`.
+    pub outcome: &'static str,
+    pub at: DateTime<Utc>,
+    /// Error text for rejected/failed updates.
+    pub error: Option<String>,
+    pub report: Option<TableReport>,
+}
+
+/// Why an update did not take effect.
+#[derive(Debug, thiserror::Error)]
+pub enum UpdateError {
+    #[error("{0}")]
+    Rejected(SpeedsError),
+    #[error("the region has no loaded graph: {0}")]
+    Unavailable(String),
+    #[error("{0}")]
+    Failed(String),
+}
+
+/// Settings the update paths need, taken from the configuration once.
+#[derive(Debug, Clone)]
+pub struct UpdateSettings {
+    pub validation: ValidationConfig,
+    pub live: LiveConfig,
+    pub bucket_cache: usize,
+}
+
+impl UpdateSettings {
+    pub fn from_config(cfg: &Config) -> Self {
+        UpdateSettings {
+            validation: ValidationConfig {
+                max_speed_kmh: cfg.tables.max_speed_kmh,
+                max_bad_share: cfg.tables.max_bad_share,
+                max_future_skew_s: cfg.live.max_future_skew_s.max(0.0) as u64,
+                ..ValidationConfig::default()
+            },
+            live: cfg.live.clone(),
+            bucket_cache: cfg.query.bucket_cache.max(2),
+        }
+    }
+}
+
+/// A bucket metric being (or done being) customized.
+#[derive(Debug, Default)]
+struct Slot {
+    cell: OnceLock<Arc<Metric>>,
+    started: AtomicBool,
+    notify: Notify,
+}
+
+/// Writer-side state: only update paths touch it, one at a time.
+struct Writer {
+    live: Option<LiveLayer>,
+    live_saved_at: Option<Instant>,
+    live_changed: bool,
+}
+
+/// One configured region for the life of the process.
+pub struct RegionHandle {
+    pub name: String,
+    pub cfg: RegionConfig,
+    pub tz: chrono_tz::Tz,
+    settings: UpdateSettings,
+    current: ArcSwapOption<Snapshot>,
+    status: ArcSwap<RegionStatus>,
+    /// Copy-on-write list of bucket slots, newest last, bounded.
+    buckets: ArcSwap<Vec<(String, u8, Arc<Slot>)>>,
+    writer: tokio::sync::Mutex<Writer>,
+    live_dirty: AtomicBool,
+    wake: Notify,
+    generation: AtomicU64,
+    loads: AtomicU64,
+}
+
+impl std::fmt::Debug for RegionHandle {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("RegionHandle").field("name", &self.name).finish()
+    }
+}
+
+fn historical_state_path(cfg: &RegionConfig) -> PathBuf {
+    cfg.state_dir.join("historical.table")
+}
+
+fn live_state_path(cfg: &RegionConfig) -> PathBuf {
+    cfg.state_dir.join("live.table")
+}
+
+impl RegionHandle {
+    /// Creates the handle and loads the region (artifact, then the saved or
+    /// configured historical table, then the saved live layer). A failed
+    /// artifact leaves the region degraded; the error is in its status.
+    pub async fn open(cfg: RegionConfig, settings: UpdateSettings) -> Arc<RegionHandle> {
+        let tz = cfg.time_zone.parse().unwrap_or(chrono_tz::UTC);
+        let h = Arc::new(RegionHandle {
+            name: cfg.name.clone(),
+            cfg,
+            tz,
+            settings,
+            current: ArcSwapOption::empty(),
+            status: ArcSwap::from_pointee(RegionStatus::default()),
+            buckets: ArcSwap::from_pointee(Vec::new()),
+            writer: tokio::sync::Mutex::new(Writer {
+                live: None,
+                live_saved_at: None,
+                live_changed: false,
+            }),
+            live_dirty: AtomicBool::new(false),
+            wake: Notify::new(),
+            generation: AtomicU64::new(0),
+            loads: AtomicU64::new(0),
+        });
+        if let Err(e) = h.reload().await {
+            tracing::warn!(region = %h.name, error = %e, "region starts degraded");
+        }
+        h
+    }
+
+    /// The serving snapshot, or `None` while degraded.
+    pub fn snapshot(&self) -> Option<Arc<Snapshot>> {
+        self.current.load_full()
+    }
+
+    pub fn status(&self) -> RegionStatus {
+        let mut s = (**self.status.load()).clone();
+        let now = Utc::now();
+        if let Some(snap) = self.snapshot() {
+            s.ready = true;
+            s.generation = snap.generation;
+            s.historical_version = snap.historical.as_ref().map(|h| h.version().to_string());
+            s.historical_rows = snap.historical.as_ref().map(|h| h.rows());
+            s.historical_age_s = snap.historical_at.map(|t| age_s(now, t));
+            if let Some(l) = &snap.live {
+                s.live_edges = l.stats.fresh_edges;
+                s.live_newest_age_s = l.newest_observed_at.map(|t| age_s(now, t));
+            }
+        }
+        s
+    }
+
+    fn set_status(&self, f: impl FnOnce(&mut RegionStatus)) {
+        let mut s = (**self.status.load()).clone();
+        f(&mut s);
+        self.status.store(Arc::new(s));
+    }
+
+    fn record(&self, outcome: ReloadOutcome) {
+        metrics::counter!(m::RELOADS, "region" => self.name.clone(), "table" => outcome.table, "outcome" => outcome.outcome)
+            .increment(1);
+        if let Some(r) = &outcome.report {
+            for (kind, n) in &r.bad_by_kind {
+                metrics::counter!(m::REJECTED_ROWS, "region" => self.name.clone(), "table" => outcome.table, "kind" => kind.clone())
+                    .increment(*n);
+            }
+        }
+        let is_live = outcome.table == "live";
+        self.set_status(|s| {
+            if is_live {
+                s.last_live_batch = Some(outcome);
+            } else {
+                s.last_reload = Some(outcome);
+            }
+        });
+    }
+
+    fn publish(&self, build: impl FnOnce(u64) -> Snapshot) -> Arc<Snapshot> {
+        let g = self.generation.fetch_add(1, Ordering::SeqCst) + 1;
+        let snap = Arc::new(build(g));
+        self.current.store(Some(snap.clone()));
+        metrics::gauge!(m::SNAPSHOT_GENERATION, "region" => self.name.clone()).set(g as f64);
+        metrics::gauge!(m::REGION_READY, "region" => self.name.clone()).set(1.0);
+        snap
+    }
+
+    /// Reloads the artifact and the historical table (saved state first,
+    /// else the configured file). On failure the serving snapshot, if any,
+    /// stays as it was.
+    pub async fn reload(self: &Arc<Self>) -> Result<(), UpdateError> {
+        let mut w = self.writer.lock().await;
+        let cfg = self.cfg.clone();
+        let settings = self.settings.clone();
+        let loaded = tokio::task::spawn_blocking(move || load_region(&cfg, &settings))
+            .await
+            .map_err(|e| UpdateError::Failed(format!("load task failed: {e}")))?;
+        let (region, index, historical, hist_note) = match loaded {
+            Ok(x) => x,
+            Err(msg) => {
+                let degraded = self.snapshot().is_none();
+                self.record(ReloadOutcome {
+                    table: "artifact",
+                    outcome: "failed",
+                    at: Utc::now(),
+                    error: Some(msg.clone()),
+                    report: None,
+                });
+                if degraded {
+                    self.set_status(|s| s.degraded_reason = Some(msg.clone()));
+                    metrics::gauge!(m::REGION_READY, "region" => self.name.clone()).set(0.0);
+                }
+                return Err(UpdateError::Failed(msg));
+            }
+        };
+        let load_no = self.loads.fetch_add(1, Ordering::SeqCst) + 1;
+        let now = Utc::now();
+        // Live layer: keep the one held if the graph is the same size, else
+        // bring back the saved one.
+        if w.live.as_ref().map(|l| l.num_edges()) != Some(index.num_edges()) {
+            w.live = match load_live(&live_state_path(&self.cfg), &index, now, &self.settings.validation) {
+                Ok(Some((layer, _))) => Some(layer),
+                Ok(None) => None,
+                Err(e) => {
+                    tracing::warn!(region = %self.name, error = %e, "saved live layer not restored");
+                    None
+                }
+            };
+        }
+        let free_flow: Vec<f32> = region.graph.edge_speed_kmh.clone();
+        self.publish(|g| Snapshot {
+            generation: g,
+            region: Arc::new(region),
+            index: Arc::new(index),
+            free_flow_kmh: Arc::new(free_flow),
+            historical: historical.map(Arc::new),
+            historical_at: Some(now),
+            live: None,
+            artifact_load: load_no,
+            artifact_at: now,
+        });
+        self.set_status(|s| s.degraded_reason = None);
+        self.record(ReloadOutcome {
+            table: "artifact",
+            outcome: "accepted",
+            at: now,
+            error: hist_note,
+            report: None,
+        });
+        if w.live.is_some() {
+            self.live_dirty.store(true, Ordering::SeqCst);
+            self.wake.notify_one();
+        }
+        drop(w);
+        self.warm();
+        Ok(())
+    }
+
+    /// Validates a historical table; if accepted, saves it and serves it.
+    pub async fn put_historical(self: &Arc<Self>, csv: Vec<u8>) -> Result<TableReport, UpdateError> {
+        let w = self.writer.lock().await;
+        let snap = self
+            .snapshot()
+            .ok_or_else(|| UpdateError::Unavailable(self.status().degraded_reason.unwrap_or_default()))?;
+        let index = snap.index.clone();
+        let validation = self.settings.validation.clone();
+        let path = historical_state_path(&self.cfg);
+        let parsed = tokio::task::spawn_blocking(move || {
+            let r = HistoricalProfile::parse(&csv, &index, &validation);
+            if r.is_ok() {
+                if let Some(dir) = path.parent() {
+                    std::fs::create_dir_all(dir).map_err(|e| format!("{}: {e}", dir.display()))?;
+                }
+                save_historical(&path, &csv).map_err(|e| e.to_string())?;
+            }
+            Ok::<_, String>(r)
+        })
+        .await
+        .map_err(|e| UpdateError::Failed(format!("parse task failed: {e}")))?
+        .map_err(UpdateError::Failed)?;
+        match parsed {
+            Ok((profile, report)) => {
+                let now = Utc::now();
+                self.publish(|g| Snapshot {
+                    generation: g,
+                    region: snap.region.clone(),
+                    index: snap.index.clone(),
+                    free_flow_kmh: snap.free_flow_kmh.clone(),
+                    historical: Some(Arc::new(profile)),
+                    historical_at: Some(now),
+                    live: snap.live.clone(),
+                    artifact_load: snap.artifact_load,
+                    artifact_at: snap.artifact_at,
+                });
+                self.record(ReloadOutcome {
+                    table: "historical",
+                    outcome: "accepted",
+                    at: now,
+                    error: None,
+                    report: Some(report.clone()),
+                });
+                if w.live.is_some() {
+                    self.live_dirty.store(true, Ordering::SeqCst);
+                    self.wake.notify_one();
+                }
+                drop(w);
+                self.warm();
+                Ok(report)
+            }
+            Err(e) => {
+                self.record(ReloadOutcome {
+                    table: "historical",
+                    outcome: "rejected",
+                    at: Utc::now(),
+                    error: Some(e.to_string()),
+                    report: e.report().cloned(),
+                });
+                Err(UpdateError::Rejected(e))
+            }
+        }
+    }
+
+    /// Applies a batch of live observations (JSON array or CSV).
+    pub async fn put_live(&self, body: &[u8], csv: bool) -> Result<TableReport, UpdateError> {
+        let mut w = self.writer.lock().await;
+        let snap = self
+            .snapshot()
+            .ok_or_else(|| UpdateError::Unavailable(self.status().degraded_reason.unwrap_or_default()))?;
+        let layer = w.live.get_or_insert_with(|| LiveLayer::new(snap.index.num_edges()));
+        let now = Utc::now();
+        let r = if csv {
+            layer.apply_csv(&snap.index, body, now, &self.settings.validation)
+        } else {
+            layer.apply_json(&snap.index, body, now, &self.settings.validation)
+        };
+        match r {
+            Ok(report) => {
+                w.live_changed = true;
+                drop(w);
+                self.live_dirty.store(true, Ordering::SeqCst);
+                self.wake.notify_one();
+                self.record(ReloadOutcome {
+                    table: "live",
+                    outcome: "accepted",
+                    at: now,
+                    error: None,
+                    report: Some(report.clone()),
+                });
+                Ok(report)
+            }
+            Err(e) => {
+                self.record(ReloadOutcome {
+                    table: "live",
+                    outcome: "rejected",
+                    at: now,
+                    error: Some(e.to_string()),
+                    report: e.report().cloned(),
+                });
+                Err(UpdateError::Rejected(e))
+            }
+        }
+    }
+
+    /// The historical metric for an hour of the week, customizing it on a
+    /// blocking thread if needed; waits at most until `deadline`.
+    pub async fn bucket(&self, snap: &Snapshot, hour: u8, deadline: Instant) -> Option<Arc<Metric>> {
+        let key = snap.historical_key();
+        // Without a table every hour is free-flow: one shared slot.
+        let hour = if snap.historical.is_some() { hour } else { u8::MAX };
+        let slot = self.slot(&key, hour);
+        if let Some(mtr) = slot.cell.get() {
+            return Some(mtr.clone());
+        }
+        if !slot.started.swap(true, Ordering::SeqCst) {
+            self.spawn_bucket(snap, hour, slot.clone());
+        }
+        loop {
+            let notified = slot.notify.notified();
+            tokio::pin!(notified);
+            notified.as_mut().enable();
+            if let Some(mtr) = slot.cell.get() {
+                return Some(mtr.clone());
+            }
+            let left = deadline.checked_duration_since(Instant::now())?;
+            if tokio::time::timeout(left, notified).await.is_err() {
+                return slot.cell.get().cloned();
+            }
+        }
+    }
+
+    fn slot(&self, key: &str, hour: u8) -> Arc<Slot> {
+        let list = self.buckets.load();
+        if let Some((_, _, s)) = list.iter().find(|(k, h, _)| k == key && *h == hour) {
+            return s.clone();
+        }
+        let cap = self.settings.bucket_cache + 2;
+        let mut out: Option<Arc<Slot>> = None;
+        self.buckets.rcu(|cur| {
+            if let Some((_, _, s)) = cur.iter().find(|(k, h, _)| k == key && *h == hour) {
+                out = Some(s.clone());
+                return cur.clone();
+            }
+            let s = Arc::new(Slot::default());
+            out = Some(s.clone());
+            let mut v: Vec<_> = (**cur).clone();
+            v.push((key.to_string(), hour, s));
+            while v.len() > cap {
+                v.remove(0);
+            }
+            Arc::new(v)
+        });
+        out.expect("rcu ran at least once")
+    }
+
+    fn spawn_bucket(&self, snap: &Snapshot, hour: u8, slot: Arc<Slot>) {
+        let region = snap.region.clone();
+        let hist = snap.historical.clone();
+        let ff = snap.free_flow_kmh.clone();
+        let name = self.name.clone();
+        tokio::task::spawn_blocking(move || {
+            let t = Instant::now();
+            let speeds = match &hist {
+                Some(h) => h.speeds_for_hour(&ff, hour),
+                None => ff.to_vec(),
+            };
+            let metric = region.metric(crate::metric::from_speeds(&region.graph, &speeds));
+            metrics::histogram!(m::CUSTOMIZATION, "region" => name, "kind" => "historical")
+                .record(t.elapsed().as_secs_f64());
+            let _ = slot.cell.set(Arc::new(metric));
+            slot.notify.notify_waiters();
+        });
+    }
+
+    /// Starts customizing the current and the next hour in the background.
+    pub fn warm(&self) {
+        if let Some(snap) = self.snapshot() {
+            let h = crate::speeds::hour_of_week(Utc::now(), self.tz);
+            for hour in [h, (h + 1) % 168] {
+                let hour = if snap.historical.is_some() { hour } else { u8::MAX };
+                let slot = self.slot(&snap.historical_key(), hour);
+                if !slot.started.swap(true, Ordering::SeqCst) {
+                    self.spawn_bucket(&snap, hour, slot);
+                }
+            }
+        }
+    }
+
+    /// Re-blends and re-customizes the live metric if observations arrived
+    /// (or the held blend is getting old), and publishes it. Returns whether
+    /// a new snapshot was published.
+    pub async fn refresh_live(&self, force: bool) -> bool {
+        let dirty = self.live_dirty.swap(false, Ordering::SeqCst);
+        let Some(snap) = self.snapshot() else { return false };
+        let interval = Duration::from_millis(self.settings.live.recustomize_ms);
+        let aging = snap
+            .live
+            .as_ref()
+            .map(|l| (Utc::now() - l.built_at).to_std().unwrap_or_default() > interval * 20)
+            .unwrap_or(false);
+        if !(dirty || aging || force) {
+            return false;
+        }
+        let mut guard = self.writer.lock().await;
+        let Writer {
+            live,
+            live_saved_at,
+            live_changed,
+        } = &mut *guard;
+        let Some(layer) = live.as_mut() else { return false };
+        let now = Utc::now();
+        let ttl = Duration::from_secs_f64(self.settings.live.ttl_s);
+        layer.expire(now, ttl);
+        let newest = layer.newest_observed_at();
+        let hour = crate::speeds::hour_of_week(now, self.tz);
+        let base = match &snap.historical {
+            Some(h) => h.speeds_for_hour(&snap.free_flow_kmh, hour),
+            None => snap.free_flow_kmh.to_vec(),
+        };
+        let mut blended = Vec::new();
+        let stats = match blend_into(
+            &base,
+            layer,
+            now,
+            Duration::from_secs_f64(self.settings.live.half_life_s),
+            ttl,
+            &mut blended,
+        ) {
+            Ok(s) => s,
+            Err(e) => {
+                tracing::error!(region = %self.name, error = %e, "live blend failed");
+                return false;
+            }
+        };
+        // Save the layer now and then so a restart brings it back.
+        let save = *live_changed && live_saved_at.map(|t| t.elapsed() > Duration::from_secs(2)).unwrap_or(true);
+        if save {
+            let path = live_state_path(&self.cfg);
+            if let Some(dir) = path.parent() {
+                let _ = std::fs::create_dir_all(dir);
+            }
+            match save_live(&path, layer, &snap.index) {
+                Ok(()) => {
+                    *live_saved_at = Some(Instant::now());
+                    *live_changed = false;
+                }
+                Err(e) => tracing::warn!(region = %self.name, error = %e, "live layer not saved"),
+            }
+        }
+        // Customize without holding the writer lock: uploads need not wait.
+        drop(guard);
+        let region = snap.region.clone();
+        let t = Instant::now();
+        let metric = tokio::task::spawn_blocking(move || {
+            region.metric(crate::metric::from_speeds(&region.graph, &blended))
+        })
+        .await;
+        let Ok(metric) = metric else { return false };
+        metrics::histogram!(m::CUSTOMIZATION, "region" => self.name.clone(), "kind" => "live")
+            .record(t.elapsed().as_secs_f64());
+        // Publish on top of whatever is current now: a table may have landed
+        // meanwhile (it marks the live layer dirty, so the next round blends
+        // over it).
+        let cur = self.snapshot().unwrap_or(snap);
+        let live = Arc::new(LiveMetric {
+            metric,
+            stats,
+            newest_observed_at: newest,
+            built_at: now,
+        });
+        self.publish(|g| Snapshot {
+            generation: g,
+            region: cur.region.clone(),
+            index: cur.index.clone(),
+            free_flow_kmh: cur.free_flow_kmh.clone(),
+            historical: cur.historical.clone(),
+            historical_at: cur.historical_at,
+            live: Some(live),
+            artifact_load: cur.artifact_load,
+            artifact_at: cur.artifact_at,
+        });
+        if let Some(n) = newest {
+            metrics::gauge!(m::LIVE_AGE, "region" => self.name.clone()).set(age_s(Utc::now(), n));
+        }
+        true
+    }
+
+    /// Runs the live loop until `shutdown` resolves: re-customizes at most
+    /// every `recustomize_ms` when observations arrived, and scans the
+    /// watched directory.
+    pub async fn run_live_loop(self: Arc<Self>, shutdown: impl std::future::Future<Output = ()>) {
+        tokio::pin!(shutdown);
+        let interval = Duration::from_millis(self.settings.live.recustomize_ms);
+        let watch_every = Duration::from_secs_f64(self.settings.live.watch_interval_s);
+        let mut last_scan = Instant::now() - watch_every;
+        let mut last_warm = Instant::now();
+        loop {
+            tokio::select! {
+                _ = &mut shutdown => break,
+                _ = self.wake.notified() => {},
+                _ = tokio::time::sleep(interval) => {},
+            }
+            let started = Instant::now();
+            self.refresh_live(false).await;
+            if let Some(snap) = self.snapshot() {
+                if let Some(l) = &snap.live {
+                    if let Some(n) = l.newest_observed_at {
+                        metrics::gauge!(m::LIVE_AGE, "region" => self.name.clone()).set(age_s(Utc::now(), n));
+                    }
+                }
+            }
+            if self.cfg.live_dir.is_some() && last_scan.elapsed() >= watch_every {
+                last_scan = Instant::now();
+                self.scan_live_dir().await;
+            }
+            if last_warm.elapsed() > Duration::from_secs(60) {
+                last_warm = Instant::now();
+                self.warm();
+            }
+            // At most one re-customization per interval.
+            let spent = started.elapsed();
+            if spent < interval {
+                tokio::select! {
+                    _ = &mut shutdown => break,
+                    _ = tokio::time::sleep(interval - spent) => {},
+                }
+            }
+        }
+    }
+
+    /// Applies every `*.csv` file in the watched directory, then renames it
+    /// to `.done` or `.rejected` so nothing is applied twice or lost.
+    pub async fn scan_live_dir(&self) {
+        let Some(dir) = self.cfg.live_dir.clone() else { return };
+        let Ok(entries) = std::fs::read_dir(&dir) else { return };
+        let mut files: Vec<PathBuf> = entries
+            .flatten()
+            .map(|e| e.path())
+            .filter(|p| p.extension().map(|x| x == "csv").unwrap_or(false))
+            .collect();
+        files.sort();
+        for f in files {
+            let Ok(bytes) = std::fs::read(&f) else { continue };
+            let outcome = self.put_live(&bytes, true).await;
+            let ext = if outcome.is_ok() { "done" } else { "rejected" };
+            if let Err(e) = std::fs::rename(&f, f.with_extension(ext)) {
+                tracing::warn!(file = %f.display(), error = %e, "could not mark live file");
+            }
+        }
+    }
+}
+
+fn age_s(now: DateTime<Utc>, t: DateTime<Utc>) -> f64 {
+    ((now - t).num_milliseconds() as f64 / 1000.0).max(0.0)
+}
+
+type Loaded = (Region, EdgeIndex, Option<HistoricalProfile>, Option<String>);
+
+/// Loads a region's artifact and its historical table (saved state first,
+/// then the configured file). A bad historical table does not fail the
+/// load: the region serves free-flow for the historical tier and the note
+/// says why.
+fn load_region(cfg: &RegionConfig, settings: &UpdateSettings) -> Result<Loaded, String> {
+    let art = Artifact::load(&cfg.artifact).map_err(|e| e.to_string())?;
+    let region = Region::from_artifact(art);
+    let index = EdgeIndex::new(&region.graph);
+    let mut note = None;
+    let saved = historical_state_path(cfg);
+    let historical = match load_historical(&saved, &index, &settings.validation) {
+        Ok(Some((p, _))) => Some(p),
+        Ok(None) => match &cfg.historical {
+            Some(path) => match read_table(path, &index, &settings.validation) {
+                Ok(p) => Some(p),
+                Err(e) => {
+                    note = Some(format!("historical table not loaded: {e}"));
+                    None
+                }
+            },
+            None => None,
+        },
+        Err(e) => {
+            note = Some(format!("saved historical table not restored: {e}"));
+            None
+        }
+    };
+    Ok((region, index, historical, note))
+}
+
+fn read_table(path: &Path, index: &EdgeIndex, v: &ValidationConfig) -> Result<HistoricalProfile, String> {
+    let bytes = std::fs::read(path).map_err(|e| format!("{}: {e}", path.display()))?;
+    HistoricalProfile::parse(&bytes, index, v)
+        .map(|(p, _)| p)
+        .map_err(|e| format!("{}: {e}", path.display()))
+}

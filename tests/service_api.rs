@@ -1,0 +1,414 @@
+//! The HTTP API through `app()` with `oneshot`: the table of bad inputs and
+//! their problem details (RFC 9457), each fallback tier, the admin token,
+//! and the documents the service serves checked by outside parsers:
+//! Prometheus text (prometheus-parse), GeoJSON (geojson crate, RFC 7946),
+//! OpenAPI 3.1 (openapi-spec-validator, PyPI, when installed).
+
+mod common;
+
+use axum::body::Body;
+use axum::http::{Request, StatusCode};
+use axum::Router;
+use common::service::{at, city, config, TOKEN};
+use hodos::service::{admin_app, app, AppState};
+use http_body_util::BodyExt;
+use serde_json::{json, Value};
+use tower::ServiceExt;
+
+struct Resp {
+    status: StatusCode,
+    content_type: String,
+    text: String,
+}
+
+impl Resp {
+    fn json(&self) -> Value {
+        serde_json::from_str(&self.text).unwrap_or_else(|e| panic!("not JSON ({e}): {}", self.text))
+    }
+}
+
+async fn send(app: &Router, method: &str, uri: &str, ct: Option<&str>, body: Vec<u8>, token: Option<&str>) -> Resp {
+    let mut b = Request::builder().method(method).uri(uri);
+    if let Some(ct) = ct {
+        b = b.header("content-type", ct);
+    }
+    if let Some(t) = token {
+        b = b.header("authorization", format!("Bearer {t}"));
+    }
+    let resp = app.clone().oneshot(b.body(Body::from(body)).unwrap()).await.unwrap();
+    let status = resp.status();
+    let content_type = resp
+        .headers()
+        .get("content-type")
+        .map(|v| v.to_str().unwrap().to_string())
+        .unwrap_or_default();
+    let bytes = resp.into_body().collect().await.unwrap().to_bytes();
+    Resp {
+        status,
+        content_type,
+        text: String::from_utf8_lossy(&bytes).into_owned(),
+    }
+}
+
+async fn post_json(app: &Router, uri: &str, v: &Value) -> Resp {
+    send(app, "POST", uri, Some("application/json"), serde_json::to_vec(v).unwrap(), None).await
+}
+
+fn coord(p: hodos::geo::LatLon) -> Value {
+    json!({"lat": p.lat, "lon": p.lon})
+}
+
+async fn state(extra: &str) -> (AppState, tempfile::TempDir) {
+    let dir = tempfile::tempdir().unwrap();
+    let st = AppState::open(config(dir.path(), extra)).await;
+    assert!(st.degraded().is_empty(), "{:?}", st.degraded());
+    (st, dir)
+}
+
+#[tokio::test]
+async fn bad_inputs_get_problem_details() {
+    let (st, _d) = state("").await;
+    let app = app(st);
+    let (a, b) = (coord(at(0.3, 0.3)), coord(at(0.7, 0.6)));
+    let big = vec![b' '; 300 * 1024];
+    // (what, method, uri, content type, body, status, field or detail fragment)
+    let cases: Vec<(&str, &str, String, Option<&str>, Vec<u8>, u16, &str)> = vec![
+        ("malformed JSON", "POST", "/v1/eta".into(), Some("application/json"), b"{\"from\": {".to_vec(), 400, "malformed JSON"),
+        ("wrong type", "POST", "/v1/eta".into(), Some("application/json"),
+            serde_json::to_vec(&json!({"from": {"lat": "north", "lon": 1.0}, "to": b})).unwrap(), 422, "from.lat"),
+        ("missing field", "POST", "/v1/eta".into(), Some("application/json"),
+            serde_json::to_vec(&json!({"from": a})).unwrap(), 422, "to"),
+        ("missing lon", "POST", "/v1/eta".into(), Some("application/json"),
+            serde_json::to_vec(&json!({"from": {"lat": 1.0}, "to": b})).unwrap(), 422, "from.lon"),
+        ("lat out of range", "POST", "/v1/eta".into(), Some("application/json"),
+            serde_json::to_vec(&json!({"from": {"lat": 95.0, "lon": 0.0}, "to": b})).unwrap(), 422, "from.lat must be within -90..90"),
+        ("lon out of range", "POST", "/v1/eta".into(), Some("application/json"),
+            serde_json::to_vec(&json!({"from": a, "to": {"lat": 0.0, "lon": -181.0}})).unwrap(), 422, "to.lon must be within -180..180"),
+        // JSON has no NaN or Infinity literals (RFC 8259 §6): a syntax error.
+        ("NaN literal", "POST", "/v1/eta".into(), Some("application/json"),
+            br#"{"from":{"lat":NaN,"lon":0},"to":{"lat":0,"lon":0}}"#.to_vec(), 400, "malformed JSON"),
+        ("Infinity by overflow", "POST", "/v1/eta".into(), Some("application/json"),
+            br#"{"from":{"lat":1e999,"lon":0},"to":{"lat":0,"lon":0}}"#.to_vec(), 400, "malformed JSON"),
+        ("NaN in the query string", "GET", "/v1/eta?from=NaN,0&to=1,1".into(), None, vec![], 422, "from.lat must be within -90..90"),
+        ("inf in the query string", "GET", "/v1/eta?from=0,inf&to=1,1".into(), None, vec![], 422, "from.lon must be within -180..180"),
+        ("empty matrix", "POST", "/v1/eta/matrix".into(), Some("application/json"),
+            serde_json::to_vec(&json!({"from": [], "to": [b]})).unwrap(), 422, "from must list at least one coordinate"),
+        ("matrix over the cell limit", "POST", "/v1/eta/matrix".into(), Some("application/json"),
+            serde_json::to_vec(&json!({"from": vec![a.clone(); 201], "to": vec![b.clone(); 200]})).unwrap(), 422, "the limit is 40000"),
+        ("body over the size limit", "POST", "/v1/eta".into(), Some("application/json"), big, 413, "over the limit"),
+        ("unknown body field", "POST", "/v1/eta".into(), Some("application/json"),
+            serde_json::to_vec(&json!({"from": a, "to": b, "avoid": "tolls"})).unwrap(), 422, "unknown field"),
+        ("unknown query parameter", "GET", "/v1/eta?from=1,1&to=2,2&mode=walk".into(), None, vec![], 422, "mode is not a known parameter"),
+        ("unparseable depart_at", "POST", "/v1/eta".into(), Some("application/json"),
+            serde_json::to_vec(&json!({"from": a, "to": b, "depart_at": "tomorrow at 8"})).unwrap(), 422, "depart_at must be an RFC 3339 date-time"),
+        ("unparseable depart_at (GET)", "GET", "/v1/eta?from=1,1&to=2,2&depart_at=08:00".into(), None, vec![], 422, "depart_at"),
+        ("zero budget", "POST", "/v1/eta".into(), Some("application/json"),
+            serde_json::to_vec(&json!({"from": a, "to": b, "budget_ms": 0})).unwrap(), 422, "budget_ms must be at least 1"),
+        ("negative budget", "POST", "/v1/eta".into(), Some("application/json"),
+            serde_json::to_vec(&json!({"from": a, "to": b, "budget_ms": -5})).unwrap(), 422, "budget_ms"),
+        ("missing query coordinate", "GET", "/v1/eta?from=1,1".into(), None, vec![], 422, "to is required"),
+        ("wrong media type", "POST", "/v1/eta".into(), Some("text/plain"), b"hello".to_vec(), 415, "application/json"),
+        ("unknown path", "GET", "/v2/teleport".into(), None, vec![], 404, "no such endpoint"),
+    ];
+    for (what, method, uri, ct, body, status, needle) in cases {
+        let r = send(&app, method, &uri, ct, body, None).await;
+        assert_eq!(r.status.as_u16(), status, "{what}: {}", r.text);
+        assert_eq!(r.content_type, "application/problem+json", "{what}");
+        let p = r.json();
+        // RFC 9457 §3.1 members.
+        assert_eq!(p["status"], status, "{what}");
+        assert!(p["type"].is_string() && p["title"].is_string(), "{what}: {p}");
+        let detail = p["detail"].as_str().unwrap_or_default();
+        let field = p["field"].as_str().unwrap_or_default();
+        assert!(detail.contains(needle) || field == needle, "{what}: {p}");
+    }
+}
+
+#[tokio::test]
+async fn every_tier_and_reason() {
+    let (st, _d) = state("").await;
+    let region = st.catalog.regions[0].clone();
+    let pub_app = app(st.clone());
+    let admin = admin_app(st.clone());
+    let (a, b) = (at(0.25, 0.3), at(0.75, 0.7));
+    let trip = json!({"from": coord(a), "to": coord(b), "budget_ms": 2000});
+
+    // No live data yet → historical, no_live_data.
+    let r = post_json(&pub_app, "/v1/eta", &trip).await.json();
+    assert_eq!((r["tier"].as_str(), r["fallback_reason"].as_str()), (Some("historical"), Some("no_live_data")), "{r}");
+    let historical_eta = r["eta_s"].as_f64().unwrap();
+    assert!(historical_eta > 0.0 && r["meters"].as_f64().unwrap() > 0.0);
+    assert!(r["from_snap_m"].as_f64().unwrap() < 500.0);
+
+    // Fresh live observations on every edge (half speed) → live, slower.
+    let now = chrono::Utc::now().to_rfc3339();
+    let c = city();
+    let batch: Vec<Value> = c
+        .edges
+        .iter()
+        .map(|(f, t)| json!({"from_node": f, "to_node": t, "speed_kmh": 12.0, "observed_at": now, "samples": 3}))
+        .collect();
+    let r = send(&admin, "POST", "/admin/regions/testcity/live", Some("application/json"), serde_json::to_vec(&batch).unwrap(), Some(TOKEN)).await;
+    assert_eq!(r.status, 200, "{}", r.text);
+    assert!(region.refresh_live(true).await);
+    let r = post_json(&pub_app, "/v1/eta", &trip).await.json();
+    assert_eq!(r["tier"], "live", "{r}");
+    assert!(r["fallback_reason"].is_null());
+    assert!(r["eta_s"].as_f64().unwrap() > historical_eta, "12 km/h everywhere must be slower: {r} vs {historical_eta}");
+    assert!(r["speeds_age_s"].as_f64().unwrap() < 60.0);
+
+    // A departure next week is not "now": historical, and no fallback reason.
+    let later = (chrono::Utc::now() + chrono::Duration::days(7)).to_rfc3339();
+    let r = post_json(&pub_app, "/v1/eta", &json!({"from": coord(a), "to": coord(b), "depart_at": later, "budget_ms": 2000})).await.json();
+    assert_eq!(r["tier"], "historical", "{r}");
+    assert!(r["fallback_reason"].is_null(), "{r}");
+
+    // Observations older than the TTL (600 s) → historical, live_stale.
+    let old = (chrono::Utc::now() - chrono::Duration::seconds(3600)).to_rfc3339();
+    let (st2, _d2) = state("").await;
+    let r2 = st2.catalog.regions[0].clone();
+    let stale: Vec<Value> = c
+        .edges
+        .iter()
+        .take(50)
+        .map(|(f, t)| json!({"from_node": f, "to_node": t, "speed_kmh": 20.0, "observed_at": old, "samples": 1}))
+        .collect();
+    r2.put_live(&serde_json::to_vec(&stale).unwrap(), false).await.unwrap();
+    r2.refresh_live(true).await;
+    let r = post_json(&app(st2.clone()), "/v1/eta", &trip).await.json();
+    assert_eq!((r["tier"].as_str(), r["fallback_reason"].as_str()), (Some("historical"), Some("live_stale")), "{r}");
+
+    // Far off-road but inside the coverage → heuristic, off_network.
+    let corner = hodos::geo::LatLon::new(c.lo.lat - 0.04, c.lo.lon - 0.04);
+    let r = post_json(&pub_app, "/v1/eta", &json!({"from": coord(corner), "to": coord(b)})).await.json();
+    assert_eq!((r["tier"].as_str(), r["fallback_reason"].as_str()), (Some("heuristic"), Some("off_network")), "{r}");
+    assert!(r["eta_s"].as_f64().unwrap() > 0.0);
+
+    // Outside every region → heuristic, outside_regions, no snapshot.
+    let r = send(&pub_app, "GET", "/v1/eta?from=10,10&to=10.1,10.1", None, vec![], None).await.json();
+    assert_eq!((r["tier"].as_str(), r["fallback_reason"].as_str()), (Some("heuristic"), Some("outside_regions")), "{r}");
+    assert!(r["snapshot"].is_null());
+
+    // A tiny budget on a big matrix → budget_exceeded cells, all answered.
+    let from: Vec<Value> = (0..150).map(|i| coord(at(0.1 + 0.8 * (i as f64 / 150.0), 0.2))).collect();
+    let to: Vec<Value> = (0..150).map(|i| coord(at(0.15, 0.1 + 0.8 * (i as f64 / 150.0)))).collect();
+    let warm = post_json(&pub_app, "/v1/eta/matrix", &json!({"from": from[..2], "to": to[..2], "budget_ms": 2000})).await;
+    assert_eq!(warm.status, 200);
+    let r = post_json(&pub_app, "/v1/eta/matrix", &json!({"from": from, "to": to, "budget_ms": 1})).await;
+    assert_eq!(r.status, 200, "{}", r.text);
+    let m = r.json();
+    let tiers: Vec<&str> = m["tier"].as_array().unwrap().iter().flat_map(|row| row.as_array().unwrap().iter().map(|t| t.as_str().unwrap())).collect();
+    let reasons: Vec<Option<&str>> = m["fallback_reason"].as_array().unwrap().iter().flat_map(|row| row.as_array().unwrap().iter().map(|t| t.as_str())).collect();
+    assert_eq!(tiers.len(), 150 * 150);
+    assert!(reasons.contains(&Some("budget_exceeded")), "a 1 ms budget cannot cover 22,500 cells");
+    for (t, r) in tiers.iter().zip(&reasons) {
+        if *r == Some("budget_exceeded") {
+            assert_eq!(*t, "heuristic");
+        }
+    }
+    assert!(m["eta_s"].as_array().unwrap().iter().all(|row| row.as_array().unwrap().iter().all(|v| v.as_f64().unwrap() >= 0.0)));
+
+    // Saturated graph concurrency → overloaded, still answered.
+    let (st3, _d3) = state("graph_concurrency = 0").await;
+    let r = post_json(&app(st3), "/v1/eta", &trip).await;
+    assert_eq!(r.status, 200);
+    let r = r.json();
+    assert_eq!((r["tier"].as_str(), r["fallback_reason"].as_str()), (Some("heuristic"), Some("overloaded")), "{r}");
+}
+
+#[tokio::test]
+async fn unreachable_pair_and_degraded_region() {
+    use hodos::artifact::{Artifact, Metadata};
+    use hodos::graph::{EdgeSpec, GraphBuilder, RoadClass};
+    // Two islands of the city's size with no road between them: the
+    // artifact is assembled by hand, as `hodos build` keeps only the
+    // largest strongly connected component.
+    let c = city();
+    let mut b = GraphBuilder::default();
+    let mut way = 0;
+    for island in 0..2 {
+        let lon0 = c.lo.lon + island as f64 * (c.hi.lon - c.lo.lon) * 0.7;
+        let base = b.num_nodes() as u32;
+        for i in 0..10u32 {
+            for j in 0..10u32 {
+                b.add_node(hodos::geo::LatLon::new(c.lo.lat + 0.002 * i as f64, lon0 + 0.002 * j as f64), u64::from(base + i * 10 + j + 1));
+            }
+        }
+        for i in 0..10u32 {
+            for j in 0..10u32 {
+                let v = base + i * 10 + j;
+                for w in [(j + 1 < 10).then_some(v + 1), (i + 1 < 10).then_some(v + 10)].into_iter().flatten() {
+                    way += 1;
+                    for (t, h) in [(v, w), (w, v)] {
+                        b.add_edge(EdgeSpec { tail: t, head: h, length_m: None, speed_kmh: 30.0, way_id: way, class: RoadClass::Residential, shape: &[] });
+                    }
+                }
+            }
+        }
+    }
+    let g = b.finish();
+    let ug = hodos::order::UndirectedGraph::from_edges(g.num_nodes(), g.edge_tail.iter().copied().zip(g.edge_head.iter().copied()));
+    let proj = hodos::geo::LocalProjection::new(c.lo.lat);
+    let xy: Vec<[f64; 2]> = (0..g.num_nodes() as u32).map(|v| proj.project(g.node_pos(v))).collect();
+    let order = hodos::order::nested_dissection(&ug, &xy, &mut |_| {});
+    let cch = hodos::cch::Cch::build(&g, order.rank);
+    let art = Artifact {
+        meta: Metadata {
+            source: "test:two-islands".into(), built_at_unix: 0, hodos_version: "test".into(), nodes: g.num_nodes(), edges: g.num_edges(),
+            dropped: Default::default(), arcs: cch.num_arcs(), shortcuts: 0, top_separator: 0, elimination_tree_depth: 0, phase_seconds: vec![],
+        },
+        calibration: hodos::calibration::Calibration::fixed(1.3, 30.0),
+        graph: g.clone(),
+        cch,
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("islands.hodos");
+    art.save(&path).unwrap();
+    let text = common::service::config_text(&path, &dir.path().join("state"), "");
+    let st = AppState::open(hodos::config::Config::parse(&text).unwrap()).await;
+    let a = app(st);
+    let (p, q) = (g.node_pos(5), g.node_pos(150));
+    let r = post_json(&a, "/v1/eta", &json!({"from": coord(p), "to": coord(q)})).await.json();
+    assert_eq!((r["tier"].as_str(), r["fallback_reason"].as_str()), (Some("heuristic"), Some("unreachable")), "{r}");
+
+    // A region whose artifact does not load starts degraded: heuristic
+    // answers with region_unavailable; readiness names it.
+    let broken = dir.path().join("broken.hodos");
+    std::fs::write(&broken, b"not an artifact").unwrap();
+    let text = common::service::config_text(&broken, &dir.path().join("state2"), "");
+    let st = AppState::open(hodos::config::Config::parse(&text).unwrap()).await;
+    assert_eq!(st.degraded().len(), 1);
+    let a = app(st);
+    let r = post_json(&a, "/v1/eta", &json!({"from": coord(p), "to": coord(q)})).await;
+    assert_eq!(r.status, 200);
+    let r = r.json();
+    assert_eq!((r["tier"].as_str(), r["fallback_reason"].as_str()), (Some("heuristic"), Some("region_unavailable")), "{r}");
+    let ready = send(&a, "GET", "/readyz", None, vec![], None).await.json();
+    assert_eq!(ready["degraded_regions"], 1);
+    assert_eq!(ready["regions"][0]["state"], "degraded");
+    assert!(ready["regions"][0]["reason"].as_str().unwrap().contains("broken.hodos"), "{ready}");
+}
+
+#[tokio::test]
+async fn admin_requires_the_token() {
+    let (st, _d) = state("").await;
+    let admin = admin_app(st);
+    for token in [None, Some("wrong"), Some("")] {
+        for (m, uri) in [("GET", "/admin/status"), ("POST", "/admin/regions/testcity/reload"), ("PUT", "/admin/regions/testcity/historical"), ("POST", "/admin/regions/testcity/live")] {
+            let r = send(&admin, m, uri, None, vec![], token).await;
+            assert_eq!(r.status, 401, "{m} {uri} with {token:?}");
+            assert_eq!(r.content_type, "application/problem+json");
+        }
+    }
+    let r = send(&admin, "GET", "/admin/status", None, vec![], Some(TOKEN)).await;
+    assert_eq!(r.status, 200);
+    let s = r.json();
+    assert_eq!(s["regions"][0]["region"], "testcity");
+    assert!(s["regions"][0]["generation"].as_u64().unwrap() >= 1);
+}
+
+#[tokio::test]
+async fn rejected_table_is_reported_and_never_served() {
+    let (st, _d) = state("").await;
+    let admin = admin_app(st.clone());
+    let c = city();
+    let mut csv = String::from("from_node,to_node,hour_of_week,speed_kmh\n");
+    for (i, (f, t)) in c.edges.iter().take(100).enumerate() {
+        // 20% bad rows (speed 0), over the 5% default threshold.
+        let v = if i % 5 == 0 { 0.0 } else { 25.0 };
+        csv.push_str(&format!("{f},{t},10,{v}\n"));
+    }
+    let before = st.catalog.regions[0].status().generation;
+    let r = send(&admin, "PUT", "/admin/regions/testcity/historical", Some("text/csv"), csv.into_bytes(), Some(TOKEN)).await;
+    assert_eq!(r.status, 422, "{}", r.text);
+    let p = r.json();
+    assert_eq!(p["report"]["rejected"], true, "{p}");
+    assert!(p["report"]["first_errors"][0]["line"].as_u64().unwrap() >= 2);
+    let s = send(&admin, "GET", "/admin/status", None, vec![], Some(TOKEN)).await.json();
+    assert_eq!(s["regions"][0]["last_reload"]["outcome"], "rejected");
+    assert!(s["regions"][0]["last_reload"]["error"].as_str().is_some());
+    assert_eq!(st.catalog.regions[0].status().generation, before, "a rejected table never replaces serving data");
+    let metrics = send(&app(st), "GET", "/metrics", None, vec![], None).await.text;
+    assert!(metrics.contains(r#"hodos_reloads_total{region="testcity",table="historical",outcome="rejected"}"#), "{metrics}");
+}
+
+#[tokio::test]
+async fn metrics_geojson_and_openapi_parse_with_outside_tools() {
+    let (st, _d) = state("").await;
+    let a = app(st);
+    let (p, q) = (at(0.2, 0.2), at(0.8, 0.8));
+    let trip = json!({"from": coord(p), "to": coord(q), "budget_ms": 2000});
+    assert_eq!(post_json(&a, "/v1/eta", &trip).await.status, 200);
+
+    // Route geometry: a GeoJSON LineString (RFC 7946) per the geojson crate,
+    // starting and ending at the snapped points.
+    let r = post_json(&a, "/v1/route", &trip).await;
+    assert_eq!(r.status, 200, "{}", r.text);
+    let v = r.json();
+    let geom: geojson::Geometry = serde_json::from_value(v["geometry"].clone()).expect("GeoJSON geometry");
+    match geom.value {
+        geojson::GeometryValue::LineString { coordinates: line } => {
+            assert!(line.len() >= 2);
+            let first = &line[0];
+            assert!((first[1] - p.lat).abs() < 0.01 && (first[0] - p.lon).abs() < 0.01, "[lon, lat] order");
+            // The polyline's length matches the reported distance.
+            let pts: Vec<hodos::geo::LatLon> = line.iter().map(|c| hodos::geo::LatLon::new(c[1], c[0])).collect();
+            let len = hodos::geo::polyline_length_m(&pts);
+            let meters = v["meters"].as_f64().unwrap();
+            assert!((len - meters).abs() <= 0.01 * meters + 1.0, "geometry {len} m vs reported {meters} m");
+        }
+        other => panic!("expected a LineString, got {other:?}"),
+    }
+
+    // Prometheus text exposition, parsed by prometheus-parse.
+    let text = send(&a, "GET", "/metrics", None, vec![], None).await.text;
+    let lines = text.lines().map(|l| Ok(l.to_string()));
+    let scrape = prometheus_parse::Scrape::parse(lines).expect("Prometheus text parses");
+    let names: std::collections::HashSet<String> = scrape.samples.iter().map(|s| s.metric.clone()).collect();
+    for want in [
+        "hodos_request_duration_seconds",
+        "hodos_answers_total",
+        "hodos_fallbacks_total",
+        "hodos_snapshot_generation",
+        "hodos_customization_seconds",
+        "hodos_reloads_total",
+        "hodos_graph_work_in_flight",
+    ] {
+        assert!(names.contains(want), "missing {want}; have {names:?}");
+    }
+    // Latency is a real histogram (buckets), not a summary.
+    assert!(scrape
+        .samples
+        .iter()
+        .any(|s| s.metric == "hodos_request_duration_seconds" && matches!(s.value, prometheus_parse::Value::Histogram(_))));
+    let routes: std::collections::HashSet<String> = scrape
+        .samples
+        .iter()
+        .filter(|s| s.metric == "hodos_request_duration_seconds_count")
+        .filter_map(|s| s.labels.get("route").map(|r| r.to_string()))
+        .collect();
+    assert!(routes.contains("/v1/eta") && routes.contains("/v1/route"), "{routes:?}");
+    assert!(routes.iter().all(|r| !r.contains('?')), "routes are templates, never raw URIs");
+
+    // OpenAPI 3.1: every served path is documented, and an external
+    // validator (openapi-spec-validator from PyPI) accepts the document.
+    let doc = send(&a, "GET", "/openapi.json", None, vec![], None).await.json();
+    assert_eq!(doc["openapi"], "3.1.0");
+    for path in ["/v1/eta", "/v1/eta/matrix", "/v1/route", "/healthz", "/readyz", "/metrics", "/openapi.json", "/admin/status",
+                 "/admin/regions/{region}/historical", "/admin/regions/{region}/live", "/admin/regions/{region}/reload"] {
+        assert!(doc["paths"][path].is_object(), "{path} undocumented");
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let f = dir.path().join("openapi.json");
+    std::fs::write(&f, serde_json::to_vec_pretty(&doc).unwrap()).unwrap();
+    let out = std::process::Command::new("python3")
+        .args(["-c", "import sys, json\nfrom openapi_spec_validator import validate\nvalidate(json.load(open(sys.argv[1])))\nprint('valid')", f.to_str().unwrap()])
+        .output();
+    match out {
+        Ok(o) if String::from_utf8_lossy(&o.stderr).contains("No module named") => {
+            eprintln!("SKIPPED: openapi-spec-validator is not installed (pip install openapi-spec-validator; .ci/run does)");
+        }
+        Ok(o) => assert!(o.status.success(), "openapi-spec-validator: {}{}", String::from_utf8_lossy(&o.stdout), String::from_utf8_lossy(&o.stderr)),
+        Err(e) => eprintln!("SKIPPED: python3 not runnable: {e}"),
+    }
+}
