@@ -220,6 +220,7 @@ abc,1002,1,40
 1001,1002,1,fast
 1001,1002,1,40,7
 1002,1003,3,25
+1002,1003,3,1e-50
 "
     );
     use ErrorKind::*;
@@ -240,9 +241,10 @@ abc,1002,1,40
             (Some(13), None, MalformedRow),
             (Some(14), None, MalformedRow),
             (Some(15), None, MalformedRow),
+            (Some(17), None, NonpositiveSpeed), // rounds to 0 as f32
         ]
     );
-    assert_eq!((r.rows, r.accepted, r.bad), (15, 2, 13));
+    assert_eq!((r.rows, r.accepted, r.bad), (16, 2, 14));
     assert_eq!(r.bad_by_kind.get("bad_hour"), Some(&3));
     assert_eq!(r.bad_by_kind.get("malformed_row"), Some(&4));
     assert_eq!(r.bad_by_kind.get("future_timestamp"), None);

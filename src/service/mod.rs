@@ -43,12 +43,13 @@ pub struct AppState {
 impl AppState {
     /// Opens every configured region (degraded ones included).
     pub async fn open(cfg: Config) -> AppState {
+        // The recorder first: loading a region already records series.
+        let prometheus = metrics::handle();
         let settings = UpdateSettings::from_config(&cfg);
         let mut regions = Vec::new();
         for r in &cfg.regions {
             regions.push(RegionHandle::open(r.clone(), settings.clone()).await);
         }
-        let prometheus = metrics::handle();
         let names: Vec<String> = regions.iter().map(|r| r.name.clone()).collect();
         metrics::register_zero(&handlers::ANSWER_ROUTES, &names);
         AppState {

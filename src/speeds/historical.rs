@@ -19,8 +19,8 @@
 //! count → `malformed_row`; node id not an unsigned integer →
 //! `malformed_row`; hour not an integer in `0..=167` (including `2.5`, `-1`,
 //! text) → `bad_hour`; speed unparsable → `malformed_row`; NaN/±inf →
-//! `not_a_number`; ≤ 0 → `nonpositive_speed`; above the maximum →
-//! `over_max_speed`; no edge with these ends → `unknown_edge`. A later row for
+//! `not_a_number`; ≤ 0 (or rounding to 0 as `f32`) → `nonpositive_speed`;
+//! above the maximum → `over_max_speed`; no edge with these ends → `unknown_edge`. A later row for
 //! the same edge and hour replaces an earlier one (counted as `superseded`).
 //!
 //! A table with more than `max_bad_share` bad rows is rejected whole, and so
@@ -230,7 +230,8 @@ pub(crate) fn check_speed(b: &[u8], cfg: &ValidationConfig) -> Result<f64, Error
 pub(crate) fn check_speed_value(s: f64, cfg: &ValidationConfig) -> Result<f64, ErrorKind> {
     if !s.is_finite() {
         Err(ErrorKind::NotANumber)
-    } else if s <= 0.0 {
+    } else if s <= 0.0 || s as f32 <= 0.0 {
+        // Also a positive value so small it is stored as 0 in f32.
         Err(ErrorKind::NonpositiveSpeed)
     } else if s > cfg.max_speed_kmh {
         Err(ErrorKind::OverMaxSpeed)

@@ -12,7 +12,7 @@
 //! - [`historical`]: the 168-hour profile parsed from CSV; missing rows fall
 //!   back to free-flow.
 //! - [`live`]: recent observations (JSON batch or CSV), newest per edge wins.
-//! - [`blend`]: historical bucket + live layer → one speed vector, with
+//! - [`blend`](mod@blend): historical bucket + live layer → one speed vector, with
 //!   exponential decay of the live weight.
 //! - [`persist`]: atomic file writes and save/load of both tables.
 //! - [`report`]: the per-upload validation report (serde, returned as JSON).
