@@ -312,11 +312,11 @@ impl Config {
         if l.recustomize_ms == 0 {
             return bad("live.recustomize_ms", "must be positive");
         }
-        if !(l.watch_interval_s > 0.0) {
+        if !(l.watch_interval_s.is_finite() && l.watch_interval_s > 0.0) {
             return bad("live.watch_interval_s", "must be positive");
         }
         let t = &self.tables;
-        if !(t.max_speed_kmh > 0.0) {
+        if !(t.max_speed_kmh.is_finite() && t.max_speed_kmh > 0.0) {
             return bad("tables.max_speed_kmh", "must be positive");
         }
         if !(0.0..=1.0).contains(&t.max_bad_share) {

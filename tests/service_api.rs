@@ -65,14 +65,16 @@ async fn state(extra: &str) -> (AppState, tempfile::TempDir) {
     (st, dir)
 }
 
+/// (what, method, uri, content type, body, status, field or detail fragment)
+type Case = (&'static str, &'static str, String, Option<&'static str>, Vec<u8>, u16, &'static str);
+
 #[tokio::test]
 async fn bad_inputs_get_problem_details() {
     let (st, _d) = state("").await;
     let app = app(st);
     let (a, b) = (coord(at(0.3, 0.3)), coord(at(0.7, 0.6)));
     let big = vec![b' '; 300 * 1024];
-    // (what, method, uri, content type, body, status, field or detail fragment)
-    let cases: Vec<(&str, &str, String, Option<&str>, Vec<u8>, u16, &str)> = vec![
+    let cases: Vec<Case> = vec![
         ("malformed JSON", "POST", "/v1/eta".into(), Some("application/json"), b"{\"from\": {".to_vec(), 400, "malformed JSON"),
         ("wrong type", "POST", "/v1/eta".into(), Some("application/json"),
             serde_json::to_vec(&json!({"from": {"lat": "north", "lon": 1.0}, "to": b})).unwrap(), 422, "from.lat"),

@@ -134,7 +134,9 @@ impl Chains {
 }
 
 impl ManyToMany {
-    /// Scratch for `cch` (per-node arrays plus the tree's preorder).
+    /// Scratch for `cch` (per-node arrays plus the tree's preorder). Used
+    /// with another hierarchy of the same size it stays exact, only the
+    /// buckets get sparser.
     pub fn new(cch: &Cch) -> Self {
         let n = cch.num_nodes();
         let parent = |x: usize| {
@@ -267,9 +269,9 @@ impl ManyToMany {
             cch,
             metric,
             num_sources,
-            |i| EpList(source(i)),
+            source,
             num_targets,
-            |j| EpList(target(j)),
+            target,
             deadline,
             out_time,
             out_len_cm,
@@ -583,15 +585,6 @@ impl Walker {
             }
             settle(x, d, l);
         }
-    }
-}
-
-/// A borrowed endpoint list (so `run_with` and `run_nodes` share one body).
-struct EpList<'e>(&'e [Endpoint]);
-
-impl AsRef<[Endpoint]> for EpList<'_> {
-    fn as_ref(&self) -> &[Endpoint] {
-        self.0
     }
 }
 
