@@ -63,7 +63,11 @@ impl Catalog {
 
     fn budget(&self, requested: Option<u64>) -> Duration {
         let q = &self.cfg.query;
-        Duration::from_millis(requested.unwrap_or(q.default_budget_ms).min(q.max_budget_ms))
+        Duration::from_millis(
+            requested
+                .unwrap_or(q.default_budget_ms)
+                .min(q.max_budget_ms),
+        )
     }
 }
 
@@ -83,7 +87,13 @@ pub struct Answer {
     pub geometry: Option<Vec<LatLon>>,
 }
 
-fn heuristic(cal: &Calibration, a: LatLon, b: LatLon, reason: FallbackReason, snapshot: Option<(String, u64)>) -> Answer {
+fn heuristic(
+    cal: &Calibration,
+    a: LatLon,
+    b: LatLon,
+    reason: FallbackReason,
+    snapshot: Option<(String, u64)>,
+) -> Answer {
     let (meters, secs) = cal.estimate(a, b);
     Answer {
         eta_s: secs,
@@ -162,7 +172,9 @@ async fn choose(
     if leaving_now {
         match &snap.live {
             Some(l) => {
-                let age = l.newest_observed_at.map(|o| (now - o).num_milliseconds() as f64 / 1000.0);
+                let age = l
+                    .newest_observed_at
+                    .map(|o| (now - o).num_milliseconds() as f64 / 1000.0);
                 if l.stats.any_fresh && age.map(|a| a <= ttl).unwrap_or(false) {
                     return Some(Chosen {
                         metric: Arc::new(MetricRef::Live(l.clone())),
@@ -182,7 +194,9 @@ async fn choose(
         metric: Arc::new(MetricRef::Bucket(bucket)),
         tier: Tier::Historical,
         reason,
-        age_s: snap.historical_at.map(|a| ((now - a).num_milliseconds() as f64 / 1000.0).max(0.0)),
+        age_s: snap
+            .historical_at
+            .map(|a| ((now - a).num_milliseconds() as f64 / 1000.0).max(0.0)),
     })
 }
 
@@ -216,7 +230,13 @@ pub async fn trip(
         return heuristic(&cat.outside, from, to, FallbackReason::OutsideRegions, None);
     };
     let Some(snap) = handle.snapshot() else {
-        return heuristic(&cat.outside, from, to, FallbackReason::RegionUnavailable, Some((handle.name.clone(), 0)));
+        return heuristic(
+            &cat.outside,
+            from,
+            to,
+            FallbackReason::RegionUnavailable,
+            Some((handle.name.clone(), 0)),
+        );
     };
     let tag = Some((handle.name.clone(), snap.generation));
     let cal = &snap.region.calibration;
@@ -252,7 +272,9 @@ pub async fn trip(
             to_snap_m: Some(eta.to.distance_m),
             geometry,
         },
-        Err(EtaError::OffNetwork { .. }) => heuristic(cal, from, to, FallbackReason::OffNetwork, tag),
+        Err(EtaError::OffNetwork { .. }) => {
+            heuristic(cal, from, to, FallbackReason::OffNetwork, tag)
+        }
         Err(EtaError::Unreachable) => {
             let mut a = heuristic(cal, from, to, FallbackReason::Unreachable, tag);
             if let (Ok(s1), Ok(s2)) = (
@@ -285,7 +307,12 @@ pub struct MatrixAnswer {
     pub snapshot: Option<(String, u64)>,
 }
 
-fn heuristic_cells(cal: &Calibration, from: &[LatLon], to: &[LatLon], reason: FallbackReason) -> Vec<CellAnswer> {
+fn heuristic_cells(
+    cal: &Calibration,
+    from: &[LatLon],
+    to: &[LatLon],
+    reason: FallbackReason,
+) -> Vec<CellAnswer> {
     let mut cells = Vec::with_capacity(from.len() * to.len());
     for &a in from {
         for &b in to {
@@ -320,14 +347,19 @@ pub async fn matrix_trip(
         snapshot,
     };
     // A matrix belongs to one region: all points inside its coverage.
-    let handle = cat.regions.iter().find(|r| {
-        from.iter().chain(&to).all(|p| r.cfg.coverage.contains(*p))
-    });
+    let handle = cat
+        .regions
+        .iter()
+        .find(|r| from.iter().chain(&to).all(|p| r.cfg.coverage.contains(*p)));
     let Some(handle) = handle else {
         return all_heuristic(&cat.outside, FallbackReason::OutsideRegions, None);
     };
     let Some(snap) = handle.snapshot() else {
-        return all_heuristic(&cat.outside, FallbackReason::RegionUnavailable, Some((handle.name.clone(), 0)));
+        return all_heuristic(
+            &cat.outside,
+            FallbackReason::RegionUnavailable,
+            Some((handle.name.clone(), 0)),
+        );
     };
     let tag = Some((handle.name.clone(), snap.generation));
     let Ok(permit) = cat.permits.clone().try_acquire_owned() else {
@@ -335,7 +367,11 @@ pub async fn matrix_trip(
     };
     let _in_flight = InFlight::start();
     let Some(chosen) = choose(cat, handle, &snap, depart, deadline).await else {
-        return all_heuristic(&snap.region.calibration, FallbackReason::BudgetExceeded, tag);
+        return all_heuristic(
+            &snap.region.calibration,
+            FallbackReason::BudgetExceeded,
+            tag,
+        );
     };
     let max_snap = cat.cfg.query.max_snap_m;
     let snap2 = snap.clone();
@@ -357,7 +393,17 @@ pub async fn matrix_trip(
                 }
             };
             let (_, m2m, out) = &mut s[pos];
-            matrix(region, metric.get(), m2m, &from2, &to2, max_snap, Some(deadline), out).map(|_| out.cells.clone())
+            matrix(
+                region,
+                metric.get(),
+                m2m,
+                &from2,
+                &to2,
+                max_snap,
+                Some(deadline),
+                out,
+            )
+            .map(|_| out.cells.clone())
         })
     })
     .await;

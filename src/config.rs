@@ -210,7 +210,9 @@ pub enum Coverage {
 impl Coverage {
     pub fn contains(&self, p: LatLon) -> bool {
         match self {
-            Coverage::Bbox([a, b, c, d]) => p.lat >= *a && p.lat <= *c && p.lon >= *b && p.lon <= *d,
+            Coverage::Bbox([a, b, c, d]) => {
+                p.lat >= *a && p.lat <= *c && p.lon >= *b && p.lon <= *d
+            }
             Coverage::Polygon(ring) => {
                 // Even-odd ray casting.
                 let mut inside = false;
@@ -218,7 +220,9 @@ impl Coverage {
                 for i in 0..n {
                     let (yi, xi) = (ring[i][0], ring[i][1]);
                     let (yj, xj) = (ring[(i + n - 1) % n][0], ring[(i + n - 1) % n][1]);
-                    if (yi > p.lat) != (yj > p.lat) && p.lon < (xj - xi) * (p.lat - yi) / (yj - yi) + xi {
+                    if (yi > p.lat) != (yj > p.lat)
+                        && p.lon < (xj - xi) * (p.lat - yi) / (yj - yi) + xi
+                    {
                         inside = !inside;
                     }
                 }
@@ -240,7 +244,11 @@ pub enum ConfigError {
     #[error("{}: {msg}", path.display())]
     Parse { path: PathBuf, msg: String },
     #[error("{}: {key}: {msg}", path.display())]
-    Invalid { path: PathBuf, key: String, msg: String },
+    Invalid {
+        path: PathBuf,
+        key: String,
+        msg: String,
+    },
 }
 
 impl Config {
@@ -257,9 +265,14 @@ impl Config {
         })?;
         let base = path.parent().unwrap_or(Path::new("."));
         for r in &mut cfg.regions {
-            for p in [Some(&mut r.artifact), r.historical.as_mut(), r.live_dir.as_mut(), Some(&mut r.state_dir)]
-                .into_iter()
-                .flatten()
+            for p in [
+                Some(&mut r.artifact),
+                r.historical.as_mut(),
+                r.live_dir.as_mut(),
+                Some(&mut r.state_dir),
+            ]
+            .into_iter()
+            .flatten()
             {
                 if p.is_relative() {
                     *p = base.join(&*p);
@@ -297,7 +310,10 @@ impl Config {
             return bad("query.default_budget_ms", "budgets must be positive");
         }
         if q.default_budget_ms > q.max_budget_ms {
-            return bad("query.default_budget_ms", "must not exceed query.max_budget_ms");
+            return bad(
+                "query.default_budget_ms",
+                "must not exceed query.max_budget_ms",
+            );
         }
         if !(q.max_snap_m.is_finite() && q.max_snap_m > 0.0) {
             return bad("query.max_snap_m", "must be a positive number of metres");
@@ -306,8 +322,15 @@ impl Config {
             return bad("query.max_matrix_cells", "must be positive");
         }
         let l = &self.live;
-        if !(l.half_life_s > 0.0 && l.ttl_s > 0.0 && l.half_life_s.is_finite() && l.ttl_s.is_finite()) {
-            return bad("live.half_life_s", "half-life and TTL must be positive seconds");
+        if !(l.half_life_s > 0.0
+            && l.ttl_s > 0.0
+            && l.half_life_s.is_finite()
+            && l.ttl_s.is_finite())
+        {
+            return bad(
+                "live.half_life_s",
+                "half-life and TTL must be positive seconds",
+            );
         }
         if l.recustomize_ms == 0 {
             return bad("live.recustomize_ms", "must be positive");
@@ -332,24 +355,42 @@ impl Config {
         let mut names = std::collections::HashSet::new();
         for (i, r) in self.regions.iter().enumerate() {
             let key = |k: &str| format!("region[{i}].{k}");
-            if r.name.is_empty() || !r.name.chars().all(|c| c.is_ascii_alphanumeric() || c == '-' || c == '_') {
+            if r.name.is_empty()
+                || !r
+                    .name
+                    .chars()
+                    .all(|c| c.is_ascii_alphanumeric() || c == '-' || c == '_')
+            {
                 return Err((key("name"), "use letters, digits, '-' and '_'".into()));
             }
             if !names.insert(r.name.clone()) {
                 return Err((key("name"), format!("duplicate region name {:?}", r.name)));
             }
             if r.time_zone.parse::<chrono_tz::Tz>().is_err() {
-                return Err((key("time_zone"), format!("unknown IANA time zone {:?}", r.time_zone)));
+                return Err((
+                    key("time_zone"),
+                    format!("unknown IANA time zone {:?}", r.time_zone),
+                ));
             }
             match &r.coverage {
                 Coverage::Bbox([a, b, c, d]) => {
-                    if !(a < c && b < d && LatLon::new(*a, *b).is_valid() && LatLon::new(*c, *d).is_valid()) {
-                        return Err((key("coverage.bbox"), "expected [min_lat, min_lon, max_lat, max_lon]".into()));
+                    if !(a < c
+                        && b < d
+                        && LatLon::new(*a, *b).is_valid()
+                        && LatLon::new(*c, *d).is_valid())
+                    {
+                        return Err((
+                            key("coverage.bbox"),
+                            "expected [min_lat, min_lon, max_lat, max_lon]".into(),
+                        ));
                     }
                 }
                 Coverage::Polygon(ring) => {
                     if ring.len() < 3 || ring.iter().any(|p| !LatLon::new(p[0], p[1]).is_valid()) {
-                        return Err((key("coverage.polygon"), "needs at least 3 valid [lat, lon] vertices".into()));
+                        return Err((
+                            key("coverage.polygon"),
+                            "needs at least 3 valid [lat, lon] vertices".into(),
+                        ));
                     }
                 }
             }

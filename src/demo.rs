@@ -81,7 +81,10 @@ pub fn historical_csv(g: &RoadGraph) -> String {
         if !is_arterial(g.edge_class[e]) {
             continue;
         }
-        let (a, b) = (g.node_ext[g.edge_tail[e] as usize], g.node_ext[g.edge_head[e] as usize]);
+        let (a, b) = (
+            g.node_ext[g.edge_tail[e] as usize],
+            g.node_ext[g.edge_head[e] as usize],
+        );
         for h in 0..168 {
             if let Some(f) = rush_factor(h) {
                 let _ = writeln!(out, "{a},{b},{h},{:.1}", g.edge_speed_kmh[e] * f);
@@ -193,7 +196,11 @@ fn banks(g: &RoadGraph, info: &CityInfo) -> (crate::geo::LatLon, crate::geo::Lat
 
 /// Posts a simulated live feed until `stop` resolves: every 2 s, the bridge
 /// at 8 km/h for a minute, then at its free-flow speed for a minute.
-pub async fn live_feed(region: Arc<RegionHandle>, bridge: Vec<(u64, u64)>, stop: impl std::future::Future<Output = ()>) {
+pub async fn live_feed(
+    region: Arc<RegionHandle>,
+    bridge: Vec<(u64, u64)>,
+    stop: impl std::future::Future<Output = ()>,
+) {
     tokio::pin!(stop);
     let started = std::time::Instant::now();
     loop {
@@ -217,26 +224,60 @@ pub async fn live_feed(region: Arc<RegionHandle>, bridge: Vec<(u64, u64)>, stop:
 }
 
 /// Ready-to-paste curl lines for every endpoint.
-pub fn curl_lines(files: &DemoFiles, public: std::net::SocketAddr, admin: std::net::SocketAddr, token: &str) -> String {
+pub fn curl_lines(
+    files: &DemoFiles,
+    public: std::net::SocketAddr,
+    admin: std::net::SocketAddr,
+    token: &str,
+) -> String {
     let (s, n) = (files.south, files.north);
     let region = "quellhaven";
     let mut out = String::new();
     let p = format!("http://{public}");
     let a = format!("http://{admin}");
-    let eta = format!(r#"{{"from":{{"lat":{:.6},"lon":{:.6}}},"to":{{"lat":{:.6},"lon":{:.6}}}}}"#, s.lat, s.lon, n.lat, n.lon);
+    let eta = format!(
+        r#"{{"from":{{"lat":{:.6},"lon":{:.6}}},"to":{{"lat":{:.6},"lon":{:.6}}}}}"#,
+        s.lat, s.lon, n.lat, n.lon
+    );
     let _ = writeln!(out, "# ETA across the river (POST and GET)");
-    let _ = writeln!(out, "curl -s -X POST {p}/v1/eta -H 'content-type: application/json' -d '{eta}'");
-    let _ = writeln!(out, "curl -s '{p}/v1/eta?from={:.6},{:.6}&to={:.6},{:.6}'", s.lat, s.lon, n.lat, n.lon);
-    let _ = writeln!(out, "# the same trip at a weekday rush hour (historical tier)");
-    let _ = writeln!(out, "curl -s '{p}/v1/eta?from={:.6},{:.6}&to={:.6},{:.6}&depart_at=2026-12-07T08:15:00Z'", s.lat, s.lon, n.lat, n.lon);
+    let _ = writeln!(
+        out,
+        "curl -s -X POST {p}/v1/eta -H 'content-type: application/json' -d '{eta}'"
+    );
+    let _ = writeln!(
+        out,
+        "curl -s '{p}/v1/eta?from={:.6},{:.6}&to={:.6},{:.6}'",
+        s.lat, s.lon, n.lat, n.lon
+    );
+    let _ = writeln!(
+        out,
+        "# the same trip at a weekday rush hour (historical tier)"
+    );
+    let _ = writeln!(
+        out,
+        "curl -s '{p}/v1/eta?from={:.6},{:.6}&to={:.6},{:.6}&depart_at=2026-12-07T08:15:00Z'",
+        s.lat, s.lon, n.lat, n.lon
+    );
     let _ = writeln!(out, "# a 2x3 matrix");
     let _ = writeln!(
         out,
         r#"curl -s -X POST {p}/v1/eta/matrix -H 'content-type: application/json' -d '{{"from":[{{"lat":{:.6},"lon":{:.6}}},{{"lat":{:.6},"lon":{:.6}}}],"to":[{{"lat":{:.6},"lon":{:.6}}},{{"lat":{:.6},"lon":{:.6}}},{{"lat":{:.6},"lon":{:.6}}}]}}'"#,
-        s.lat, s.lon, n.lat, n.lon, n.lat, n.lon, s.lat, s.lon, (s.lat + n.lat) / 2.0, (s.lon + n.lon) / 2.0
+        s.lat,
+        s.lon,
+        n.lat,
+        n.lon,
+        n.lat,
+        n.lon,
+        s.lat,
+        s.lon,
+        (s.lat + n.lat) / 2.0,
+        (s.lon + n.lon) / 2.0
     );
     let _ = writeln!(out, "# the route as GeoJSON");
-    let _ = writeln!(out, "curl -s -X POST {p}/v1/route -H 'content-type: application/json' -d '{eta}'");
+    let _ = writeln!(
+        out,
+        "curl -s -X POST {p}/v1/route -H 'content-type: application/json' -d '{eta}'"
+    );
     let _ = writeln!(out, "# a bad request (RFC 9457 problem details)");
     let _ = writeln!(out, "curl -s '{p}/v1/eta?from=95,0&to=45,-30'");
     let _ = writeln!(out, "# health, readiness, metrics, API description");
@@ -244,7 +285,10 @@ pub fn curl_lines(files: &DemoFiles, public: std::net::SocketAddr, admin: std::n
     let _ = writeln!(out, "curl -s {p}/metrics | grep ^hodos_");
     let _ = writeln!(out, "curl -s {p}/openapi.json | head -c 300");
     let _ = writeln!(out, "# admin API (bearer token)");
-    let _ = writeln!(out, "curl -s {a}/admin/status -H 'authorization: Bearer {token}'");
+    let _ = writeln!(
+        out,
+        "curl -s {a}/admin/status -H 'authorization: Bearer {token}'"
+    );
     let _ = writeln!(
         out,
         "curl -s -X PUT {a}/admin/regions/{region}/historical -H 'authorization: Bearer {token}' -H 'content-type: text/csv' --data-binary @{}",
@@ -255,6 +299,9 @@ pub fn curl_lines(files: &DemoFiles, public: std::net::SocketAddr, admin: std::n
         out,
         r#"curl -s -X POST {a}/admin/regions/{region}/live -H 'authorization: Bearer {token}' -H 'content-type: application/json' -d '[{{"from_node":{fa},"to_node":{fb},"speed_kmh":12,"observed_at":"'$(date -u +%Y-%m-%dT%H:%M:%SZ)'","samples":3}}]'"#
     );
-    let _ = writeln!(out, "curl -s -X POST {a}/admin/regions/{region}/reload -H 'authorization: Bearer {token}'");
+    let _ = writeln!(
+        out,
+        "curl -s -X POST {a}/admin/regions/{region}/reload -H 'authorization: Bearer {token}'"
+    );
     out
 }

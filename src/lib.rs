@@ -7,21 +7,21 @@
 //!   shape and external ids) and its builder.
 //! - [`import`]: OpenStreetMap PBF, DIMACS and the synthetic city → graph.
 
+pub mod answer;
 pub mod artifact;
 pub mod build;
 pub mod calibration;
 pub mod cch;
+pub mod config;
+pub mod demo;
 pub mod geo;
 pub mod graph;
 pub mod import;
 pub mod metric;
 pub mod order;
 pub mod region;
-pub mod snap;
-pub mod speeds;
-pub mod config;
-pub mod tier;
-pub mod snapshot;
-pub mod answer;
 pub mod service;
-pub mod demo;
+pub mod snap;
+pub mod snapshot;
+pub mod speeds;
+pub mod tier;

@@ -136,7 +136,10 @@ impl Progress for Bars {
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
-    let result = match cli.command.unwrap_or(Command::Demo { port: 8080, once: false }) {
+    let result = match cli.command.unwrap_or(Command::Demo {
+        port: 8080,
+        once: false,
+    }) {
         Command::Build(args) => cmd_build(args),
         Command::Info { file } => cmd_info(&file),
         Command::Eta {
@@ -315,13 +318,18 @@ fn cmd_demo_once() -> anyhow::Result<()> {
 }
 
 fn runtime() -> anyhow::Result<tokio::runtime::Runtime> {
-    Ok(tokio::runtime::Builder::new_multi_thread().enable_all().build()?)
+    Ok(tokio::runtime::Builder::new_multi_thread()
+        .enable_all()
+        .build()?)
 }
 
 fn init_tracing() {
     let filter = tracing_subscriber::EnvFilter::try_from_env("HODOS_LOG")
         .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info,tower_http=warn"));
-    let _ = tracing_subscriber::fmt().with_env_filter(filter).with_writer(std::io::stderr).try_init();
+    let _ = tracing_subscriber::fmt()
+        .with_env_filter(filter)
+        .with_writer(std::io::stderr)
+        .try_init();
 }
 
 /// Resolves on Ctrl-C or SIGTERM.
@@ -350,7 +358,10 @@ fn cmd_serve(config: &std::path::Path, strict: bool) -> anyhow::Result<()> {
     init_tracing();
     let cfg = hodos::config::Config::load(config)?;
     if cfg.admin.token.is_empty() {
-        tracing::warn!("no admin token configured (set {}): the admin API refuses every request", hodos::config::ADMIN_TOKEN_ENV);
+        tracing::warn!(
+            "no admin token configured (set {}): the admin API refuses every request",
+            hodos::config::ADMIN_TOKEN_ENV
+        );
     }
     runtime()?.block_on(async move {
         let (listen, admin) = (cfg.server.listen, cfg.admin.listen);
@@ -380,16 +391,24 @@ fn cmd_demo(port: u16) -> anyhow::Result<()> {
             Ok(l) => l,
             Err(_) => hodos::service::bind(([127, 0, 0, 1], 0).into()).await?,
         };
-        let admin = match hodos::service::bind(([127, 0, 0, 1], port.wrapping_add(1)).into()).await {
+        let admin = match hodos::service::bind(([127, 0, 0, 1], port.wrapping_add(1)).into()).await
+        {
             Ok(l) => l,
             Err(_) => hodos::service::bind(([127, 0, 0, 1], 0).into()).await?,
         };
         let (pa, aa) = (public.local_addr()?, admin.local_addr()?);
-        println!("building the demo city {} ({} intersections)...", hodos::import::synthetic::CITY_NAME, hodos::demo::DEMO_NODES);
+        println!(
+            "building the demo city {} ({} intersections)...",
+            hodos::import::synthetic::CITY_NAME,
+            hodos::demo::DEMO_NODES
+        );
         let files = {
             let dir = dir.clone();
             let token = token.clone();
-            tokio::task::spawn_blocking(move || hodos::demo::prepare(&dir, pa, aa, &token, &mut bars())).await??
+            tokio::task::spawn_blocking(move || {
+                hodos::demo::prepare(&dir, pa, aa, &token, &mut bars())
+            })
+            .await??
         };
         let state = hodos::service::AppState::open(files.config.clone()).await;
         if let Some((name, why)) = state.degraded().first() {
@@ -398,12 +417,22 @@ fn cmd_demo(port: u16) -> anyhow::Result<()> {
         let region = state.catalog.regions[0].clone();
         let (tx, rx) = tokio::sync::watch::channel(false);
         let mut rx2 = rx.clone();
-        let feed = tokio::spawn(hodos::demo::live_feed(region, files.bridge.1.clone(), async move {
-            let _ = rx2.wait_for(|v| *v).await;
-        }));
+        let feed = tokio::spawn(hodos::demo::live_feed(
+            region,
+            files.bridge.1.clone(),
+            async move {
+                let _ = rx2.wait_for(|v| *v).await;
+            },
+        ));
         println!();
-        println!("serving {} on http://{pa} (admin on http://{aa}, token {token})", hodos::import::synthetic::CITY_NAME);
-        println!("live feed: {} slows to 8 km/h for a minute, then recovers, repeatedly", files.bridge.0);
+        println!(
+            "serving {} on http://{pa} (admin on http://{aa}, token {token})",
+            hodos::import::synthetic::CITY_NAME
+        );
+        println!(
+            "live feed: {} slows to 8 km/h for a minute, then recovers, repeatedly",
+            files.bridge.0
+        );
         println!("Ctrl-C to stop. Try:");
         println!();
         print!("{}", hodos::demo::curl_lines(&files, pa, aa, &token));
@@ -422,6 +451,11 @@ fn cmd_demo(port: u16) -> anyhow::Result<()> {
 fn rand_token() -> u64 {
     use std::hash::{BuildHasher, Hasher};
     let mut h = std::collections::hash_map::RandomState::new().build_hasher();
-    h.write_u128(std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map(|d| d.as_nanos()).unwrap_or(0));
+    h.write_u128(
+        std::time::SystemTime::now()
+            .duration_since(std::time::UNIX_EPOCH)
+            .map(|d| d.as_nanos())
+            .unwrap_or(0),
+    );
     h.finish()
 }

@@ -168,7 +168,9 @@ pub struct RegionHandle {
 
 impl std::fmt::Debug for RegionHandle {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.debug_struct("RegionHandle").field("name", &self.name).finish()
+        f.debug_struct("RegionHandle")
+            .field("name", &self.name)
+            .finish()
     }
 }
 
@@ -299,7 +301,12 @@ impl RegionHandle {
         // Live layer: keep the one held if the graph is the same size, else
         // bring back the saved one.
         if w.live.as_ref().map(|l| l.num_edges()) != Some(index.num_edges()) {
-            w.live = match load_live(&live_state_path(&self.cfg), &index, now, &self.settings.validation) {
+            w.live = match load_live(
+                &live_state_path(&self.cfg),
+                &index,
+                now,
+                &self.settings.validation,
+            ) {
                 Ok(Some((layer, _))) => Some(layer),
                 Ok(None) => None,
                 Err(e) => {
@@ -338,11 +345,14 @@ impl RegionHandle {
     }
 
     /// Validates a historical table; if accepted, saves it and serves it.
-    pub async fn put_historical(self: &Arc<Self>, csv: Vec<u8>) -> Result<TableReport, UpdateError> {
+    pub async fn put_historical(
+        self: &Arc<Self>,
+        csv: Vec<u8>,
+    ) -> Result<TableReport, UpdateError> {
         let w = self.writer.lock().await;
-        let snap = self
-            .snapshot()
-            .ok_or_else(|| UpdateError::Unavailable(self.status().degraded_reason.unwrap_or_default()))?;
+        let snap = self.snapshot().ok_or_else(|| {
+            UpdateError::Unavailable(self.status().degraded_reason.unwrap_or_default())
+        })?;
         let index = snap.index.clone();
         let validation = self.settings.validation.clone();
         let path = historical_state_path(&self.cfg);
@@ -404,10 +414,12 @@ impl RegionHandle {
     /// Applies a batch of live observations (JSON array or CSV).
     pub async fn put_live(&self, body: &[u8], csv: bool) -> Result<TableReport, UpdateError> {
         let mut w = self.writer.lock().await;
-        let snap = self
-            .snapshot()
-            .ok_or_else(|| UpdateError::Unavailable(self.status().degraded_reason.unwrap_or_default()))?;
-        let layer = w.live.get_or_insert_with(|| LiveLayer::new(snap.index.num_edges()));
+        let snap = self.snapshot().ok_or_else(|| {
+            UpdateError::Unavailable(self.status().degraded_reason.unwrap_or_default())
+        })?;
+        let layer = w
+            .live
+            .get_or_insert_with(|| LiveLayer::new(snap.index.num_edges()));
         let now = Utc::now();
         let r = if csv {
             layer.apply_csv(&snap.index, body, now, &self.settings.validation)
@@ -444,10 +456,19 @@ impl RegionHandle {
 
     /// The historical metric for an hour of the week, customizing it on a
     /// blocking thread if needed; waits at most until `deadline`.
-    pub async fn bucket(&self, snap: &Snapshot, hour: u8, deadline: Instant) -> Option<Arc<Metric>> {
+    pub async fn bucket(
+        &self,
+        snap: &Snapshot,
+        hour: u8,
+        deadline: Instant,
+    ) -> Option<Arc<Metric>> {
         let key = snap.historical_key();
         // Without a table every hour is free-flow: one shared slot.
-        let hour = if snap.historical.is_some() { hour } else { u8::MAX };
+        let hour = if snap.historical.is_some() {
+            hour
+        } else {
+            u8::MAX
+        };
         let slot = self.slot(&key, hour);
         if let Some(mtr) = slot.cell.get() {
             return Some(mtr.clone());
@@ -517,7 +538,11 @@ impl RegionHandle {
         if let Some(snap) = self.snapshot() {
             let h = crate::speeds::hour_of_week(Utc::now(), self.tz);
             for hour in [h, (h + 1) % 168] {
-                let hour = if snap.historical.is_some() { hour } else { u8::MAX };
+                let hour = if snap.historical.is_some() {
+                    hour
+                } else {
+                    u8::MAX
+                };
                 let slot = self.slot(&snap.historical_key(), hour);
                 if !slot.started.swap(true, Ordering::SeqCst) {
                     self.spawn_bucket(&snap, hour, slot);
@@ -531,7 +556,9 @@ impl RegionHandle {
     /// a new snapshot was published.
     pub async fn refresh_live(&self, force: bool) -> bool {
         let dirty = self.live_dirty.swap(false, Ordering::SeqCst);
-        let Some(snap) = self.snapshot() else { return false };
+        let Some(snap) = self.snapshot() else {
+            return false;
+        };
         let interval = Duration::from_millis(self.settings.live.recustomize_ms);
         let aging = snap
             .live
@@ -547,7 +574,9 @@ impl RegionHandle {
             live_saved_at,
             live_changed,
         } = &mut *guard;
-        let Some(layer) = live.as_mut() else { return false };
+        let Some(layer) = live.as_mut() else {
+            return false;
+        };
         let now = Utc::now();
         let ttl = Duration::from_secs_f64(self.settings.live.ttl_s);
         layer.expire(now, ttl);
@@ -573,7 +602,10 @@ impl RegionHandle {
             }
         };
         // Save the layer now and then so a restart brings it back.
-        let save = *live_changed && live_saved_at.map(|t| t.elapsed() > Duration::from_secs(2)).unwrap_or(true);
+        let save = *live_changed
+            && live_saved_at
+                .map(|t| t.elapsed() > Duration::from_secs(2))
+                .unwrap_or(true);
         if save {
             let path = live_state_path(&self.cfg);
             if let Some(dir) = path.parent() {
@@ -645,7 +677,8 @@ impl RegionHandle {
             if let Some(snap) = self.snapshot() {
                 if let Some(l) = &snap.live {
                     if let Some(n) = l.newest_observed_at {
-                        metrics::gauge!(m::LIVE_AGE, "region" => self.name.clone()).set(age_s(Utc::now(), n));
+                        metrics::gauge!(m::LIVE_AGE, "region" => self.name.clone())
+                            .set(age_s(Utc::now(), n));
                     }
                 }
             }
@@ -671,8 +704,12 @@ impl RegionHandle {
     /// Applies every `*.csv` file in the watched directory, then renames it
     /// to `.done` or `.rejected` so nothing is applied twice or lost.
     pub async fn scan_live_dir(&self) {
-        let Some(dir) = self.cfg.live_dir.clone() else { return };
-        let Ok(entries) = std::fs::read_dir(&dir) else { return };
+        let Some(dir) = self.cfg.live_dir.clone() else {
+            return;
+        };
+        let Ok(entries) = std::fs::read_dir(&dir) else {
+            return;
+        };
         let mut files: Vec<PathBuf> = entries
             .flatten()
             .map(|e| e.path())
@@ -680,7 +717,9 @@ impl RegionHandle {
             .collect();
         files.sort();
         for f in files {
-            let Ok(bytes) = std::fs::read(&f) else { continue };
+            let Ok(bytes) = std::fs::read(&f) else {
+                continue;
+            };
             let outcome = self.put_live(&bytes, true).await;
             let ext = if outcome.is_ok() { "done" } else { "rejected" };
             if let Err(e) = std::fs::rename(&f, f.with_extension(ext)) {
@@ -726,7 +765,11 @@ fn load_region(cfg: &RegionConfig, settings: &UpdateSettings) -> Result<Loaded, 
     Ok((region, index, historical, note))
 }
 
-fn read_table(path: &Path, index: &EdgeIndex, v: &ValidationConfig) -> Result<HistoricalProfile, String> {
+fn read_table(
+    path: &Path,
+    index: &EdgeIndex,
+    v: &ValidationConfig,
+) -> Result<HistoricalProfile, String> {
     let bytes = std::fs::read(path).map_err(|e| format!("{}: {e}", path.display()))?;
     HistoricalProfile::parse(&bytes, index, v)
         .map(|(p, _)| p)

@@ -17,14 +17,24 @@ fn monaco_circuity_in_published_range() {
     // At least 2,000 OD pairs, as medians with counts per band.
     assert!(cal.pairs >= 2000, "{}", cal.pairs);
     assert_eq!(cal.bands.len(), 5);
-    let checked: Vec<_> = cal.bands.iter().filter(|b| b.count >= 100 && b.lo_km >= 1.0).collect();
+    let checked: Vec<_> = cal
+        .bands
+        .iter()
+        .filter(|b| b.count >= 100 && b.lo_km >= 1.0)
+        .collect();
     assert!(!checked.is_empty());
     for b in checked {
         assert!((1.1..=1.6).contains(&b.circuity), "band {b:?}");
         assert!(b.speed_kmh > 5.0 && b.speed_kmh < 130.0, "band {b:?}");
     }
     // Heuristic estimates grow with distance and use the band factors.
-    let (m1, s1) = cal.estimate(hodos::geo::LatLon::new(43.73, 7.41), hodos::geo::LatLon::new(43.735, 7.415));
-    let (m2, s2) = cal.estimate(hodos::geo::LatLon::new(43.73, 7.41), hodos::geo::LatLon::new(43.745, 7.43));
+    let (m1, s1) = cal.estimate(
+        hodos::geo::LatLon::new(43.73, 7.41),
+        hodos::geo::LatLon::new(43.735, 7.415),
+    );
+    let (m2, s2) = cal.estimate(
+        hodos::geo::LatLon::new(43.73, 7.41),
+        hodos::geo::LatLon::new(43.745, 7.43),
+    );
     assert!(m2 > m1 && s2 > s1 && s1 > 0.0);
 }

@@ -7,7 +7,10 @@ use std::path::Path;
 use std::process::Command;
 
 fn hodos(args: &[&str]) -> (bool, String, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_hodos")).args(args).output().expect("run hodos");
+    let out = Command::new(env!("CARGO_BIN_EXE_hodos"))
+        .args(args)
+        .output()
+        .expect("run hodos");
     (
         out.status.success(),
         String::from_utf8_lossy(&out.stdout).into_owned(),
@@ -18,7 +21,10 @@ fn hodos(args: &[&str]) -> (bool, String, String) {
 fn assert_fails_naming(args: &[&str], name: &str) {
     let (ok, _, err) = hodos(args);
     assert!(!ok, "{args:?} should fail");
-    assert!(err.contains(name), "{args:?}: stderr should name {name}: {err}");
+    assert!(
+        err.contains(name),
+        "{args:?}: stderr should name {name}: {err}"
+    );
     assert!(!err.contains("panicked"), "{args:?} panicked: {err}");
 }
 
@@ -26,9 +32,24 @@ fn assert_fails_naming(args: &[&str], name: &str) {
 fn build_info_eta_on_a_synthetic_city() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("city.hodos");
-    let (ok, stdout, err) = hodos(&["build", "--synthetic", "3000", "--seed", "4", "--out", out.to_str().unwrap()]);
+    let (ok, stdout, err) = hodos(&[
+        "build",
+        "--synthetic",
+        "3000",
+        "--seed",
+        "4",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
     assert!(ok, "{err}");
-    for word in ["nodes", "edges", "dropped", "shortcuts", "times", "calibration"] {
+    for word in [
+        "nodes",
+        "edges",
+        "dropped",
+        "shortcuts",
+        "times",
+        "calibration",
+    ] {
         assert!(stdout.contains(word), "summary lacks {word}: {stdout}");
     }
     let (ok, stdout, err) = hodos(&["info", out.to_str().unwrap()]);
@@ -36,11 +57,22 @@ fn build_info_eta_on_a_synthetic_city() {
     assert!(stdout.contains("synthetic:3000:seed=4"));
     let art = hodos::artifact::Artifact::load(&out).unwrap();
     let (lo, hi) = art.graph.bbox();
-    let from = format!("{},{}", lo.lat + (hi.lat - lo.lat) * 0.3, lo.lon + (hi.lon - lo.lon) * 0.3);
-    let to = format!("{},{}", lo.lat + (hi.lat - lo.lat) * 0.7, lo.lon + (hi.lon - lo.lon) * 0.6);
+    let from = format!(
+        "{},{}",
+        lo.lat + (hi.lat - lo.lat) * 0.3,
+        lo.lon + (hi.lon - lo.lon) * 0.3
+    );
+    let to = format!(
+        "{},{}",
+        lo.lat + (hi.lat - lo.lat) * 0.7,
+        lo.lon + (hi.lon - lo.lon) * 0.6
+    );
     let (ok, stdout, err) = hodos(&["eta", out.to_str().unwrap(), "--from", &from, "--to", &to]);
     assert!(ok, "{err}");
-    assert!(stdout.contains("eta_s") && stdout.contains("meters") && stdout.contains("snap"), "{stdout}");
+    assert!(
+        stdout.contains("eta_s") && stdout.contains("meters") && stdout.contains("snap"),
+        "{stdout}"
+    );
 }
 
 #[test]
@@ -49,11 +81,16 @@ fn bad_inputs_exit_non_zero_naming_the_file() {
     let d = |n: &str| dir.path().join(n);
     let out = d("out.hodos");
     let out = out.to_str().unwrap();
-    let monaco = std::fs::read(Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/monaco.osm.pbf")).unwrap();
+    let monaco =
+        std::fs::read(Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/monaco.osm.pbf"))
+            .unwrap();
 
     let truncated = d("truncated.osm.pbf");
     std::fs::write(&truncated, &monaco[..monaco.len() / 3]).unwrap();
-    assert_fails_naming(&["build", "--osm", truncated.to_str().unwrap(), "--out", out], "truncated.osm.pbf");
+    assert_fails_naming(
+        &["build", "--osm", truncated.to_str().unwrap(), "--out", out],
+        "truncated.osm.pbf",
+    );
 
     let corrupt = d("corrupt.osm.pbf");
     let mut bytes = monaco.clone();
@@ -61,15 +98,38 @@ fn bad_inputs_exit_non_zero_naming_the_file() {
         *b ^= 0x5a;
     }
     std::fs::write(&corrupt, &bytes).unwrap();
-    assert_fails_naming(&["build", "--osm", corrupt.to_str().unwrap(), "--out", out], "corrupt.osm.pbf");
+    assert_fails_naming(
+        &["build", "--osm", corrupt.to_str().unwrap(), "--out", out],
+        "corrupt.osm.pbf",
+    );
 
-    assert_fails_naming(&["build", "--osm", d("missing.osm.pbf").to_str().unwrap(), "--out", out], "missing.osm.pbf");
+    assert_fails_naming(
+        &[
+            "build",
+            "--osm",
+            d("missing.osm.pbf").to_str().unwrap(),
+            "--out",
+            out,
+        ],
+        "missing.osm.pbf",
+    );
 
     let gr = d("bad.gr");
     let co = d("ok.co");
     std::fs::write(&gr, "c test\np sp 2 2\na 1 2 10\na 2 one 10\n").unwrap();
-    std::fs::write(&co, "p aux sp co 2\nv 1 -73000000 41000000\nv 2 -73001000 41000000\n").unwrap();
-    let (ok, _, err) = hodos(&["build", "--dimacs", gr.to_str().unwrap(), co.to_str().unwrap(), "--out", out]);
+    std::fs::write(
+        &co,
+        "p aux sp co 2\nv 1 -73000000 41000000\nv 2 -73001000 41000000\n",
+    )
+    .unwrap();
+    let (ok, _, err) = hodos(&[
+        "build",
+        "--dimacs",
+        gr.to_str().unwrap(),
+        co.to_str().unwrap(),
+        "--out",
+        out,
+    ]);
     assert!(!ok);
     assert!(err.contains("bad.gr:4"), "names file and line: {err}");
 
@@ -83,7 +143,17 @@ fn bad_inputs_exit_non_zero_naming_the_file() {
     let damaged = d("damaged.hodos");
     std::fs::write(&damaged, &art).unwrap();
     assert_fails_naming(&["info", damaged.to_str().unwrap()], "damaged.hodos");
-    assert_fails_naming(&["eta", damaged.to_str().unwrap(), "--from", "1,1", "--to", "2,2"], "damaged.hodos");
+    assert_fails_naming(
+        &[
+            "eta",
+            damaged.to_str().unwrap(),
+            "--from",
+            "1,1",
+            "--to",
+            "2,2",
+        ],
+        "damaged.hodos",
+    );
     let (ok, _, err) = hodos(&["eta", out, "--from", "95,1", "--to", "2,2"]);
     assert!(!ok && err.contains("out of range"), "{err}");
 }

@@ -16,8 +16,16 @@ fn shipped_config_is_valid_and_commented() {
         if t.is_empty() || t.starts_with('#') || t.starts_with('[') {
             continue;
         }
-        assert!(lines[..i].iter().rev().find(|p| !p.trim().is_empty()).map(|p| p.trim().starts_with('#')).unwrap_or(false),
-            "line {}: {t} has no comment above it", i + 1);
+        assert!(
+            lines[..i]
+                .iter()
+                .rev()
+                .find(|p| !p.trim().is_empty())
+                .map(|p| p.trim().starts_with('#'))
+                .unwrap_or(false),
+            "line {}: {t} has no comment above it",
+            i + 1
+        );
     }
 }
 
@@ -33,8 +41,14 @@ coverage = { bbox = [1, 1, 2, 2] }
     assert!(Config::parse(base).unwrap().validate().is_ok());
     for (text, key) in [
         (format!("[query]\nmax_snapm = 3\n{base}"), "max_snapm"),
-        (format!("[query]\ndefault_budget_ms = 5000\nmax_budget_ms = 10\n{base}"), "default_budget_ms"),
-        (format!("[tables]\nmax_bad_share = 2.0\n{base}"), "max_bad_share"),
+        (
+            format!("[query]\ndefault_budget_ms = 5000\nmax_budget_ms = 10\n{base}"),
+            "default_budget_ms",
+        ),
+        (
+            format!("[tables]\nmax_bad_share = 2.0\n{base}"),
+            "max_bad_share",
+        ),
         (base.replace("name = \"a\"", "name = \"a b\""), "name"),
         (base.replace("[1, 1, 2, 2]", "[2, 2, 1, 1]"), "bbox"),
         (format!("{base}time_zone = \"Mars/Olympus\"\n"), "time_zone"),

@@ -768,12 +768,21 @@ fn extract_without_roads_is_no_roads() {
 
     // The binary exits non-zero with the same message.
     let out = std::process::Command::new(env!("CARGO_BIN_EXE_hodos"))
-        .args(["build", "--osm", path.to_str().unwrap(), "--out", dir.path().join("x.hodos").to_str().unwrap()])
+        .args([
+            "build",
+            "--osm",
+            path.to_str().unwrap(),
+            "--out",
+            dir.path().join("x.hodos").to_str().unwrap(),
+        ])
         .output()
         .unwrap();
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert!(!out.status.success());
-    assert!(stderr.contains("paths-only.osm.pbf") && stderr.contains("no drivable road"), "{stderr}");
+    assert!(
+        stderr.contains("paths-only.osm.pbf") && stderr.contains("no drivable road"),
+        "{stderr}"
+    );
 }
 
 /// A small hand-made extract: an oneway=-1 street whose middle node is

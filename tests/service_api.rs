@@ -27,7 +27,14 @@ impl Resp {
     }
 }
 
-async fn send(app: &Router, method: &str, uri: &str, ct: Option<&str>, body: Vec<u8>, token: Option<&str>) -> Resp {
+async fn send(
+    app: &Router,
+    method: &str,
+    uri: &str,
+    ct: Option<&str>,
+    body: Vec<u8>,
+    token: Option<&str>,
+) -> Resp {
     let mut b = Request::builder().method(method).uri(uri);
     if let Some(ct) = ct {
         b = b.header("content-type", ct);
@@ -35,7 +42,11 @@ async fn send(app: &Router, method: &str, uri: &str, ct: Option<&str>, body: Vec
     if let Some(t) = token {
         b = b.header("authorization", format!("Bearer {t}"));
     }
-    let resp = app.clone().oneshot(b.body(Body::from(body)).unwrap()).await.unwrap();
+    let resp = app
+        .clone()
+        .oneshot(b.body(Body::from(body)).unwrap())
+        .await
+        .unwrap();
     let status = resp.status();
     let content_type = resp
         .headers()
@@ -51,7 +62,15 @@ async fn send(app: &Router, method: &str, uri: &str, ct: Option<&str>, body: Vec
 }
 
 async fn post_json(app: &Router, uri: &str, v: &Value) -> Resp {
-    send(app, "POST", uri, Some("application/json"), serde_json::to_vec(v).unwrap(), None).await
+    send(
+        app,
+        "POST",
+        uri,
+        Some("application/json"),
+        serde_json::to_vec(v).unwrap(),
+        None,
+    )
+    .await
 }
 
 fn coord(p: hodos::geo::LatLon) -> Value {
@@ -66,7 +85,15 @@ async fn state(extra: &str) -> (AppState, tempfile::TempDir) {
 }
 
 /// (what, method, uri, content type, body, status, field or detail fragment)
-type Case = (&'static str, &'static str, String, Option<&'static str>, Vec<u8>, u16, &'static str);
+type Case = (
+    &'static str,
+    &'static str,
+    String,
+    Option<&'static str>,
+    Vec<u8>,
+    u16,
+    &'static str,
+);
 
 #[tokio::test]
 async fn bad_inputs_get_problem_details() {
@@ -75,42 +102,206 @@ async fn bad_inputs_get_problem_details() {
     let (a, b) = (coord(at(0.3, 0.3)), coord(at(0.7, 0.6)));
     let big = vec![b' '; 300 * 1024];
     let cases: Vec<Case> = vec![
-        ("malformed JSON", "POST", "/v1/eta".into(), Some("application/json"), b"{\"from\": {".to_vec(), 400, "malformed JSON"),
-        ("wrong type", "POST", "/v1/eta".into(), Some("application/json"),
-            serde_json::to_vec(&json!({"from": {"lat": "north", "lon": 1.0}, "to": b})).unwrap(), 422, "from.lat"),
-        ("missing field", "POST", "/v1/eta".into(), Some("application/json"),
-            serde_json::to_vec(&json!({"from": a})).unwrap(), 422, "to"),
-        ("missing lon", "POST", "/v1/eta".into(), Some("application/json"),
-            serde_json::to_vec(&json!({"from": {"lat": 1.0}, "to": b})).unwrap(), 422, "from.lon"),
-        ("lat out of range", "POST", "/v1/eta".into(), Some("application/json"),
-            serde_json::to_vec(&json!({"from": {"lat": 95.0, "lon": 0.0}, "to": b})).unwrap(), 422, "from.lat must be within -90..90"),
-        ("lon out of range", "POST", "/v1/eta".into(), Some("application/json"),
-            serde_json::to_vec(&json!({"from": a, "to": {"lat": 0.0, "lon": -181.0}})).unwrap(), 422, "to.lon must be within -180..180"),
+        (
+            "malformed JSON",
+            "POST",
+            "/v1/eta".into(),
+            Some("application/json"),
+            b"{\"from\": {".to_vec(),
+            400,
+            "malformed JSON",
+        ),
+        (
+            "wrong type",
+            "POST",
+            "/v1/eta".into(),
+            Some("application/json"),
+            serde_json::to_vec(&json!({"from": {"lat": "north", "lon": 1.0}, "to": b})).unwrap(),
+            422,
+            "from.lat",
+        ),
+        (
+            "missing field",
+            "POST",
+            "/v1/eta".into(),
+            Some("application/json"),
+            serde_json::to_vec(&json!({"from": a})).unwrap(),
+            422,
+            "to",
+        ),
+        (
+            "missing lon",
+            "POST",
+            "/v1/eta".into(),
+            Some("application/json"),
+            serde_json::to_vec(&json!({"from": {"lat": 1.0}, "to": b})).unwrap(),
+            422,
+            "from.lon",
+        ),
+        (
+            "lat out of range",
+            "POST",
+            "/v1/eta".into(),
+            Some("application/json"),
+            serde_json::to_vec(&json!({"from": {"lat": 95.0, "lon": 0.0}, "to": b})).unwrap(),
+            422,
+            "from.lat must be within -90..90",
+        ),
+        (
+            "lon out of range",
+            "POST",
+            "/v1/eta".into(),
+            Some("application/json"),
+            serde_json::to_vec(&json!({"from": a, "to": {"lat": 0.0, "lon": -181.0}})).unwrap(),
+            422,
+            "to.lon must be within -180..180",
+        ),
         // JSON has no NaN or Infinity literals (RFC 8259 §6): a syntax error.
-        ("NaN literal", "POST", "/v1/eta".into(), Some("application/json"),
-            br#"{"from":{"lat":NaN,"lon":0},"to":{"lat":0,"lon":0}}"#.to_vec(), 400, "malformed JSON"),
-        ("Infinity by overflow", "POST", "/v1/eta".into(), Some("application/json"),
-            br#"{"from":{"lat":1e999,"lon":0},"to":{"lat":0,"lon":0}}"#.to_vec(), 400, "malformed JSON"),
-        ("NaN in the query string", "GET", "/v1/eta?from=NaN,0&to=1,1".into(), None, vec![], 422, "from.lat must be within -90..90"),
-        ("inf in the query string", "GET", "/v1/eta?from=0,inf&to=1,1".into(), None, vec![], 422, "from.lon must be within -180..180"),
-        ("empty matrix", "POST", "/v1/eta/matrix".into(), Some("application/json"),
-            serde_json::to_vec(&json!({"from": [], "to": [b]})).unwrap(), 422, "from must list at least one coordinate"),
-        ("matrix over the cell limit", "POST", "/v1/eta/matrix".into(), Some("application/json"),
-            serde_json::to_vec(&json!({"from": vec![a.clone(); 201], "to": vec![b.clone(); 200]})).unwrap(), 422, "the limit is 40000"),
-        ("body over the size limit", "POST", "/v1/eta".into(), Some("application/json"), big, 413, "over the limit"),
-        ("unknown body field", "POST", "/v1/eta".into(), Some("application/json"),
-            serde_json::to_vec(&json!({"from": a, "to": b, "avoid": "tolls"})).unwrap(), 422, "unknown field"),
-        ("unknown query parameter", "GET", "/v1/eta?from=1,1&to=2,2&mode=walk".into(), None, vec![], 422, "mode is not a known parameter"),
-        ("unparseable depart_at", "POST", "/v1/eta".into(), Some("application/json"),
-            serde_json::to_vec(&json!({"from": a, "to": b, "depart_at": "tomorrow at 8"})).unwrap(), 422, "depart_at must be an RFC 3339 date-time"),
-        ("unparseable depart_at (GET)", "GET", "/v1/eta?from=1,1&to=2,2&depart_at=08:00".into(), None, vec![], 422, "depart_at"),
-        ("zero budget", "POST", "/v1/eta".into(), Some("application/json"),
-            serde_json::to_vec(&json!({"from": a, "to": b, "budget_ms": 0})).unwrap(), 422, "budget_ms must be at least 1"),
-        ("negative budget", "POST", "/v1/eta".into(), Some("application/json"),
-            serde_json::to_vec(&json!({"from": a, "to": b, "budget_ms": -5})).unwrap(), 422, "budget_ms"),
-        ("missing query coordinate", "GET", "/v1/eta?from=1,1".into(), None, vec![], 422, "to is required"),
-        ("wrong media type", "POST", "/v1/eta".into(), Some("text/plain"), b"hello".to_vec(), 415, "application/json"),
-        ("unknown path", "GET", "/v2/teleport".into(), None, vec![], 404, "no such endpoint"),
+        (
+            "NaN literal",
+            "POST",
+            "/v1/eta".into(),
+            Some("application/json"),
+            br#"{"from":{"lat":NaN,"lon":0},"to":{"lat":0,"lon":0}}"#.to_vec(),
+            400,
+            "malformed JSON",
+        ),
+        (
+            "Infinity by overflow",
+            "POST",
+            "/v1/eta".into(),
+            Some("application/json"),
+            br#"{"from":{"lat":1e999,"lon":0},"to":{"lat":0,"lon":0}}"#.to_vec(),
+            400,
+            "malformed JSON",
+        ),
+        (
+            "NaN in the query string",
+            "GET",
+            "/v1/eta?from=NaN,0&to=1,1".into(),
+            None,
+            vec![],
+            422,
+            "from.lat must be within -90..90",
+        ),
+        (
+            "inf in the query string",
+            "GET",
+            "/v1/eta?from=0,inf&to=1,1".into(),
+            None,
+            vec![],
+            422,
+            "from.lon must be within -180..180",
+        ),
+        (
+            "empty matrix",
+            "POST",
+            "/v1/eta/matrix".into(),
+            Some("application/json"),
+            serde_json::to_vec(&json!({"from": [], "to": [b]})).unwrap(),
+            422,
+            "from must list at least one coordinate",
+        ),
+        (
+            "matrix over the cell limit",
+            "POST",
+            "/v1/eta/matrix".into(),
+            Some("application/json"),
+            serde_json::to_vec(&json!({"from": vec![a.clone(); 201], "to": vec![b.clone(); 200]}))
+                .unwrap(),
+            422,
+            "the limit is 40000",
+        ),
+        (
+            "body over the size limit",
+            "POST",
+            "/v1/eta".into(),
+            Some("application/json"),
+            big,
+            413,
+            "over the limit",
+        ),
+        (
+            "unknown body field",
+            "POST",
+            "/v1/eta".into(),
+            Some("application/json"),
+            serde_json::to_vec(&json!({"from": a, "to": b, "avoid": "tolls"})).unwrap(),
+            422,
+            "unknown field",
+        ),
+        (
+            "unknown query parameter",
+            "GET",
+            "/v1/eta?from=1,1&to=2,2&mode=walk".into(),
+            None,
+            vec![],
+            422,
+            "mode is not a known parameter",
+        ),
+        (
+            "unparseable depart_at",
+            "POST",
+            "/v1/eta".into(),
+            Some("application/json"),
+            serde_json::to_vec(&json!({"from": a, "to": b, "depart_at": "tomorrow at 8"})).unwrap(),
+            422,
+            "depart_at must be an RFC 3339 date-time",
+        ),
+        (
+            "unparseable depart_at (GET)",
+            "GET",
+            "/v1/eta?from=1,1&to=2,2&depart_at=08:00".into(),
+            None,
+            vec![],
+            422,
+            "depart_at",
+        ),
+        (
+            "zero budget",
+            "POST",
+            "/v1/eta".into(),
+            Some("application/json"),
+            serde_json::to_vec(&json!({"from": a, "to": b, "budget_ms": 0})).unwrap(),
+            422,
+            "budget_ms must be at least 1",
+        ),
+        (
+            "negative budget",
+            "POST",
+            "/v1/eta".into(),
+            Some("application/json"),
+            serde_json::to_vec(&json!({"from": a, "to": b, "budget_ms": -5})).unwrap(),
+            422,
+            "budget_ms",
+        ),
+        (
+            "missing query coordinate",
+            "GET",
+            "/v1/eta?from=1,1".into(),
+            None,
+            vec![],
+            422,
+            "to is required",
+        ),
+        (
+            "wrong media type",
+            "POST",
+            "/v1/eta".into(),
+            Some("text/plain"),
+            b"hello".to_vec(),
+            415,
+            "application/json",
+        ),
+        (
+            "unknown path",
+            "GET",
+            "/v2/teleport".into(),
+            None,
+            vec![],
+            404,
+            "no such endpoint",
+        ),
     ];
     for (what, method, uri, ct, body, status, needle) in cases {
         let r = send(&app, method, &uri, ct, body, None).await;
@@ -119,7 +310,10 @@ async fn bad_inputs_get_problem_details() {
         let p = r.json();
         // RFC 9457 §3.1 members.
         assert_eq!(p["status"], status, "{what}");
-        assert!(p["type"].is_string() && p["title"].is_string(), "{what}: {p}");
+        assert!(
+            p["type"].is_string() && p["title"].is_string(),
+            "{what}: {p}"
+        );
         let detail = p["detail"].as_str().unwrap_or_default();
         let field = p["field"].as_str().unwrap_or_default();
         assert!(detail.contains(needle) || field == needle, "{what}: {p}");
@@ -137,7 +331,11 @@ async fn every_tier_and_reason() {
 
     // No live data yet → historical, no_live_data.
     let r = post_json(&pub_app, "/v1/eta", &trip).await.json();
-    assert_eq!((r["tier"].as_str(), r["fallback_reason"].as_str()), (Some("historical"), Some("no_live_data")), "{r}");
+    assert_eq!(
+        (r["tier"].as_str(), r["fallback_reason"].as_str()),
+        (Some("historical"), Some("no_live_data")),
+        "{r}"
+    );
     let historical_eta = r["eta_s"].as_f64().unwrap();
     assert!(historical_eta > 0.0 && r["meters"].as_f64().unwrap() > 0.0);
     assert!(r["from_snap_m"].as_f64().unwrap() < 500.0);
@@ -150,18 +348,35 @@ async fn every_tier_and_reason() {
         .iter()
         .map(|(f, t)| json!({"from_node": f, "to_node": t, "speed_kmh": 12.0, "observed_at": now, "samples": 3}))
         .collect();
-    let r = send(&admin, "POST", "/admin/regions/testcity/live", Some("application/json"), serde_json::to_vec(&batch).unwrap(), Some(TOKEN)).await;
+    let r = send(
+        &admin,
+        "POST",
+        "/admin/regions/testcity/live",
+        Some("application/json"),
+        serde_json::to_vec(&batch).unwrap(),
+        Some(TOKEN),
+    )
+    .await;
     assert_eq!(r.status, 200, "{}", r.text);
     assert!(region.refresh_live(true).await);
     let r = post_json(&pub_app, "/v1/eta", &trip).await.json();
     assert_eq!(r["tier"], "live", "{r}");
     assert!(r["fallback_reason"].is_null());
-    assert!(r["eta_s"].as_f64().unwrap() > historical_eta, "12 km/h everywhere must be slower: {r} vs {historical_eta}");
+    assert!(
+        r["eta_s"].as_f64().unwrap() > historical_eta,
+        "12 km/h everywhere must be slower: {r} vs {historical_eta}"
+    );
     assert!(r["speeds_age_s"].as_f64().unwrap() < 60.0);
 
     // A departure next week is not "now": historical, and no fallback reason.
     let later = (chrono::Utc::now() + chrono::Duration::days(7)).to_rfc3339();
-    let r = post_json(&pub_app, "/v1/eta", &json!({"from": coord(a), "to": coord(b), "depart_at": later, "budget_ms": 2000})).await.json();
+    let r = post_json(
+        &pub_app,
+        "/v1/eta",
+        &json!({"from": coord(a), "to": coord(b), "depart_at": later, "budget_ms": 2000}),
+    )
+    .await
+    .json();
     assert_eq!(r["tier"], "historical", "{r}");
     assert!(r["fallback_reason"].is_null(), "{r}");
 
@@ -175,47 +390,111 @@ async fn every_tier_and_reason() {
         .take(50)
         .map(|(f, t)| json!({"from_node": f, "to_node": t, "speed_kmh": 20.0, "observed_at": old, "samples": 1}))
         .collect();
-    r2.put_live(&serde_json::to_vec(&stale).unwrap(), false).await.unwrap();
+    r2.put_live(&serde_json::to_vec(&stale).unwrap(), false)
+        .await
+        .unwrap();
     r2.refresh_live(true).await;
     let r = post_json(&app(st2.clone()), "/v1/eta", &trip).await.json();
-    assert_eq!((r["tier"].as_str(), r["fallback_reason"].as_str()), (Some("historical"), Some("live_stale")), "{r}");
+    assert_eq!(
+        (r["tier"].as_str(), r["fallback_reason"].as_str()),
+        (Some("historical"), Some("live_stale")),
+        "{r}"
+    );
 
     // Far off-road but inside the coverage → heuristic, off_network.
     let corner = hodos::geo::LatLon::new(c.lo.lat - 0.04, c.lo.lon - 0.04);
-    let r = post_json(&pub_app, "/v1/eta", &json!({"from": coord(corner), "to": coord(b)})).await.json();
-    assert_eq!((r["tier"].as_str(), r["fallback_reason"].as_str()), (Some("heuristic"), Some("off_network")), "{r}");
+    let r = post_json(
+        &pub_app,
+        "/v1/eta",
+        &json!({"from": coord(corner), "to": coord(b)}),
+    )
+    .await
+    .json();
+    assert_eq!(
+        (r["tier"].as_str(), r["fallback_reason"].as_str()),
+        (Some("heuristic"), Some("off_network")),
+        "{r}"
+    );
     assert!(r["eta_s"].as_f64().unwrap() > 0.0);
 
     // Outside every region → heuristic, outside_regions, no snapshot.
-    let r = send(&pub_app, "GET", "/v1/eta?from=10,10&to=10.1,10.1", None, vec![], None).await.json();
-    assert_eq!((r["tier"].as_str(), r["fallback_reason"].as_str()), (Some("heuristic"), Some("outside_regions")), "{r}");
+    let r = send(
+        &pub_app,
+        "GET",
+        "/v1/eta?from=10,10&to=10.1,10.1",
+        None,
+        vec![],
+        None,
+    )
+    .await
+    .json();
+    assert_eq!(
+        (r["tier"].as_str(), r["fallback_reason"].as_str()),
+        (Some("heuristic"), Some("outside_regions")),
+        "{r}"
+    );
     assert!(r["snapshot"].is_null());
 
     // A tiny budget on a big matrix → budget_exceeded cells, all answered.
-    let from: Vec<Value> = (0..150).map(|i| coord(at(0.1 + 0.8 * (i as f64 / 150.0), 0.2))).collect();
-    let to: Vec<Value> = (0..150).map(|i| coord(at(0.15, 0.1 + 0.8 * (i as f64 / 150.0)))).collect();
-    let warm = post_json(&pub_app, "/v1/eta/matrix", &json!({"from": from[..2], "to": to[..2], "budget_ms": 2000})).await;
+    let from: Vec<Value> = (0..150)
+        .map(|i| coord(at(0.1 + 0.8 * (i as f64 / 150.0), 0.2)))
+        .collect();
+    let to: Vec<Value> = (0..150)
+        .map(|i| coord(at(0.15, 0.1 + 0.8 * (i as f64 / 150.0))))
+        .collect();
+    let warm = post_json(
+        &pub_app,
+        "/v1/eta/matrix",
+        &json!({"from": from[..2], "to": to[..2], "budget_ms": 2000}),
+    )
+    .await;
     assert_eq!(warm.status, 200);
-    let r = post_json(&pub_app, "/v1/eta/matrix", &json!({"from": from, "to": to, "budget_ms": 1})).await;
+    let r = post_json(
+        &pub_app,
+        "/v1/eta/matrix",
+        &json!({"from": from, "to": to, "budget_ms": 1}),
+    )
+    .await;
     assert_eq!(r.status, 200, "{}", r.text);
     let m = r.json();
-    let tiers: Vec<&str> = m["tier"].as_array().unwrap().iter().flat_map(|row| row.as_array().unwrap().iter().map(|t| t.as_str().unwrap())).collect();
-    let reasons: Vec<Option<&str>> = m["fallback_reason"].as_array().unwrap().iter().flat_map(|row| row.as_array().unwrap().iter().map(|t| t.as_str())).collect();
+    let tiers: Vec<&str> = m["tier"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .flat_map(|row| row.as_array().unwrap().iter().map(|t| t.as_str().unwrap()))
+        .collect();
+    let reasons: Vec<Option<&str>> = m["fallback_reason"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .flat_map(|row| row.as_array().unwrap().iter().map(|t| t.as_str()))
+        .collect();
     assert_eq!(tiers.len(), 150 * 150);
-    assert!(reasons.contains(&Some("budget_exceeded")), "a 1 ms budget cannot cover 22,500 cells");
+    assert!(
+        reasons.contains(&Some("budget_exceeded")),
+        "a 1 ms budget cannot cover 22,500 cells"
+    );
     for (t, r) in tiers.iter().zip(&reasons) {
         if *r == Some("budget_exceeded") {
             assert_eq!(*t, "heuristic");
         }
     }
-    assert!(m["eta_s"].as_array().unwrap().iter().all(|row| row.as_array().unwrap().iter().all(|v| v.as_f64().unwrap() >= 0.0)));
+    assert!(m["eta_s"].as_array().unwrap().iter().all(|row| row
+        .as_array()
+        .unwrap()
+        .iter()
+        .all(|v| v.as_f64().unwrap() >= 0.0)));
 
     // Saturated graph concurrency → overloaded, still answered.
     let (st3, _d3) = state("graph_concurrency = 0").await;
     let r = post_json(&app(st3), "/v1/eta", &trip).await;
     assert_eq!(r.status, 200);
     let r = r.json();
-    assert_eq!((r["tier"].as_str(), r["fallback_reason"].as_str()), (Some("heuristic"), Some("overloaded")), "{r}");
+    assert_eq!(
+        (r["tier"].as_str(), r["fallback_reason"].as_str()),
+        (Some("heuristic"), Some("overloaded")),
+        "{r}"
+    );
 }
 
 #[tokio::test]
@@ -233,31 +512,62 @@ async fn unreachable_pair_and_degraded_region() {
         let base = b.num_nodes() as u32;
         for i in 0..10u32 {
             for j in 0..10u32 {
-                b.add_node(hodos::geo::LatLon::new(c.lo.lat + 0.002 * i as f64, lon0 + 0.002 * j as f64), u64::from(base + i * 10 + j + 1));
+                b.add_node(
+                    hodos::geo::LatLon::new(c.lo.lat + 0.002 * i as f64, lon0 + 0.002 * j as f64),
+                    u64::from(base + i * 10 + j + 1),
+                );
             }
         }
         for i in 0..10u32 {
             for j in 0..10u32 {
                 let v = base + i * 10 + j;
-                for w in [(j + 1 < 10).then_some(v + 1), (i + 1 < 10).then_some(v + 10)].into_iter().flatten() {
+                for w in [
+                    (j + 1 < 10).then_some(v + 1),
+                    (i + 1 < 10).then_some(v + 10),
+                ]
+                .into_iter()
+                .flatten()
+                {
                     way += 1;
                     for (t, h) in [(v, w), (w, v)] {
-                        b.add_edge(EdgeSpec { tail: t, head: h, length_m: None, speed_kmh: 30.0, way_id: way, class: RoadClass::Residential, shape: &[] });
+                        b.add_edge(EdgeSpec {
+                            tail: t,
+                            head: h,
+                            length_m: None,
+                            speed_kmh: 30.0,
+                            way_id: way,
+                            class: RoadClass::Residential,
+                            shape: &[],
+                        });
                     }
                 }
             }
         }
     }
     let g = b.finish();
-    let ug = hodos::order::UndirectedGraph::from_edges(g.num_nodes(), g.edge_tail.iter().copied().zip(g.edge_head.iter().copied()));
+    let ug = hodos::order::UndirectedGraph::from_edges(
+        g.num_nodes(),
+        g.edge_tail.iter().copied().zip(g.edge_head.iter().copied()),
+    );
     let proj = hodos::geo::LocalProjection::new(c.lo.lat);
-    let xy: Vec<[f64; 2]> = (0..g.num_nodes() as u32).map(|v| proj.project(g.node_pos(v))).collect();
+    let xy: Vec<[f64; 2]> = (0..g.num_nodes() as u32)
+        .map(|v| proj.project(g.node_pos(v)))
+        .collect();
     let order = hodos::order::nested_dissection(&ug, &xy, &mut |_| {});
     let cch = hodos::cch::Cch::build(&g, order.rank);
     let art = Artifact {
         meta: Metadata {
-            source: "test:two-islands".into(), built_at_unix: 0, hodos_version: "test".into(), nodes: g.num_nodes(), edges: g.num_edges(),
-            dropped: Default::default(), arcs: cch.num_arcs(), shortcuts: 0, top_separator: 0, elimination_tree_depth: 0, phase_seconds: vec![],
+            source: "test:two-islands".into(),
+            built_at_unix: 0,
+            hodos_version: "test".into(),
+            nodes: g.num_nodes(),
+            edges: g.num_edges(),
+            dropped: Default::default(),
+            arcs: cch.num_arcs(),
+            shortcuts: 0,
+            top_separator: 0,
+            elimination_tree_depth: 0,
+            phase_seconds: vec![],
         },
         calibration: hodos::calibration::Calibration::fixed(1.3, 30.0),
         graph: g.clone(),
@@ -270,8 +580,14 @@ async fn unreachable_pair_and_degraded_region() {
     let st = AppState::open(hodos::config::Config::parse(&text).unwrap()).await;
     let a = app(st);
     let (p, q) = (g.node_pos(5), g.node_pos(150));
-    let r = post_json(&a, "/v1/eta", &json!({"from": coord(p), "to": coord(q)})).await.json();
-    assert_eq!((r["tier"].as_str(), r["fallback_reason"].as_str()), (Some("heuristic"), Some("unreachable")), "{r}");
+    let r = post_json(&a, "/v1/eta", &json!({"from": coord(p), "to": coord(q)}))
+        .await
+        .json();
+    assert_eq!(
+        (r["tier"].as_str(), r["fallback_reason"].as_str()),
+        (Some("heuristic"), Some("unreachable")),
+        "{r}"
+    );
 
     // A region whose artifact does not load starts degraded: heuristic
     // answers with region_unavailable; readiness names it.
@@ -284,11 +600,21 @@ async fn unreachable_pair_and_degraded_region() {
     let r = post_json(&a, "/v1/eta", &json!({"from": coord(p), "to": coord(q)})).await;
     assert_eq!(r.status, 200);
     let r = r.json();
-    assert_eq!((r["tier"].as_str(), r["fallback_reason"].as_str()), (Some("heuristic"), Some("region_unavailable")), "{r}");
+    assert_eq!(
+        (r["tier"].as_str(), r["fallback_reason"].as_str()),
+        (Some("heuristic"), Some("region_unavailable")),
+        "{r}"
+    );
     let ready = send(&a, "GET", "/readyz", None, vec![], None).await.json();
     assert_eq!(ready["degraded_regions"], 1);
     assert_eq!(ready["regions"][0]["state"], "degraded");
-    assert!(ready["regions"][0]["reason"].as_str().unwrap().contains("broken.hodos"), "{ready}");
+    assert!(
+        ready["regions"][0]["reason"]
+            .as_str()
+            .unwrap()
+            .contains("broken.hodos"),
+        "{ready}"
+    );
 }
 
 #[tokio::test]
@@ -296,7 +622,12 @@ async fn admin_requires_the_token() {
     let (st, _d) = state("").await;
     let admin = admin_app(st);
     for token in [None, Some("wrong"), Some("")] {
-        for (m, uri) in [("GET", "/admin/status"), ("POST", "/admin/regions/testcity/reload"), ("PUT", "/admin/regions/testcity/historical"), ("POST", "/admin/regions/testcity/live")] {
+        for (m, uri) in [
+            ("GET", "/admin/status"),
+            ("POST", "/admin/regions/testcity/reload"),
+            ("PUT", "/admin/regions/testcity/historical"),
+            ("POST", "/admin/regions/testcity/live"),
+        ] {
             let r = send(&admin, m, uri, None, vec![], token).await;
             assert_eq!(r.status, 401, "{m} {uri} with {token:?}");
             assert_eq!(r.content_type, "application/problem+json");
@@ -321,17 +652,38 @@ async fn rejected_table_is_reported_and_never_served() {
         csv.push_str(&format!("{f},{t},10,{v}\n"));
     }
     let before = st.catalog.regions[0].status().generation;
-    let r = send(&admin, "PUT", "/admin/regions/testcity/historical", Some("text/csv"), csv.into_bytes(), Some(TOKEN)).await;
+    let r = send(
+        &admin,
+        "PUT",
+        "/admin/regions/testcity/historical",
+        Some("text/csv"),
+        csv.into_bytes(),
+        Some(TOKEN),
+    )
+    .await;
     assert_eq!(r.status, 422, "{}", r.text);
     let p = r.json();
     assert_eq!(p["report"]["rejected"], true, "{p}");
     assert!(p["report"]["first_errors"][0]["line"].as_u64().unwrap() >= 2);
-    let s = send(&admin, "GET", "/admin/status", None, vec![], Some(TOKEN)).await.json();
+    let s = send(&admin, "GET", "/admin/status", None, vec![], Some(TOKEN))
+        .await
+        .json();
     assert_eq!(s["regions"][0]["last_reload"]["outcome"], "rejected");
     assert!(s["regions"][0]["last_reload"]["error"].as_str().is_some());
-    assert_eq!(st.catalog.regions[0].status().generation, before, "a rejected table never replaces serving data");
-    let metrics = send(&app(st), "GET", "/metrics", None, vec![], None).await.text;
-    assert!(metrics.contains(r#"hodos_reloads_total{region="testcity",table="historical",outcome="rejected"}"#), "{metrics}");
+    assert_eq!(
+        st.catalog.regions[0].status().generation,
+        before,
+        "a rejected table never replaces serving data"
+    );
+    let metrics = send(&app(st), "GET", "/metrics", None, vec![], None)
+        .await
+        .text;
+    assert!(
+        metrics.contains(
+            r#"hodos_reloads_total{region="testcity",table="historical",outcome="rejected"}"#
+        ),
+        "{metrics}"
+    );
 }
 
 #[tokio::test]
@@ -347,17 +699,27 @@ async fn metrics_geojson_and_openapi_parse_with_outside_tools() {
     let r = post_json(&a, "/v1/route", &trip).await;
     assert_eq!(r.status, 200, "{}", r.text);
     let v = r.json();
-    let geom: geojson::Geometry = serde_json::from_value(v["geometry"].clone()).expect("GeoJSON geometry");
+    let geom: geojson::Geometry =
+        serde_json::from_value(v["geometry"].clone()).expect("GeoJSON geometry");
     match geom.value {
         geojson::GeometryValue::LineString { coordinates: line } => {
             assert!(line.len() >= 2);
             let first = &line[0];
-            assert!((first[1] - p.lat).abs() < 0.01 && (first[0] - p.lon).abs() < 0.01, "[lon, lat] order");
+            assert!(
+                (first[1] - p.lat).abs() < 0.01 && (first[0] - p.lon).abs() < 0.01,
+                "[lon, lat] order"
+            );
             // The polyline's length matches the reported distance.
-            let pts: Vec<hodos::geo::LatLon> = line.iter().map(|c| hodos::geo::LatLon::new(c[1], c[0])).collect();
+            let pts: Vec<hodos::geo::LatLon> = line
+                .iter()
+                .map(|c| hodos::geo::LatLon::new(c[1], c[0]))
+                .collect();
             let len = hodos::geo::polyline_length_m(&pts);
             let meters = v["meters"].as_f64().unwrap();
-            assert!((len - meters).abs() <= 0.01 * meters + 1.0, "geometry {len} m vs reported {meters} m");
+            assert!(
+                (len - meters).abs() <= 0.01 * meters + 1.0,
+                "geometry {len} m vs reported {meters} m"
+            );
         }
         other => panic!("expected a LineString, got {other:?}"),
     }
@@ -366,7 +728,8 @@ async fn metrics_geojson_and_openapi_parse_with_outside_tools() {
     let text = send(&a, "GET", "/metrics", None, vec![], None).await.text;
     let lines = text.lines().map(|l| Ok(l.to_string()));
     let scrape = prometheus_parse::Scrape::parse(lines).expect("Prometheus text parses");
-    let names: std::collections::HashSet<String> = scrape.samples.iter().map(|s| s.metric.clone()).collect();
+    let names: std::collections::HashSet<String> =
+        scrape.samples.iter().map(|s| s.metric.clone()).collect();
     for want in [
         "hodos_request_duration_seconds",
         "hodos_answers_total",
@@ -382,22 +745,42 @@ async fn metrics_geojson_and_openapi_parse_with_outside_tools() {
     assert!(scrape
         .samples
         .iter()
-        .any(|s| s.metric == "hodos_request_duration_seconds" && matches!(s.value, prometheus_parse::Value::Histogram(_))));
+        .any(|s| s.metric == "hodos_request_duration_seconds"
+            && matches!(s.value, prometheus_parse::Value::Histogram(_))));
     let routes: std::collections::HashSet<String> = scrape
         .samples
         .iter()
         .filter(|s| s.metric == "hodos_request_duration_seconds_count")
         .filter_map(|s| s.labels.get("route").map(|r| r.to_string()))
         .collect();
-    assert!(routes.contains("/v1/eta") && routes.contains("/v1/route"), "{routes:?}");
-    assert!(routes.iter().all(|r| !r.contains('?')), "routes are templates, never raw URIs");
+    assert!(
+        routes.contains("/v1/eta") && routes.contains("/v1/route"),
+        "{routes:?}"
+    );
+    assert!(
+        routes.iter().all(|r| !r.contains('?')),
+        "routes are templates, never raw URIs"
+    );
 
     // OpenAPI 3.1: every served path is documented, and an external
     // validator (openapi-spec-validator from PyPI) accepts the document.
-    let doc = send(&a, "GET", "/openapi.json", None, vec![], None).await.json();
+    let doc = send(&a, "GET", "/openapi.json", None, vec![], None)
+        .await
+        .json();
     assert_eq!(doc["openapi"], "3.1.0");
-    for path in ["/v1/eta", "/v1/eta/matrix", "/v1/route", "/healthz", "/readyz", "/metrics", "/openapi.json", "/admin/status",
-                 "/admin/regions/{region}/historical", "/admin/regions/{region}/live", "/admin/regions/{region}/reload"] {
+    for path in [
+        "/v1/eta",
+        "/v1/eta/matrix",
+        "/v1/route",
+        "/healthz",
+        "/readyz",
+        "/metrics",
+        "/openapi.json",
+        "/admin/status",
+        "/admin/regions/{region}/historical",
+        "/admin/regions/{region}/live",
+        "/admin/regions/{region}/reload",
+    ] {
         assert!(doc["paths"][path].is_object(), "{path} undocumented");
     }
     let dir = tempfile::tempdir().unwrap();
@@ -410,7 +793,12 @@ async fn metrics_geojson_and_openapi_parse_with_outside_tools() {
         Ok(o) if String::from_utf8_lossy(&o.stderr).contains("No module named") => {
             eprintln!("SKIPPED: openapi-spec-validator is not installed (pip install openapi-spec-validator; .ci/run does)");
         }
-        Ok(o) => assert!(o.status.success(), "openapi-spec-validator: {}{}", String::from_utf8_lossy(&o.stdout), String::from_utf8_lossy(&o.stderr)),
+        Ok(o) => assert!(
+            o.status.success(),
+            "openapi-spec-validator: {}{}",
+            String::from_utf8_lossy(&o.stdout),
+            String::from_utf8_lossy(&o.stderr)
+        ),
         Err(e) => eprintln!("SKIPPED: python3 not runnable: {e}"),
     }
 }

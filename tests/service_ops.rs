@@ -34,7 +34,13 @@ async fn start(state: AppState) -> Server {
         .await
         .unwrap();
     });
-    Server { public, admin, stop: Some(tx), task, state }
+    Server {
+        public,
+        admin,
+        stop: Some(tx),
+        task,
+        state,
+    }
 }
 
 impl Server {
@@ -42,18 +48,26 @@ impl Server {
         if let Some(tx) = self.stop.take() {
             let _ = tx.send(());
         }
-        tokio::time::timeout(Duration::from_secs(20), self.task).await.expect("drains in time").unwrap();
+        tokio::time::timeout(Duration::from_secs(20), self.task)
+            .await
+            .expect("drains in time")
+            .unwrap();
     }
 }
 
 fn client() -> reqwest::Client {
-    reqwest::Client::builder().timeout(Duration::from_secs(10)).build().unwrap()
+    reqwest::Client::builder()
+        .timeout(Duration::from_secs(10))
+        .build()
+        .unwrap()
 }
 
 fn trip_body(hour_offset_days: i64) -> Value {
     let (a, b) = (at(0.2, 0.25), at(0.8, 0.7));
     // A fixed future departure: the historical tier, a fixed bucket.
-    let depart = (chrono::Utc::now() + chrono::Duration::days(hour_offset_days)).format("%Y-%m-%dT10:00:00Z").to_string();
+    let depart = (chrono::Utc::now() + chrono::Duration::days(hour_offset_days))
+        .format("%Y-%m-%dT10:00:00Z")
+        .to_string();
     json!({"from": {"lat": a.lat, "lon": a.lon}, "to": {"lat": b.lat, "lon": b.lon}, "depart_at": depart, "budget_ms": 2000})
 }
 
@@ -92,7 +106,13 @@ async fn fifty_hot_swaps_under_load_fail_nothing() {
     let (ok, failed) = (Arc::new(AtomicU64::new(0)), Arc::new(AtomicU64::new(0)));
     let mut workers = Vec::new();
     for w in 0..4 {
-        let (http, url, stop, ok, failed) = (http.clone(), eta_url.clone(), stop.clone(), ok.clone(), failed.clone());
+        let (http, url, stop, ok, failed) = (
+            http.clone(),
+            eta_url.clone(),
+            stop.clone(),
+            ok.clone(),
+            failed.clone(),
+        );
         workers.push(tokio::spawn(async move {
             let body = trip_body(1 + w);
             let deadline = Instant::now() + Duration::from_secs(120);
@@ -112,21 +132,53 @@ async fn fifty_hot_swaps_under_load_fail_nothing() {
     }
     let probe = trip_body(1);
     let eta_now = || async {
-        let v: Value = http.post(&eta_url).json(&probe).send().await.unwrap().json().await.unwrap();
-        (v["eta_s"].as_f64().unwrap(), v["tier"].as_str().unwrap().to_string())
+        let v: Value = http
+            .post(&eta_url)
+            .json(&probe)
+            .send()
+            .await
+            .unwrap()
+            .json()
+            .await
+            .unwrap();
+        (
+            v["eta_s"].as_f64().unwrap(),
+            v["tier"].as_str().unwrap().to_string(),
+        )
     };
     let (good, bad) = (table(0.0), corrupt_table());
     let mut good_swaps = 0;
     for i in 0..50 {
         if i % 2 == 0 {
             // Alternate between two speeds so consecutive good tables differ.
-            let t = if (i / 2) % 2 == 0 { good.replace(",0\n", ",20\n") } else { good.replace(",0\n", ",40\n") };
-            let r = http.put(&put_url).bearer_auth(TOKEN).body(t).send().await.unwrap();
-            assert_eq!(r.status(), 200, "good table {i}: {}", r.text().await.unwrap());
+            let t = if (i / 2) % 2 == 0 {
+                good.replace(",0\n", ",20\n")
+            } else {
+                good.replace(",0\n", ",40\n")
+            };
+            let r = http
+                .put(&put_url)
+                .bearer_auth(TOKEN)
+                .body(t)
+                .send()
+                .await
+                .unwrap();
+            assert_eq!(
+                r.status(),
+                200,
+                "good table {i}: {}",
+                r.text().await.unwrap()
+            );
             good_swaps += 1;
         } else {
             let before = eta_now().await;
-            let r = http.put(&put_url).bearer_auth(TOKEN).body(bad.clone()).send().await.unwrap();
+            let r = http
+                .put(&put_url)
+                .bearer_auth(TOKEN)
+                .body(bad.clone())
+                .send()
+                .await
+                .unwrap();
             assert_eq!(r.status(), 422, "corrupt table {i} must be rejected");
             let after = eta_now().await;
             assert_eq!(before, after, "a rejected table changed answers (swap {i})");
@@ -151,13 +203,30 @@ async fn live_post_reaches_answers_and_restart_restores_data() {
     let eta_url = format!("http://{}/v1/eta", srv.public);
     let (a, b) = (at(0.3, 0.3), at(0.7, 0.7));
     let now_trip = json!({"from": {"lat": a.lat, "lon": a.lon}, "to": {"lat": b.lat, "lon": b.lon}, "budget_ms": 2000});
-    let v: Value = http.post(&eta_url).json(&now_trip).send().await.unwrap().json().await.unwrap();
+    let v: Value = http
+        .post(&eta_url)
+        .json(&now_trip)
+        .send()
+        .await
+        .unwrap()
+        .json()
+        .await
+        .unwrap();
     assert_eq!(v["tier"], "historical");
 
     // Upload a historical table, then post live observations and time how
     // long until answers reflect them (the live loop re-customizes).
     let t = table(33.0);
-    let r = http.put(format!("http://{}/admin/regions/testcity/historical", srv.admin)).bearer_auth(TOKEN).body(t).send().await.unwrap();
+    let r = http
+        .put(format!(
+            "http://{}/admin/regions/testcity/historical",
+            srv.admin
+        ))
+        .bearer_auth(TOKEN)
+        .body(t)
+        .send()
+        .await
+        .unwrap();
     assert_eq!(r.status(), 200);
     let obs_time = chrono::Utc::now().to_rfc3339();
     let batch: Vec<Value> = city()
@@ -176,7 +245,15 @@ async fn live_post_reaches_answers_and_restart_restores_data() {
     assert_eq!(r.status(), 200, "{}", r.text().await.unwrap());
     let mut reflected = None;
     while posted.elapsed() < Duration::from_secs(10) {
-        let v: Value = http.post(&eta_url).json(&now_trip).send().await.unwrap().json().await.unwrap();
+        let v: Value = http
+            .post(&eta_url)
+            .json(&now_trip)
+            .send()
+            .await
+            .unwrap()
+            .json()
+            .await
+            .unwrap();
         if v["tier"] == "live" {
             reflected = Some(posted.elapsed());
             break;
@@ -184,9 +261,23 @@ async fn live_post_reaches_answers_and_restart_restores_data() {
         tokio::time::sleep(Duration::from_millis(5)).await;
     }
     let reflected = reflected.expect("live data reached answers within 10 s");
-    eprintln!("live update latency (3,000-node city, debug-optimised build): {:?}", reflected);
-    let live_answer: Value = http.post(&eta_url).json(&now_trip).send().await.unwrap().json().await.unwrap();
-    let version = srv.state.catalog.regions[0].status().historical_version.clone();
+    eprintln!(
+        "live update latency (3,000-node city, debug-optimised build): {:?}",
+        reflected
+    );
+    let live_answer: Value = http
+        .post(&eta_url)
+        .json(&now_trip)
+        .send()
+        .await
+        .unwrap()
+        .json()
+        .await
+        .unwrap();
+    let version = srv.state.catalog.regions[0]
+        .status()
+        .historical_version
+        .clone();
     let live_edges = srv.state.catalog.regions[0].status().live_edges;
     assert!(live_edges > 0);
     assert!(version.is_some());
@@ -197,7 +288,11 @@ async fn live_post_reaches_answers_and_restart_restores_data() {
 
     // Restart on the same state directory: both tables come back.
     let st = AppState::open(config(dir.path(), "")).await;
-    assert_eq!(st.catalog.regions[0].status().historical_version, version, "historical table restored");
+    assert_eq!(
+        st.catalog.regions[0].status().historical_version,
+        version,
+        "historical table restored"
+    );
     st.catalog.regions[0].refresh_live(true).await;
     let srv = start(st).await;
     let v: Value = http
@@ -210,12 +305,22 @@ async fn live_post_reaches_answers_and_restart_restores_data() {
         .await
         .unwrap();
     assert_eq!(v["tier"], "live", "live layer restored: {v}");
-    let (x, y) = (v["eta_s"].as_f64().unwrap(), live_answer["eta_s"].as_f64().unwrap());
+    let (x, y) = (
+        v["eta_s"].as_f64().unwrap(),
+        live_answer["eta_s"].as_f64().unwrap(),
+    );
     // The same observations, a few seconds older: the live weight has
     // decayed a little (half-life 120 s) towards the faster historical base,
     // so the answer may only be somewhat faster, never slower.
-    assert!(x <= y * 1.001 && x > 0.8 * y, "after restart {v} vs before {live_answer}");
-    assert_eq!(srv.state.catalog.regions[0].status().live_edges, live_edges, "every live observation restored");
+    assert!(
+        x <= y * 1.001 && x > 0.8 * y,
+        "after restart {v} vs before {live_answer}"
+    );
+    assert_eq!(
+        srv.state.catalog.regions[0].status().live_edges,
+        live_edges,
+        "every live observation restored"
+    );
     srv.stop().await;
 }
 

@@ -23,7 +23,10 @@ pub fn router(state: AppState) -> Router {
         .route("/admin/regions/{region}/reload", post(reload))
         .fallback(|| async { ApiError::NotFound("no such admin endpoint".into()) })
         .layer(axum::extract::DefaultBodyLimit::disable())
-        .layer(axum::middleware::from_fn_with_state(state.clone(), require_token))
+        .layer(axum::middleware::from_fn_with_state(
+            state.clone(),
+            require_token,
+        ))
         .with_state(state)
 }
 
@@ -32,7 +35,10 @@ pub fn token_ok(headers: &HeaderMap, expected: &str) -> bool {
     if expected.is_empty() {
         return false;
     }
-    let Some(v) = headers.get(header::AUTHORIZATION).and_then(|v| v.to_str().ok()) else {
+    let Some(v) = headers
+        .get(header::AUTHORIZATION)
+        .and_then(|v| v.to_str().ok())
+    else {
         return false;
     };
     let Some(given) = v.strip_prefix("Bearer ") else {
@@ -81,7 +87,9 @@ fn update_error(e: UpdateError) -> ApiError {
                 .map(|r| serde_json::to_value(r).unwrap_or_default())
                 .unwrap_or(serde_json::Value::Null),
         },
-        UpdateError::Unavailable(msg) => ApiError::NotFound(format!("region has no loaded graph: {msg}")),
+        UpdateError::Unavailable(msg) => {
+            ApiError::NotFound(format!("region has no loaded graph: {msg}"))
+        }
         UpdateError::Failed(msg) => {
             tracing::error!(error = %msg, "admin update failed");
             ApiError::Internal
@@ -133,7 +141,10 @@ async fn post_live(
     Ok(Json(serde_json::json!({ "outcome": "accepted", "report": report })).into_response())
 }
 
-async fn reload(State(state): State<AppState>, Path(name): Path<String>) -> Result<Response, ApiError> {
+async fn reload(
+    State(state): State<AppState>,
+    Path(name): Path<String>,
+) -> Result<Response, ApiError> {
     let r = region(&state, &name)?;
     let result = r.reload().await;
     let st = r.status();
@@ -149,4 +160,3 @@ async fn reload(State(state): State<AppState>, Path(name): Path<String>) -> Resu
     }))
     .into_response())
 }
-

@@ -23,10 +23,16 @@ pub struct Coord {
 impl Coord {
     pub fn check(&self, field: &str) -> Result<LatLon, ApiError> {
         if !self.lat.is_finite() || !(-90.0..=90.0).contains(&self.lat) {
-            return Err(ApiError::invalid(format!("{field}.lat"), "must be within -90..90"));
+            return Err(ApiError::invalid(
+                format!("{field}.lat"),
+                "must be within -90..90",
+            ));
         }
         if !self.lon.is_finite() || !(-180.0..=180.0).contains(&self.lon) {
-            return Err(ApiError::invalid(format!("{field}.lon"), "must be within -180..180"));
+            return Err(ApiError::invalid(
+                format!("{field}.lon"),
+                "must be within -180..180",
+            ));
         }
         Ok(LatLon::new(self.lat, self.lon))
     }
@@ -34,7 +40,10 @@ impl Coord {
 
 impl From<LatLon> for Coord {
     fn from(p: LatLon) -> Self {
-        Coord { lat: p.lat, lon: p.lon }
+        Coord {
+            lat: p.lat,
+            lon: p.lon,
+        }
     }
 }
 
@@ -85,7 +94,8 @@ pub fn parse_json<T: DeserializeOwned>(body: &[u8]) -> Result<T, ApiError> {
     let parsed: Result<T, _> = serde_path_to_error::deserialize(&mut de);
     match parsed {
         Ok(v) => {
-            de.end().map_err(|e| ApiError::Malformed(format!("malformed JSON: {e}")))?;
+            de.end()
+                .map_err(|e| ApiError::Malformed(format!("malformed JSON: {e}")))?;
             Ok(v)
         }
         Err(e) => {
@@ -98,13 +108,28 @@ pub fn parse_json<T: DeserializeOwned>(body: &[u8]) -> Result<T, ApiError> {
                 }
                 Category::Data => {
                     let msg = strip_position(&inner.to_string());
-                    let base = if path == "." || path.is_empty() { String::new() } else { path };
+                    let base = if path == "." || path.is_empty() {
+                        String::new()
+                    } else {
+                        path
+                    };
                     // serde reports a missing field at its parent: name it.
-                    if let Some(name) = msg.strip_prefix("missing field `").and_then(|r| r.strip_suffix('`')) {
-                        let field = if base.is_empty() { name.to_string() } else { format!("{base}.{name}") };
+                    if let Some(name) = msg
+                        .strip_prefix("missing field `")
+                        .and_then(|r| r.strip_suffix('`'))
+                    {
+                        let field = if base.is_empty() {
+                            name.to_string()
+                        } else {
+                            format!("{base}.{name}")
+                        };
                         return Err(ApiError::invalid(field, "is required"));
                     }
-                    let field = if base.is_empty() { "body".to_string() } else { base };
+                    let field = if base.is_empty() {
+                        "body".to_string()
+                    } else {
+                        base
+                    };
                     Err(ApiError::invalid(field, format!("is not valid: {msg}")))
                 }
             }
@@ -124,7 +149,12 @@ pub fn parse_depart_at(v: &Option<String>) -> Result<Option<DateTime<Utc>>, ApiE
         None => Ok(None),
         Some(s) => DateTime::parse_from_rfc3339(s)
             .map(|d| Some(d.with_timezone(&Utc)))
-            .map_err(|_| ApiError::invalid("depart_at", "must be an RFC 3339 date-time such as 2026-12-02T08:30:00Z")),
+            .map_err(|_| {
+                ApiError::invalid(
+                    "depart_at",
+                    "must be an RFC 3339 date-time such as 2026-12-02T08:30:00Z",
+                )
+            }),
     }
 }
 
@@ -149,7 +179,10 @@ impl EtaRequest {
 impl MatrixRequest {
     pub fn validate(&self, max_cells: usize) -> Result<MatrixTrip, ApiError> {
         if self.from.is_empty() {
-            return Err(ApiError::invalid("from", "must list at least one coordinate"));
+            return Err(ApiError::invalid(
+                "from",
+                "must list at least one coordinate",
+            ));
         }
         if self.to.is_empty() {
             return Err(ApiError::invalid("to", "must list at least one coordinate"));
@@ -255,7 +288,9 @@ fn decode(s: &str) -> String {
         match b[i] {
             b'+' => out.push(b' '),
             b'%' if i + 2 < b.len() => {
-                let hex = std::str::from_utf8(&b[i + 1..i + 3]).ok().and_then(|h| u8::from_str_radix(h, 16).ok());
+                let hex = std::str::from_utf8(&b[i + 1..i + 3])
+                    .ok()
+                    .and_then(|h| u8::from_str_radix(h, 16).ok());
                 match hex {
                     Some(v) => {
                         out.push(v);

@@ -2,8 +2,8 @@
 //! [`crate::answer`], convert back, count.
 
 use super::dto::{
-    parse_eta_query, parse_json, EtaRequest, EtaResponse, MatrixRequest, MatrixResponse, RouteResponse,
-    SnapshotRef, Trip,
+    parse_eta_query, parse_json, EtaRequest, EtaResponse, MatrixRequest, MatrixResponse,
+    RouteResponse, SnapshotRef, Trip,
 };
 use super::problem::ApiError;
 use super::{AppState, TierLabel};
@@ -66,8 +66,21 @@ fn with_tier(mut resp: Response, tier: &'static str) -> Response {
     resp
 }
 
-async fn answer_trip(state: &AppState, trip: Trip, route: &'static str, geometry: bool) -> Response {
-    let a = answer::trip(&state.catalog, trip.from, trip.to, trip.depart_at, trip.budget_ms, geometry).await;
+async fn answer_trip(
+    state: &AppState,
+    trip: Trip,
+    route: &'static str,
+    geometry: bool,
+) -> Response {
+    let a = answer::trip(
+        &state.catalog,
+        trip.from,
+        trip.to,
+        trip.depart_at,
+        trip.budget_ms,
+        geometry,
+    )
+    .await;
     super::metrics::answer(route, a.tier, a.reason, 1);
     let tier = a.tier.as_str();
     let resp = if geometry {
@@ -87,7 +100,10 @@ async fn answer_trip(state: &AppState, trip: Trip, route: &'static str, geometry
     with_tier(resp, tier)
 }
 
-pub async fn eta_get(State(state): State<AppState>, RawQuery(q): RawQuery) -> Result<Response, ApiError> {
+pub async fn eta_get(
+    State(state): State<AppState>,
+    RawQuery(q): RawQuery,
+) -> Result<Response, ApiError> {
     let trip = parse_eta_query(q.as_deref())?;
     Ok(answer_trip(&state, trip, "/v1/eta", false).await)
 }
@@ -106,7 +122,8 @@ pub async fn route(State(state): State<AppState>, req: Request) -> Result<Respon
 
 pub async fn matrix(State(state): State<AppState>, req: Request) -> Result<Response, ApiError> {
     let body = body_bytes(&state, req).await?;
-    let m = parse_json::<MatrixRequest>(&body)?.validate(state.catalog.cfg.query.max_matrix_cells)?;
+    let m =
+        parse_json::<MatrixRequest>(&body)?.validate(state.catalog.cfg.query.max_matrix_cells)?;
     let a = answer::matrix_trip(&state.catalog, m.from, m.to, m.depart_at, m.budget_ms).await;
     let mut eta_s = Vec::with_capacity(a.rows);
     let mut meters = Vec::with_capacity(a.rows);
@@ -174,7 +191,10 @@ pub async fn readyz(State(state): State<AppState>) -> impl IntoResponse {
 
 pub async fn metrics_text(State(state): State<AppState>) -> impl IntoResponse {
     (
-        [(header::CONTENT_TYPE, "text/plain; version=0.0.4; charset=utf-8")],
+        [(
+            header::CONTENT_TYPE,
+            "text/plain; version=0.0.4; charset=utf-8",
+        )],
         state.prometheus.render(),
     )
 }

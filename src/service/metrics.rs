@@ -27,7 +27,10 @@ pub fn handle() -> PrometheusHandle {
         let recorder = PrometheusBuilder::new()
             .set_buckets_for_metric(
                 Matcher::Full(REQUEST_DURATION.into()),
-                &[0.0001, 0.00025, 0.0005, 0.001, 0.002, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 1.0, 5.0],
+                &[
+                    0.0001, 0.00025, 0.0005, 0.001, 0.002, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25,
+                    1.0, 5.0,
+                ],
             )
             .and_then(|b| {
                 b.set_buckets_for_metric(
@@ -50,16 +53,43 @@ pub fn handle() -> PrometheusHandle {
 
 fn describe() {
     use metrics::{describe_counter, describe_gauge, describe_histogram, Unit};
-    describe_histogram!(REQUEST_DURATION, Unit::Seconds, "Request latency by matched route and answering tier.");
+    describe_histogram!(
+        REQUEST_DURATION,
+        Unit::Seconds,
+        "Request latency by matched route and answering tier."
+    );
     describe_counter!(ANSWERS, "Answers (ETAs or matrix cells) by route and tier.");
-    describe_counter!(FALLBACKS, "Answers below the live tier, by route and fallback reason.");
-    describe_gauge!(LIVE_AGE, Unit::Seconds, "Age of the newest live observation per region.");
-    describe_gauge!(SNAPSHOT_GENERATION, "Generation of the serving snapshot per region.");
-    describe_histogram!(CUSTOMIZATION, Unit::Seconds, "Time to customize a metric, by region and kind.");
-    describe_counter!(RELOADS, "Table and artifact reloads by region, table and outcome.");
-    describe_counter!(REJECTED_ROWS, "Rejected input rows by region, table and kind.");
+    describe_counter!(
+        FALLBACKS,
+        "Answers below the live tier, by route and fallback reason."
+    );
+    describe_gauge!(
+        LIVE_AGE,
+        Unit::Seconds,
+        "Age of the newest live observation per region."
+    );
+    describe_gauge!(
+        SNAPSHOT_GENERATION,
+        "Generation of the serving snapshot per region."
+    );
+    describe_histogram!(
+        CUSTOMIZATION,
+        Unit::Seconds,
+        "Time to customize a metric, by region and kind."
+    );
+    describe_counter!(
+        RELOADS,
+        "Table and artifact reloads by region, table and outcome."
+    );
+    describe_counter!(
+        REJECTED_ROWS,
+        "Rejected input rows by region, table and kind."
+    );
     describe_gauge!(GRAPH_IN_FLIGHT, "Requests doing graph work right now.");
-    describe_gauge!(REGION_READY, "1 when the region serves from a graph, 0 when degraded.");
+    describe_gauge!(
+        REGION_READY,
+        "1 when the region serves from a graph, 0 when degraded."
+    );
 }
 
 pub fn answer(route: &'static str, tier: Tier, reason: Option<FallbackReason>, n: u64) {

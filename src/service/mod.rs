@@ -64,7 +64,12 @@ impl AppState {
             .regions
             .iter()
             .filter(|r| r.snapshot().is_none())
-            .map(|r| (r.name.clone(), r.status().degraded_reason.unwrap_or_default()))
+            .map(|r| {
+                (
+                    r.name.clone(),
+                    r.status().degraded_reason.unwrap_or_default(),
+                )
+            })
             .collect()
     }
 }
@@ -80,7 +85,11 @@ async fn track(matched: Option<MatchedPath>, req: Request, next: Next) -> Respon
         .unwrap_or_else(|| "unmatched".to_owned());
     let start = Instant::now();
     let resp = next.run(req).await;
-    let tier = resp.extensions().get::<TierLabel>().map(|t| t.0).unwrap_or("none");
+    let tier = resp
+        .extensions()
+        .get::<TierLabel>()
+        .map(|t| t.0)
+        .unwrap_or("none");
     ::metrics::histogram!(metrics::REQUEST_DURATION, "route" => route, "tier" => tier)
         .record(start.elapsed().as_secs_f64());
     resp
@@ -153,4 +162,3 @@ pub async fn serve(
 pub async fn bind(addr: SocketAddr) -> std::io::Result<tokio::net::TcpListener> {
     tokio::net::TcpListener::bind(addr).await
 }
-

@@ -23,10 +23,19 @@ fn json_response(desc: &str, schema: &str) -> Value {
 pub fn document() -> Value {
     let errors = |extra: &[(&str, &str)]| {
         let mut m = serde_json::Map::new();
-        m.insert("400".into(), problem_response("Malformed JSON or query string"));
+        m.insert(
+            "400".into(),
+            problem_response("Malformed JSON or query string"),
+        );
         m.insert("413".into(), problem_response("Body over the size limit"));
-        m.insert("415".into(), problem_response("Body is not application/json"));
-        m.insert("422".into(), problem_response("A field breaks a rule (the problem names field and rule)"));
+        m.insert(
+            "415".into(),
+            problem_response("Body is not application/json"),
+        );
+        m.insert(
+            "422".into(),
+            problem_response("A field breaks a rule (the problem names field and rule)"),
+        );
         for (k, v) in extra {
             m.insert((*k).into(), problem_response(v));
         }

@@ -31,7 +31,10 @@ pub enum ApiError {
     NotFound(String),
     /// The uploaded table was refused; `detail` summarises, `report` is the
     /// validation report as JSON.
-    Rejected { detail: String, report: serde_json::Value },
+    Rejected {
+        detail: String,
+        report: serde_json::Value,
+    },
     /// Content type the endpoint does not take.
     UnsupportedMediaType(String),
     /// Something failed inside hodos; no detail leaves the process.
@@ -107,9 +110,15 @@ impl ApiError {
     pub fn detail(&self) -> String {
         match self {
             ApiError::Malformed(m) => m.clone(),
-            ApiError::Invalid { field, rule } | ApiError::OverLimit { field, rule } => format!("{field} {rule}"),
-            ApiError::TooLarge { limit } => format!("the request body is over the limit of {limit} bytes"),
-            ApiError::Unauthorized => "send `Authorization: Bearer <token>` with the admin token".into(),
+            ApiError::Invalid { field, rule } | ApiError::OverLimit { field, rule } => {
+                format!("{field} {rule}")
+            }
+            ApiError::TooLarge { limit } => {
+                format!("the request body is over the limit of {limit} bytes")
+            }
+            ApiError::Unauthorized => {
+                "send `Authorization: Bearer <token>` with the admin token".into()
+            }
             ApiError::NotFound(m) => m.clone(),
             ApiError::Rejected { detail, .. } => detail.clone(),
             ApiError::UnsupportedMediaType(m) => m.clone(),
@@ -142,11 +151,15 @@ impl IntoResponse for ApiError {
         };
         let bytes = serde_json::to_vec(&body).unwrap_or_else(|_| b"{}".to_vec());
         let mut resp = (status, bytes).into_response();
-        resp.headers_mut()
-            .insert(header::CONTENT_TYPE, header::HeaderValue::from_static(PROBLEM_JSON));
+        resp.headers_mut().insert(
+            header::CONTENT_TYPE,
+            header::HeaderValue::from_static(PROBLEM_JSON),
+        );
         if status == StatusCode::UNAUTHORIZED {
-            resp.headers_mut()
-                .insert(header::WWW_AUTHENTICATE, header::HeaderValue::from_static("Bearer"));
+            resp.headers_mut().insert(
+                header::WWW_AUTHENTICATE,
+                header::HeaderValue::from_static("Bearer"),
+            );
         }
         resp
     }
