@@ -8,6 +8,41 @@ fn main() {
     let path = std::env::args().nth(1).expect("artifact path");
     let region = Region::from_artifact(Artifact::load(std::path::Path::new(&path)).expect("load"));
     let metric = region.free_flow();
+    let mut times: Vec<f64> = (0..5)
+        .map(|_| {
+            let t = std::time::Instant::now();
+            std::hint::black_box(region.free_flow());
+            t.elapsed().as_secs_f64() * 1000.0
+        })
+        .collect();
+    times.sort_by(f64::total_cmp);
+    println!(
+        "customization (fresh buffers) median {:.1} ms (of 5)",
+        times[2]
+    );
+    let w = hodos::metric::free_flow(&region.graph);
+    let mut reuse = metric.customized.clone();
+    let mut times: Vec<f64> = (0..5)
+        .map(|_| {
+            let t = std::time::Instant::now();
+            reuse.customize(&region.cch, &w, &region.graph.edge_len_m);
+            t.elapsed().as_secs_f64() * 1000.0
+        })
+        .collect();
+    times.sort_by(f64::total_cmp);
+    println!("customization (in place) median {:.1} ms (of 5)", times[2]);
+    let mut times: Vec<f64> = (0..5)
+        .map(|_| {
+            let t = std::time::Instant::now();
+            reuse.customize_with(&region.cch, &w, &region.graph.edge_len_m, false);
+            t.elapsed().as_secs_f64() * 1000.0
+        })
+        .collect();
+    times.sort_by(f64::total_cmp);
+    println!(
+        "customization (in place, one thread) median {:.1} ms (of 5)",
+        times[2]
+    );
     let cch = &region.cch;
     let n = cch.num_nodes();
     let mut q = CchQuery::new(cch);

@@ -145,10 +145,10 @@ impl Region {
         a: Snap,
         b: Snap,
     ) -> Result<(Eta, Via), EtaError> {
-        let (src, ns) = self.endpoints(metric, a, true);
-        let (dst, nt) = self.endpoints(metric, b, false);
+        let (src, ns) = snap_endpoints(&self.graph, &metric.weights, a, true);
+        let (dst, nt) = snap_endpoints(&self.graph, &metric.weights, b, false);
         let graph_best = q.run(&self.cch, &metric.customized, &src[..ns], &dst[..nt]);
-        let direct = self.direct(metric, a, b);
+        let direct = direct_stretch(&self.graph, &metric.weights, a, b);
         let eta = |time_ms: f64, cm: f64| Eta {
             time_s: time_ms / 1000.0,
             meters: cm / 100.0,
@@ -212,76 +212,6 @@ impl Region {
         Ok(Route { eta, geometry })
     }
 
-    /// Search starts (origin) or ends (destination) for a snapped point.
-    fn endpoints(&self, metric: &Metric, s: Snap, origin: bool) -> ([Endpoint; 2], usize) {
-        let g = &self.graph;
-        let e = s.edge as usize;
-        let len = g.edge_len_m[e].max(1e-9);
-        let t = (s.offset_m / len).clamp(0.0, 1.0);
-        let mut out = [Endpoint::at(0); 2];
-        let part = |w: u32, frac: f64, meters: f64| {
-            (
-                (f64::from(w) * frac).round() as u32,
-                (meters * 100.0).round() as u32,
-            )
-        };
-        // Along the edge itself: origin leaves through its head, destination
-        // is entered from its tail.
-        let (node, frac, meters) = if origin {
-            (g.edge_head[e], 1.0 - t, len - s.offset_m)
-        } else {
-            (g.edge_tail[e], t, s.offset_m)
-        };
-        let (time, len_cm) = part(metric.weights[e], frac, meters);
-        out[0] = Endpoint { node, time, len_cm };
-        let twin = g.edge_twin[e];
-        if twin == NONE {
-            return (out, 1);
-        }
-        // Along the twin (reverse direction): offset from its tail is len−off.
-        let tw = twin as usize;
-        let (node, frac, meters) = if origin {
-            (g.edge_head[tw], t, s.offset_m)
-        } else {
-            (g.edge_tail[tw], 1.0 - t, len - s.offset_m)
-        };
-        let (time, len_cm) = part(metric.weights[tw], frac, meters);
-        out[1] = Endpoint { node, time, len_cm };
-        (out, 2)
-    }
-
-    /// A trip that stays on one road between the two snapped points.
-    fn direct(&self, metric: &Metric, a: Snap, b: Snap) -> Option<Direct> {
-        if a.edge != b.edge {
-            return None;
-        }
-        let g = &self.graph;
-        let e = a.edge as usize;
-        let len = g.edge_len_m[e].max(1e-9);
-        if a.offset_m <= b.offset_m {
-            let d = b.offset_m - a.offset_m;
-            return Some(Direct {
-                edge: a.edge,
-                from_m: a.offset_m,
-                to_m: b.offset_m,
-                time_ms: (f64::from(metric.weights[e]) * d / len).round(),
-                len_m: d,
-            });
-        }
-        let tw = g.edge_twin[e];
-        if tw == NONE {
-            return None;
-        }
-        let d = a.offset_m - b.offset_m;
-        Some(Direct {
-            edge: tw,
-            from_m: len - a.offset_m,
-            to_m: len - b.offset_m,
-            time_ms: (f64::from(metric.weights[tw as usize]) * d / len).round(),
-            len_m: d,
-        })
-    }
-
     /// The edge and offset (from its tail) of a snapped point seen from
     /// endpoint `side` (0: the snapped edge, 1: its twin).
     fn side(&self, s: Snap, side: usize) -> (u32, f64) {
@@ -304,13 +234,89 @@ enum Via {
     Direct(Direct),
 }
 
+/// Search starts (origin) or ends (destination) for a snapped point:
+/// endpoint 0 runs along the snapped edge, endpoint 1 along its twin.
+/// Shared with the matrix so its cells equal ETAs.
+pub(crate) fn snap_endpoints(
+    g: &RoadGraph,
+    weights: &[u32],
+    s: Snap,
+    origin: bool,
+) -> ([Endpoint; 2], usize) {
+    let e = s.edge as usize;
+    let len = g.edge_len_m[e].max(1e-9);
+    let t = (s.offset_m / len).clamp(0.0, 1.0);
+    let mut out = [Endpoint::at(0); 2];
+    let part = |w: u32, frac: f64, meters: f64| {
+        (
+            (f64::from(w) * frac).round() as u32,
+            (meters * 100.0).round() as u32,
+        )
+    };
+    // Along the edge itself: origin leaves through its head, destination
+    // is entered from its tail.
+    let (node, frac, meters) = if origin {
+        (g.edge_head[e], 1.0 - t, len - s.offset_m)
+    } else {
+        (g.edge_tail[e], t, s.offset_m)
+    };
+    let (time, len_cm) = part(weights[e], frac, meters);
+    out[0] = Endpoint { node, time, len_cm };
+    let twin = g.edge_twin[e];
+    if twin == NONE {
+        return (out, 1);
+    }
+    // Along the twin (reverse direction): offset from its tail is len−off.
+    let tw = twin as usize;
+    let (node, frac, meters) = if origin {
+        (g.edge_head[tw], t, s.offset_m)
+    } else {
+        (g.edge_tail[tw], 1.0 - t, len - s.offset_m)
+    };
+    let (time, len_cm) = part(weights[tw], frac, meters);
+    out[1] = Endpoint { node, time, len_cm };
+    (out, 2)
+}
+
+/// A trip that stays on one road between the two snapped points.
+pub(crate) fn direct_stretch(g: &RoadGraph, weights: &[u32], a: Snap, b: Snap) -> Option<Direct> {
+    if a.edge != b.edge {
+        return None;
+    }
+    let e = a.edge as usize;
+    let len = g.edge_len_m[e].max(1e-9);
+    if a.offset_m <= b.offset_m {
+        let d = b.offset_m - a.offset_m;
+        return Some(Direct {
+            edge: a.edge,
+            from_m: a.offset_m,
+            to_m: b.offset_m,
+            time_ms: (f64::from(weights[e]) * d / len).round(),
+            len_m: d,
+        });
+    }
+    let tw = g.edge_twin[e];
+    if tw == NONE {
+        return None;
+    }
+    let d = a.offset_m - b.offset_m;
+    Some(Direct {
+        edge: tw,
+        from_m: len - a.offset_m,
+        to_m: len - b.offset_m,
+        time_ms: (f64::from(weights[tw as usize]) * d / len).round(),
+        len_m: d,
+    })
+}
+
+/// A trip along a single road between two snapped points.
 #[derive(Debug, Clone, Copy, PartialEq)]
-struct Direct {
-    edge: u32,
-    from_m: f64,
-    to_m: f64,
-    time_ms: f64,
-    len_m: f64,
+pub(crate) struct Direct {
+    pub(crate) edge: u32,
+    pub(crate) from_m: f64,
+    pub(crate) to_m: f64,
+    pub(crate) time_ms: f64,
+    pub(crate) len_m: f64,
 }
 
 /// Appends the part of edge `e`'s polyline between offsets `from_m..to_m`.

@@ -34,8 +34,8 @@ use super::customize::{CustomizedMetric, PrunedArc, PrunedArcs, INFINITY};
 use super::query::{Endpoint, MAX_ENDPOINTS};
 use super::Cch;
 use crate::geo::LatLon;
-use crate::graph::{RoadGraph, NONE};
-use crate::region::{End, EtaError, Metric, Region};
+use crate::graph::NONE;
+use crate::region::{direct_stretch, snap_endpoints, End, EtaError, Metric, Region};
 use crate::snap::Snap;
 use std::time::Instant;
 
@@ -702,7 +702,7 @@ pub fn matrix(
             match s {
                 Ok(s) => {
                     compact.push(eps.len() as u32);
-                    eps.push(endpoints(g, &metric.weights, s, which == End::From));
+                    eps.push(snap_endpoints(g, &metric.weights, s, which == End::From));
                 }
                 Err(_) => compact.push(NONE),
             }
@@ -748,7 +748,10 @@ pub fn matrix(
             let graph = (t < INFINITY).then(|| (f64::from(t), node_len[ci * nt + cj] as f64));
             // Same choice as Region::eta: the graph path only when strictly
             // faster than staying on the shared road.
-            let best = match (graph, direct(g, &metric.weights, *a, *b)) {
+            let best = match (
+                graph,
+                direct_stretch(g, &metric.weights, *a, *b).map(|d| (d.time_ms, d.len_m)),
+            ) {
                 (Some(gr), Some(d)) if d.0 > gr.0 => Some(gr),
                 (Some(gr), None) => Some(gr),
                 (_, Some(d)) => Some((d.0, d.1 * 100.0)),
@@ -764,60 +767,4 @@ pub fn matrix(
         }
     }
     Ok(())
-}
-
-/// Search starts (origin) or ends (destination) for a snapped point: the
-/// same construction as the point query in `region.rs` (endpoint 0 along the
-/// snapped edge, endpoint 1 along its twin), so matrix cells equal ETAs.
-fn endpoints(g: &RoadGraph, weights: &[u32], s: Snap, origin: bool) -> ([Endpoint; 2], usize) {
-    let e = s.edge as usize;
-    let len = g.edge_len_m[e].max(1e-9);
-    let t = (s.offset_m / len).clamp(0.0, 1.0);
-    let mut out = [Endpoint::at(0); 2];
-    let part = |w: u32, frac: f64, meters: f64| {
-        (
-            (f64::from(w) * frac).round() as u32,
-            (meters * 100.0).round() as u32,
-        )
-    };
-    let (node, frac, meters) = if origin {
-        (g.edge_head[e], 1.0 - t, len - s.offset_m)
-    } else {
-        (g.edge_tail[e], t, s.offset_m)
-    };
-    let (time, len_cm) = part(weights[e], frac, meters);
-    out[0] = Endpoint { node, time, len_cm };
-    let twin = g.edge_twin[e];
-    if twin == NONE {
-        return (out, 1);
-    }
-    let tw = twin as usize;
-    let (node, frac, meters) = if origin {
-        (g.edge_head[tw], t, s.offset_m)
-    } else {
-        (g.edge_tail[tw], 1.0 - t, len - s.offset_m)
-    };
-    let (time, len_cm) = part(weights[tw], frac, meters);
-    out[1] = Endpoint { node, time, len_cm };
-    (out, 2)
-}
-
-/// A trip along one road between two points snapped onto it: (time ms,
-/// metres), as in `region.rs`.
-fn direct(g: &RoadGraph, weights: &[u32], a: Snap, b: Snap) -> Option<(f64, f64)> {
-    if a.edge != b.edge {
-        return None;
-    }
-    let e = a.edge as usize;
-    let len = g.edge_len_m[e].max(1e-9);
-    if a.offset_m <= b.offset_m {
-        let d = b.offset_m - a.offset_m;
-        return Some(((f64::from(weights[e]) * d / len).round(), d));
-    }
-    let tw = g.edge_twin[e];
-    if tw == NONE {
-        return None;
-    }
-    let d = a.offset_m - b.offset_m;
-    Some(((f64::from(weights[tw as usize]) * d / len).round(), d))
 }

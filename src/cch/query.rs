@@ -61,30 +61,45 @@ const DOWN: bool = false;
 /// recording the arc as predecessor on improvement, with a branch-free
 /// update: this loop is most of a query's time.
 #[inline(always)]
-fn relax(arcs: &[PrunedArc], d: u32, dist: &mut [u32], pred: &mut [u32]) {
+fn relax<const D: usize>(arcs: &[PrunedArc], d: u32, labels: &mut [Label]) {
     for &PrunedArc {
         head,
         weight,
         arc: a,
     } in arcs
     {
-        let y = head as usize;
+        let l = &mut labels[head as usize];
         let nd = d + weight;
-        let old = dist[y];
+        let old = l.dist[D];
         let better = nd < old;
-        dist[y] = if better { nd } else { old };
-        let p = pred[y];
-        pred[y] = if better { a } else { p };
+        l.dist[D] = if better { nd } else { old };
+        let p = l.pred[D];
+        l.pred[D] = if better { a } else { p };
     }
 }
+
+/// Forward (index 0) and backward (index 1) distance and predecessor arc of
+/// one node, side by side: a query touches each visited node's label once
+/// per relaxation, and one cache line then serves both searches.
+#[derive(Debug, Clone, Copy)]
+#[repr(C, align(16))]
+struct Label {
+    dist: [u32; 2],
+    pred: [u32; 2],
+}
+
+const FWD: usize = 0;
+const BWD: usize = 1;
+
+const EMPTY_LABEL: Label = Label {
+    dist: [INFINITY; 2],
+    pred: [NONE; 2],
+};
 
 /// Reusable query scratch for one thread.
 #[derive(Debug, Clone)]
 pub struct CchQuery {
-    fwd: Vec<u32>,
-    bwd: Vec<u32>,
-    fwd_pred: Vec<u32>,
-    bwd_pred: Vec<u32>,
+    labels: Vec<Label>,
     /// Hierarchy arcs of the last path, origin to destination, with
     /// direction (UP = tail→head).
     arc_path: Vec<(u32, bool)>,
@@ -97,10 +112,7 @@ impl CchQuery {
     pub fn new(cch: &Cch) -> Self {
         let n = cch.num_nodes();
         Self {
-            fwd: vec![INFINITY; n],
-            bwd: vec![INFINITY; n],
-            fwd_pred: vec![NONE; n],
-            bwd_pred: vec![NONE; n],
+            labels: vec![EMPTY_LABEL; n],
             arc_path: Vec::new(),
             stack: Vec::new(),
             last_visited: 0,
@@ -109,7 +121,7 @@ impl CchQuery {
 
     /// Number of nodes this scratch is sized for.
     pub fn num_nodes(&self) -> usize {
-        self.fwd.len()
+        self.labels.len()
     }
 
     /// Shortest travel time between two road nodes, if connected.
@@ -139,17 +151,19 @@ impl CchQuery {
         for (i, s) in sources.iter().enumerate() {
             let r = cch.rank[s.node as usize];
             fcur[i] = r;
-            if s.time < self.fwd[r as usize] {
-                self.fwd[r as usize] = s.time;
-                self.fwd_pred[r as usize] = NONE;
+            let l = &mut self.labels[r as usize];
+            if s.time < l.dist[FWD] {
+                l.dist[FWD] = s.time;
+                l.pred[FWD] = NONE;
             }
         }
         for (i, t) in targets.iter().enumerate() {
             let r = cch.rank[t.node as usize];
             bcur[i] = r;
-            if t.time < self.bwd[r as usize] {
-                self.bwd[r as usize] = t.time;
-                self.bwd_pred[r as usize] = NONE;
+            let l = &mut self.labels[r as usize];
+            if t.time < l.dist[BWD] {
+                l.dist[BWD] = t.time;
+                l.pred[BWD] = NONE;
             }
         }
         let (fstart, bstart) = (fcur, bcur);
@@ -169,7 +183,8 @@ impl CchQuery {
             }
             visited += 1;
             let xi = x as usize;
-            let (df, db) = (self.fwd[xi], self.bwd[xi]);
+            let p = cch.parent[xi];
+            let [df, db] = self.labels[xi].dist;
             if df < INFINITY && db < INFINITY && df + db < best {
                 best = df + db;
                 meet = x;
@@ -178,13 +193,12 @@ impl CchQuery {
             let on_b = bcur.contains(&x);
             if on_f && df < best {
                 let f = &metric.forward;
-                relax(&f.arcs[f.range(x)], df, &mut self.fwd, &mut self.fwd_pred);
+                relax::<FWD>(&f.arcs[f.range(x)], df, &mut self.labels);
             }
             if on_b && db < best {
                 let b = &metric.backward;
-                relax(&b.arcs[b.range(x)], db, &mut self.bwd, &mut self.bwd_pred);
+                relax::<BWD>(&b.arcs[b.range(x)], db, &mut self.labels);
             }
-            let p = cch.parent[xi];
             for c in fcur.iter_mut().chain(bcur.iter_mut()) {
                 if *c == x {
                     *c = p;
@@ -203,14 +217,14 @@ impl CchQuery {
         cur.iter_mut().skip(sources.len()).for_each(|c| *c = NONE);
         let mut bc = bstart;
         bc.iter_mut().skip(targets.len()).for_each(|c| *c = NONE);
-        for (chains, dist) in [(cur, &mut self.fwd), (bc, &mut self.bwd)] {
+        for chains in [cur, bc] {
             let mut c = chains;
             loop {
                 let x = c.iter().copied().min().unwrap_or(NONE);
                 if x == NONE {
                     break;
                 }
-                dist[x as usize] = INFINITY;
+                self.labels[x as usize].dist = [INFINITY; 2];
                 let p = cch.parent[x as usize];
                 for v in c.iter_mut() {
                     if *v == x {
@@ -234,8 +248,8 @@ impl CchQuery {
         self.arc_path.clear();
         let mut len: u64 = 0;
         let mut x = meet;
-        while self.fwd_pred[x as usize] != NONE {
-            let a = self.fwd_pred[x as usize];
+        while self.labels[x as usize].pred[FWD] != NONE {
+            let a = self.labels[x as usize].pred[FWD];
             self.arc_path.push((a, UP));
             len += u64::from(metric.up_len[a as usize]);
             x = cch.tail[a as usize];
@@ -243,27 +257,27 @@ impl CchQuery {
         let first = x;
         self.arc_path.reverse();
         let mut y = meet;
-        while self.bwd_pred[y as usize] != NONE {
-            let a = self.bwd_pred[y as usize];
+        while self.labels[y as usize].pred[BWD] != NONE {
+            let a = self.labels[y as usize].pred[BWD];
             self.arc_path.push((a, DOWN));
             len += u64::from(metric.down_len[a as usize]);
             y = cch.tail[a as usize];
         }
         let last = y;
         // The chain ends where the cheapest endpoint seeded it.
-        let pick = |eps: &[Endpoint], r: u32, dist: &[u32]| {
+        let pick = |eps: &[Endpoint], r: u32| {
             eps.iter()
                 .enumerate()
                 .filter(|(_, e)| cch.rank[e.node as usize] == r)
                 .min_by_key(|(_, e)| e.time)
                 .map(|(i, _)| i)
                 .unwrap_or_else(|| {
-                    debug_assert!(false, "chain must end at an endpoint ({})", dist.len());
+                    debug_assert!(false, "chain must end at an endpoint");
                     0
                 })
         };
-        let source = pick(sources, first, &self.fwd);
-        let target = pick(targets, last, &self.bwd);
+        let source = pick(sources, first);
+        let target = pick(targets, last);
         len += u64::from(sources[source].len_cm) + u64::from(targets[target].len_cm);
         PathResult {
             time: best,

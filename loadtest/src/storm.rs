@@ -1,0 +1,190 @@
+//! Admin traffic that runs beside a query load: live observations POSTed
+//! on a fixed schedule (every 100 ms in the reload storm), historical
+//! tables PUT every few seconds, or one batch of observations stamped far in
+//! the past (the stale feed). Each stream keeps its own schedule on its own
+//! task; a call slower than its interval makes the next one late (counted),
+//! never skipped. Bounded by the same deadline as the query run.
+
+use crate::server::call;
+use crate::workload::EdgeRef;
+use bytes::Bytes;
+use chrono::{SecondsFormat, Utc};
+use hdrhistogram::Histogram;
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use serde::Serialize;
+use std::collections::BTreeMap;
+use std::fmt::Write as _;
+use std::net::SocketAddr;
+use std::sync::Arc;
+use std::time::{Duration, Instant};
+
+/// Where and how to send admin traffic.
+#[derive(Debug, Clone)]
+pub struct Feed {
+    pub admin: SocketAddr,
+    pub token: String,
+    pub region: String,
+    pub edges: Arc<Vec<EdgeRef>>,
+    /// Observations per live batch.
+    pub live_batch: usize,
+    /// Age stamped on observations (zero: "now").
+    pub observed_ago: Duration,
+    pub seed: u64,
+}
+
+/// What one admin stream did.
+#[derive(Debug, Clone, Serialize, Default)]
+pub struct StreamReport {
+    pub calls: u64,
+    pub accepted: u64,
+    /// Failure kind (`http_422`, `error`) → count.
+    pub failed: BTreeMap<String, u64>,
+    pub p50_ms: f64,
+    pub p99_ms: f64,
+    pub max_ms: f64,
+    /// Calls that started more than one interval late.
+    pub late: u64,
+    pub body_kb: f64,
+}
+
+fn observations(feed: &Feed, rng: &mut ChaCha8Rng) -> Bytes {
+    let at = (Utc::now() - chrono::Duration::from_std(feed.observed_ago).unwrap_or_default())
+        .to_rfc3339_opts(SecondsFormat::Millis, true);
+    let mut s = String::with_capacity(feed.live_batch * 110);
+    s.push('[');
+    for i in 0..feed.live_batch {
+        let e = &feed.edges[rng.random_range(0..feed.edges.len())];
+        let f = 0.3 + 0.7 * rng.random::<f64>();
+        if i > 0 {
+            s.push(',');
+        }
+        let _ = write!(
+            s,
+            r#"{{"from_node":{},"to_node":{},"speed_kmh":{:.1},"observed_at":"{at}","samples":{}}}"#,
+            e.from_node,
+            e.to_node,
+            (e.free_kmh as f64 * f).max(1.0),
+            1 + rng.random_range(0..5)
+        );
+    }
+    s.push(']');
+    Bytes::from(s)
+}
+
+/// A historical table for `n` random edges over the hours just before, at
+/// and after `now` in `tz`, at `factor` × free-flow.
+pub fn historical_table(edges: &[EdgeRef], n: usize, factor: f64, tz: chrono_tz::Tz, seed: u64) -> Bytes {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    let h = hodos::speeds::hour_of_week(Utc::now(), tz) as u32;
+    let hours = [(h + 167) % 168, h, (h + 1) % 168];
+    let mut s = String::from("from_node,to_node,hour_of_week,speed_kmh\n");
+    for _ in 0..n {
+        let e = &edges[rng.random_range(0..edges.len())];
+        for hr in hours {
+            let _ = writeln!(
+                s,
+                "{},{},{hr},{:.1}",
+                e.from_node,
+                e.to_node,
+                (e.free_kmh as f64 * factor).max(1.0)
+            );
+        }
+    }
+    Bytes::from(s)
+}
+
+fn finish(mut r: StreamReport, h: &Histogram<u64>) -> StreamReport {
+    if !h.is_empty() {
+        r.p50_ms = h.value_at_quantile(0.5) as f64 / 1000.0;
+        r.p99_ms = h.value_at_quantile(0.99) as f64 / 1000.0;
+        r.max_ms = h.max() as f64 / 1000.0;
+    }
+    r
+}
+
+async fn one_call(
+    addr: SocketAddr,
+    method: &str,
+    path: &str,
+    token: &str,
+    ct: &str,
+    body: Bytes,
+    r: &mut StreamReport,
+    h: &mut Histogram<u64>,
+) {
+    let t = Instant::now();
+    r.calls += 1;
+    match call(addr, method, path, Some(token), ct, body, Duration::from_secs(30)).await {
+        Ok((200, _)) => {
+            r.accepted += 1;
+            h.saturating_record((t.elapsed().as_micros() as u64).max(1));
+        }
+        Ok((code, _)) => *r.failed.entry(format!("http_{code}")).or_default() += 1,
+        Err(_) => *r.failed.entry("error".into()).or_default() += 1,
+    }
+}
+
+fn hist() -> Histogram<u64> {
+    Histogram::new_with_bounds(1, 600_000_000, 3).expect("static bounds")
+}
+
+/// Posts a live batch every `every` until `until`.
+pub async fn live_stream(feed: Feed, every: Duration, until: Instant) -> StreamReport {
+    let mut rng = ChaCha8Rng::seed_from_u64(feed.seed);
+    let path = format!("/admin/regions/{}/live", feed.region);
+    let (mut r, mut h) = (StreamReport::default(), hist());
+    let start = Instant::now();
+    let mut k = 0u32;
+    let mut bytes = 0usize;
+    loop {
+        let at = start + every * k;
+        if at >= until {
+            break;
+        }
+        tokio::time::sleep_until(at.into()).await;
+        if Instant::now().saturating_duration_since(at) > every {
+            r.late += 1;
+        }
+        let body = observations(&feed, &mut rng);
+        bytes = body.len();
+        one_call(feed.admin, "POST", &path, &feed.token, "application/json", body, &mut r, &mut h).await;
+        k += 1;
+    }
+    r.body_kb = bytes as f64 / 1024.0;
+    finish(r, &h)
+}
+
+/// PUTs the tables in turn every `every` until `until`.
+pub async fn table_stream(feed: Feed, tables: Vec<Bytes>, every: Duration, until: Instant) -> StreamReport {
+    let path = format!("/admin/regions/{}/historical", feed.region);
+    let (mut r, mut h) = (StreamReport::default(), hist());
+    r.body_kb = tables.first().map(|t| t.len()).unwrap_or(0) as f64 / 1024.0;
+    let start = Instant::now();
+    let mut k = 0u32;
+    loop {
+        let at = start + every * k;
+        if at >= until || tables.is_empty() {
+            break;
+        }
+        tokio::time::sleep_until(at.into()).await;
+        if Instant::now().saturating_duration_since(at) > every {
+            r.late += 1;
+        }
+        let body = tables[k as usize % tables.len()].clone();
+        one_call(feed.admin, "PUT", &path, &feed.token, "text/csv", body, &mut r, &mut h).await;
+        k += 1;
+    }
+    finish(r, &h)
+}
+
+/// Posts one batch (e.g. stale observations) and returns the report.
+pub async fn post_once(feed: &Feed) -> StreamReport {
+    let mut rng = ChaCha8Rng::seed_from_u64(feed.seed);
+    let path = format!("/admin/regions/{}/live", feed.region);
+    let (mut r, mut h) = (StreamReport::default(), hist());
+    let body = observations(feed, &mut rng);
+    r.body_kb = body.len() as f64 / 1024.0;
+    one_call(feed.admin, "POST", &path, &feed.token, "application/json", body, &mut r, &mut h).await;
+    finish(r, &h)
+}
