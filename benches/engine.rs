@@ -6,6 +6,8 @@
 //! 300,000-node synthetic city when the data is absent. Goals are in
 //! BENCHMARKS.md; nothing here asserts a speed.
 
+mod common;
+
 use criterion::{criterion_group, criterion_main, BatchSize, Criterion};
 use hodos::artifact::Artifact;
 use hodos::build::{build_from_graph, Quiet};
@@ -30,28 +32,7 @@ struct Fixture {
 fn fixture() -> &'static Fixture {
     static F: OnceLock<Fixture> = OnceLock::new();
     F.get_or_init(|| {
-        let data = std::env::var("HODOS_DATA_DIR")
-            .map(PathBuf::from)
-            .unwrap_or_else(|_| PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../shared/data"));
-        let (gr, co) = (
-            data.join("dimacs/USA-road-d.NY.gr.gz"),
-            data.join("dimacs/USA-road-d.NY.co.gz"),
-        );
-        let (name, raw) = if gr.exists() && co.exists() {
-            (
-                "USA-road-d.NY".to_string(),
-                hodos::import::dimacs::read(&gr, &co).expect("NY"),
-            )
-        } else {
-            eprintln!(
-                "NOTE: DIMACS NY not found under {}; benchmarking a 300,000-node synthetic city",
-                data.display()
-            );
-            (
-                "synthetic-300k".to_string(),
-                hodos::import::synthetic::generate(300_000, 1),
-            )
-        };
+        let (name, raw) = common::bench_graph();
         let (raw, _) = raw.keep_largest_scc();
         let art = build_from_graph(name.clone(), raw.clone(), 0.0, &mut Quiet).expect("build");
         let dir = tempfile::tempdir().expect("tempdir");

@@ -6,35 +6,19 @@
 //! Not a criterion bench: each sample includes a re-customization that the
 //! server schedules itself.
 
+mod common;
+
 use hodos::build::{build_from_graph, Quiet};
 use hodos::service::{bind, serve, AppState};
 use serde_json::{json, Value};
-use std::path::PathBuf;
 use std::time::{Duration, Instant};
 
 fn main() {
     if std::env::args().any(|a| a == "--list") {
         return;
     }
-    let data = std::env::var("HODOS_DATA_DIR")
-        .map(PathBuf::from)
-        .unwrap_or_else(|_| PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../shared/data"));
-    let (gr, co) = (
-        data.join("dimacs/USA-road-d.NY.gr.gz"),
-        data.join("dimacs/USA-road-d.NY.co.gz"),
-    );
-    let (name, raw) = if gr.exists() && co.exists() {
-        (
-            "USA-road-d.NY",
-            hodos::import::dimacs::read(&gr, &co).expect("NY"),
-        )
-    } else {
-        (
-            "synthetic-300k",
-            hodos::import::synthetic::generate(300_000, 1),
-        )
-    };
-    let art = build_from_graph(name.into(), raw, 0.0, &mut Quiet).expect("build");
+    let (name, raw) = common::bench_graph();
+    let art = build_from_graph(name.clone(), raw, 0.0, &mut Quiet).expect("build");
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("live.hodos");
     art.save(&path).unwrap();

@@ -8,6 +8,8 @@
 //! Goals (BENCHMARKS.md): 100×100 ≤ 10 ms, 1000×1000 ≤ 500 ms; nothing here
 //! asserts a speed.
 
+mod common;
+
 use criterion::{criterion_group, criterion_main, Criterion};
 use hodos::build::{build_from_graph, Quiet};
 use hodos::cch::matrix::{matrix, ManyToMany, PointMatrix};
@@ -15,7 +17,6 @@ use hodos::cch::CchQuery;
 use hodos::geo::LatLon;
 use hodos::region::Region;
 use std::hint::black_box;
-use std::path::PathBuf;
 use std::sync::OnceLock;
 
 struct Fixture {
@@ -26,28 +27,7 @@ struct Fixture {
 fn fixture() -> &'static Fixture {
     static F: OnceLock<Fixture> = OnceLock::new();
     F.get_or_init(|| {
-        let data = std::env::var("HODOS_DATA_DIR")
-            .map(PathBuf::from)
-            .unwrap_or_else(|_| PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../shared/data"));
-        let (gr, co) = (
-            data.join("dimacs/USA-road-d.NY.gr.gz"),
-            data.join("dimacs/USA-road-d.NY.co.gz"),
-        );
-        let (name, raw) = if gr.exists() && co.exists() {
-            (
-                "USA-road-d.NY".to_string(),
-                hodos::import::dimacs::read(&gr, &co).expect("NY"),
-            )
-        } else {
-            eprintln!(
-                "NOTE: DIMACS NY not found under {}; benchmarking a 300,000-node synthetic city",
-                data.display()
-            );
-            (
-                "synthetic-300k".to_string(),
-                hodos::import::synthetic::generate(300_000, 1),
-            )
-        };
+        let (name, raw) = common::bench_graph();
         let art = build_from_graph(name.clone(), raw, 0.0, &mut Quiet).expect("build");
         eprintln!(
             "graph {name}: {} nodes, {} edges, {} arcs, tree depth {}",
