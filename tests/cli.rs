@@ -157,3 +157,34 @@ fn bad_inputs_exit_non_zero_naming_the_file() {
     let (ok, _, err) = hodos(&["eta", out, "--from", "95,1", "--to", "2,2"]);
     assert!(!ok && err.contains("out of range"), "{err}");
 }
+
+#[test]
+fn serve_strict_refuses_a_broken_region() {
+    let dir = tempfile::tempdir().unwrap();
+    let broken = dir.path().join("broken.hodos");
+    std::fs::write(&broken, b"HODOSRG\x01 but nothing else").unwrap();
+    let cfg = dir.path().join("hodos.toml");
+    std::fs::write(
+        &cfg,
+        format!(
+            "[server]\nlisten = \"127.0.0.1:0\"\n[admin]\nlisten = \"127.0.0.1:0\"\n[[region]]\nname = \"r\"\nartifact = \"{}\"\nstate_dir = \"{}\"\ncoverage = {{ bbox = [1, 1, 2, 2] }}\n",
+            broken.display(),
+            dir.path().join("state").display()
+        ),
+    )
+    .unwrap();
+    let (ok, _, err) = hodos(&["serve", "--config", cfg.to_str().unwrap(), "--strict"]);
+    assert!(!ok);
+    assert!(
+        err.contains("--strict") && err.contains("broken.hodos"),
+        "{err}"
+    );
+    // A configuration error names the file and the key.
+    let bad = dir.path().join("bad.toml");
+    std::fs::write(&bad, "[query]\nmax_budget_ms = 0\n").unwrap();
+    let (ok, _, err) = hodos(&["serve", "--config", bad.to_str().unwrap()]);
+    assert!(
+        !ok && err.contains("bad.toml") && err.contains("budget"),
+        "{err}"
+    );
+}

@@ -802,3 +802,41 @@ async fn metrics_geojson_and_openapi_parse_with_outside_tools() {
         Err(e) => eprintln!("SKIPPED: python3 not runnable: {e}"),
     }
 }
+
+#[tokio::test]
+async fn watched_directory_applies_and_marks_files() {
+    let dir = tempfile::tempdir().unwrap();
+    let incoming = dir.path().join("incoming");
+    std::fs::create_dir_all(&incoming).unwrap();
+    let mut cfg = config(dir.path(), "");
+    cfg.regions[0].live_dir = Some(incoming.clone());
+    let st = AppState::open(cfg).await;
+    let region = st.catalog.regions[0].clone();
+    let now = chrono::Utc::now().to_rfc3339();
+    let mut good = String::from("from_node,to_node,speed_kmh,observed_at,samples\n");
+    for (f, t) in city().edges.iter().take(40) {
+        good.push_str(&format!("{f},{t},15,{now},2\n"));
+    }
+    std::fs::write(incoming.join("001-good.csv"), &good).unwrap();
+    // Every row refers to an edge that does not exist: rejected whole.
+    std::fs::write(
+        incoming.join("002-bad.csv"),
+        format!(
+            "from_node,to_node,speed_kmh,observed_at,samples\n999999991,999999992,15,{now},1\n"
+        ),
+    )
+    .unwrap();
+    std::fs::write(incoming.join("notes.txt"), "ignored").unwrap();
+    region.scan_live_dir().await;
+    assert!(incoming.join("001-good.done").exists());
+    assert!(incoming.join("002-bad.rejected").exists());
+    assert!(
+        incoming.join("notes.txt").exists(),
+        "only .csv files are taken"
+    );
+    let st = region.status();
+    let last = st.last_live_batch.expect("a live batch was recorded");
+    assert_eq!(last.outcome, "rejected");
+    region.refresh_live(true).await;
+    assert_eq!(region.status().live_edges, 40);
+}
