@@ -103,27 +103,29 @@ impl Baseline {
             .route("/v1/route", post(route))
             .route("/v1/eta/matrix", post(matrix))
             .with_state(Limits { max_cells: 250_000 });
-        let thread = std::thread::Builder::new().name("baseline-main".into()).spawn(move || {
-            rt.block_on(async move {
-                let Ok(listener) = tokio::net::TcpListener::from_std(std_listener) else {
-                    return;
-                };
-                let (gtx, grx) = tokio::sync::oneshot::channel::<()>();
-                let srv = tokio::spawn(async move {
-                    let _ = axum::serve(listener, app)
-                        .with_graceful_shutdown(async move {
-                            let _ = grx.await;
-                        })
-                        .await;
+        let thread = std::thread::Builder::new()
+            .name("baseline-main".into())
+            .spawn(move || {
+                rt.block_on(async move {
+                    let Ok(listener) = tokio::net::TcpListener::from_std(std_listener) else {
+                        return;
+                    };
+                    let (gtx, grx) = tokio::sync::oneshot::channel::<()>();
+                    let srv = tokio::spawn(async move {
+                        let _ = axum::serve(listener, app)
+                            .with_graceful_shutdown(async move {
+                                let _ = grx.await;
+                            })
+                            .await;
+                    });
+                    let _ = rx.await;
+                    let _ = gtx.send(());
+                    // Idle keep-alive connections could hold a graceful
+                    // shutdown open; three seconds is plenty for real work.
+                    let _ = tokio::time::timeout(std::time::Duration::from_secs(3), srv).await;
                 });
-                let _ = rx.await;
-                let _ = gtx.send(());
-                // Idle keep-alive connections could hold a graceful
-                // shutdown open; three seconds is plenty for real work.
-                let _ = tokio::time::timeout(std::time::Duration::from_secs(3), srv).await;
-            });
-            rt.shutdown_timeout(std::time::Duration::from_secs(2));
-        })?;
+                rt.shutdown_timeout(std::time::Duration::from_secs(2));
+            })?;
         Ok(Baseline {
             addr,
             stop: Some(tx),

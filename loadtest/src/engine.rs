@@ -74,10 +74,13 @@ pub struct Outcome {
 type Sender = SendRequest<Full<Bytes>>;
 
 async fn connect(target: SocketAddr) -> Result<Sender, String> {
-    let stream = tokio::time::timeout(Duration::from_secs(2), tokio::net::TcpStream::connect(target))
-        .await
-        .map_err(|_| "connect timed out".to_string())?
-        .map_err(|e| e.to_string())?;
+    let stream = tokio::time::timeout(
+        Duration::from_secs(2),
+        tokio::net::TcpStream::connect(target),
+    )
+    .await
+    .map_err(|_| "connect timed out".to_string())?
+    .map_err(|e| e.to_string())?;
     let _ = stream.set_nodelay(true);
     let (sender, conn) = hyper::client::conn::http1::handshake(TokioIo::new(stream))
         .await
@@ -89,7 +92,11 @@ async fn connect(target: SocketAddr) -> Result<Sender, String> {
 }
 
 /// A usable connection: the held one if it is still open, else a new one.
-async fn ensure(conn: &mut Option<Sender>, target: SocketAddr, reconnects: &mut u64) -> Result<(), String> {
+async fn ensure(
+    conn: &mut Option<Sender>,
+    target: SocketAddr,
+    reconnects: &mut u64,
+) -> Result<(), String> {
     if let Some(s) = conn.as_mut() {
         if !s.is_closed() && s.ready().await.is_ok() {
             return Ok(());
@@ -101,7 +108,10 @@ async fn ensure(conn: &mut Option<Sender>, target: SocketAddr, reconnects: &mut 
     Ok(())
 }
 
-async fn exchange(sender: &mut Sender, req: hyper::Request<Full<Bytes>>) -> Result<(u16, Bytes), hyper::Error> {
+async fn exchange(
+    sender: &mut Sender,
+    req: hyper::Request<Full<Bytes>>,
+) -> Result<(u16, Bytes), hyper::Error> {
     let resp = sender.send_request(req).await?;
     let status = resp.status().as_u16();
     let body = resp.into_body().collect().await?.to_bytes();
@@ -142,7 +152,9 @@ async fn connection_task(
         }
         let body = bodies[(ticket.seq % bodies.len() as u64) as usize].clone();
         let req = request(workload.kind, &host, body);
-        let left = hard_end.saturating_duration_since(Instant::now()).max(Duration::from_millis(1));
+        let left = hard_end
+            .saturating_duration_since(Instant::now())
+            .max(Duration::from_millis(1));
         let result = {
             let s = conn.as_mut().expect("ensured above");
             tokio::time::timeout(timeout.min(left), exchange(s, req)).await
@@ -163,7 +175,10 @@ async fn connection_task(
                 if status != 200 {
                     t.error(&format!("http_{status}"));
                 } else if t.answer(&body).is_ok() {
-                    t.ok_at(ticket.at.saturating_duration_since(start), done.saturating_duration_since(ticket.at));
+                    t.ok_at(
+                        ticket.at.saturating_duration_since(start),
+                        done.saturating_duration_since(ticket.at),
+                    );
                     t.last_done = Some(t.last_done.map(|d: Instant| d.max(done)).unwrap_or(done));
                 } else {
                     t.error("bad_body");
@@ -176,7 +191,13 @@ async fn connection_task(
 
 /// Releases tickets on time; returns how late each one went (µs) and how
 /// many were released.
-fn pace(tx: async_channel::Sender<Ticket>, start: Instant, rate: f64, count: u64, end: Instant) -> (Histogram<u64>, u64) {
+fn pace(
+    tx: async_channel::Sender<Ticket>,
+    start: Instant,
+    rate: f64,
+    count: u64,
+    end: Instant,
+) -> (Histogram<u64>, u64) {
     // A 1 µs timer slack instead of Linux's default 50 µs lets short sleeps
     // end on time (prctl(2), PR_SET_TIMERSLACK; this thread only).
     // SAFETY: prctl with PR_SET_TIMERSLACK takes a plain integer argument
@@ -274,5 +295,105 @@ pub async fn run(plan: &Plan) -> Outcome {
         tally,
         pacer_late,
         elapsed,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use axum::routing::post;
+    use std::sync::atomic::{AtomicBool, Ordering};
+
+    fn workload() -> Workload {
+        let body = Bytes::from_static(br#"{"from":{"lat":1,"lon":2},"to":{"lat":1.01,"lon":2}}"#);
+        Workload {
+            kind: Kind::Eta,
+            bodies: Arc::new(vec![body]),
+            lengths_km: vec![1.1],
+        }
+    }
+
+    /// A server that stalls its first answer for `stall`, then answers at once.
+    async fn stalling_server(stall: Duration) -> SocketAddr {
+        let first = Arc::new(AtomicBool::new(true));
+        let app = axum::Router::new().route(
+            "/v1/eta",
+            post(move || {
+                let first = first.clone();
+                async move {
+                    if first.swap(false, Ordering::SeqCst) {
+                        tokio::time::sleep(stall).await;
+                    }
+                    r#"{"eta_s":60.0,"tier":"historical","fallback_reason":"no_live_data"}"#
+                }
+            }),
+        );
+        let l = tokio::net::TcpListener::bind("127.0.0.1:0").await.unwrap();
+        let addr = l.local_addr().unwrap();
+        tokio::spawn(async move { axum::serve(l, app).await.unwrap() });
+        addr
+    }
+
+    fn plan(target: SocketAddr, rate: f64, secs: f64, connections: usize) -> Plan {
+        Plan {
+            scenario: "test".into(),
+            system: "test".into(),
+            target,
+            workload: workload(),
+            rate,
+            duration: Duration::from_secs_f64(secs),
+            max_requests: 10_000,
+            connections,
+            request_timeout: Duration::from_secs(5),
+            drain: Duration::from_secs(3),
+        }
+    }
+
+    // The defining property of an open-loop generator (Tene, 2015): a stall
+    // shows up in the latency of every request scheduled during it, not in
+    // one request only. 100 req/s on one connection, a 300 ms stall: the
+    // ~30 requests scheduled during the stall queue behind it, so many
+    // latencies exceed 100 ms. A closed loop timing from the actual send
+    // would report one slow request.
+    #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+    async fn a_stall_is_charged_to_every_request_scheduled_during_it() {
+        let addr = stalling_server(Duration::from_millis(300)).await;
+        let out = run(&plan(addr, 100.0, 1.0, 1)).await;
+        assert_eq!(out.tally.ok, out.scheduled, "{:?}", out.tally.errors);
+        let slow = out
+            .tally
+            .samples
+            .iter()
+            .filter(|(_, l)| *l > 100_000)
+            .count();
+        assert!(slow >= 15, "only {slow} requests over 100 ms");
+        assert!(out.tally.hist.max() >= 290_000);
+    }
+
+    #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+    async fn bounded_by_count_and_duration() {
+        let addr = stalling_server(Duration::ZERO).await;
+        let mut p = plan(addr, 500.0, 0.5, 4);
+        p.max_requests = 40;
+        let out = run(&p).await;
+        assert_eq!(out.scheduled, 40, "the count bound holds");
+        assert_eq!(out.tally.ok, 40);
+        let out = run(&plan(addr, 200.0, 0.5, 4)).await;
+        assert_eq!(out.scheduled, 100, "the duration bound holds");
+    }
+
+    #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+    async fn refused_connections_count_as_connect_errors() {
+        // A port that was free a moment ago: nothing listens there.
+        let addr = {
+            let l = std::net::TcpListener::bind("127.0.0.1:0").unwrap();
+            l.local_addr().unwrap()
+        };
+        let out = run(&plan(addr, 100.0, 0.2, 2)).await;
+        assert_eq!(out.tally.ok, 0);
+        assert_eq!(
+            out.tally.errors.get("connect").copied().unwrap_or(0),
+            out.scheduled
+        );
     }
 }

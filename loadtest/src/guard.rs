@@ -30,7 +30,13 @@ pub enum TargetError {
 pub fn is_loopback(ip: IpAddr) -> bool {
     match ip {
         IpAddr::V4(v4) => v4.is_loopback(),
-        IpAddr::V6(v6) => v6.is_loopback() || v6.to_ipv4_mapped().map(|v4| v4.is_loopback()).unwrap_or(false),
+        IpAddr::V6(v6) => {
+            v6.is_loopback()
+                || v6
+                    .to_ipv4_mapped()
+                    .map(|v4| v4.is_loopback())
+                    .unwrap_or(false)
+        }
     }
 }
 
@@ -50,9 +56,18 @@ pub fn check_addr(given: &str, addr: SocketAddr) -> Result<SocketAddr, TargetErr
 /// address is loopback.
 pub async fn resolve_loopback(given: &str) -> Result<SocketAddr, TargetError> {
     let given = given.trim();
-    let trimmed = given.strip_prefix("http://").unwrap_or(given).trim_end_matches('/');
-    if trimmed.rsplit_once(':').map(|(h, p)| h.is_empty() || p.parse::<u16>().is_err()).unwrap_or(true) {
-        return Err(TargetError::Syntax { given: given.to_string() });
+    let trimmed = given
+        .strip_prefix("http://")
+        .unwrap_or(given)
+        .trim_end_matches('/');
+    if trimmed
+        .rsplit_once(':')
+        .map(|(h, p)| h.is_empty() || p.parse::<u16>().is_err())
+        .unwrap_or(true)
+    {
+        return Err(TargetError::Syntax {
+            given: given.to_string(),
+        });
     }
     let addrs: Vec<SocketAddr> = tokio::net::lookup_host(trimmed)
         .await
@@ -62,7 +77,9 @@ pub async fn resolve_loopback(given: &str) -> Result<SocketAddr, TargetError> {
         })?
         .collect();
     if addrs.is_empty() {
-        return Err(TargetError::Empty { given: given.to_string() });
+        return Err(TargetError::Empty {
+            given: given.to_string(),
+        });
     }
     for a in &addrs {
         check_addr(given, *a)?;
@@ -81,7 +98,15 @@ mod tests {
         for ok in ["127.0.0.1", "127.255.0.9", "::1", "::ffff:127.0.0.1"] {
             assert!(is_loopback(ok.parse().unwrap()), "{ok}");
         }
-        for bad in ["10.0.0.1", "192.168.1.1", "172.16.0.1", "8.8.8.8", "0.0.0.0", "::", "::ffff:10.0.0.1"] {
+        for bad in [
+            "10.0.0.1",
+            "192.168.1.1",
+            "172.16.0.1",
+            "8.8.8.8",
+            "0.0.0.0",
+            "::",
+            "::ffff:10.0.0.1",
+        ] {
             assert!(!is_loopback(bad.parse().unwrap()), "{bad}");
         }
     }
@@ -99,8 +124,14 @@ mod tests {
             resolve_loopback("0.0.0.0:80").await,
             Err(TargetError::NotLoopback { .. })
         ));
-        assert!(matches!(resolve_loopback("127.0.0.1").await, Err(TargetError::Syntax { .. })));
-        assert!(matches!(resolve_loopback(":80").await, Err(TargetError::Syntax { .. })));
+        assert!(matches!(
+            resolve_loopback("127.0.0.1").await,
+            Err(TargetError::Syntax { .. })
+        ));
+        assert!(matches!(
+            resolve_loopback(":80").await,
+            Err(TargetError::Syntax { .. })
+        ));
     }
 
     #[tokio::test]
@@ -110,7 +141,10 @@ mod tests {
         // the right answer too.
         match resolve_loopback("localhost:8080").await {
             Ok(a) => assert!(is_loopback(a.ip())),
-            Err(e) => assert!(matches!(e, TargetError::NotLoopback { .. } | TargetError::Resolve { .. })),
+            Err(e) => assert!(matches!(
+                e,
+                TargetError::NotLoopback { .. } | TargetError::Resolve { .. }
+            )),
         }
     }
 }

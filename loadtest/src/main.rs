@@ -231,6 +231,10 @@ struct LoadArgs {
     /// leaves the most CPU to the server).
     #[arg(long, default_value_t = 1)]
     generator_threads: usize,
+    /// Before measuring, wait up to this many seconds for the machine to be
+    /// quiet (other work under 0.25 cores over 3 s).
+    #[arg(long, default_value_t = 120)]
+    wait_quiet_s: u64,
     /// The whole command is stopped after this many seconds, whatever it is
     /// doing (a started server is stopped too).
     #[arg(long, default_value_t = 1800)]
@@ -292,9 +296,14 @@ fn main() -> ExitCode {
     };
     watchdog(wall);
     let built = if threads <= 1 {
-        tokio::runtime::Builder::new_current_thread().enable_all().build()
+        tokio::runtime::Builder::new_current_thread()
+            .enable_all()
+            .build()
     } else {
-        tokio::runtime::Builder::new_multi_thread().worker_threads(threads).enable_all().build()
+        tokio::runtime::Builder::new_multi_thread()
+            .worker_threads(threads)
+            .enable_all()
+            .build()
     };
     let rt = match built {
         Ok(r) => r,
@@ -329,7 +338,18 @@ fn main() -> ExitCode {
                 per_second,
                 seconds,
                 out,
-            } => cmd_smoke(target, admin, admin_token, artifact, per_second, seconds, out).await,
+            } => {
+                cmd_smoke(
+                    target,
+                    admin,
+                    admin_token,
+                    artifact,
+                    per_second,
+                    seconds,
+                    out,
+                )
+                .await
+            }
         }
     });
     match result {
@@ -368,7 +388,8 @@ fn draw(g: &hodos::graph::RoadGraph, seed: u64, scale: usize) -> Drawn {
 }
 
 fn draw_from(path: &Path, seed: u64) -> anyhow::Result<Drawn> {
-    let art = hodos::artifact::Artifact::load(path).with_context(|| format!("loading {}", path.display()))?;
+    let art = hodos::artifact::Artifact::load(path)
+        .with_context(|| format!("loading {}", path.display()))?;
     Ok(draw(&art.graph, seed, 1))
 }
 
@@ -380,11 +401,31 @@ enum Held {
 }
 
 async fn open_server(a: &ServerArgs, d: &Drawn, out: &Path) -> anyhow::Result<(ServerInfo, Held)> {
-    let env_token = std::env::var(hodos::config::ADMIN_TOKEN_ENV).ok().filter(|t| !t.is_empty());
+    let env_token = std::env::var(hodos::config::ADMIN_TOKEN_ENV)
+        .ok()
+        .filter(|t| !t.is_empty());
     if let Some(bin) = &a.hodos_bin {
-        eprintln!("starting {} serve (loading {}) ...", bin.display(), a.artifact.display());
-        let s = server::spawn_external(bin, &a.artifact, d.lo, d.hi, &a.time_zone, a.live_ttl_s, out).await?;
-        eprintln!("server pid {} on {} (config {})", s.child_id(), s.info.public, s.config_path.display());
+        eprintln!(
+            "starting {} serve (loading {}) ...",
+            bin.display(),
+            a.artifact.display()
+        );
+        let s = server::spawn_external(
+            bin,
+            &a.artifact,
+            d.lo,
+            d.hi,
+            &a.time_zone,
+            a.live_ttl_s,
+            out,
+        )
+        .await?;
+        eprintln!(
+            "server pid {} on {} (config {})",
+            s.child_id(),
+            s.info.public,
+            s.config_path.display()
+        );
         return Ok((s.info.clone(), Held::Spawned(s)));
     }
     if a.in_process {
@@ -403,12 +444,15 @@ async fn open_server(a: &ServerArgs, d: &Drawn, out: &Path) -> anyhow::Result<(S
         );
         let mut cfg = hodos::config::Config::parse(&text).map_err(anyhow::Error::msg)?;
         cfg.admin.token = token.clone();
-        cfg.validate().map_err(|(k, m)| anyhow::anyhow!("{k}: {m}"))?;
+        cfg.validate()
+            .map_err(|(k, m)| anyhow::anyhow!("{k}: {m}"))?;
         let p = server::start_in_process(cfg, token).await?;
         return Ok((p.info.clone(), Held::InProcess(p)));
     }
     let Some(t) = &a.target else {
-        bail!("say which server: --hodos-bin PATH (preferred), --in-process, or --target HOST:PORT");
+        bail!(
+            "say which server: --hodos-bin PATH (preferred), --in-process, or --target HOST:PORT"
+        );
     };
     let public = guard::resolve_loopback(t).await?;
     let admin = match &a.admin {
@@ -465,7 +509,11 @@ fn environment(start_load: f64) -> Environment {
         .and_then(|s| {
             s.lines()
                 .find(|l| l.starts_with("MemTotal:"))
-                .and_then(|l| l.split_whitespace().nth(1).and_then(|v| v.parse::<f64>().ok()))
+                .and_then(|l| {
+                    l.split_whitespace()
+                        .nth(1)
+                        .and_then(|v| v.parse::<f64>().ok())
+                })
         })
         .unwrap_or(0.0)
         / 1024.0
@@ -474,7 +522,9 @@ fn environment(start_load: f64) -> Environment {
         date_utc: chrono::Utc::now().to_rfc3339_opts(chrono::SecondsFormat::Secs, true),
         command: std::env::args().collect(),
         cpu,
-        cores: std::thread::available_parallelism().map(|n| n.get()).unwrap_or(0),
+        cores: std::thread::available_parallelism()
+            .map(|n| n.get())
+            .unwrap_or(0),
         memory_gb: mem,
         loadavg_1m_start: start_load,
         loadavg_1m_end: server::loadavg_1m(),
@@ -521,7 +571,12 @@ fn write_outputs(ctx: &Ctx, start_load: f64, out: &Path) -> anyhow::Result<()> {
     let lines: Vec<(String, Vec<(f64, f64)>)> = ctx
         .runs
         .iter()
-        .map(|s| (format!("{} {} {:.0}/s", s.system, s.scenario, s.target_rate), s.curve.clone()))
+        .map(|s| {
+            (
+                format!("{} {} {:.0}/s", s.system, s.scenario, s.target_rate),
+                s.curve.clone(),
+            )
+        })
         .collect();
     plot::percentiles(
         &out.join("latency-percentiles.svg"),
@@ -530,14 +585,26 @@ fn write_outputs(ctx: &Ctx, start_load: f64, out: &Path) -> anyhow::Result<()> {
     )
     .map_err(anyhow::Error::msg)?;
     for s in &ctx.runs {
-        let name = format!("timeline-{}-{}.svg", s.system, s.scenario.replace(['@', '/'], "_"));
+        let name = format!(
+            "timeline-{}-{}.svg",
+            s.system,
+            s.scenario.replace(['@', '/'], "_")
+        );
         plot::timeline(&out.join(name), s).map_err(anyhow::Error::msg)?;
     }
-    eprintln!("wrote {}, table.txt and SVG plots in {}", json.display(), out.display());
+    eprintln!(
+        "wrote {}, table.txt and SVG plots in {}",
+        json.display(),
+        out.display()
+    );
     Ok(())
 }
 
-async fn make_ctx(sa: &ServerArgs, la: &LoadArgs, need_baseline: bool) -> anyhow::Result<(Ctx, Held)> {
+async fn make_ctx(
+    sa: &ServerArgs,
+    la: &LoadArgs,
+    need_baseline: bool,
+) -> anyhow::Result<(Ctx, Held)> {
     let tz: chrono_tz::Tz = sa
         .time_zone
         .parse()
@@ -557,7 +624,15 @@ async fn make_ctx(sa: &ServerArgs, la: &LoadArgs, need_baseline: bool) -> anyhow
             .join(", ")
     );
     let (info, held) = open_server(sa, &d, &la.out).await?;
-    let baseline = if need_baseline { Some(baseline::Baseline::start()?) } else { None };
+    if la.wait_quiet_s > 0 {
+        let busy = server::wait_quiet(Duration::from_secs(la.wait_quiet_s), 0.25).await;
+        eprintln!("machine busy over the last 3 s before measuring: {busy:.2} cores");
+    }
+    let baseline = if need_baseline {
+        Some(baseline::Baseline::start()?)
+    } else {
+        None
+    };
     Ok((
         Ctx {
             server: info,
@@ -618,7 +693,11 @@ async fn cmd_drive(
         Scenario::Stale => ctx.stale_feed(rate, dur).await,
         _ => {
             let w = suite::pick(&ctx.w, kind_of(sc));
-            let sys = if baseline { System::Baseline } else { System::Hodos };
+            let sys = if baseline {
+                System::Baseline
+            } else {
+                System::Hodos
+            };
             let label = format!("{}-fixed", w.kind.label());
             let (c, d) = (ctx.s.connections, ctx.s.drain);
             Some(ctx.drive(&label, sys, &w, rate, dur, c, d).await)
@@ -636,7 +715,13 @@ async fn cmd_drive(
     write_outputs(&ctx, start_load, &ctx.out.clone())
 }
 
-async fn cmd_probe(sa: ServerArgs, la: LoadArgs, sc: Scenario, from: f64, with_baseline: bool) -> anyhow::Result<()> {
+async fn cmd_probe(
+    sa: ServerArgs,
+    la: LoadArgs,
+    sc: Scenario,
+    from: f64,
+    with_baseline: bool,
+) -> anyhow::Result<()> {
     let start_load = server::loadavg_1m();
     let (mut ctx, held) = make_ctx(&sa, &la, with_baseline).await?;
     if ctx.wait_warm(Duration::from_secs(60)).await.is_none() {
@@ -722,7 +807,8 @@ async fn cmd_smoke(
             );
             let mut cfg = hodos::config::Config::parse(&text).map_err(anyhow::Error::msg)?;
             cfg.admin.token = token.clone();
-            cfg.validate().map_err(|(k, m)| anyhow::anyhow!("{k}: {m}"))?;
+            cfg.validate()
+                .map_err(|(k, m)| anyhow::anyhow!("{k}: {m}"))?;
             let p = server::start_in_process(cfg, token).await?;
             (d, p.info.clone(), Held::InProcess(p))
         }
@@ -751,9 +837,27 @@ async fn cmd_smoke(
     let w = ctx.w.clone();
     let plans = [
         ("smoke-eta", System::Hodos, &w.eta, rate, dur),
-        ("smoke-matrix1x50", System::Hodos, &w.m1x50, (rate / 5.0).max(1.0), short),
-        ("smoke-matrix20x20", System::Hodos, &w.m20x20, (rate / 10.0).max(1.0), short),
-        ("smoke-route", System::Hodos, &w.route, (rate / 2.5).max(1.0), short),
+        (
+            "smoke-matrix1x50",
+            System::Hodos,
+            &w.m1x50,
+            (rate / 5.0).max(1.0),
+            short,
+        ),
+        (
+            "smoke-matrix20x20",
+            System::Hodos,
+            &w.m20x20,
+            (rate / 10.0).max(1.0),
+            short,
+        ),
+        (
+            "smoke-route",
+            System::Hodos,
+            &w.route,
+            (rate / 2.5).max(1.0),
+            short,
+        ),
         ("smoke-eta", System::Baseline, &w.eta, rate, short),
     ];
     for (name, sys, wl, r, t) in plans {
@@ -786,12 +890,18 @@ async fn cmd_smoke(
     }
     for (name, r) in &ctx.admin {
         if r.calls == 0 || r.accepted < r.calls {
-            bad.push(format!("{name}: {} of {} admin calls accepted ({:?})", r.accepted, r.calls, r.failed));
+            bad.push(format!(
+                "{name}: {} of {} admin calls accepted ({:?})",
+                r.accepted, r.calls, r.failed
+            ));
         }
     }
     if bad.is_empty() {
         let answered: u64 = ctx.runs.iter().map(|s| s.ok).sum();
-        println!("smoke: {} runs, {answered} requests, every one answered", ctx.runs.len());
+        println!(
+            "smoke: {} runs, {answered} requests, every one answered",
+            ctx.runs.len()
+        );
         Ok(())
     } else {
         bail!("smoke failed:\n  {}", bad.join("\n  "))

@@ -30,9 +30,16 @@ fn y_range(max: f64, min: f64) -> (f64, f64) {
 }
 
 /// One chart of latency by percentile, one line per (label, curve).
-pub fn percentiles(path: &Path, title: &str, lines: &[(String, Vec<(f64, f64)>)]) -> Result<(), String> {
+pub fn percentiles(
+    path: &Path,
+    title: &str,
+    lines: &[(String, Vec<(f64, f64)>)],
+) -> Result<(), String> {
     let e = |x: &dyn std::fmt::Display| x.to_string();
-    let all: Vec<f64> = lines.iter().flat_map(|(_, c)| c.iter().map(|p| p.1)).collect();
+    let all: Vec<f64> = lines
+        .iter()
+        .flat_map(|(_, c)| c.iter().map(|p| p.1))
+        .collect();
     if all.is_empty() {
         return Ok(());
     }
@@ -71,7 +78,9 @@ pub fn percentiles(path: &Path, title: &str, lines: &[(String, Vec<(f64, f64)>)]
             .draw_series(LineSeries::new(c.iter().cloned(), color.stroke_width(2)))
             .map_err(|x| e(&x))?
             .label(label.clone())
-            .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], color.stroke_width(2)));
+            .legend(move |(x, y)| {
+                PathElement::new(vec![(x, y), (x + 18, y)], color.stroke_width(2))
+            });
     }
     chart
         .configure_series_labels()
@@ -91,7 +100,11 @@ pub fn timeline(path: &Path, s: &Summary) -> Result<(), String> {
     if w.is_empty() {
         return Ok(());
     }
-    let t_max = w.last().map(|x| x.t_s + 0.25).unwrap_or(1.0).max(s.duration_s);
+    let t_max = w
+        .last()
+        .map(|x| x.t_s + 0.25)
+        .unwrap_or(1.0)
+        .max(s.duration_s);
     let (lo, hi) = y_range(
         w.iter().map(|x| x.max_ms).fold(0.0, f64::max),
         w.iter().map(|x| x.p50_ms).fold(f64::INFINITY, f64::min),
@@ -116,17 +129,23 @@ pub fn timeline(path: &Path, s: &Summary) -> Result<(), String> {
         .y_label_formatter(&|y| format!("{y}"))
         .draw()
         .map_err(|x| e(&x))?;
-    let series: [(&str, fn(&Window) -> f64, RGBAColor); 3] = [
+    type Pick = fn(&Window) -> f64;
+    let series: [(&str, Pick, RGBAColor); 3] = [
         ("p50", |x| x.p50_ms, BLUE.to_rgba()),
         ("p99", |x| x.p99_ms, RED.to_rgba()),
         ("max", |x| x.max_ms, BLACK.mix(0.5)),
     ];
     for (label, f, color) in series {
         chart
-            .draw_series(LineSeries::new(w.iter().map(|x| (x.t_s, f(x).max(lo))), color.stroke_width(2)))
+            .draw_series(LineSeries::new(
+                w.iter().map(|x| (x.t_s, f(x).max(lo))),
+                color.stroke_width(2),
+            ))
             .map_err(|x| e(&x))?
             .label(label)
-            .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], color.stroke_width(2)));
+            .legend(move |(x, y)| {
+                PathElement::new(vec![(x, y), (x + 18, y)], color.stroke_width(2))
+            });
     }
     chart
         .configure_series_labels()

@@ -109,7 +109,8 @@ impl Tally {
         let us = (latency.as_micros() as u64).max(1);
         self.hist.saturating_record(us);
         self.ok += 1;
-        self.samples.push((offset.as_millis() as u32, us.min(u32::MAX as u64) as u32));
+        self.samples
+            .push((offset.as_millis() as u32, us.min(u32::MAX as u64) as u32));
     }
 
     fn count(&mut self, tier: &str, reason: Option<&str>, n: u64) {
@@ -119,7 +120,8 @@ impl Tally {
                 return;
             }
         }
-        self.answers.push((tier.to_string(), reason.map(str::to_string), n));
+        self.answers
+            .push((tier.to_string(), reason.map(str::to_string), n));
     }
 
     /// Parses a 200 body of this tally's kind and counts its tiers.
@@ -135,7 +137,10 @@ impl Tally {
             }
             Kind::Route => {
                 let a: RouteAnswer = serde_json::from_slice(body).map_err(|_| BadBody)?;
-                if !good_eta(a.eta_s) || a.geometry.kind != "LineString" || a.geometry.coordinates.len() < 2 {
+                if !good_eta(a.eta_s)
+                    || a.geometry.kind != "LineString"
+                    || a.geometry.coordinates.len() < 2
+                {
                     return Err(BadBody);
                 }
                 self.count(a.tier, a.fallback_reason, 1);
@@ -320,12 +325,20 @@ impl Summary {
             connections: o.plan.connections,
             scheduled: o.scheduled,
             ok: t.ok,
-            answered_share: if o.scheduled == 0 { 0.0 } else { t.ok as f64 / o.scheduled as f64 },
+            answered_share: if o.scheduled == 0 {
+                0.0
+            } else {
+                t.ok as f64 / o.scheduled as f64
+            },
             achieved_rate: t.ok as f64 / o.elapsed.as_secs_f64().max(1e-9),
             latency_ms: Percentiles::of(&t.hist),
             errors: t.errors.clone(),
             error_total,
-            answers_unit: if matches!(t.kind, Kind::Matrix { .. }) { "cells" } else { "responses" },
+            answers_unit: if matches!(t.kind, Kind::Matrix { .. }) {
+                "cells"
+            } else {
+                "responses"
+            },
             answers: t.answers(),
             generator: GeneratorHealth {
                 pacer_late_p99_ms: o.pacer_late.value_at_quantile(0.99) as f64 / 1000.0,
@@ -350,7 +363,11 @@ impl Summary {
         let k: u64 = self
             .answers
             .iter()
-            .filter(|(k, _)| k.rsplit_once('/').map(|(_, r)| r == reason).unwrap_or(false))
+            .filter(|(k, _)| {
+                k.rsplit_once('/')
+                    .map(|(_, r)| r == reason)
+                    .unwrap_or(false)
+            })
             .map(|(_, v)| v)
             .sum();
         k as f64 / all as f64
@@ -366,7 +383,9 @@ pub fn timeline(samples: &[(u32, u32)], window_ms: u32) -> Vec<Window> {
     by.into_iter()
         .map(|(w, mut v)| {
             v.sort_unstable();
-            let q = |p: f64| v[((v.len() as f64 * p).ceil() as usize).clamp(1, v.len()) - 1] as f64 / 1000.0;
+            let q = |p: f64| {
+                v[((v.len() as f64 * p).ceil() as usize).clamp(1, v.len()) - 1] as f64 / 1000.0
+            };
             Window {
                 t_s: (w * window_ms) as f64 / 1000.0,
                 n: v.len() as u64,
@@ -430,7 +449,11 @@ pub fn table_row(s: &Summary) -> String {
         } else {
             format!(
                 "  [{}]",
-                s.errors.iter().map(|(k, v)| format!("{k}={v}")).collect::<Vec<_>>().join(" ")
+                s.errors
+                    .iter()
+                    .map(|(k, v)| format!("{k}={v}"))
+                    .collect::<Vec<_>>()
+                    .join(" ")
             )
         }
     )
@@ -443,11 +466,17 @@ mod tests {
     #[test]
     fn answers_are_counted_by_tier_and_reason() {
         let mut t = Tally::new(Kind::Eta);
-        t.answer(br#"{"eta_s":12.5,"meters":1,"tier":"historical","fallback_reason":"no_live_data"}"#)
+        t.answer(
+            br#"{"eta_s":12.5,"meters":1,"tier":"historical","fallback_reason":"no_live_data"}"#,
+        )
+        .unwrap();
+        t.answer(br#"{"eta_s":3,"tier":"live","fallback_reason":null}"#)
             .unwrap();
-        t.answer(br#"{"eta_s":3,"tier":"live","fallback_reason":null}"#).unwrap();
-        t.answer(br#"{"eta_s":3,"tier":"live","fallback_reason":null}"#).unwrap();
-        assert!(t.answer(br#"{"eta_s":-1,"tier":"live","fallback_reason":null}"#).is_err());
+        t.answer(br#"{"eta_s":3,"tier":"live","fallback_reason":null}"#)
+            .unwrap();
+        assert!(t
+            .answer(br#"{"eta_s":-1,"tier":"live","fallback_reason":null}"#)
+            .is_err());
         assert!(t.answer(b"not json").is_err());
         let a = t.answers();
         assert_eq!(a["live"], 2);

@@ -51,7 +51,8 @@ pub async fn call(
     let fut = async {
         let stream = tokio::net::TcpStream::connect(addr).await?;
         let _ = stream.set_nodelay(true);
-        let (mut sender, conn) = hyper::client::conn::http1::handshake(TokioIo::new(stream)).await?;
+        let (mut sender, conn) =
+            hyper::client::conn::http1::handshake(TokioIo::new(stream)).await?;
         tokio::spawn(async move {
             let _ = conn.await;
         });
@@ -77,7 +78,16 @@ pub async fn call(
 pub async fn wait_ready(public: SocketAddr, limit: Duration) -> anyhow::Result<()> {
     let until = Instant::now() + limit;
     loop {
-        if let Ok((200, _)) = call(public, "GET", "/readyz", None, "text/plain", Bytes::new(), Duration::from_secs(2)).await
+        if let Ok((200, _)) = call(
+            public,
+            "GET",
+            "/readyz",
+            None,
+            "text/plain",
+            Bytes::new(),
+            Duration::from_secs(2),
+        )
+        .await
         {
             return Ok(());
         }
@@ -199,11 +209,14 @@ pub async fn spawn_external(
     let state = out.join("server-state");
     let _ = std::fs::remove_dir_all(&state);
     std::fs::create_dir_all(&state).with_context(|| format!("creating {}", state.display()))?;
-    let artifact = std::fs::canonicalize(artifact).with_context(|| format!("artifact {}", artifact.display()))?;
+    let artifact = std::fs::canonicalize(artifact)
+        .with_context(|| format!("artifact {}", artifact.display()))?;
     let config_path = out.join("hodos-server.toml");
     std::fs::write(
         &config_path,
-        config_text(public, admin, &artifact, &state, lo, hi, time_zone, live_ttl_s),
+        config_text(
+            public, admin, &artifact, &state, lo, hi, time_zone, live_ttl_s,
+        ),
     )?;
     let log_path = out.join("hodos-server.log");
     let log = std::fs::File::create(&log_path)?;
@@ -238,13 +251,21 @@ pub async fn spawn_external(
     let until = Instant::now() + Duration::from_secs(300);
     loop {
         if let Some(st) = s.child.try_wait()? {
-            bail!("{} exited with {st} before becoming ready; see {}", bin.display(), s.log_path.display());
+            bail!(
+                "{} exited with {st} before becoming ready; see {}",
+                bin.display(),
+                s.log_path.display()
+            );
         }
         if wait_ready(public, Duration::from_millis(1)).await.is_ok() {
             break;
         }
         if Instant::now() > until {
-            bail!("{} not ready within 300 s; see {}", bin.display(), s.log_path.display());
+            bail!(
+                "{} not ready within 300 s; see {}",
+                bin.display(),
+                s.log_path.display()
+            );
         }
         tokio::time::sleep(Duration::from_millis(250)).await;
     }
@@ -291,13 +312,21 @@ pub struct InProcess {
 }
 
 /// Opens the configured regions and serves them on two port-0 listeners.
-pub async fn start_in_process(cfg: hodos::config::Config, token: String) -> anyhow::Result<InProcess> {
+pub async fn start_in_process(
+    cfg: hodos::config::Config,
+    token: String,
+) -> anyhow::Result<InProcess> {
     let ttl = cfg.live.ttl_s;
     let state = hodos::service::AppState::open(cfg).await;
     if let Some((name, why)) = state.degraded().first() {
         bail!("region {name} failed to load: {why}");
     }
-    let region = state.catalog.regions.first().map(|r| r.name.clone()).unwrap_or_default();
+    let region = state
+        .catalog
+        .regions
+        .first()
+        .map(|r| r.name.clone())
+        .unwrap_or_default();
     let p = hodos::service::bind(([127, 0, 0, 1], 0).into()).await?;
     let a = hodos::service::bind(([127, 0, 0, 1], 0).into()).await?;
     let (public, admin) = (p.local_addr()?, a.local_addr()?);
@@ -341,7 +370,11 @@ impl InProcess {
 pub fn machine_busy_s() -> Option<f64> {
     let s = std::fs::read_to_string("/proc/stat").ok()?;
     let line = s.lines().next()?;
-    let v: Vec<u64> = line.split_whitespace().skip(1).filter_map(|x| x.parse().ok()).collect();
+    let v: Vec<u64> = line
+        .split_whitespace()
+        .skip(1)
+        .filter_map(|x| x.parse().ok())
+        .collect();
     if v.len() < 5 {
         return None;
     }
@@ -373,4 +406,18 @@ pub fn prom_sum_count(text: &str, name: &str, label: &str) -> (f64, f64) {
             .sum()
     };
     (pick("_sum"), pick("_count"))
+}
+
+/// Waits (at most `limit`) for a 3-second window in which the machine's
+/// busy CPU stays under `cores` cores; returns the last window's figure.
+pub async fn wait_quiet(limit: Duration, cores: f64) -> f64 {
+    let until = Instant::now() + limit;
+    loop {
+        let (a, t) = (machine_busy_s().unwrap_or(0.0), Instant::now());
+        tokio::time::sleep(Duration::from_secs(3)).await;
+        let busy = (machine_busy_s().unwrap_or(0.0) - a) / t.elapsed().as_secs_f64();
+        if busy < cores || Instant::now() >= until {
+            return busy;
+        }
+    }
 }

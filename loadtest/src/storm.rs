@@ -74,7 +74,13 @@ fn observations(feed: &Feed, rng: &mut ChaCha8Rng) -> Bytes {
 
 /// A historical table for `n` random edges over the hours just before, at
 /// and after `now` in `tz`, at `factor` × free-flow.
-pub fn historical_table(edges: &[EdgeRef], n: usize, factor: f64, tz: chrono_tz::Tz, seed: u64) -> Bytes {
+pub fn historical_table(
+    edges: &[EdgeRef],
+    n: usize,
+    factor: f64,
+    tz: chrono_tz::Tz,
+    seed: u64,
+) -> Bytes {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
     let h = hodos::speeds::hour_of_week(Utc::now(), tz) as u32;
     let hours = [(h + 167) % 168, h, (h + 1) % 168];
@@ -103,6 +109,7 @@ fn finish(mut r: StreamReport, h: &Histogram<u64>) -> StreamReport {
     r
 }
 
+#[allow(clippy::too_many_arguments)]
 async fn one_call(
     addr: SocketAddr,
     method: &str,
@@ -115,7 +122,17 @@ async fn one_call(
 ) {
     let t = Instant::now();
     r.calls += 1;
-    match call(addr, method, path, Some(token), ct, body, Duration::from_secs(30)).await {
+    match call(
+        addr,
+        method,
+        path,
+        Some(token),
+        ct,
+        body,
+        Duration::from_secs(30),
+    )
+    .await
+    {
         Ok((200, _)) => {
             r.accepted += 1;
             h.saturating_record((t.elapsed().as_micros() as u64).max(1));
@@ -148,7 +165,17 @@ pub async fn live_stream(feed: Feed, every: Duration, until: Instant) -> StreamR
         }
         let body = observations(&feed, &mut rng);
         bytes = body.len();
-        one_call(feed.admin, "POST", &path, &feed.token, "application/json", body, &mut r, &mut h).await;
+        one_call(
+            feed.admin,
+            "POST",
+            &path,
+            &feed.token,
+            "application/json",
+            body,
+            &mut r,
+            &mut h,
+        )
+        .await;
         k += 1;
     }
     r.body_kb = bytes as f64 / 1024.0;
@@ -156,7 +183,12 @@ pub async fn live_stream(feed: Feed, every: Duration, until: Instant) -> StreamR
 }
 
 /// PUTs the tables in turn every `every` until `until`.
-pub async fn table_stream(feed: Feed, tables: Vec<Bytes>, every: Duration, until: Instant) -> StreamReport {
+pub async fn table_stream(
+    feed: Feed,
+    tables: Vec<Bytes>,
+    every: Duration,
+    until: Instant,
+) -> StreamReport {
     let path = format!("/admin/regions/{}/historical", feed.region);
     let (mut r, mut h) = (StreamReport::default(), hist());
     r.body_kb = tables.first().map(|t| t.len()).unwrap_or(0) as f64 / 1024.0;
@@ -172,7 +204,17 @@ pub async fn table_stream(feed: Feed, tables: Vec<Bytes>, every: Duration, until
             r.late += 1;
         }
         let body = tables[k as usize % tables.len()].clone();
-        one_call(feed.admin, "PUT", &path, &feed.token, "text/csv", body, &mut r, &mut h).await;
+        one_call(
+            feed.admin,
+            "PUT",
+            &path,
+            &feed.token,
+            "text/csv",
+            body,
+            &mut r,
+            &mut h,
+        )
+        .await;
         k += 1;
     }
     finish(r, &h)
@@ -185,6 +227,16 @@ pub async fn post_once(feed: &Feed) -> StreamReport {
     let (mut r, mut h) = (StreamReport::default(), hist());
     let body = observations(feed, &mut rng);
     r.body_kb = body.len() as f64 / 1024.0;
-    one_call(feed.admin, "POST", &path, &feed.token, "application/json", body, &mut r, &mut h).await;
+    one_call(
+        feed.admin,
+        "POST",
+        &path,
+        &feed.token,
+        "application/json",
+        body,
+        &mut r,
+        &mut h,
+    )
+    .await;
     finish(r, &h)
 }

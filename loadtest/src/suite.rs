@@ -131,7 +131,11 @@ impl Ctx {
     fn target(&self, sys: System) -> SocketAddr {
         match sys {
             System::Hodos => self.server.public,
-            System::Baseline => self.baseline.as_ref().map(|b| b.addr).unwrap_or(self.server.public),
+            System::Baseline => self
+                .baseline
+                .as_ref()
+                .map(|b| b.addr)
+                .unwrap_or(self.server.public),
         }
     }
 
@@ -158,7 +162,11 @@ impl Ctx {
                 m.when,
                 m.rss_mb,
                 m.hwm_mb,
-                if self.server.in_process { "  (in process: includes the generator)" } else { "" }
+                if self.server.in_process {
+                    "  (in process: includes the generator)"
+                } else {
+                    ""
+                }
             ));
             self.memory.push(m);
         }
@@ -189,7 +197,11 @@ impl Ctx {
             drain,
         };
         let me = std::process::id();
-        let spid = if sys == System::Hodos { self.server.pid } else { None };
+        let spid = if sys == System::Hodos {
+            self.server.pid
+        } else {
+            None
+        };
         let (s0, g0, m0, la) = (
             spid.and_then(proc_stat),
             proc_stat(me),
@@ -199,7 +211,11 @@ impl Ctx {
         let t0 = Instant::now();
         let out = engine::run(&plan).await;
         let wall = t0.elapsed().as_secs_f64();
-        let (s1, g1, m1) = (spid.and_then(proc_stat), proc_stat(me), server::machine_busy_s());
+        let (s1, g1, m1) = (
+            spid.and_then(proc_stat),
+            proc_stat(me),
+            server::machine_busy_s(),
+        );
         let mut sum = Summary::of(&out);
         if let (Some(pid), Some(a), Some(b)) = (spid, s0, s1) {
             let cpu = b.cpu_s - a.cpu_s;
@@ -244,15 +260,35 @@ impl Ctx {
         for _ in 0..16 {
             let name = format!("{scenario}@{rate:.0}");
             let mut s = self
-                .drive(&name, sys, w, rate, self.s.step, self.s.connections, Duration::from_secs(2))
+                .drive(
+                    &name,
+                    sys,
+                    w,
+                    rate,
+                    self.s.step,
+                    self.s.connections,
+                    Duration::from_secs(2),
+                )
                 .await;
             let mut why = self.verdict(&s);
             // Other work on a shared machine can spoil one step's tail: a
             // step that failed on its tail alone is run once more.
-            if why.is_some() && s.error_total == 0 && s.achieved_rate >= 0.95 * rate && self.s.confirm {
+            if why.is_some()
+                && s.error_total == 0
+                && s.achieved_rate >= 0.95 * rate
+                && self.s.confirm
+            {
                 tokio::time::sleep(Duration::from_millis(800)).await;
                 s = self
-                    .drive(&format!("{name}(again)"), sys, w, rate, self.s.step, self.s.connections, Duration::from_secs(2))
+                    .drive(
+                        &format!("{name}(again)"),
+                        sys,
+                        w,
+                        rate,
+                        self.s.step,
+                        self.s.connections,
+                        Duration::from_secs(2),
+                    )
                     .await;
                 why = self.verdict(&s);
             }
@@ -322,10 +358,16 @@ impl Ctx {
             return Some(format!("{} errors", s.error_total));
         }
         if s.achieved_rate < 0.95 * s.target_rate {
-            return Some(format!("achieved {:.0} < 95% of {:.0}", s.achieved_rate, s.target_rate));
+            return Some(format!(
+                "achieved {:.0} < 95% of {:.0}",
+                s.achieved_rate, s.target_rate
+            ));
         }
         if s.latency_ms.p99 > self.s.p99_limit_ms {
-            return Some(format!("p99 {:.2} ms > {} ms", s.latency_ms.p99, self.s.p99_limit_ms));
+            return Some(format!(
+                "p99 {:.2} ms > {} ms",
+                s.latency_ms.p99, self.s.p99_limit_ms
+            ));
         }
         let shed = s.reason_share("overloaded") + s.reason_share("budget_exceeded");
         if shed > self.s.max_shed_share {
@@ -348,7 +390,12 @@ impl Ctx {
 
     /// Asks single ETAs until one answers with `tier` (and `reason`, when
     /// given), at most `limit`; returns how long that took.
-    pub async fn wait_for_tier(&self, tier: &str, reason: Option<&str>, limit: Duration) -> Option<Duration> {
+    pub async fn wait_for_tier(
+        &self,
+        tier: &str,
+        reason: Option<&str>,
+        limit: Duration,
+    ) -> Option<Duration> {
         let t = Instant::now();
         let body = self.w.eta.bodies[0].clone();
         while t.elapsed() < limit {
@@ -364,7 +411,9 @@ impl Ctx {
             .await
             {
                 if let Ok(v) = serde_json::from_slice::<serde_json::Value>(&b) {
-                    if v["tier"] == tier && reason.map(|r| v["fallback_reason"] == r).unwrap_or(true) {
+                    if v["tier"] == tier
+                        && reason.map(|r| v["fallback_reason"] == r).unwrap_or(true)
+                    {
                         return Some(t.elapsed());
                     }
                 }
@@ -382,7 +431,10 @@ impl Ctx {
         let a = self.wait_for_tier("historical", None, limit).await;
         match a {
             Some(d) => Some(d),
-            None => self.wait_for_tier("live", None, limit.saturating_sub(t.elapsed())).await,
+            None => {
+                self.wait_for_tier("live", None, limit.saturating_sub(t.elapsed()))
+                    .await
+            }
         }
     }
 
@@ -392,10 +444,20 @@ impl Ctx {
         let ago = Duration::from_secs_f64(self.server.live_ttl_s + 1800.0);
         let feed = self.feed(ago, self.s.seed ^ 0x5a)?;
         let posted = storm::post_once(&feed).await;
-        let seen = self.wait_for_tier("historical", Some("live_stale"), Duration::from_secs(20)).await;
+        let seen = self
+            .wait_for_tier("historical", Some("live_stale"), Duration::from_secs(20))
+            .await;
         let w = self.w.eta.clone();
         let mut s = self
-            .drive("stale-feed", System::Hodos, &w, rate, duration, self.s.connections, self.s.drain)
+            .drive(
+                "stale-feed",
+                System::Hodos,
+                &w,
+                rate,
+                duration,
+                self.s.connections,
+                self.s.drain,
+            )
             .await;
         s.notes.push(format!(
             "posted {} observations stamped {:.0} s ago (TTL {:.0} s): {} accepted; live_stale seen after {}",
@@ -407,7 +469,8 @@ impl Ctx {
         ));
         s.notes.push(format!(
             "historical/live_stale share {:.1}%",
-            100.0 * s.answers.get("historical/live_stale").copied().unwrap_or(0) as f64 / s.ok.max(1) as f64
+            100.0 * s.answers.get("historical/live_stale").copied().unwrap_or(0) as f64
+                / s.ok.max(1) as f64
         ));
         self.admin.push(("stale-feed live post".into(), posted));
         Some(s)
@@ -419,19 +482,42 @@ impl Ctx {
         let feed = self.feed(Duration::ZERO, self.s.seed ^ 0x11)?;
         // Start from the state a fed server is in: fresh live data served.
         let primed = storm::post_once(&feed).await;
-        let live_after = self.wait_for_tier("live", None, Duration::from_secs(20)).await;
+        let live_after = self
+            .wait_for_tier("live", None, Duration::from_secs(20))
+            .await;
         let tables: Vec<Bytes> = [0.6, 0.85]
             .iter()
             .enumerate()
-            .map(|(i, f)| storm::historical_table(&self.edges, self.s.table_edges, *f, self.s.tz, self.s.seed + i as u64))
+            .map(|(i, f)| {
+                storm::historical_table(
+                    &self.edges,
+                    self.s.table_edges,
+                    *f,
+                    self.s.tz,
+                    self.s.seed + i as u64,
+                )
+            })
             .collect();
         let before = self.scrape().await;
         let until = Instant::now() + duration;
         let lt = tokio::spawn(storm::live_stream(feed.clone(), self.s.live_every, until));
-        let tt = tokio::spawn(storm::table_stream(feed.clone(), tables, self.s.table_every, until));
+        let tt = tokio::spawn(storm::table_stream(
+            feed.clone(),
+            tables,
+            self.s.table_every,
+            until,
+        ));
         let w = self.w.eta.clone();
         let mut s = self
-            .drive("reload-storm", System::Hodos, &w, rate, duration, self.s.connections, self.s.drain)
+            .drive(
+                "reload-storm",
+                System::Hodos,
+                &w,
+                rate,
+                duration,
+                self.s.connections,
+                self.s.drain,
+            )
             .await;
         let live = lt.await.unwrap_or_default();
         let table = tt.await.unwrap_or_default();
@@ -439,7 +525,9 @@ impl Ctx {
         s.notes.push(format!(
             "primed with one fresh batch ({} accepted); live tier served after {}",
             primed.accepted,
-            live_after.map(|d| format!("{:.2} s", d.as_secs_f64())).unwrap_or_else(|| "never (20 s)".into())
+            live_after
+                .map(|d| format!("{:.2} s", d.as_secs_f64()))
+                .unwrap_or_else(|| "never (20 s)".into())
         ));
         for (name, r) in [("live POSTs", &live), ("historical PUTs", &table)] {
             s.notes.push(format!(
@@ -490,13 +578,22 @@ impl Ctx {
         // still being customized in the background.
         let w = self.w.eta.clone();
         let cold = self
-            .drive("cold-start-eta", System::Hodos, &w, 1000.0, Duration::from_secs(3), self.s.connections, self.s.drain)
+            .drive(
+                "cold-start-eta",
+                System::Hodos,
+                &w,
+                1000.0,
+                Duration::from_secs(3),
+                self.s.connections,
+                self.s.drain,
+            )
             .await;
         self.runs.push(cold);
         let warm = self.wait_warm(Duration::from_secs(60)).await;
         self.print(format!(
             "warm      graph answers {}",
-            warm.map(|d| format!("after {:.2} s more", d.as_secs_f64())).unwrap_or_else(|| "not seen in 60 s".into())
+            warm.map(|d| format!("after {:.2} s more", d.as_secs_f64()))
+                .unwrap_or_else(|| "not seen in 60 s".into())
         ));
         self.memory_now("idle, warm (free-flow metric)");
         let s = self.s.clone();
@@ -509,11 +606,21 @@ impl Ctx {
         let mut caps = Vec::new();
         for (name, w, start) in &sets {
             let base = if self.baseline.is_some() {
-                self.probe(&format!("capacity-{name}"), System::Baseline, w, start * 4.0).await.capacity
+                self.probe(
+                    &format!("capacity-{name}"),
+                    System::Baseline,
+                    w,
+                    start * 4.0,
+                )
+                .await
+                .capacity
             } else {
                 None
             };
-            let hod = self.probe(&format!("capacity-{name}"), System::Hodos, w, *start).await.capacity;
+            let hod = self
+                .probe(&format!("capacity-{name}"), System::Hodos, w, *start)
+                .await
+                .capacity;
             caps.push((name.to_string(), hod, base));
         }
         let eta_cap = caps[0].1;
@@ -522,13 +629,29 @@ impl Ctx {
             let Some(c) = hod else { continue };
             let rate = c / 2.0;
             let sum = self
-                .drive(&format!("steady-{name}-half"), System::Hodos, w, rate, s.steady, s.connections, s.drain)
+                .drive(
+                    &format!("steady-{name}-half"),
+                    System::Hodos,
+                    w,
+                    rate,
+                    s.steady,
+                    s.connections,
+                    s.drain,
+                )
                 .await;
             if *name == "eta" {
                 steady_eta = Some(sum.clone());
                 if self.baseline.is_some() {
                     let b = self
-                        .drive("steady-eta-half", System::Baseline, w, rate, s.steady, s.connections, s.drain)
+                        .drive(
+                            "steady-eta-half",
+                            System::Baseline,
+                            w,
+                            rate,
+                            s.steady,
+                            s.connections,
+                            s.drain,
+                        )
                         .await;
                     self.runs.push(b);
                 }
@@ -540,10 +663,19 @@ impl Ctx {
             for k in [2.0, 3.0] {
                 // Give the backlog time to drain: answers are awaited for
                 // up to (k + 1) × the run length after the last send.
-                let drain = Duration::from_secs_f64(s.overload.as_secs_f64() * (k + 1.0)).max(s.drain);
+                let drain =
+                    Duration::from_secs_f64(s.overload.as_secs_f64() * (k + 1.0)).max(s.drain);
                 let w = self.w.eta.clone();
                 let sum = self
-                    .drive(&format!("overload-eta-{k:.0}x"), System::Hodos, &w, c * k, s.overload, s.overload_connections, drain)
+                    .drive(
+                        &format!("overload-eta-{k:.0}x"),
+                        System::Hodos,
+                        &w,
+                        c * k,
+                        s.overload,
+                        s.overload_connections,
+                        drain,
+                    )
                     .await;
                 overloads.push((k, sum.clone()));
                 self.runs.push(sum);
@@ -557,7 +689,15 @@ impl Ctx {
         self.memory_now("after the stale feed (free-flow + live blend)");
         let w = self.w.eta.clone();
         let pre = self
-            .drive("steady-eta-pre-storm", System::Hodos, &w, half, s.steady, s.connections, s.drain)
+            .drive(
+                "steady-eta-pre-storm",
+                System::Hodos,
+                &w,
+                half,
+                s.steady,
+                s.connections,
+                s.drain,
+            )
             .await;
         self.runs.push(pre.clone());
         let storm = self.reload_storm(half, s.storm).await;
@@ -580,7 +720,11 @@ impl Ctx {
         for (name, hod, base) in caps {
             let (pass, measured) = match (hod, base) {
                 (Some(h), Some(b)) => (
-                    if name == "eta" { Some(h / b >= 0.8) } else { None },
+                    if name == "eta" {
+                        Some(h / b >= 0.8)
+                    } else {
+                        None
+                    },
                     format!("hodos {h:.0}/s, baseline {b:.0}/s: {:.0}%", 100.0 * h / b),
                 ),
                 (Some(h), None) => (None, format!("hodos {h:.0}/s, no baseline")),
@@ -638,7 +782,11 @@ impl Ctx {
                 pass: Some(st.error_total == 0 && admin_failed == 0 && ratio <= 1.5),
             });
         }
-        if let Some(m) = self.memory.iter().find(|m| m.when.starts_with("after the stale")) {
+        if let Some(m) = self
+            .memory
+            .iter()
+            .find(|m| m.when.starts_with("after the stale"))
+        {
             let peak = self.memory.iter().map(|m| m.hwm_mb).fold(0.0, f64::max);
             g.push(Goal {
                 goal: "server resident memory with NY and two customized metrics <= 250 MB".into(),

@@ -23,7 +23,8 @@ use rand_chacha::ChaCha8Rng;
 use std::collections::HashMap;
 
 /// Great-circle length bands (km) and their shares of trips.
-pub const TRIP_MIX: [(f64, f64, f64); 3] = [(0.2, 3.0, 0.50), (3.0, 10.0, 0.35), (10.0, 30.0, 0.15)];
+pub const TRIP_MIX: [(f64, f64, f64); 3] =
+    [(0.2, 3.0, 0.50), (3.0, 10.0, 0.35), (10.0, 30.0, 0.15)];
 
 /// Largest random offset of a request coordinate from its road node, metres.
 pub const JITTER_M: f64 = 25.0;
@@ -75,7 +76,11 @@ impl Workload {
         TRIP_MIX
             .iter()
             .map(|(lo, hi, _)| {
-                let k = self.lengths_km.iter().filter(|&&d| d >= *lo && d < *hi).count();
+                let k = self
+                    .lengths_km
+                    .iter()
+                    .filter(|&&d| d >= *lo && d < *hi)
+                    .count();
                 (format!("{lo}-{hi} km"), k as f64 / n)
             })
             .collect()
@@ -98,7 +103,9 @@ impl Sampler {
         let cell_deg = 0.0045;
         let mut grid: HashMap<(i32, i32), Vec<u32>> = HashMap::new();
         for (i, p) in nodes.iter().enumerate() {
-            grid.entry(Self::cell_of(cell_deg, *p)).or_default().push(i as u32);
+            grid.entry(Self::cell_of(cell_deg, *p))
+                .or_default()
+                .push(i as u32);
         }
         Sampler {
             nodes,
@@ -109,7 +116,10 @@ impl Sampler {
     }
 
     fn cell_of(cell_deg: f64, p: LatLon) -> (i32, i32) {
-        ((p.lat / cell_deg).floor() as i32, (p.lon / cell_deg).floor() as i32)
+        (
+            (p.lat / cell_deg).floor() as i32,
+            (p.lon / cell_deg).floor() as i32,
+        )
     }
 
     /// Nearest node within the 3×3 cells around `p`.
@@ -175,12 +185,15 @@ impl Sampler {
 
     /// An origin–destination pair (jittered) and its node-to-node length.
     pub fn pair(&mut self) -> (LatLon, LatLon, f64) {
-        loop {
+        for _ in 0..1000 {
             let o = self.random_node();
             if let Some((d, km)) = self.partner(o) {
                 return (self.jitter(o), self.jitter(d), km);
             }
         }
+        // A graph too small for every band (a tiny test city): any pair.
+        let (o, d) = (self.random_node(), self.random_node());
+        (self.jitter(o), self.jitter(d), haversine_m(o, d) / 1000.0)
     }
 
     /// `n` points around `centre` (lengths from the mix), jittered.
@@ -224,7 +237,11 @@ impl Sampler {
         let mut lengths = Vec::with_capacity(n);
         for _ in 0..n {
             let centre = self.random_node();
-            let from = if rows == 1 { vec![self.jitter(centre)] } else { self.around(centre, rows) };
+            let from = if rows == 1 {
+                vec![self.jitter(centre)]
+            } else {
+                self.around(centre, rows)
+            };
             let to = self.around(centre, cols);
             lengths.push(haversine_m(from[0], to[0]) / 1000.0);
             bodies.push(Bytes::from(matrix_json(&from, &to)));
@@ -245,7 +262,8 @@ pub fn destination(p: LatLon, dist_m: f64, bearing: f64) -> LatLon {
     let (lat1, lon1) = (p.lat.to_radians(), p.lon.to_radians());
     let delta = dist_m / EARTH_R;
     let lat2 = (lat1.sin() * delta.cos() + lat1.cos() * delta.sin() * bearing.cos()).asin();
-    let lon2 = lon1 + (bearing.sin() * delta.sin() * lat1.cos()).atan2(delta.cos() - lat1.sin() * lat2.sin());
+    let lon2 = lon1
+        + (bearing.sin() * delta.sin() * lat1.cos()).atan2(delta.cos() - lat1.sin() * lat2.sin());
     LatLon {
         lat: lat2.to_degrees(),
         lon: ((lon2.to_degrees() + 540.0) % 360.0) - 180.0,
@@ -298,14 +316,49 @@ mod tests {
     fn destination_matches_geodesic_within_sphere_error() {
         use geographiclib_rs::{DirectGeodesic, Geodesic};
         let g = Geodesic::wgs84();
-        let p = LatLon { lat: 40.7, lon: -73.9 };
+        let p = LatLon {
+            lat: 40.7,
+            lon: -73.9,
+        };
         for (d, az) in [(1_000.0, 0.0), (5_000.0, 45.0), (30_000.0, 200.0)] {
             let q = destination(p, d, f64::to_radians(az));
             let (lat2, lon2, _) = g.direct(p.lat, p.lon, az, d);
-            let err = haversine_m(q, LatLon { lat: lat2, lon: lon2 });
+            let err = haversine_m(
+                q,
+                LatLon {
+                    lat: lat2,
+                    lon: lon2,
+                },
+            );
             assert!(err < d * 0.005, "{d} m at {az}°: {err} m apart");
             let back = haversine_m(p, q);
-            assert!((back - d).abs() < 1e-6 * d + 1e-6, "haversine of the result {back} vs {d}");
+            assert!(
+                (back - d).abs() < 1e-6 * d + 1e-6,
+                "haversine of the result {back} vs {d}"
+            );
+        }
+    }
+
+    #[test]
+    fn drawn_trips_follow_the_mix() {
+        // A synthetic city large enough for 30 km trips; shares must come
+        // out as asked (binomial sd at n = 2000 is about 1.1 points).
+        let (g, _) = hodos::import::synthetic::generate_with_info(60_000, 3);
+        let (lo, hi) = g.bbox();
+        let span_km = haversine_m(lo, hi) / 1000.0;
+        let mut s = Sampler::new(&g, 9);
+        let w = s.trips(Kind::Eta, 2000);
+        let mix = w.mix_check();
+        if span_km < 35.0 {
+            eprintln!("SKIPPED mix shares: the test city spans only {span_km:.1} km");
+            return;
+        }
+        for ((_, got), (_, _, want)) in mix.iter().zip(TRIP_MIX) {
+            assert!((got - want).abs() < 0.05, "{mix:?}");
+        }
+        for b in w.bodies.iter() {
+            let v: serde_json::Value = serde_json::from_slice(b).unwrap();
+            assert!(v["from"]["lat"].is_f64() && v["to"]["lon"].is_f64());
         }
     }
 
