@@ -316,16 +316,39 @@ impl RegionHandle {
             };
         }
         let free_flow: Vec<f32> = region.graph.edge_speed_kmh.clone();
-        self.publish(|g| Snapshot {
-            generation: g,
+        let mut fresh = Snapshot {
+            generation: 0,
             region: Arc::new(region),
             index: Arc::new(index),
             free_flow_kmh: Arc::new(free_flow),
+            historical_at: historical.as_ref().map(|_| now),
             historical: historical.map(Arc::new),
-            historical_at: Some(now),
             live: None,
             artifact_load: load_no,
             artifact_at: now,
+        };
+        // Serve the live blend from the first moment: customize it for the
+        // new graph before the swap, so no answer falls back meanwhile.
+        if let Some(layer) = w.live.as_mut() {
+            if let Some((blended, stats, newest)) = self.blend_now(&fresh, layer, now) {
+                let region = fresh.region.clone();
+                let metric = tokio::task::spawn_blocking(move || {
+                    region.metric(crate::metric::from_speeds(&region.graph, &blended))
+                })
+                .await;
+                if let Ok(metric) = metric {
+                    fresh.live = Some(Arc::new(LiveMetric {
+                        metric,
+                        stats,
+                        newest_observed_at: newest,
+                        built_at: now,
+                    }));
+                }
+            }
+        }
+        self.publish(|g| Snapshot {
+            generation: g,
+            ..fresh
         });
         self.set_status(|s| s.degraded_reason = None);
         self.record(ReloadOutcome {
@@ -551,6 +574,33 @@ impl RegionHandle {
         }
     }
 
+    /// Expires old observations and blends the layer over the current
+    /// hour's historical speeds of `snap`.
+    fn blend_now(
+        &self,
+        snap: &Snapshot,
+        layer: &mut LiveLayer,
+        now: DateTime<Utc>,
+    ) -> Option<(Vec<f32>, BlendStats, Option<DateTime<Utc>>)> {
+        let ttl = Duration::from_secs_f64(self.settings.live.ttl_s);
+        layer.expire(now, ttl);
+        let newest = layer.newest_observed_at();
+        let hour = crate::speeds::hour_of_week(now, self.tz);
+        let base = match &snap.historical {
+            Some(h) => h.speeds_for_hour(&snap.free_flow_kmh, hour),
+            None => snap.free_flow_kmh.to_vec(),
+        };
+        let mut blended = Vec::new();
+        let half_life = Duration::from_secs_f64(self.settings.live.half_life_s);
+        match blend_into(&base, layer, now, half_life, ttl, &mut blended) {
+            Ok(stats) => Some((blended, stats, newest)),
+            Err(e) => {
+                tracing::error!(region = %self.name, error = %e, "live blend failed");
+                None
+            }
+        }
+    }
+
     /// Re-blends and re-customizes the live metric if observations arrived
     /// (or the held blend is getting old), and publishes it. Returns whether
     /// a new snapshot was published.
@@ -578,28 +628,8 @@ impl RegionHandle {
             return false;
         };
         let now = Utc::now();
-        let ttl = Duration::from_secs_f64(self.settings.live.ttl_s);
-        layer.expire(now, ttl);
-        let newest = layer.newest_observed_at();
-        let hour = crate::speeds::hour_of_week(now, self.tz);
-        let base = match &snap.historical {
-            Some(h) => h.speeds_for_hour(&snap.free_flow_kmh, hour),
-            None => snap.free_flow_kmh.to_vec(),
-        };
-        let mut blended = Vec::new();
-        let stats = match blend_into(
-            &base,
-            layer,
-            now,
-            Duration::from_secs_f64(self.settings.live.half_life_s),
-            ttl,
-            &mut blended,
-        ) {
-            Ok(s) => s,
-            Err(e) => {
-                tracing::error!(region = %self.name, error = %e, "live blend failed");
-                return false;
-            }
+        let Some((blended, stats, newest)) = self.blend_now(&snap, layer, now) else {
+            return false;
         };
         // Save the layer now and then so a restart brings it back.
         let save = *live_changed
@@ -633,7 +663,14 @@ impl RegionHandle {
         // Publish on top of whatever is current now: a table may have landed
         // meanwhile (it marks the live layer dirty, so the next round blends
         // over it).
-        let cur = self.snapshot().unwrap_or(snap);
+        let cur = self.snapshot().unwrap_or(snap.clone());
+        if !Arc::ptr_eq(&cur.region, &snap.region) {
+            // The artifact was reloaded meanwhile: this blend belongs to the
+            // old graph. Blend again over the new one.
+            self.live_dirty.store(true, Ordering::SeqCst);
+            self.wake.notify_one();
+            return false;
+        }
         let live = Arc::new(LiveMetric {
             metric,
             stats,

@@ -368,6 +368,14 @@ async fn every_tier_and_reason() {
     );
     assert!(r["speeds_age_s"].as_f64().unwrap() < 60.0);
 
+    // An artifact reload keeps serving the live tier: the blend for the new
+    // graph is customized before the swap.
+    let gen_before = region.status().generation;
+    region.reload().await.unwrap();
+    assert!(region.status().generation > gen_before);
+    let r = post_json(&pub_app, "/v1/eta", &trip).await.json();
+    assert_eq!(r["tier"], "live", "right after a reload: {r}");
+
     // A departure next week is not "now": historical, and no fallback reason.
     let later = (chrono::Utc::now() + chrono::Duration::days(7)).to_rfc3339();
     let r = post_json(

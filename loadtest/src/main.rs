@@ -227,6 +227,10 @@ struct LoadArgs {
     /// achieved) once more before it counts (noise guard).
     #[arg(long, default_value_t = true, action = clap::ArgAction::Set)]
     confirm: bool,
+    /// Pacer thread at the lowest real-time priority (SCHED_FIFO 1) so
+    /// requests leave on time on a busy two-core machine.
+    #[arg(long, default_value_t = true, action = clap::ArgAction::Set)]
+    realtime_pacer: bool,
     /// Worker threads of the generator's runtime (1: one event loop, which
     /// leaves the most CPU to the server).
     #[arg(long, default_value_t = 1)]
@@ -265,6 +269,7 @@ impl LoadArgs {
             seed: self.seed,
             max_requests: self.max_requests.max(1),
             confirm: self.confirm,
+            realtime_pacer: self.realtime_pacer,
         }
     }
 }

@@ -46,6 +46,7 @@ pub struct Settings {
     pub max_requests: u64,
     /// Run a step that failed on its tail alone once more.
     pub confirm: bool,
+    pub realtime_pacer: bool,
 }
 
 /// The request pools.
@@ -195,6 +196,7 @@ impl Ctx {
             connections,
             request_timeout: self.s.request_timeout.max(drain),
             drain,
+            realtime_pacer: self.s.realtime_pacer,
         };
         let me = std::process::id();
         let spid = if sys == System::Hodos {
