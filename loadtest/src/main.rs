@@ -236,9 +236,13 @@ struct LoadArgs {
     #[arg(long, default_value_t = 1)]
     generator_threads: usize,
     /// Before measuring, wait up to this many seconds for the machine to be
-    /// quiet (other work under 0.25 cores over 3 s).
+    /// quiet (other work under 0.25 cores over 1 s).
     #[arg(long, default_value_t = 120)]
     wait_quiet_s: u64,
+    /// Before each run, wait up to this many seconds for the machine to be
+    /// quiet (0: never wait).
+    #[arg(long, default_value_t = 15)]
+    quiet_per_run_s: u64,
     /// The whole command is stopped after this many seconds, whatever it is
     /// doing (a started server is stopped too).
     #[arg(long, default_value_t = 1800)]
@@ -270,6 +274,7 @@ impl LoadArgs {
             max_requests: self.max_requests.max(1),
             confirm: self.confirm,
             realtime_pacer: self.realtime_pacer,
+            quiet_per_run: Duration::from_secs(self.quiet_per_run_s),
         }
     }
 }
@@ -631,7 +636,7 @@ async fn make_ctx(
     let (info, held) = open_server(sa, &d, &la.out).await?;
     if la.wait_quiet_s > 0 {
         let busy = server::wait_quiet(Duration::from_secs(la.wait_quiet_s), 0.25).await;
-        eprintln!("machine busy over the last 3 s before measuring: {busy:.2} cores");
+        eprintln!("machine busy over the last second before measuring: {busy:.2} cores");
     }
     let baseline = if need_baseline {
         Some(baseline::Baseline::start()?)
@@ -833,6 +838,7 @@ async fn cmd_smoke(
         goals: Vec::new(),
         table: Vec::new(),
     };
+    ctx.s.quiet_per_run = Duration::ZERO;
     ctx.s.live_batch = 200;
     ctx.s.table_edges = 200;
     ctx.header();

@@ -408,13 +408,13 @@ pub fn prom_sum_count(text: &str, name: &str, label: &str) -> (f64, f64) {
     (pick("_sum"), pick("_count"))
 }
 
-/// Waits (at most `limit`) for a 3-second window in which the machine's
+/// Waits (at most `limit`) for a one-second window in which the machine's
 /// busy CPU stays under `cores` cores; returns the last window's figure.
 pub async fn wait_quiet(limit: Duration, cores: f64) -> f64 {
     let until = Instant::now() + limit;
     loop {
         let (a, t) = (machine_busy_s().unwrap_or(0.0), Instant::now());
-        tokio::time::sleep(Duration::from_secs(3)).await;
+        tokio::time::sleep(Duration::from_secs(1)).await;
         let busy = (machine_busy_s().unwrap_or(0.0) - a) / t.elapsed().as_secs_f64();
         if busy < cores || Instant::now() >= until {
             return busy;

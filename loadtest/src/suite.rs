@@ -47,6 +47,8 @@ pub struct Settings {
     /// Run a step that failed on its tail alone once more.
     pub confirm: bool,
     pub realtime_pacer: bool,
+    /// Longest wait for a quiet machine before each run.
+    pub quiet_per_run: Duration,
 }
 
 /// The request pools.
@@ -198,6 +200,11 @@ impl Ctx {
             drain,
             realtime_pacer: self.s.realtime_pacer,
         };
+        if !self.s.quiet_per_run.is_zero() {
+            // Other work on a shared machine spoils a run: give it a
+            // moment to pass (bounded), and record what was left.
+            server::wait_quiet(self.s.quiet_per_run, 0.25).await;
+        }
         let me = std::process::id();
         let spid = if sys == System::Hodos {
             self.server.pid
