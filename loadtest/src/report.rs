@@ -301,9 +301,12 @@ pub struct Summary {
 #[derive(Debug, Clone, Serialize)]
 pub struct MachineUse {
     pub wall_s: f64,
-    /// Busy CPU seconds over all cores (`/proc/stat`, everything but idle
-    /// and iowait).
+    /// Busy CPU seconds over all cores (`/proc/stat`: user, nice, system,
+    /// irq, softirq).
     pub busy_cpu_s: f64,
+    /// CPU time the hypervisor gave to something else while this machine
+    /// wanted it (steal): host contention no process here can see.
+    pub stolen_cpu_s: f64,
     pub generator_cpu_s: f64,
     /// The server's, when it is a separate process.
     pub server_cpu_s: f64,
@@ -431,7 +434,7 @@ fn short_answers(s: &Summary) -> String {
 pub fn table_row(s: &Summary) -> String {
     let l = &s.latency_ms;
     format!(
-        "{:<26} {:<8} {:>9.0} {:>9.0} {:>6.1}% {:>8.3} {:>8.3} {:>8.3} {:>8.3} {:>8.2} {:>6}  {}{}",
+        "{:<26} {:<8} {:>9.0} {:>9.0} {:>6.1}% {:>8.3} {:>8.3} {:>8.3} {:>8.3} {:>8.2} {:>6}  {}{}{}",
         s.scenario,
         s.system,
         s.target_rate,
@@ -455,8 +458,24 @@ pub fn table_row(s: &Summary) -> String {
                     .collect::<Vec<_>>()
                     .join(" ")
             )
-        }
+        },
+        noise(s)
     )
+}
+
+/// `  (noisy: ...)` when other work or the hypervisor took a noticeable
+/// share of the machine during the run.
+fn noise(s: &Summary) -> String {
+    let Some(m) = &s.machine else {
+        return String::new();
+    };
+    let w = m.wall_s.max(1e-9);
+    let (other, steal) = (m.other_cpu_s / w, m.stolen_cpu_s / w);
+    if other > 0.2 || steal > 0.05 {
+        format!("  (noisy: other work {other:.2} cores, stolen {steal:.2} cores)")
+    } else {
+        String::new()
+    }
 }
 
 #[cfg(test)]

@@ -365,9 +365,11 @@ impl InProcess {
     }
 }
 
-/// Busy CPU seconds of the whole machine so far (`/proc/stat` first line:
-/// all jiffies but idle and iowait; proc(5)).
-pub fn machine_busy_s() -> Option<f64> {
+/// CPU seconds of the whole machine so far from `/proc/stat`'s first line
+/// (proc(5)): busy (user, nice, system, irq, softirq; guest time is inside
+/// user) and stolen (time the hypervisor ran something else while this
+/// machine's virtual CPUs wanted to run).
+pub fn machine_cpu() -> Option<(f64, f64)> {
     let s = std::fs::read_to_string("/proc/stat").ok()?;
     let line = s.lines().next()?;
     let v: Vec<u64> = line
@@ -375,16 +377,18 @@ pub fn machine_busy_s() -> Option<f64> {
         .skip(1)
         .filter_map(|x| x.parse().ok())
         .collect();
-    if v.len() < 5 {
+    if v.len() < 8 {
         return None;
     }
-    // user nice system idle iowait irq softirq steal (guest time is
-    // already inside user and nice).
-    let total: u64 = v.iter().take(8).sum();
-    let idle = v[3] + v[4];
+    let busy = v[0] + v[1] + v[2] + v[5] + v[6];
     // SAFETY: sysconf only reads a system constant.
     let hz = unsafe { libc::sysconf(libc::_SC_CLK_TCK) }.max(1) as f64;
-    Some((total - idle) as f64 / hz)
+    Some((busy as f64 / hz, v[7] as f64 / hz))
+}
+
+/// Busy plus stolen CPU seconds so far.
+pub fn machine_busy_s() -> Option<f64> {
+    machine_cpu().map(|(b, s)| b + s)
 }
 
 /// The 1-minute load average.

@@ -214,7 +214,7 @@ impl Ctx {
         let (s0, g0, m0, la) = (
             spid.and_then(proc_stat),
             proc_stat(me),
-            server::machine_busy_s(),
+            server::machine_cpu(),
             server::loadavg_1m(),
         );
         let t0 = Instant::now();
@@ -223,7 +223,7 @@ impl Ctx {
         let (s1, g1, m1) = (
             spid.and_then(proc_stat),
             proc_stat(me),
-            server::machine_busy_s(),
+            server::machine_cpu(),
         );
         let mut sum = Summary::of(&out);
         if let (Some(pid), Some(a), Some(b)) = (spid, s0, s1) {
@@ -243,10 +243,11 @@ impl Ctx {
                 (Some(s), false) => s.cpu_s,
                 _ => 0.0,
             };
-            let busy = mb - ma;
+            let busy = mb.0 - ma.0;
             sum.machine = Some(MachineUse {
                 wall_s: wall,
                 busy_cpu_s: busy,
+                stolen_cpu_s: mb.1 - ma.1,
                 generator_cpu_s: gen,
                 server_cpu_s: srv,
                 other_cpu_s: (busy - gen - srv).max(0.0),

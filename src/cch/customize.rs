@@ -31,10 +31,12 @@ pub(crate) const VIA_NONE: u32 = u32::MAX;
 /// The hierarchy's arc weights for one metric.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct CustomizedMetric {
-    /// Travel time from `tail[a]` (lower) to `head[a]` (higher).
-    pub up: Vec<u32>,
-    /// Travel time from `head[a]` to `tail[a]`.
-    pub down: Vec<u32>,
+    /// Basic weights during customization: travel time from `tail[a]`
+    /// (lower) to `head[a]` (higher), and back. Emptied once the pruned
+    /// search graphs are built; queries use [`forward`](Self::forward) and
+    /// [`backward`](Self::backward).
+    up: Vec<u32>,
+    down: Vec<u32>,
     /// How `up[a]` was reached: `VIA_EDGE | edge`, a lower rank, or VIA_NONE.
     pub(crate) up_via: Vec<u32>,
     pub(crate) down_via: Vec<u32>,
@@ -150,8 +152,12 @@ impl CustomizedMetric {
             cch.edge_arc.len(),
             "one length per road edge"
         );
-        self.up.fill(INFINITY);
-        self.down.fill(INFINITY);
+        // The basic weights live only during customization (see `prune`).
+        let m = cch.num_arcs();
+        self.up.clear();
+        self.up.resize(m, INFINITY);
+        self.down.clear();
+        self.down.resize(m, INFINITY);
         self.up_via.fill(VIA_NONE);
         self.down_via.fill(VIA_NONE);
         self.up_len.fill(0);
@@ -215,7 +221,10 @@ impl CustomizedMetric {
     /// Bytes held by this metric.
     pub fn heap_bytes(&self) -> usize {
         let pruned = |p: &PrunedArcs| 4 * (p.first.len() + 3 * p.arcs.len());
-        6 * 4 * self.up.len() + pruned(&self.forward) + pruned(&self.backward)
+        4 * (self.up.capacity() + self.down.capacity())
+            + 4 * 4 * self.up_via.len()
+            + pruned(&self.forward)
+            + pruned(&self.backward)
     }
 
     /// Perfect customization on copies of the basic weights, then the pruned
@@ -256,6 +265,11 @@ impl CustomizedMetric {
         }
         self.forward = PrunedArcs::build(cch, &self.up, &up);
         self.backward = PrunedArcs::build(cch, &self.down, &down);
+        // Queries read the pruned arcs, unpacking reads `via` and lengths;
+        // nothing reads the basic weights again, so free them (12 MB per
+        // metric on USA-road-d.NY).
+        self.up = Vec::new();
+        self.down = Vec::new();
     }
 }
 

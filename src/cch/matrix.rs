@@ -303,8 +303,8 @@ impl ManyToMany {
             p.first.len() == n + 1 && p.first.last().is_some_and(|&l| l as usize == p.arcs.len())
         };
         for l in [
-            metric.up.len(),
-            metric.down.len(),
+            metric.up_via.len(),
+            metric.down_via.len(),
             metric.up_len.len(),
             metric.down_len.len(),
             if pruned_ok(&metric.forward) && pruned_ok(&metric.backward) {
