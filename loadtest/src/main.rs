@@ -155,9 +155,20 @@ struct ServerArgs {
     /// Its live TTL in seconds (for the stale feed), as configured.
     #[arg(long, default_value_t = 900.0)]
     live_ttl_s: f64,
+    /// Extra environment for a server started with --hodos-bin, as
+    /// KEY=VALUE (repeatable; e.g. allocator tunables for experiments).
+    #[arg(long, value_parser = parse_env_pair)]
+    server_env: Vec<(String, String)>,
     /// IANA time zone of the region (hour-of-week of historical tables).
     #[arg(long, default_value = "America/New_York")]
     time_zone: String,
+}
+
+fn parse_env_pair(s: &str) -> Result<(String, String), String> {
+    match s.split_once('=') {
+        Some((k, v)) if !k.is_empty() => Ok((k.to_string(), v.to_string())),
+        _ => Err(format!("{s:?} is not KEY=VALUE")),
+    }
 }
 
 /// How to load it.
@@ -427,6 +438,7 @@ async fn open_server(a: &ServerArgs, d: &Drawn, out: &Path) -> anyhow::Result<(S
             d.hi,
             &a.time_zone,
             a.live_ttl_s,
+            &a.server_env,
             out,
         )
         .await?;
@@ -614,6 +626,7 @@ async fn make_ctx(
     sa: &ServerArgs,
     la: &LoadArgs,
     need_baseline: bool,
+    cold_first: bool,
 ) -> anyhow::Result<(Ctx, Held)> {
     let tz: chrono_tz::Tz = sa
         .time_zone
@@ -634,7 +647,7 @@ async fn make_ctx(
             .join(", ")
     );
     let (info, held) = open_server(sa, &d, &la.out).await?;
-    if la.wait_quiet_s > 0 {
+    if la.wait_quiet_s > 0 && !cold_first {
         let busy = server::wait_quiet(Duration::from_secs(la.wait_quiet_s), 0.25).await;
         eprintln!("machine busy over the last second before measuring: {busy:.2} cores");
     }
@@ -649,6 +662,8 @@ async fn make_ctx(
             baseline,
             w: d.w,
             edges: d.edges,
+            lo: d.lo,
+            hi: d.hi,
             s: la.settings(tz),
             out: la.out.clone(),
             runs: Vec::new(),
@@ -657,6 +672,7 @@ async fn make_ctx(
             admin: Vec::new(),
             goals: Vec::new(),
             table: Vec::new(),
+            outcome: None,
         },
         held,
     ))
@@ -664,9 +680,29 @@ async fn make_ctx(
 
 async fn cmd_suite(sa: ServerArgs, la: LoadArgs) -> anyhow::Result<()> {
     let start_load = server::loadavg_1m();
-    let (mut ctx, held) = make_ctx(&sa, &la, true).await?;
+    let (mut ctx, held) = make_ctx(&sa, &la, true, true).await?;
     ctx.suite().await;
     close(held).await;
+    if sa.hodos_bin.is_some() {
+        // Memory on a fresh process: the load run's allocator history and
+        // caches would blur what the region and its metrics need.
+        let d = Drawn {
+            w: ctx.w.clone(),
+            edges: ctx.edges.clone(),
+            lo: ctx.lo,
+            hi: ctx.hi,
+            nodes: 0,
+        };
+        match open_server(&sa, &d, &ctx.out.clone()).await {
+            Ok((info, held)) => {
+                ctx.server = info;
+                ctx.memory_phase().await;
+                close(held).await;
+            }
+            Err(e) => eprintln!("warning: the memory phase could not start a server: {e:#}"),
+        }
+    }
+    ctx.finish_goals();
     write_outputs(&ctx, start_load, &ctx.out.clone())
 }
 
@@ -691,7 +727,7 @@ async fn cmd_drive(
         bail!("--per-second must be a positive number");
     }
     let start_load = server::loadavg_1m();
-    let (mut ctx, held) = make_ctx(&sa, &la, baseline).await?;
+    let (mut ctx, held) = make_ctx(&sa, &la, baseline, false).await?;
     if ctx.wait_warm(Duration::from_secs(60)).await.is_none() {
         eprintln!("warning: no graph answer within 60 s; measuring anyway");
     }
@@ -733,7 +769,7 @@ async fn cmd_probe(
     with_baseline: bool,
 ) -> anyhow::Result<()> {
     let start_load = server::loadavg_1m();
-    let (mut ctx, held) = make_ctx(&sa, &la, with_baseline).await?;
+    let (mut ctx, held) = make_ctx(&sa, &la, with_baseline, false).await?;
     if ctx.wait_warm(Duration::from_secs(60)).await.is_none() {
         eprintln!("warning: no graph answer within 60 s; measuring anyway");
     }
@@ -829,6 +865,8 @@ async fn cmd_smoke(
         baseline: Some(baseline::Baseline::start()?),
         w: d.w,
         edges: d.edges,
+        lo: d.lo,
+        hi: d.hi,
         s: la.settings(chrono_tz::UTC),
         out: out.clone(),
         runs: Vec::new(),
@@ -837,6 +875,7 @@ async fn cmd_smoke(
         admin: Vec::new(),
         goals: Vec::new(),
         table: Vec::new(),
+        outcome: None,
     };
     ctx.s.quiet_per_run = Duration::ZERO;
     ctx.s.live_batch = 200;

@@ -195,6 +195,7 @@ pub struct Spawned {
 
 /// Starts `bin serve --config <written config>` on two free loopback
 /// ports, with a fresh state directory under `out`, and waits until ready.
+#[allow(clippy::too_many_arguments)]
 pub async fn spawn_external(
     bin: &Path,
     artifact: &Path,
@@ -202,10 +203,15 @@ pub async fn spawn_external(
     hi: hodos::geo::LatLon,
     time_zone: &str,
     live_ttl_s: f64,
+    env: &[(String, String)],
     out: &Path,
 ) -> anyhow::Result<Spawned> {
     let public: SocketAddr = ([127, 0, 0, 1], free_port()?).into();
     let admin: SocketAddr = ([127, 0, 0, 1], free_port()?).into();
+    // Absolute: relative paths in a configuration are read against the
+    // configuration file's own folder.
+    let out =
+        &std::fs::canonicalize(out).with_context(|| format!("output folder {}", out.display()))?;
     let state = out.join("server-state");
     let _ = std::fs::remove_dir_all(&state);
     std::fs::create_dir_all(&state).with_context(|| format!("creating {}", state.display()))?;
@@ -221,7 +227,11 @@ pub async fn spawn_external(
     let log_path = out.join("hodos-server.log");
     let log = std::fs::File::create(&log_path)?;
     let token = random_token();
-    let child = Command::new(bin)
+    let mut cmd = Command::new(bin);
+    for (k, v) in env {
+        cmd.env(k, v);
+    }
+    let child = cmd
         .arg("serve")
         .arg("--config")
         .arg(&config_path)
