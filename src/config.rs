@@ -100,7 +100,7 @@ impl Default for QueryConfig {
             max_snap_m: 500.0,
             max_matrix_cells: 250_000,
             graph_concurrency: 8,
-            bucket_cache: 6,
+            bucket_cache: 2,
         }
     }
 }

@@ -519,6 +519,9 @@ impl RegionHandle {
             return s.clone();
         }
         let cap = self.settings.bucket_cache + 2;
+        // Buckets of superseded tables are dropped as soon as a new one is
+        // made (requests still holding one keep it alive until they finish).
+        let current = self.snapshot().map(|s| s.historical_key());
         let mut out: Option<Arc<Slot>> = None;
         self.buckets.rcu(|cur| {
             if let Some((_, _, s)) = cur.iter().find(|(k, h, _)| k == key && *h == hour) {
@@ -527,7 +530,11 @@ impl RegionHandle {
             }
             let s = Arc::new(Slot::default());
             out = Some(s.clone());
-            let mut v: Vec<_> = (**cur).clone();
+            let mut v: Vec<_> = cur
+                .iter()
+                .filter(|(k, _, _)| k == key || Some(k) == current.as_ref())
+                .cloned()
+                .collect();
             v.push((key.to_string(), hour, s));
             while v.len() > cap {
                 v.remove(0);

@@ -254,6 +254,10 @@ struct LoadArgs {
     /// quiet (0: never wait).
     #[arg(long, default_value_t = 15)]
     quiet_per_run_s: u64,
+    /// How often a run spoiled by other work is redone (after waiting up
+    /// to 30 s for a quiet machine).
+    #[arg(long, default_value_t = 2)]
+    noise_retries: u32,
     /// The whole command is stopped after this many seconds, whatever it is
     /// doing (a started server is stopped too).
     #[arg(long, default_value_t = 1800)]
@@ -286,6 +290,8 @@ impl LoadArgs {
             confirm: self.confirm,
             realtime_pacer: self.realtime_pacer,
             quiet_per_run: Duration::from_secs(self.quiet_per_run_s),
+            noise_retries: self.noise_retries,
+            retry_noisy: true,
         }
     }
 }
@@ -307,6 +313,27 @@ fn watchdog(secs: u64) {
     });
 }
 
+/// Ctrl-C or SIGTERM: stop a server this process started, then exit.
+fn on_signal_stop_child() {
+    extern "C" fn handler(sig: libc::c_int) {
+        let pid = server::CHILD_PID.load(std::sync::atomic::Ordering::SeqCst);
+        if pid != 0 {
+            // SAFETY: kill(2) is async-signal-safe; the pid is our child's.
+            unsafe {
+                libc::kill(pid as libc::pid_t, libc::SIGTERM);
+            }
+        }
+        // SAFETY: _exit(2) is async-signal-safe.
+        unsafe { libc::_exit(128 + sig) }
+    }
+    // SAFETY: installing a handler that only calls async-signal-safe
+    // functions.
+    unsafe {
+        libc::signal(libc::SIGINT, handler as *const () as libc::sighandler_t);
+        libc::signal(libc::SIGTERM, handler as *const () as libc::sighandler_t);
+    }
+}
+
 fn main() -> ExitCode {
     let cli = Cli::parse();
     let (wall, threads) = match &cli.command {
@@ -316,6 +343,7 @@ fn main() -> ExitCode {
         Command::Smoke { .. } => (300, 2),
     };
     watchdog(wall);
+    on_signal_stop_child();
     let built = if threads <= 1 {
         tokio::runtime::Builder::new_current_thread()
             .enable_all()
@@ -878,6 +906,7 @@ async fn cmd_smoke(
         outcome: None,
     };
     ctx.s.quiet_per_run = Duration::ZERO;
+    ctx.s.retry_noisy = false;
     ctx.s.live_batch = 200;
     ctx.s.table_edges = 200;
     ctx.header();

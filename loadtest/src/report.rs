@@ -463,6 +463,18 @@ pub fn table_row(s: &Summary) -> String {
     )
 }
 
+/// Whether other work (over 0.2 cores) or the hypervisor (over 0.05
+/// cores stolen) took a noticeable share of the machine during the run.
+pub fn is_noisy(s: &Summary) -> bool {
+    match &s.machine {
+        Some(m) => {
+            let w = m.wall_s.max(1e-9);
+            m.other_cpu_s / w > 0.2 || m.stolen_cpu_s / w > 0.05
+        }
+        None => false,
+    }
+}
+
 /// `  (noisy: ...)` when other work or the hypervisor took a noticeable
 /// share of the machine during the run.
 fn noise(s: &Summary) -> String {
@@ -471,7 +483,7 @@ fn noise(s: &Summary) -> String {
     };
     let w = m.wall_s.max(1e-9);
     let (other, steal) = (m.other_cpu_s / w, m.stolen_cpu_s / w);
-    if other > 0.2 || steal > 0.05 {
+    if is_noisy(s) {
         format!("  (noisy: other work {other:.2} cores, stolen {steal:.2} cores)")
     } else {
         String::new()

@@ -49,6 +49,10 @@ pub struct Settings {
     pub realtime_pacer: bool,
     /// Longest wait for a quiet machine before each run.
     pub quiet_per_run: Duration,
+    /// Runs redone when other work or the hypervisor spoiled them.
+    pub noise_retries: u32,
+    /// Whether noisy runs may be redone (off while admin streams run).
+    pub retry_noisy: bool,
 }
 
 /// The request pools.
@@ -208,6 +212,37 @@ impl Ctx {
         connections: usize,
         drain: Duration,
     ) -> Summary {
+        let mut attempt = 0;
+        loop {
+            let sum = self
+                .drive_once(scenario, sys, w, rate, duration, connections, drain)
+                .await;
+            let noisy = report::is_noisy(&sum);
+            let row = report::table_row(&sum);
+            if !noisy || attempt >= self.s.noise_retries || !self.s.retry_noisy {
+                self.print(row);
+                return sum;
+            }
+            // A run spoiled by other work says nothing about the server:
+            // note it, wait for the machine to calm down, and run it again.
+            self.print(format!("{row}  -> redone"));
+            attempt += 1;
+            server::wait_quiet(Duration::from_secs(30), 0.25).await;
+        }
+    }
+
+    /// One measured run (no printing, no retry).
+    #[allow(clippy::too_many_arguments)]
+    async fn drive_once(
+        &mut self,
+        scenario: &str,
+        sys: System,
+        w: &Workload,
+        rate: f64,
+        duration: Duration,
+        connections: usize,
+        drain: Duration,
+    ) -> Summary {
         let plan = Plan {
             scenario: scenario.to_string(),
             system: sys.name().to_string(),
@@ -275,8 +310,6 @@ impl Ctx {
                 loadavg_1m_before: la,
             });
         }
-        let row = report::table_row(&sum);
-        self.print(row);
         sum
     }
 
@@ -489,6 +522,7 @@ impl Ctx {
             .wait_for_tier("historical", Some("live_stale"), Duration::from_secs(20))
             .await;
         let w = self.w.eta.clone();
+        let retry = std::mem::replace(&mut self.s.retry_noisy, false);
         let mut s = self
             .drive(
                 "stale-feed",
@@ -500,6 +534,7 @@ impl Ctx {
                 self.s.drain,
             )
             .await;
+        self.s.retry_noisy = retry;
         s.notes.push(format!(
             "posted {} observations stamped {:.0} s ago (TTL {:.0} s): {} accepted; live_stale seen after {}",
             self.s.live_batch,
@@ -540,6 +575,13 @@ impl Ctx {
             })
             .collect();
         let before = self.scrape().await;
+        // Wait for calm before the streams start, not after: once they run
+        // the server is busy customizing and the machine never gets quiet.
+        if !self.s.quiet_per_run.is_zero() {
+            server::wait_quiet(self.s.quiet_per_run, 0.25).await;
+        }
+        let quiet = std::mem::replace(&mut self.s.quiet_per_run, Duration::ZERO);
+        let retry = std::mem::replace(&mut self.s.retry_noisy, false);
         let until = Instant::now() + duration;
         let lt = tokio::spawn(storm::live_stream(feed.clone(), self.s.live_every, until));
         let tt = tokio::spawn(storm::table_stream(
@@ -560,6 +602,8 @@ impl Ctx {
                 self.s.drain,
             )
             .await;
+        self.s.quiet_per_run = quiet;
+        self.s.retry_noisy = retry;
         let live = lt.await.unwrap_or_default();
         let table = tt.await.unwrap_or_default();
         let after = self.scrape().await;
