@@ -136,6 +136,21 @@ pub async fn serve(
     for r in &state.catalog.regions {
         loops.push(tokio::spawn(r.clone().run_live_loop(stop())));
     }
+    // The exporter keeps histogram samples until upkeep folds them in; run it
+    // every few seconds so memory does not grow between scrapes.
+    {
+        let prometheus = state.prometheus.clone();
+        let stop_upkeep = stop();
+        loops.push(tokio::spawn(async move {
+            tokio::pin!(stop_upkeep);
+            loop {
+                tokio::select! {
+                    _ = &mut stop_upkeep => break,
+                    _ = tokio::time::sleep(std::time::Duration::from_secs(5)) => prometheus.run_upkeep(),
+                }
+            }
+        }));
+    }
     let drain = std::time::Duration::from_secs(state.catalog.cfg.server.drain_seconds);
     let public_srv = axum::serve(public, app(state.clone())).with_graceful_shutdown(stop());
     let admin_srv = axum::serve(admin, admin_app(state.clone())).with_graceful_shutdown(stop());
