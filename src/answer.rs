@@ -6,7 +6,9 @@
 //!    `outside_regions`;
 //! 2. the region has no snapshot → heuristic (configured defaults),
 //!    `region_unavailable`;
-//! 3. no graph permit free → heuristic (region calibration), `overloaded`;
+//! 3. the request was not admitted (too many in flight, see
+//!    [`crate::admission`]) or no graph permit is free → heuristic (region
+//!    calibration), `overloaded`;
 //! 4. pick the metric: live if the departure is "now" (within the TTL) and
 //!    the region holds fresh live data; otherwise the historical bucket of
 //!    the departure hour (reason `no_live_data` / `live_stale` when live was
@@ -18,6 +20,7 @@
 //! **Architecture Invariant:** no HTTP types here; the service converts
 //! [`Answer`] to its DTOs.
 
+use crate::admission::Admission;
 use crate::calibration::Calibration;
 use crate::cch::matrix::{matrix, Cell, ManyToMany, PointMatrix};
 use crate::cch::CchQuery;
@@ -39,6 +42,8 @@ pub struct Catalog {
     pub regions: Vec<Arc<RegionHandle>>,
     pub cfg: Config,
     pub permits: Arc<Semaphore>,
+    /// Answer requests in flight (entered by the HTTP layer).
+    pub admission: Arc<Admission>,
     /// Calibration used outside every region (configured defaults).
     pub outside: Calibration,
 }
@@ -48,6 +53,7 @@ impl Catalog {
         let outside = Calibration::fixed(cfg.fallback.circuity, cfg.fallback.speed_kmh);
         Catalog {
             permits: Arc::new(Semaphore::new(cfg.query.graph_concurrency)),
+            admission: Admission::new(cfg.query.max_in_flight),
             regions,
             cfg,
             outside,
@@ -216,7 +222,8 @@ impl Drop for InFlight {
     }
 }
 
-/// Answers one trip (ETA, or route when `with_geometry`).
+/// Answers one trip (ETA, or route when `with_geometry`). `admitted` is
+/// false when admission control shed the request.
 pub async fn trip(
     cat: &Catalog,
     from: LatLon,
@@ -224,6 +231,7 @@ pub async fn trip(
     depart: Option<DateTime<Utc>>,
     budget_ms: Option<u64>,
     with_geometry: bool,
+    admitted: bool,
 ) -> Answer {
     let deadline = Instant::now() + cat.budget(budget_ms);
     let Some(handle) = cat.region_for(from, to) else {
@@ -240,6 +248,9 @@ pub async fn trip(
     };
     let tag = Some((handle.name.clone(), snap.generation));
     let cal = &snap.region.calibration;
+    if !admitted {
+        return heuristic(cal, from, to, FallbackReason::Overloaded, tag);
+    }
     let Ok(permit) = cat.permits.clone().try_acquire_owned() else {
         return heuristic(cal, from, to, FallbackReason::Overloaded, tag);
     };
@@ -337,6 +348,7 @@ pub async fn matrix_trip(
     to: Vec<LatLon>,
     depart: Option<DateTime<Utc>>,
     budget_ms: Option<u64>,
+    admitted: bool,
 ) -> MatrixAnswer {
     let (rows, cols) = (from.len(), to.len());
     let deadline = Instant::now() + cat.budget(budget_ms);
@@ -362,6 +374,9 @@ pub async fn matrix_trip(
         );
     };
     let tag = Some((handle.name.clone(), snap.generation));
+    if !admitted {
+        return all_heuristic(&snap.region.calibration, FallbackReason::Overloaded, tag);
+    }
     let Ok(permit) = cat.permits.clone().try_acquire_owned() else {
         return all_heuristic(&snap.region.calibration, FallbackReason::Overloaded, tag);
     };

@@ -41,6 +41,25 @@ pub struct ServerConfig {
     pub max_body_bytes: usize,
     /// Seconds to let in-flight requests finish on shutdown.
     pub drain_seconds: u64,
+    /// CPU priority of the thread that customizes metrics (live blends,
+    /// historical buckets). Customization is seconds of CPU per minute under
+    /// a busy feed; below the request workers' priority it takes only the
+    /// CPU they leave, so queries keep their latency during reloads.
+    pub customize_priority: CustomizePriority,
+}
+
+/// CPU priority of background customization (see
+/// [`ServerConfig::customize_priority`]).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Default)]
+#[serde(rename_all = "lowercase")]
+pub enum CustomizePriority {
+    /// Linux `SCHED_IDLE`: runs when a core would otherwise idle.
+    #[default]
+    Idle,
+    /// Nice 19: a small share of a busy machine, never starved.
+    Low,
+    /// The same priority as request workers.
+    Normal,
 }
 
 impl Default for ServerConfig {
@@ -49,6 +68,7 @@ impl Default for ServerConfig {
             listen: "127.0.0.1:8080".parse().expect("literal address"),
             max_body_bytes: 256 * 1024,
             drain_seconds: 10,
+            customize_priority: CustomizePriority::Idle,
         }
     }
 }
@@ -88,6 +108,12 @@ pub struct QueryConfig {
     /// Requests doing graph work at once; beyond, answers come from the
     /// heuristic tier with reason `overloaded`.
     pub graph_concurrency: usize,
+    /// Answer requests (ETA, matrix, route) in flight at once, counted from
+    /// the moment their headers are read. Beyond it a request is still
+    /// parsed and validated, then answered at once from the heuristic tier
+    /// with reason `overloaded`: under overload the server sheds graph work
+    /// instead of queueing it, so every caller gets an answer quickly.
+    pub max_in_flight: usize,
     /// Historical bucket metrics kept customized (besides the warm ones).
     pub bucket_cache: usize,
 }
@@ -100,6 +126,7 @@ impl Default for QueryConfig {
             max_snap_m: 500.0,
             max_matrix_cells: 250_000,
             graph_concurrency: 8,
+            max_in_flight: 32,
             bucket_cache: 2,
         }
     }

@@ -7,12 +7,14 @@
 //!   shape and external ids) and its builder.
 //! - [`import`]: OpenStreetMap PBF, DIMACS and the synthetic city → graph.
 
+pub mod admission;
 pub mod answer;
 pub mod artifact;
 pub mod build;
 pub mod calibration;
 pub mod cch;
 pub mod config;
+pub mod customizer;
 pub mod demo;
 pub mod geo;
 pub mod graph;

@@ -354,7 +354,28 @@ async fn shutdown_signal() {
     }
 }
 
+/// Makes glibc's allocator give memory back. By default glibc raises its
+/// mmap threshold after a large block is freed (up to 32 MiB), so the
+/// per-arc arrays of every later customization (tens of MB each) come from
+/// arenas that are never returned to the OS, and each thread that allocates
+/// may get an arena of its own. A fixed threshold keeps large arrays in
+/// mmap (returned on free); two arenas bound the rest. Measured on NY in
+/// BENCHMARKS.md. Skipped when GLIBC_TUNABLES is set (experiments).
+fn tune_allocator() {
+    #[cfg(all(target_os = "linux", target_env = "gnu"))]
+    if std::env::var_os("GLIBC_TUNABLES").is_none() {
+        // SAFETY: mallopt only changes allocator parameters; called before
+        // the runtime starts any thread.
+        unsafe {
+            libc::mallopt(libc::M_MMAP_THRESHOLD, 256 * 1024);
+            libc::mallopt(libc::M_TRIM_THRESHOLD, 1024 * 1024);
+            libc::mallopt(libc::M_ARENA_MAX, 2);
+        }
+    }
+}
+
 fn cmd_serve(config: &std::path::Path, strict: bool) -> anyhow::Result<()> {
+    tune_allocator();
     init_tracing();
     let cfg = hodos::config::Config::load(config)?;
     if cfg.admin.token.is_empty() {
@@ -383,6 +404,7 @@ fn cmd_serve(config: &std::path::Path, strict: bool) -> anyhow::Result<()> {
 }
 
 fn cmd_demo(port: u16) -> anyhow::Result<()> {
+    tune_allocator();
     init_tracing();
     let dir = std::env::temp_dir().join("hodos-demo");
     let token = format!("demo-{:016x}", rand_token());

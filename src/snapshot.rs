@@ -17,6 +17,7 @@
 
 use crate::artifact::Artifact;
 use crate::config::{Config, LiveConfig, RegionConfig};
+use crate::customizer::Customizer;
 use crate::region::{Metric, Region};
 use crate::service::metrics as m;
 use crate::speeds::{
@@ -117,6 +118,9 @@ pub struct UpdateSettings {
     pub validation: ValidationConfig,
     pub live: LiveConfig,
     pub bucket_cache: usize,
+    /// Where every customization runs (one thread, low CPU priority,
+    /// shared by all regions).
+    pub customizer: Customizer,
 }
 
 impl UpdateSettings {
@@ -130,6 +134,7 @@ impl UpdateSettings {
             },
             live: cfg.live.clone(),
             bucket_cache: cfg.query.bucket_cache.max(2),
+            customizer: Customizer::start(cfg.server.customize_priority),
         }
     }
 }
@@ -208,6 +213,16 @@ impl RegionHandle {
         });
         if let Err(e) = h.reload().await {
             tracing::warn!(region = %h.name, error = %e, "region starts degraded");
+        }
+        // Ready means ready to answer from the graph: wait (bounded) for the
+        // current hour's metric that `reload` started warming, so the first
+        // requests after start-up are not heuristic fallbacks.
+        if let Some(snap) = h.snapshot() {
+            let hour = crate::speeds::hour_of_week(Utc::now(), h.tz);
+            let deadline = Instant::now() + Duration::from_secs(60);
+            if h.bucket(&snap, hour, deadline).await.is_none() {
+                tracing::warn!(region = %h.name, "current hour's metric not ready after 60 s; serving anyway");
+            }
         }
         h
     }
@@ -332,11 +347,12 @@ impl RegionHandle {
         if let Some(layer) = w.live.as_mut() {
             if let Some((blended, stats, newest)) = self.blend_now(&fresh, layer, now) {
                 let region = fresh.region.clone();
-                let metric = tokio::task::spawn_blocking(move || {
-                    region.metric(crate::metric::from_speeds(&region.graph, &blended))
-                })
-                .await;
-                if let Ok(metric) = metric {
+                let metric = self
+                    .settings
+                    .customizer
+                    .run(move || region.metric(crate::metric::from_speeds(&region.graph, &blended)))
+                    .await;
+                if let Some(metric) = metric {
                     fresh.live = Some(Arc::new(LiveMetric {
                         metric,
                         stats,
@@ -395,12 +411,47 @@ impl RegionHandle {
         match parsed {
             Ok((profile, report)) => {
                 let now = Utc::now();
+                let profile = Arc::new(profile);
+                // Customize the current hour of the new table before the swap
+                // so "now" queries without fresh live data keep graph answers
+                // instead of waiting for a cold bucket (the next hours are
+                // customized by the warm-up or on first use).
+                let key = format!("{}:{}", snap.artifact_load, profile.version());
+                let hour = crate::speeds::hour_of_week(now, self.tz);
+                let (region, ff, p2) = (
+                    snap.region.clone(),
+                    snap.free_flow_kmh.clone(),
+                    profile.clone(),
+                );
+                let t = Instant::now();
+                let metric = self
+                    .settings
+                    .customizer
+                    .run(move || {
+                        let speeds = p2.speeds_for_hour(&ff, hour);
+                        region.metric(crate::metric::from_speeds(&region.graph, &speeds))
+                    })
+                    .await;
+                if let Some(metric) = metric {
+                    metrics::histogram!(m::CUSTOMIZATION, "region" => self.name.clone(), "kind" => "historical")
+                        .record(t.elapsed().as_secs_f64());
+                    let slot = self.slot(&key, hour);
+                    if slot.cell.set(Arc::new(metric)).is_ok() {
+                        slot.started.store(true, Ordering::SeqCst);
+                        slot.notify.notify_waiters();
+                    }
+                }
+                let live_fresh = snap
+                    .live
+                    .as_ref()
+                    .map(|l| l.stats.any_fresh)
+                    .unwrap_or(false);
                 self.publish(|g| Snapshot {
                     generation: g,
                     region: snap.region.clone(),
                     index: snap.index.clone(),
                     free_flow_kmh: snap.free_flow_kmh.clone(),
-                    historical: Some(Arc::new(profile)),
+                    historical: Some(profile),
                     historical_at: Some(now),
                     live: snap.live.clone(),
                     artifact_load: snap.artifact_load,
@@ -418,7 +469,12 @@ impl RegionHandle {
                     self.wake.notify_one();
                 }
                 drop(w);
-                self.warm();
+                // While fresh live data answers "now", warming the next hour
+                // can wait for the live loop's periodic warm-up: the
+                // customizer's time goes to the live blend first.
+                if !live_fresh {
+                    self.warm();
+                }
                 Ok(report)
             }
             Err(e) => {
@@ -549,7 +605,7 @@ impl RegionHandle {
         let hist = snap.historical.clone();
         let ff = snap.free_flow_kmh.clone();
         let name = self.name.clone();
-        tokio::task::spawn_blocking(move || {
+        self.settings.customizer.spawn(move || {
             let t = Instant::now();
             let speeds = match &hist {
                 Some(h) => h.speeds_for_hour(&ff, hour),
@@ -625,6 +681,17 @@ impl RegionHandle {
         if !(dirty || aging || force) {
             return false;
         }
+        // Nothing arrived and the held blend has nothing fresh to decay: a
+        // new blend would equal it (a stale feed must not cost a
+        // customization every few seconds).
+        let held_stale = snap
+            .live
+            .as_ref()
+            .map(|l| !l.stats.any_fresh)
+            .unwrap_or(false);
+        if !dirty && !force && held_stale {
+            return false;
+        }
         let mut guard = self.writer.lock().await;
         let Writer {
             live,
@@ -660,11 +727,12 @@ impl RegionHandle {
         drop(guard);
         let region = snap.region.clone();
         let t = Instant::now();
-        let metric = tokio::task::spawn_blocking(move || {
-            region.metric(crate::metric::from_speeds(&region.graph, &blended))
-        })
-        .await;
-        let Ok(metric) = metric else { return false };
+        let metric = self
+            .settings
+            .customizer
+            .run(move || region.metric(crate::metric::from_speeds(&region.graph, &blended)))
+            .await;
+        let Some(metric) = metric else { return false };
         metrics::histogram!(m::CUSTOMIZATION, "region" => self.name.clone(), "kind" => "live")
             .record(t.elapsed().as_secs_f64());
         // Publish on top of whatever is current now: a table may have landed

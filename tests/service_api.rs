@@ -503,6 +503,59 @@ async fn every_tier_and_reason() {
         (Some("heuristic"), Some("overloaded")),
         "{r}"
     );
+
+    // Admission control: with no request allowed in flight, every answer
+    // route sheds to the heuristic tier at once (200, `overloaded`), bad
+    // input is still refused, and the in-flight count returns to zero.
+    let (st4, _d4) = state("max_in_flight = 0").await;
+    let shed_app = app(st4.clone());
+    for uri in ["/v1/eta", "/v1/route"] {
+        let r = post_json(&shed_app, uri, &trip).await;
+        assert_eq!(r.status, 200, "{uri}");
+        let r = r.json();
+        assert_eq!(
+            (r["tier"].as_str(), r["fallback_reason"].as_str()),
+            (Some("heuristic"), Some("overloaded")),
+            "{uri}: {r}"
+        );
+        assert!(r["eta_s"].as_f64().unwrap() > 0.0);
+    }
+    let m = post_json(
+        &shed_app,
+        "/v1/eta/matrix",
+        &json!({"from": from[..2], "to": to[..3]}),
+    )
+    .await;
+    assert_eq!(m.status, 200);
+    let m = m.json();
+    let reasons: Vec<&str> = m["fallback_reason"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .flat_map(|row| row.as_array().unwrap().iter())
+        .map(|v| v.as_str().unwrap())
+        .collect();
+    assert_eq!(reasons, vec!["overloaded"; 6], "{m}");
+    let bad = post_json(
+        &shed_app,
+        "/v1/eta",
+        &json!({"from": {"lat": 91.0, "lon": 0.0}, "to": trip["to"]}),
+    )
+    .await;
+    assert_eq!(
+        bad.status, 422,
+        "validation still runs when shed: {}",
+        bad.text
+    );
+    let (a, b) = (trip["from"].clone(), trip["to"].clone());
+    let q = format!(
+        "/v1/eta?from={},{}&to={},{}",
+        a["lat"], a["lon"], b["lat"], b["lon"]
+    );
+    let r = send(&shed_app, "GET", &q, None, Vec::new(), None).await;
+    assert_eq!(r.status, 200, "{}", r.text);
+    assert_eq!(r.json()["fallback_reason"].as_str(), Some("overloaded"));
+    assert_eq!(st4.catalog.admission.in_flight(), 0);
 }
 
 #[tokio::test]

@@ -128,9 +128,20 @@ pub struct Goal {
 pub struct SuiteOutcome {
     caps: Vec<(String, Option<f64>, Option<f64>)>,
     steady: Option<Summary>,
-    overloads: Vec<(f64, Summary)>,
+    /// (workload, multiple of its capacity, hodos, baseline at the same rate)
+    overloads: Vec<Overload>,
     pre: Summary,
     storm: Option<Summary>,
+}
+
+/// One overload run and, where a baseline runs, the baseline at the same
+/// offered rate (the machine's own ceiling for that load).
+#[derive(Clone)]
+pub struct Overload {
+    workload: String,
+    k: f64,
+    hodos: Summary,
+    baseline: Option<Summary>,
 }
 
 /// Running state of a suite (or of a single scenario command).
@@ -745,17 +756,23 @@ impl Ctx {
             }
             self.runs.push(sum);
         }
+        // Overload: ETAs (the goal) and 1×50 matrices (graph work dominates
+        // there, so shedding has room to work), each at 2× and 3× hodos'
+        // capacity; the baseline at the same ETA rates shows what the
+        // machine itself allows.
         let mut overloads = Vec::new();
-        if let Some(c) = eta_cap {
+        for (name, idx) in [("eta", 0usize), ("matrix1x50", 1)] {
+            let Some(c) = caps[idx].1 else { continue };
+            let w = sets[idx].1.clone();
             for k in [2.0, 3.0] {
                 // Give the backlog time to drain: answers are awaited for
                 // up to (k + 1) × the run length after the last send.
                 let drain =
                     Duration::from_secs_f64(s.overload.as_secs_f64() * (k + 1.0)).max(s.drain);
-                let w = self.w.eta.clone();
+                let run = format!("overload-{name}-{k:.0}x");
                 let sum = self
                     .drive(
-                        &format!("overload-eta-{k:.0}x"),
+                        &run,
                         System::Hodos,
                         &w,
                         c * k,
@@ -764,9 +781,32 @@ impl Ctx {
                         drain,
                     )
                     .await;
-                overloads.push((k, sum.clone()));
-                self.runs.push(sum);
+                self.runs.push(sum.clone());
                 tokio::time::sleep(Duration::from_secs(2)).await;
+                let base = if self.baseline.is_some() && name == "eta" {
+                    let b = self
+                        .drive(
+                            &run,
+                            System::Baseline,
+                            &w,
+                            c * k,
+                            s.overload,
+                            s.overload_connections,
+                            drain,
+                        )
+                        .await;
+                    self.runs.push(b.clone());
+                    tokio::time::sleep(Duration::from_secs(2)).await;
+                    Some(b)
+                } else {
+                    None
+                };
+                overloads.push(Overload {
+                    workload: name.to_string(),
+                    k,
+                    hodos: sum,
+                    baseline: base,
+                });
             }
         }
         let half = eta_cap.map(|c| c / 2.0).unwrap_or(100.0);
@@ -890,7 +930,7 @@ impl Ctx {
         &mut self,
         caps: &[(String, Option<f64>, Option<f64>)],
         steady: Option<&Summary>,
-        overloads: &[(f64, Summary)],
+        overloads: &[Overload],
         pre: &Summary,
         storm: Option<&Summary>,
     ) {
@@ -928,11 +968,29 @@ impl Ctx {
                 pass: Some(s.latency_ms.p99 <= 2.0 && s.error_total == 0),
             });
         }
-        for (k, s) in overloads {
+        for o in overloads {
+            let (k, s) = (o.k, &o.hodos);
+            let base = o
+                .baseline
+                .as_ref()
+                .map(|b| {
+                    format!(
+                        "; baseline at the same rate: {:.2}% answered, p99 {:.1} ms, achieved {:.0}/s",
+                        100.0 * b.answered_share,
+                        b.latency_ms.p99,
+                        b.achieved_rate
+                    )
+                })
+                .unwrap_or_default();
+            let what = if o.workload == "eta" {
+                String::new()
+            } else {
+                format!("{} ", o.workload)
+            };
             g.push(Goal {
-                goal: format!("overload {k:.0}x: 100% answered, p99 <= 20 ms (overloaded share reported)"),
+                goal: format!("overload {what}{k:.0}x: 100% answered, p99 <= 20 ms (overloaded share reported)"),
                 measured: format!(
-                    "{:.0}/s: {:.2}% answered, p99 {:.1} ms, max {:.1} ms, overloaded {:.1}%, achieved {:.0}/s",
+                    "{:.0}/s: {:.2}% answered, p99 {:.1} ms, max {:.1} ms, overloaded {:.1}%, achieved {:.0}/s{base}",
                     s.target_rate,
                     100.0 * s.answered_share,
                     s.latency_ms.p99,

@@ -66,11 +66,21 @@ fn with_tier(mut resp: Response, tier: &'static str) -> Response {
     resp
 }
 
+/// Whether admission control let this request do graph work (set by the
+/// `admit` middleware on the answer routes; absent means admitted).
+#[derive(Debug, Clone, Copy)]
+pub struct Admitted(pub bool);
+
+fn admitted(ext: &axum::http::Extensions) -> bool {
+    ext.get::<Admitted>().map(|a| a.0).unwrap_or(true)
+}
+
 async fn answer_trip(
     state: &AppState,
     trip: Trip,
     route: &'static str,
     geometry: bool,
+    admitted: bool,
 ) -> Response {
     let a = answer::trip(
         &state.catalog,
@@ -79,6 +89,7 @@ async fn answer_trip(
         trip.depart_at,
         trip.budget_ms,
         geometry,
+        admitted,
     )
     .await;
     super::metrics::answer(route, a.tier, a.reason, 1);
@@ -103,28 +114,33 @@ async fn answer_trip(
 pub async fn eta_get(
     State(state): State<AppState>,
     RawQuery(q): RawQuery,
+    admission: Option<axum::Extension<Admitted>>,
 ) -> Result<Response, ApiError> {
     let trip = parse_eta_query(q.as_deref())?;
-    Ok(answer_trip(&state, trip, "/v1/eta", false).await)
+    let ok = admission.map(|a| a.0 .0).unwrap_or(true);
+    Ok(answer_trip(&state, trip, "/v1/eta", false, ok).await)
 }
 
 pub async fn eta_post(State(state): State<AppState>, req: Request) -> Result<Response, ApiError> {
+    let ok = admitted(req.extensions());
     let body = body_bytes(&state, req).await?;
     let trip = parse_json::<EtaRequest>(&body)?.validate()?;
-    Ok(answer_trip(&state, trip, "/v1/eta", false).await)
+    Ok(answer_trip(&state, trip, "/v1/eta", false, ok).await)
 }
 
 pub async fn route(State(state): State<AppState>, req: Request) -> Result<Response, ApiError> {
+    let ok = admitted(req.extensions());
     let body = body_bytes(&state, req).await?;
     let trip = parse_json::<EtaRequest>(&body)?.validate()?;
-    Ok(answer_trip(&state, trip, "/v1/route", true).await)
+    Ok(answer_trip(&state, trip, "/v1/route", true, ok).await)
 }
 
 pub async fn matrix(State(state): State<AppState>, req: Request) -> Result<Response, ApiError> {
+    let ok = admitted(req.extensions());
     let body = body_bytes(&state, req).await?;
     let m =
         parse_json::<MatrixRequest>(&body)?.validate(state.catalog.cfg.query.max_matrix_cells)?;
-    let a = answer::matrix_trip(&state.catalog, m.from, m.to, m.depart_at, m.budget_ms).await;
+    let a = answer::matrix_trip(&state.catalog, m.from, m.to, m.depart_at, m.budget_ms, ok).await;
     let mut eta_s = Vec::with_capacity(a.rows);
     let mut meters = Vec::with_capacity(a.rows);
     let mut tier = Vec::with_capacity(a.rows);

@@ -22,7 +22,7 @@ pub mod problem;
 use crate::answer::Catalog;
 use crate::config::Config;
 use crate::snapshot::{RegionHandle, UpdateSettings};
-use axum::extract::{MatchedPath, Request};
+use axum::extract::{MatchedPath, Request, State};
 use axum::middleware::Next;
 use axum::response::Response;
 use axum::routing::{get, post};
@@ -95,12 +95,27 @@ async fn track(matched: Option<MatchedPath>, req: Request, next: Next) -> Respon
     resp
 }
 
+/// Admission control on the answer routes: counts the request in flight
+/// from here (headers read, body not yet) until its response is built, and
+/// tells the handler whether it may do graph work.
+async fn admit(State(state): State<AppState>, mut req: Request, next: Next) -> Response {
+    let ticket = state.catalog.admission.enter();
+    req.extensions_mut()
+        .insert(handlers::Admitted(ticket.admitted()));
+    let resp = next.run(req).await;
+    drop(ticket);
+    resp
+}
+
 /// The public router.
 pub fn app(state: AppState) -> Router {
-    Router::new()
+    let answers = Router::new()
         .route("/v1/eta", get(handlers::eta_get).post(handlers::eta_post))
         .route("/v1/eta/matrix", post(handlers::matrix))
         .route("/v1/route", post(handlers::route))
+        .route_layer(axum::middleware::from_fn_with_state(state.clone(), admit));
+    Router::new()
+        .merge(answers)
         .route("/healthz", get(handlers::healthz))
         .route("/readyz", get(handlers::readyz))
         .route("/metrics", get(handlers::metrics_text))

@@ -200,6 +200,11 @@ pub mod service {
         let c = city();
         format!(
             r#"
+# Tests share two cores with other tests in the same binary; a customizer
+# at idle priority could wait behind them for seconds (the priority itself
+# is tested in src/customizer.rs).
+[server]
+customize_priority = "normal"
 [admin]
 token = "{TOKEN}"
 [query]
