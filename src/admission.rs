@@ -8,19 +8,40 @@
 //! the server spends its CPU on cheap answers instead of a growing queue of
 //! graph searches, and no caller is refused.
 //!
-//! This is separate from the graph permits in [`crate::answer`]: a single
-//! ETA holds a permit only for its ~40 µs search, so permits run out only
-//! for long work (matrices); the in-flight count sees every request that is
-//! waiting for a CPU.
+//! Two signals, either of which sheds:
+//!
+//! - **Requests in flight** above `query.max_in_flight`. This sees requests
+//!   that wait inside the server (for a graph permit, a bucket, a matrix
+//!   thread). It does not see a CPU backlog: an ETA runs from entry to
+//!   response without yielding, so with every core busy the backlog waits
+//!   in sockets and in the runtime's run queue, never in flight.
+//! - **Scheduling lag** above `query.max_queue_ms`: a probe task asks to be
+//!   woken every millisecond and records how late it actually ran
+//!   ([`Admission::run_probe`]). A ready task waits behind every other
+//!   ready task, so the probe's lateness is the queueing delay a request
+//!   arriving now will see before its handler runs.
+//!
+//! Both are separate from the graph permits in [`crate::answer`], which
+//! bound concurrent graph work (matrices hold one across a blocking thread).
 
-use std::sync::atomic::{AtomicUsize, Ordering};
+use std::sync::atomic::{AtomicU64, AtomicUsize, Ordering};
 use std::sync::Arc;
+use std::time::{Duration, Instant};
 
-/// Counts answer requests in flight against a limit.
+/// How often the probe asks to be woken.
+const PROBE_EVERY: Duration = Duration::from_millis(1);
+
+/// Counts answer requests in flight against a limit, and holds the latest
+/// scheduling lag against another.
 #[derive(Debug)]
 pub struct Admission {
     in_flight: AtomicUsize,
     limit: usize,
+    /// Latest probe lateness, µs (0 until a probe runs).
+    lag_us: AtomicU64,
+    max_lag_us: u64,
+    /// Requests shed so far (either signal).
+    shed: AtomicU64,
 }
 
 /// One request's place; leaving is its drop.
@@ -31,21 +52,67 @@ pub struct Ticket {
 }
 
 impl Admission {
-    pub fn new(limit: usize) -> Arc<Admission> {
+    /// `limit` requests in flight; `max_lag` of scheduling lag (zero: the
+    /// lag is not a signal).
+    pub fn new(limit: usize, max_lag: Duration) -> Arc<Admission> {
         Arc::new(Admission {
             in_flight: AtomicUsize::new(0),
             limit,
+            lag_us: AtomicU64::new(0),
+            max_lag_us: if max_lag.is_zero() {
+                u64::MAX
+            } else {
+                max_lag.as_micros() as u64
+            },
+            shed: AtomicU64::new(0),
         })
     }
 
     /// Enters one request; it may do graph work if at most `limit`
-    /// requests (itself included) are in flight.
+    /// requests (itself included) are in flight and the latest scheduling
+    /// lag is within bounds.
     pub fn enter(self: &Arc<Self>) -> Ticket {
         let n = self.in_flight.fetch_add(1, Ordering::AcqRel) + 1;
+        let admitted = n <= self.limit && self.lag_us.load(Ordering::Relaxed) <= self.max_lag_us;
+        if !admitted {
+            self.shed.fetch_add(1, Ordering::Relaxed);
+        }
         Ticket {
             admission: self.clone(),
-            admitted: n <= self.limit,
+            admitted,
         }
+    }
+
+    /// Latest scheduling lag seen by the probe.
+    pub fn lag(&self) -> Duration {
+        Duration::from_micros(self.lag_us.load(Ordering::Relaxed))
+    }
+
+    /// Requests shed since start.
+    pub fn shed_total(&self) -> u64 {
+        self.shed.load(Ordering::Relaxed)
+    }
+
+    /// Records one lateness measurement (the probe's, or a test's).
+    pub fn record_lag(&self, lag: Duration) {
+        self.lag_us.store(lag.as_micros() as u64, Ordering::Relaxed);
+    }
+
+    /// Measures scheduling lag on the current runtime until `shutdown`
+    /// resolves: sleeps one tick at a time and records how late it woke.
+    pub async fn run_probe(self: Arc<Self>, shutdown: impl std::future::Future<Output = ()>) {
+        tokio::pin!(shutdown);
+        loop {
+            let due = Instant::now() + PROBE_EVERY;
+            tokio::select! {
+                _ = &mut shutdown => break,
+                _ = tokio::time::sleep_until(due.into()) => {}
+            }
+            // The timer wheel has a 1 ms grain: up to a tick late is normal.
+            let late = Instant::now().saturating_duration_since(due);
+            self.record_lag(late.saturating_sub(PROBE_EVERY));
+        }
+        self.record_lag(Duration::ZERO);
     }
 
     /// Requests in flight now.
@@ -72,7 +139,7 @@ mod tests {
 
     #[test]
     fn admits_up_to_the_limit_and_frees_on_drop() {
-        let a = Admission::new(2);
+        let a = Admission::new(2, Duration::from_millis(5));
         let t1 = a.enter();
         let t2 = a.enter();
         let t3 = a.enter();
@@ -88,7 +155,59 @@ mod tests {
         assert!(t4.admitted());
         drop((t2, t4));
         assert_eq!(a.in_flight(), 0);
-        let none = Admission::new(0);
+        let none = Admission::new(0, Duration::from_millis(5));
         assert!(!none.enter().admitted(), "limit 0 sheds everything");
+    }
+
+    #[test]
+    fn sheds_while_the_lag_is_over_the_bound() {
+        let a = Admission::new(100, Duration::from_millis(5));
+        a.record_lag(Duration::from_millis(5));
+        assert!(a.enter().admitted(), "at the bound: admitted");
+        a.record_lag(Duration::from_millis(6));
+        assert!(!a.enter().admitted());
+        a.record_lag(Duration::from_millis(1));
+        assert!(a.enter().admitted());
+        assert_eq!(a.shed_total(), 1);
+        let off = Admission::new(100, Duration::ZERO);
+        off.record_lag(Duration::from_secs(1));
+        assert!(
+            off.enter().admitted(),
+            "max_queue_ms = 0 disables the lag signal"
+        );
+    }
+
+    /// A runtime whose only worker is blocked for 30 ms: the probe, due
+    /// every millisecond, must report that it ran about that late.
+    #[test]
+    fn probe_sees_a_busy_worker() {
+        let rt = tokio::runtime::Builder::new_current_thread()
+            .enable_time()
+            .build()
+            .unwrap();
+        let a = Admission::new(100, Duration::from_millis(5));
+        let (tx, rx) = tokio::sync::oneshot::channel::<()>();
+        let seen = rt.block_on(async {
+            let probe = tokio::spawn(a.clone().run_probe(async {
+                let _ = rx.await;
+            }));
+            tokio::time::sleep(Duration::from_millis(5)).await;
+            // Hog the only worker: the probe cannot run meanwhile.
+            std::thread::sleep(Duration::from_millis(30));
+            // Let the probe run, keeping the largest lag it records.
+            let mut seen = Duration::ZERO;
+            for _ in 0..200 {
+                tokio::task::yield_now().await;
+                seen = seen.max(a.lag());
+            }
+            let _ = tx.send(());
+            let _ = probe.await;
+            seen
+        });
+        assert!(
+            seen >= Duration::from_millis(20),
+            "probe recorded {seen:?} after a 30 ms stall"
+        );
+        assert_eq!(a.lag(), Duration::ZERO, "reset when the probe stops");
     }
 }

@@ -53,7 +53,10 @@ impl Catalog {
         let outside = Calibration::fixed(cfg.fallback.circuity, cfg.fallback.speed_kmh);
         Catalog {
             permits: Arc::new(Semaphore::new(cfg.query.graph_concurrency)),
-            admission: Admission::new(cfg.query.max_in_flight),
+            admission: Admission::new(
+                cfg.query.max_in_flight,
+                Duration::from_millis(cfg.query.max_queue_ms),
+            ),
             regions,
             cfg,
             outside,

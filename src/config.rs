@@ -114,6 +114,10 @@ pub struct QueryConfig {
     /// with reason `overloaded`: under overload the server sheds graph work
     /// instead of queueing it, so every caller gets an answer quickly.
     pub max_in_flight: usize,
+    /// Scheduling lag (how late a task that is ready to run gets a CPU)
+    /// above which answer requests are shed the same way: the queueing
+    /// delay a request arriving now would see. 0 disables this signal.
+    pub max_queue_ms: u64,
     /// Historical bucket metrics kept customized (besides the warm ones).
     pub bucket_cache: usize,
 }
@@ -127,6 +131,7 @@ impl Default for QueryConfig {
             max_matrix_cells: 250_000,
             graph_concurrency: 8,
             max_in_flight: 32,
+            max_queue_ms: 5,
             bucket_cache: 2,
         }
     }
