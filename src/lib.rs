@@ -6,6 +6,20 @@
 //! - [`graph`]: the road graph (nodes at intersections, directed edges with
 //!   shape and external ids) and its builder.
 //! - [`import`]: OpenStreetMap PBF, DIMACS and the synthetic city → graph.
+//! - [`order`], [`cch`]: nested dissection by inertial flow; the
+//!   customizable contraction hierarchy, its customization, point queries
+//!   and bucket many-to-many matrices.
+//! - [`metric`], [`snap`], [`calibration`], [`region`]: speeds → weights,
+//!   coordinate snapping, heuristic-tier factors, and the query front door.
+//! - [`build`], [`artifact`]: the offline pipeline and its file format.
+//! - [`speeds`]: historical profiles, live observations, blending, saving.
+//! - [`snapshot`]: per-region serving state behind `arc-swap` and every
+//!   update path; [`customizer`]: the low-priority thread that runs
+//!   customizations.
+//! - [`admission`], [`answer`], [`tier`]: shedding under overload, tier
+//!   choice and fallbacks.
+//! - [`service`], [`config`]: the HTTP API (axum), metrics, OpenAPI, and
+//!   the TOML configuration; [`demo`]: the demo city's files and feed.
 
 pub mod admission;
 pub mod answer;
