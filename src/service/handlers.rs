@@ -146,6 +146,9 @@ pub async fn matrix(State(state): State<AppState>, req: Request) -> Result<Respo
     let mut tier = Vec::with_capacity(a.rows);
     let mut reason = Vec::with_capacity(a.rows);
     let mut best: Option<Tier> = None;
+    // Count cells per (tier, reason) and record each count once: a 20×20
+    // matrix would otherwise do 400 labelled-counter lookups.
+    let mut counts: Vec<(Tier, Option<crate::tier::FallbackReason>, u64)> = Vec::new();
     for i in 0..a.rows {
         let row = &a.cells[i * a.cols..(i + 1) * a.cols];
         eta_s.push(row.iter().map(|c| round3(c.eta_s)).collect());
@@ -153,13 +156,22 @@ pub async fn matrix(State(state): State<AppState>, req: Request) -> Result<Respo
         tier.push(row.iter().map(|c| c.tier.as_str()).collect());
         reason.push(row.iter().map(|c| c.reason.map(|r| r.as_str())).collect());
         for c in row {
-            super::metrics::answer("/v1/eta/matrix", c.tier, c.reason, 1);
+            match counts
+                .iter_mut()
+                .find(|(t, r, _)| *t == c.tier && *r == c.reason)
+            {
+                Some(k) => k.2 += 1,
+                None => counts.push((c.tier, c.reason, 1)),
+            }
             best = Some(match best {
                 None => c.tier,
                 Some(b) if b == c.tier => b,
                 Some(_) => Tier::Heuristic,
             });
         }
+    }
+    for (t, r, n) in counts {
+        super::metrics::answer("/v1/eta/matrix", t, r, n);
     }
     let label = match best {
         Some(t) => t.as_str(),

@@ -80,9 +80,12 @@ pub struct TierLabel(pub &'static str);
 
 /// Records latency by matched route (never the raw URI) and tier.
 async fn track(matched: Option<MatchedPath>, req: Request, next: Next) -> Response {
-    let route = matched
-        .map(|m| m.as_str().to_owned())
-        .unwrap_or_else(|| "unmatched".to_owned());
+    // The templates are a closed set: label with a static string (no
+    // allocation per request).
+    let route: &'static str = match matched.as_ref().map(|m| m.as_str()) {
+        Some(p) => ROUTES.iter().copied().find(|r| *r == p).unwrap_or("other"),
+        None => "unmatched",
+    };
     let start = Instant::now();
     let resp = next.run(req).await;
     let tier = resp
@@ -106,6 +109,17 @@ async fn admit(State(state): State<AppState>, mut req: Request, next: Next) -> R
     drop(ticket);
     resp
 }
+
+/// Route templates of the public router (metric labels).
+const ROUTES: [&str; 7] = [
+    "/v1/eta",
+    "/v1/eta/matrix",
+    "/v1/route",
+    "/healthz",
+    "/readyz",
+    "/metrics",
+    "/openapi.json",
+];
 
 /// The public router.
 pub fn app(state: AppState) -> Router {
