@@ -331,7 +331,7 @@ impl RegionHandle {
             };
         }
         let free_flow: Vec<f32> = region.graph.edge_speed_kmh.clone();
-        let mut fresh = Snapshot {
+        let fresh = Snapshot {
             generation: 0,
             region: Arc::new(region),
             index: Arc::new(index),
@@ -344,22 +344,41 @@ impl RegionHandle {
         };
         // Serve the live blend from the first moment: customize it for the
         // new graph before the swap, so no answer falls back meanwhile.
-        if let Some(layer) = w.live.as_mut() {
-            if let Some((blended, stats, newest)) = self.blend_now(&fresh, layer, now) {
-                let region = fresh.region.clone();
-                let metric = self
-                    .settings
-                    .customizer
-                    .run(move || region.metric(crate::metric::from_speeds(&region.graph, &blended)))
-                    .await;
-                if let Some(metric) = metric {
-                    fresh.live = Some(Arc::new(LiveMetric {
-                        metric,
-                        stats,
-                        newest_observed_at: newest,
-                        built_at: now,
-                    }));
-                }
+        let fresh_arc = Arc::new(fresh);
+        let blended = match w.live.take() {
+            Some(layer) => {
+                let (layer, b, _) = self.blend_off_worker(&fresh_arc, layer, now, false).await;
+                w.live = Some(layer);
+                b
+            }
+            None => None,
+        };
+        // The blend job has dropped its clone by now; copy the fields if not.
+        let mut fresh = Arc::try_unwrap(fresh_arc).unwrap_or_else(|a| Snapshot {
+            generation: 0,
+            region: a.region.clone(),
+            index: a.index.clone(),
+            free_flow_kmh: a.free_flow_kmh.clone(),
+            historical: a.historical.clone(),
+            historical_at: a.historical_at,
+            live: None,
+            artifact_load: a.artifact_load,
+            artifact_at: a.artifact_at,
+        });
+        if let Some((blended, stats, newest)) = blended {
+            let region = fresh.region.clone();
+            let metric = self
+                .settings
+                .customizer
+                .run(move || region.metric(crate::metric::from_speeds(&region.graph, &blended)))
+                .await;
+            if let Some(metric) = metric {
+                fresh.live = Some(Arc::new(LiveMetric {
+                    metric,
+                    stats,
+                    newest_observed_at: newest,
+                    built_at: now,
+                }));
             }
         }
         self.publish(|g| Snapshot {
@@ -395,19 +414,23 @@ impl RegionHandle {
         let index = snap.index.clone();
         let validation = self.settings.validation.clone();
         let path = historical_state_path(&self.cfg);
-        let parsed = tokio::task::spawn_blocking(move || {
-            let r = HistoricalProfile::parse(&csv, &index, &validation);
-            if r.is_ok() {
-                if let Some(dir) = path.parent() {
-                    std::fs::create_dir_all(dir).map_err(|e| format!("{}: {e}", dir.display()))?;
+        let parsed = self
+            .settings
+            .customizer
+            .run(move || {
+                let r = HistoricalProfile::parse(&csv, &index, &validation);
+                if r.is_ok() {
+                    if let Some(dir) = path.parent() {
+                        std::fs::create_dir_all(dir)
+                            .map_err(|e| format!("{}: {e}", dir.display()))?;
+                    }
+                    save_historical(&path, &csv).map_err(|e| e.to_string())?;
                 }
-                save_historical(&path, &csv).map_err(|e| e.to_string())?;
-            }
-            Ok::<_, String>(r)
-        })
-        .await
-        .map_err(|e| UpdateError::Failed(format!("parse task failed: {e}")))?
-        .map_err(UpdateError::Failed)?;
+                Ok::<_, String>(r)
+            })
+            .await
+            .ok_or_else(|| UpdateError::Failed("parse task failed".into()))?
+            .map_err(UpdateError::Failed)?;
         match parsed {
             Ok((profile, report)) => {
                 let now = Utc::now();
@@ -496,15 +519,34 @@ impl RegionHandle {
         let snap = self.snapshot().ok_or_else(|| {
             UpdateError::Unavailable(self.status().degraded_reason.unwrap_or_default())
         })?;
-        let layer = w
+        let mut layer = w
             .live
-            .get_or_insert_with(|| LiveLayer::new(snap.index.num_edges()));
+            .take()
+            .unwrap_or_else(|| LiveLayer::new(snap.index.num_edges()));
         let now = Utc::now();
-        let r = if csv {
-            layer.apply_csv(&snap.index, body, now, &self.settings.validation)
-        } else {
-            layer.apply_json(&snap.index, body, now, &self.settings.validation)
+        // Parse and apply on the customizer thread: a large batch is
+        // milliseconds of CPU that request workers should not spend.
+        let (index, validation, body) = (
+            snap.index.clone(),
+            self.settings.validation.clone(),
+            body.to_vec(),
+        );
+        let done = self
+            .settings
+            .customizer
+            .run(move || {
+                let r = if csv {
+                    layer.apply_csv(&index, &body, now, &validation)
+                } else {
+                    layer.apply_json(&index, &body, now, &validation)
+                };
+                (layer, r)
+            })
+            .await;
+        let Some((layer, r)) = done else {
+            return Err(UpdateError::Failed("live batch task failed".into()));
         };
+        w.live = Some(layer);
         match r {
             Ok(report) => {
                 w.live_changed = true;
@@ -637,30 +679,58 @@ impl RegionHandle {
         }
     }
 
-    /// Expires old observations and blends the layer over the current
-    /// hour's historical speeds of `snap`.
-    fn blend_now(
+    fn blend_params(&self) -> BlendParams {
+        BlendParams {
+            ttl: Duration::from_secs_f64(self.settings.live.ttl_s),
+            half_life: Duration::from_secs_f64(self.settings.live.half_life_s),
+            tz: self.tz,
+        }
+    }
+
+    /// Blends `layer` over `snap` on the customizer thread (the layer is
+    /// moved there and back), so request workers never do it. `save`
+    /// writes the layer to the state directory first.
+    async fn blend_off_worker(
         &self,
-        snap: &Snapshot,
-        layer: &mut LiveLayer,
+        snap: &Arc<Snapshot>,
+        layer: LiveLayer,
         now: DateTime<Utc>,
-    ) -> Option<(Vec<f32>, BlendStats, Option<DateTime<Utc>>)> {
-        let ttl = Duration::from_secs_f64(self.settings.live.ttl_s);
-        layer.expire(now, ttl);
-        let newest = layer.newest_observed_at();
-        let hour = crate::speeds::hour_of_week(now, self.tz);
-        let base = match &snap.historical {
-            Some(h) => h.speeds_for_hour(&snap.free_flow_kmh, hour),
-            None => snap.free_flow_kmh.to_vec(),
-        };
-        let mut blended = Vec::new();
-        let half_life = Duration::from_secs_f64(self.settings.live.half_life_s);
-        match blend_into(&base, layer, now, half_life, ttl, &mut blended) {
-            Ok(stats) => Some((blended, stats, newest)),
-            Err(e) => {
-                tracing::error!(region = %self.name, error = %e, "live blend failed");
-                None
-            }
+        save: bool,
+    ) -> (LiveLayer, Option<Blended>, Option<bool>) {
+        let (snap2, params, name) = (snap.clone(), self.blend_params(), self.name.clone());
+        let path = live_state_path(&self.cfg);
+        let back = self
+            .settings
+            .customizer
+            .run(move || {
+                let mut layer = layer;
+                let saved = save.then(|| {
+                    if let Some(dir) = path.parent() {
+                        let _ = std::fs::create_dir_all(dir);
+                    }
+                    match save_live(&path, &layer, &snap2.index) {
+                        Ok(()) => true,
+                        Err(e) => {
+                            tracing::warn!(region = %name, error = %e, "live layer not saved");
+                            false
+                        }
+                    }
+                });
+                let blended = match blend_layer(&snap2, &mut layer, now, params) {
+                    Ok(b) => Some(b),
+                    Err(e) => {
+                        tracing::error!(region = %name, error = %e, "live blend failed");
+                        None
+                    }
+                };
+                (layer, blended, saved)
+            })
+            .await;
+        match back {
+            Some(x) => x,
+            // The job panicked: the layer is lost with it; start empty
+            // rather than serve a half-applied one.
+            None => (LiveLayer::new(snap.index.num_edges()), None, None),
         }
     }
 
@@ -693,36 +763,25 @@ impl RegionHandle {
             return false;
         }
         let mut guard = self.writer.lock().await;
-        let Writer {
-            live,
-            live_saved_at,
-            live_changed,
-        } = &mut *guard;
-        let Some(layer) = live.as_mut() else {
+        let Some(layer) = guard.live.take() else {
             return false;
         };
         let now = Utc::now();
-        let Some((blended, stats, newest)) = self.blend_now(&snap, layer, now) else {
-            return false;
-        };
         // Save the layer now and then so a restart brings it back.
-        let save = *live_changed
-            && live_saved_at
+        let save = guard.live_changed
+            && guard
+                .live_saved_at
                 .map(|t| t.elapsed() > Duration::from_secs(2))
                 .unwrap_or(true);
-        if save {
-            let path = live_state_path(&self.cfg);
-            if let Some(dir) = path.parent() {
-                let _ = std::fs::create_dir_all(dir);
-            }
-            match save_live(&path, layer, &snap.index) {
-                Ok(()) => {
-                    *live_saved_at = Some(Instant::now());
-                    *live_changed = false;
-                }
-                Err(e) => tracing::warn!(region = %self.name, error = %e, "live layer not saved"),
-            }
+        let (layer, blended, saved) = self.blend_off_worker(&snap, layer, now, save).await;
+        guard.live = Some(layer);
+        if saved == Some(true) {
+            guard.live_saved_at = Some(Instant::now());
+            guard.live_changed = false;
         }
+        let Some((blended, stats, newest)) = blended else {
+            return false;
+        };
         // Customize without holding the writer lock: uploads need not wait.
         drop(guard);
         let region = snap.region.clone();
@@ -839,6 +898,37 @@ impl RegionHandle {
             }
         }
     }
+}
+
+/// What a live blend needs besides the layer (owned, for the customizer).
+#[derive(Debug, Clone, Copy)]
+struct BlendParams {
+    ttl: Duration,
+    half_life: Duration,
+    tz: chrono_tz::Tz,
+}
+
+type Blended = (Vec<f32>, BlendStats, Option<DateTime<Utc>>);
+
+/// Expires old observations and blends the layer over the current hour's
+/// historical speeds of `snap`.
+fn blend_layer(
+    snap: &Snapshot,
+    layer: &mut LiveLayer,
+    now: DateTime<Utc>,
+    p: BlendParams,
+) -> Result<Blended, String> {
+    layer.expire(now, p.ttl);
+    let newest = layer.newest_observed_at();
+    let hour = crate::speeds::hour_of_week(now, p.tz);
+    let base = match &snap.historical {
+        Some(h) => h.speeds_for_hour(&snap.free_flow_kmh, hour),
+        None => snap.free_flow_kmh.to_vec(),
+    };
+    let mut blended = Vec::new();
+    blend_into(&base, layer, now, p.half_life, p.ttl, &mut blended)
+        .map(|stats| (blended, stats, newest))
+        .map_err(|e| e.to_string())
 }
 
 fn age_s(now: DateTime<Utc>, t: DateTime<Utc>) -> f64 {
