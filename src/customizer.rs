@@ -12,6 +12,10 @@
 //! the threads a customization spawns inherit it (Linux scheduling policy
 //! and nice value are per thread and inherited by threads it creates).
 //!
+//! The service runs two of these: one for customizations, one for the
+//! lighter update work (parsing uploads, blending and saving the live
+//! layer), so an upload does not wait behind a customization.
+//!
 //! Jobs are closures; [`Customizer::run`] awaits the result, and
 //! [`Customizer::spawn`] fires and forgets. A job that panics is reported
 //! as `None` to its waiter and the thread goes on.
@@ -43,15 +47,20 @@ impl std::fmt::Debug for Customizer {
 }
 
 impl Customizer {
-    /// Starts the thread at `priority`.
+    /// Starts the thread `hodos-customize` at `priority`.
     pub fn start(priority: CustomizePriority) -> Customizer {
+        Self::start_named("hodos-customize", priority)
+    }
+
+    /// Starts a thread of that name at `priority`.
+    pub fn start_named(name: &str, priority: CustomizePriority) -> Customizer {
         let (tx, rx) = mpsc::channel::<Job>();
         let pending = Arc::new(AtomicUsize::new(0));
         let applied = Arc::new(std::sync::atomic::AtomicBool::new(false));
         let (p2, a2) = (pending.clone(), applied.clone());
         let (ready_tx, ready_rx) = mpsc::channel::<()>();
         std::thread::Builder::new()
-            .name("hodos-customize".into())
+            .name(name.into())
             .spawn(move || {
                 a2.store(lower_priority(priority), Ordering::SeqCst);
                 let _ = ready_tx.send(());

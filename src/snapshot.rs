@@ -121,6 +121,11 @@ pub struct UpdateSettings {
     /// Where every customization runs (one thread, low CPU priority,
     /// shared by all regions).
     pub customizer: Customizer,
+    /// Where the lighter update work runs: parsing live batches and
+    /// historical tables, blending and saving the live layer. A thread of
+    /// its own at the same priority, so an upload is not queued behind a
+    /// customization of several hundred milliseconds.
+    pub updates: Customizer,
 }
 
 impl UpdateSettings {
@@ -135,6 +140,7 @@ impl UpdateSettings {
             live: cfg.live.clone(),
             bucket_cache: cfg.query.bucket_cache.max(2),
             customizer: Customizer::start(cfg.server.customize_priority),
+            updates: Customizer::start_named("hodos-update", cfg.server.customize_priority),
         }
     }
 }
@@ -416,7 +422,7 @@ impl RegionHandle {
         let path = historical_state_path(&self.cfg);
         let parsed = self
             .settings
-            .customizer
+            .updates
             .run(move || {
                 let r = HistoricalProfile::parse(&csv, &index, &validation);
                 if r.is_ok() {
@@ -533,7 +539,7 @@ impl RegionHandle {
         );
         let done = self
             .settings
-            .customizer
+            .updates
             .run(move || {
                 let r = if csv {
                     layer.apply_csv(&index, &body, now, &validation)
@@ -701,7 +707,7 @@ impl RegionHandle {
         let path = live_state_path(&self.cfg);
         let back = self
             .settings
-            .customizer
+            .updates
             .run(move || {
                 let mut layer = layer;
                 let saved = save.then(|| {
