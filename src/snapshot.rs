@@ -55,10 +55,15 @@ pub struct Snapshot {
 impl Snapshot {
     /// Cache key of the historical data: its version, or "free-flow".
     pub fn historical_key(&self) -> String {
-        match &self.historical {
-            Some(h) => format!("{}:{}", self.artifact_load, h.version()),
-            None => format!("{}:free-flow", self.artifact_load),
-        }
+        historical_key(self.artifact_load, self.historical.as_deref())
+    }
+}
+
+/// Bucket cache key of a historical table (or free-flow) on an artifact load.
+fn historical_key(artifact_load: u64, h: Option<&HistoricalProfile>) -> String {
+    match h {
+        Some(h) => format!("{artifact_load}:{}", h.version()),
+        None => format!("{artifact_load}:free-flow"),
     }
 }
 
@@ -337,7 +342,7 @@ impl RegionHandle {
             };
         }
         let free_flow: Vec<f32> = region.graph.edge_speed_kmh.clone();
-        let fresh = Snapshot {
+        let mut fresh = Snapshot {
             generation: 0,
             region: Arc::new(region),
             index: Arc::new(index),
@@ -350,27 +355,14 @@ impl RegionHandle {
         };
         // Serve the live blend from the first moment: customize it for the
         // new graph before the swap, so no answer falls back meanwhile.
-        let fresh_arc = Arc::new(fresh);
         let blended = match w.live.take() {
             Some(layer) => {
-                let (layer, b, _) = self.blend_off_worker(&fresh_arc, layer, now, false).await;
+                let (layer, b, _) = self.blend_off_worker(&fresh, layer, now, false).await;
                 w.live = Some(layer);
                 b
             }
             None => None,
         };
-        // The blend job has dropped its clone by now; copy the fields if not.
-        let mut fresh = Arc::try_unwrap(fresh_arc).unwrap_or_else(|a| Snapshot {
-            generation: 0,
-            region: a.region.clone(),
-            index: a.index.clone(),
-            free_flow_kmh: a.free_flow_kmh.clone(),
-            historical: a.historical.clone(),
-            historical_at: a.historical_at,
-            live: None,
-            artifact_load: a.artifact_load,
-            artifact_at: a.artifact_at,
-        });
         if let Some((blended, stats, newest)) = blended {
             let region = fresh.region.clone();
             let metric = self
@@ -445,30 +437,12 @@ impl RegionHandle {
                 // so "now" queries without fresh live data keep graph answers
                 // instead of waiting for a cold bucket (the next hours are
                 // customized by the warm-up or on first use).
-                let key = format!("{}:{}", snap.artifact_load, profile.version());
+                let key = historical_key(snap.artifact_load, Some(&profile));
                 let hour = crate::speeds::hour_of_week(now, self.tz);
-                let (region, ff, p2) = (
-                    snap.region.clone(),
-                    snap.free_flow_kmh.clone(),
-                    profile.clone(),
-                );
-                let t = Instant::now();
-                let metric = self
-                    .settings
-                    .customizer
-                    .run(move || {
-                        let speeds = p2.speeds_for_hour(&ff, hour);
-                        region.metric(crate::metric::from_speeds(&region.graph, &speeds))
-                    })
-                    .await;
-                if let Some(metric) = metric {
-                    metrics::histogram!(m::CUSTOMIZATION, "region" => self.name.clone(), "kind" => "historical")
-                        .record(t.elapsed().as_secs_f64());
-                    let slot = self.slot(&key, hour);
-                    if slot.cell.set(Arc::new(metric)).is_ok() {
-                        slot.started.store(true, Ordering::SeqCst);
-                        slot.notify.notify_waiters();
-                    }
+                let slot = self.slot(&key, hour);
+                if !slot.started.swap(true, Ordering::SeqCst) {
+                    let job = self.bucket_job(&snap, Some(profile.clone()), hour, slot);
+                    self.settings.customizer.run(job).await;
                 }
                 let live_fresh = snap
                     .live
@@ -649,11 +623,23 @@ impl RegionHandle {
     }
 
     fn spawn_bucket(&self, snap: &Snapshot, hour: u8, slot: Arc<Slot>) {
+        let job = self.bucket_job(snap, snap.historical.clone(), hour, slot);
+        self.settings.customizer.spawn(job);
+    }
+
+    /// The customizer job that fills `slot` with the metric of `hist` (or
+    /// free-flow) for `hour` on `snap`'s graph and wakes its waiters.
+    fn bucket_job(
+        &self,
+        snap: &Snapshot,
+        hist: Option<Arc<HistoricalProfile>>,
+        hour: u8,
+        slot: Arc<Slot>,
+    ) -> impl FnOnce() + Send + 'static {
         let region = snap.region.clone();
-        let hist = snap.historical.clone();
         let ff = snap.free_flow_kmh.clone();
         let name = self.name.clone();
-        self.settings.customizer.spawn(move || {
+        move || {
             let t = Instant::now();
             let speeds = match &hist {
                 Some(h) => h.speeds_for_hour(&ff, hour),
@@ -664,7 +650,7 @@ impl RegionHandle {
                 .record(t.elapsed().as_secs_f64());
             let _ = slot.cell.set(Arc::new(metric));
             slot.notify.notify_waiters();
-        });
+        }
     }
 
     /// Starts customizing the current and the next hour in the background.
@@ -693,17 +679,22 @@ impl RegionHandle {
         }
     }
 
-    /// Blends `layer` over `snap` on the customizer thread (the layer is
+    /// Blends `layer` over `snap` on the updates thread (the layer is
     /// moved there and back), so request workers never do it. `save`
     /// writes the layer to the state directory first.
     async fn blend_off_worker(
         &self,
-        snap: &Arc<Snapshot>,
+        snap: &Snapshot,
         layer: LiveLayer,
         now: DateTime<Utc>,
         save: bool,
     ) -> (LiveLayer, Option<Blended>, Option<bool>) {
-        let (snap2, params, name) = (snap.clone(), self.blend_params(), self.name.clone());
+        let base = BlendBase {
+            historical: snap.historical.clone(),
+            free_flow_kmh: snap.free_flow_kmh.clone(),
+            index: snap.index.clone(),
+        };
+        let (params, name) = (self.blend_params(), self.name.clone());
         let path = live_state_path(&self.cfg);
         let back = self
             .settings
@@ -714,7 +705,7 @@ impl RegionHandle {
                     if let Some(dir) = path.parent() {
                         let _ = std::fs::create_dir_all(dir);
                     }
-                    match save_live(&path, &layer, &snap2.index) {
+                    match save_live(&path, &layer, &base.index) {
                         Ok(()) => true,
                         Err(e) => {
                             tracing::warn!(region = %name, error = %e, "live layer not saved");
@@ -722,7 +713,7 @@ impl RegionHandle {
                         }
                     }
                 });
-                let blended = match blend_layer(&snap2, &mut layer, now, params) {
+                let blended = match blend_layer(&base, &mut layer, now, params) {
                     Ok(b) => Some(b),
                     Err(e) => {
                         tracing::error!(region = %name, error = %e, "live blend failed");
@@ -916,10 +907,18 @@ struct BlendParams {
 
 type Blended = (Vec<f32>, BlendStats, Option<DateTime<Utc>>);
 
+/// The parts of a snapshot a live blend reads (owned, for the updates
+/// thread).
+struct BlendBase {
+    historical: Option<Arc<HistoricalProfile>>,
+    free_flow_kmh: Arc<Vec<f32>>,
+    index: Arc<EdgeIndex>,
+}
+
 /// Expires old observations and blends the layer over the current hour's
 /// historical speeds of `snap`.
 fn blend_layer(
-    snap: &Snapshot,
+    snap: &BlendBase,
     layer: &mut LiveLayer,
     now: DateTime<Utc>,
     p: BlendParams,

@@ -770,24 +770,18 @@ impl Ctx {
                 let drain =
                     Duration::from_secs_f64(s.overload.as_secs_f64() * (k + 1.0)).max(s.drain);
                 let run = format!("overload-{name}-{k:.0}x");
-                let sum = self
-                    .drive(
-                        &run,
-                        System::Hodos,
-                        &w,
-                        c * k,
-                        s.overload,
-                        s.overload_connections,
-                        drain,
-                    )
-                    .await;
-                self.runs.push(sum.clone());
-                tokio::time::sleep(Duration::from_secs(2)).await;
-                let base = if self.baseline.is_some() && name == "eta" {
-                    let b = self
+                let with_baseline = self.baseline.is_some() && name == "eta";
+                let systems: &[System] = if with_baseline {
+                    &[System::Hodos, System::Baseline]
+                } else {
+                    &[System::Hodos]
+                };
+                let mut got = Vec::new();
+                for &sys in systems {
+                    let sum = self
                         .drive(
                             &run,
-                            System::Baseline,
+                            sys,
                             &w,
                             c * k,
                             s.overload,
@@ -795,12 +789,12 @@ impl Ctx {
                             drain,
                         )
                         .await;
-                    self.runs.push(b.clone());
+                    self.runs.push(sum.clone());
                     tokio::time::sleep(Duration::from_secs(2)).await;
-                    Some(b)
-                } else {
-                    None
-                };
+                    got.push(sum);
+                }
+                let mut got = got.into_iter();
+                let (sum, base) = (got.next().expect("hodos ran"), got.next());
                 overloads.push(Overload {
                     workload: name.to_string(),
                     k,
