@@ -14,8 +14,9 @@
 //! - [`build`], [`artifact`]: the offline pipeline and its file format.
 //! - [`speeds`]: historical profiles, live observations, blending, saving.
 //! - [`snapshot`]: per-region serving state behind `arc-swap` and every
-//!   update path; [`customizer`]: the low-priority thread that runs
-//!   customizations.
+//!   update path; [`customizer`]: the low-priority threads that run
+//!   customizations and other update work; [`retire`]: superseded data
+//!   freed on those threads, never by a request.
 //! - [`admission`], [`answer`], [`tier`]: shedding under overload, tier
 //!   choice and fallbacks.
 //! - [`service`], [`config`]: the HTTP API (axum), metrics, OpenAPI, and
@@ -36,6 +37,7 @@ pub mod import;
 pub mod metric;
 pub mod order;
 pub mod region;
+pub mod retire;
 pub mod service;
 pub mod snap;
 pub mod snapshot;

@@ -19,6 +19,7 @@ use crate::artifact::Artifact;
 use crate::config::{Config, LiveConfig, RegionConfig};
 use crate::customizer::Customizer;
 use crate::region::{Metric, Region};
+use crate::retire::{RetireBin, Retiree};
 use crate::service::metrics as m;
 use crate::speeds::{
     blend_into, load_historical, load_live, save_historical, save_live, BlendStats, EdgeIndex,
@@ -158,6 +159,22 @@ struct Slot {
     notify: Notify,
 }
 
+/// Slots dropped from the bucket list; in use while a request or a bucket
+/// job holds a slot or its metric.
+struct EvictedSlots(Vec<Arc<Slot>>);
+
+impl Retiree for EvictedSlots {
+    fn in_use(&self) -> bool {
+        self.0.iter().any(|s| {
+            Arc::strong_count(s) > 1
+                || s.cell
+                    .get()
+                    .map(|m| Arc::strong_count(m) > 1)
+                    .unwrap_or(false)
+        })
+    }
+}
+
 /// Writer-side state: only update paths touch it, one at a time.
 struct Writer {
     live: Option<LiveLayer>,
@@ -176,6 +193,9 @@ pub struct RegionHandle {
     /// Copy-on-write list of bucket slots, newest last, bounded.
     buckets: ArcSwap<Vec<(String, u8, Arc<Slot>)>>,
     writer: tokio::sync::Mutex<Writer>,
+    /// Superseded snapshots and evicted buckets, freed on the `updates`
+    /// thread once no request holds them (see [`crate::retire`]).
+    retired: Arc<RetireBin>,
     live_dirty: AtomicBool,
     wake: Notify,
     generation: AtomicU64,
@@ -217,6 +237,7 @@ impl RegionHandle {
                 live_saved_at: None,
                 live_changed: false,
             }),
+            retired: Arc::default(),
             live_dirty: AtomicBool::new(false),
             wake: Notify::new(),
             generation: AtomicU64::new(0),
@@ -288,7 +309,10 @@ impl RegionHandle {
     fn publish(&self, build: impl FnOnce(u64) -> Snapshot) -> Arc<Snapshot> {
         let g = self.generation.fetch_add(1, Ordering::SeqCst) + 1;
         let snap = Arc::new(build(g));
-        self.current.store(Some(snap.clone()));
+        if let Some(old) = self.current.swap(Some(snap.clone())) {
+            self.retired.retire(old);
+            self.sweep_retired();
+        }
         metrics::gauge!(m::SNAPSHOT_GENERATION, "region" => self.name.clone()).set(g as f64);
         metrics::gauge!(m::REGION_READY, "region" => self.name.clone()).set(1.0);
         snap
@@ -597,29 +621,55 @@ impl RegionHandle {
             return s.clone();
         }
         let cap = self.settings.bucket_cache + 2;
-        // Buckets of superseded tables are dropped as soon as a new one is
-        // made (requests still holding one keep it alive until they finish).
+        // Buckets of superseded tables leave the list as soon as a new one
+        // is made, and are freed once the requests holding them finish.
         let current = self.snapshot().map(|s| s.historical_key());
-        let mut out: Option<Arc<Slot>> = None;
-        self.buckets.rcu(|cur| {
+        loop {
+            let cur = self.buckets.load_full();
             if let Some((_, _, s)) = cur.iter().find(|(k, h, _)| k == key && *h == hour) {
-                out = Some(s.clone());
-                return cur.clone();
+                return s.clone();
             }
             let s = Arc::new(Slot::default());
-            out = Some(s.clone());
             let mut v: Vec<_> = cur
                 .iter()
                 .filter(|(k, _, _)| k == key || Some(k) == current.as_ref())
                 .cloned()
                 .collect();
-            v.push((key.to_string(), hour, s));
+            v.push((key.to_string(), hour, s.clone()));
             while v.len() > cap {
                 v.remove(0);
             }
-            Arc::new(v)
-        });
-        out.expect("rcu ran at least once")
+            let evicted: Vec<Arc<Slot>> = cur
+                .iter()
+                .filter(|(_, _, o)| !v.iter().any(|(_, _, n)| Arc::ptr_eq(o, n)))
+                .map(|(_, _, o)| o.clone())
+                .collect();
+            let prev = self.buckets.compare_and_swap(&cur, Arc::new(v));
+            if Arc::ptr_eq(&prev, &cur) {
+                // Evicted buckets may be the only holders of a metric of
+                // tens of MB: this request must not be the one to free it.
+                if !evicted.is_empty() {
+                    self.retired.retire(EvictedSlots(evicted));
+                    self.sweep_retired();
+                }
+                return s;
+            }
+        }
+    }
+
+    /// Frees, on the `updates` thread, whatever retired data no request
+    /// holds any more. Called after every publish and every live-loop
+    /// round, so leftovers go within a round.
+    pub fn sweep_retired(&self) {
+        if !self.retired.is_empty() {
+            let bin = self.retired.clone();
+            self.settings.updates.spawn(move || drop(bin.sweep()));
+        }
+    }
+
+    /// Retired items not yet freed, and retired since start.
+    pub fn retired(&self) -> (usize, u64) {
+        (self.retired.len(), self.retired.total())
     }
 
     fn spawn_bucket(&self, snap: &Snapshot, hour: u8, slot: Arc<Slot>) {
@@ -842,6 +892,7 @@ impl RegionHandle {
             }
             let started = Instant::now();
             self.refresh_live(false).await;
+            self.sweep_retired();
             if let Some(snap) = self.snapshot() {
                 if let Some(l) = &snap.live {
                     if let Some(n) = l.newest_observed_at {

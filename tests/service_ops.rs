@@ -147,7 +147,7 @@ async fn fifty_hot_swaps_under_load_fail_nothing() {
         )
     };
     let (good, bad) = (table(0.0), corrupt_table());
-    let mut good_swaps = 0;
+    let mut good_swaps = 0u64;
     for i in 0..50 {
         if i % 2 == 0 {
             // Alternate between two speeds so consecutive good tables differ.
@@ -192,6 +192,20 @@ async fn fifty_hot_swaps_under_load_fail_nothing() {
     eprintln!("hot swap: {good_swaps} good and {} corrupt tables while 4 tasks made {ok} requests; {failed} failed", 50 - good_swaps);
     assert_eq!(failed, 0);
     assert!(ok > 50, "the query tasks ran during the swaps ({ok})");
+    // Every swap retired the snapshot it replaced (src/retire.rs), and with
+    // the query tasks gone the background sweeps free them all: nothing
+    // superseded is kept, and no request had to free one.
+    let region = srv.state.catalog.regions[0].clone();
+    let (_, retired) = region.retired();
+    assert!(
+        retired >= good_swaps,
+        "{retired} items retired for {good_swaps} swaps"
+    );
+    let deadline = Instant::now() + Duration::from_secs(20);
+    while region.retired().0 > 0 && Instant::now() < deadline {
+        tokio::time::sleep(Duration::from_millis(50)).await;
+    }
+    assert_eq!(region.retired().0, 0, "retired data left unfreed");
     srv.stop().await;
 }
 
