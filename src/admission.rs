@@ -8,7 +8,7 @@
 //! the server spends its CPU on cheap answers instead of a growing queue of
 //! graph searches, and no caller is refused.
 //!
-//! Two signals, either of which sheds:
+//! Three signals, any of which sheds:
 //!
 //! - **Requests in flight** above `query.max_in_flight`. This sees requests
 //!   that wait inside the server (for a graph permit, a bucket, a matrix
@@ -24,18 +24,31 @@
 //!   makes every wake-up late, while a single stall (the hypervisor taking
 //!   the CPU away for a few ms, a page fault) makes one late and clears by
 //!   itself; shedding for it would only turn graph answers into estimates.
+//! - **CPU wait** above `query.max_cpu_wait`: the share of the last 100 ms
+//!   the runtime's threads spent ready but waiting for a CPU, per worker
+//!   ([`crate::cpu_wait`]). This is the one that sees a backlog held
+//!   *outside* the server: when callers (or a load generator on the same
+//!   machine) keep every core busy, each connection carries one request at
+//!   a time, nothing queues in the runtime, and the lag stays small; yet
+//!   the handlers wait for CPU and the callers' own queues grow. Shedding
+//!   then makes each answer cheap enough for the machine to keep up.
 //!
-//! Both are separate from the graph permits in [`crate::answer`], which
+//! All three are separate from the graph permits in [`crate::answer`], which
 //! bound concurrent graph work (matrices hold one across a blocking thread).
 
 use std::sync::atomic::{AtomicU64, AtomicUsize, Ordering};
 use std::sync::Arc;
 use std::time::{Duration, Instant};
 
+use crate::cpu_wait::WaitMeter;
+
 /// How often the probe asks to be woken.
 const PROBE_EVERY: Duration = Duration::from_millis(1);
 /// Consecutive wake-ups that must all be late before the lag sheds.
 pub const PROBE_WINDOW: usize = 8;
+/// Window of the CPU-wait signal, and how often (in probe ticks) it is read.
+const WAIT_WINDOW: Duration = Duration::from_millis(100);
+const WAIT_EVERY_TICKS: u32 = 10;
 
 /// Counts answer requests in flight against a limit, and holds the latest
 /// scheduling lag against another.
@@ -46,7 +59,10 @@ pub struct Admission {
     /// Latest probe lateness, µs (0 until a probe runs).
     lag_us: AtomicU64,
     max_lag_us: u64,
-    /// Requests shed so far (either signal).
+    /// Latest CPU-wait share, per mille (0 until measured).
+    cpu_wait_milli: AtomicU64,
+    max_cpu_wait_milli: u64,
+    /// Requests shed so far (any signal).
     shed: AtomicU64,
 }
 
@@ -59,8 +75,9 @@ pub struct Ticket {
 
 impl Admission {
     /// `limit` requests in flight; `max_lag` of scheduling lag (zero: the
-    /// lag is not a signal).
-    pub fn new(limit: usize, max_lag: Duration) -> Arc<Admission> {
+    /// lag is not a signal); `max_cpu_wait` share of time waiting for a CPU
+    /// per worker (zero or less: not a signal).
+    pub fn new(limit: usize, max_lag: Duration, max_cpu_wait: f64) -> Arc<Admission> {
         Arc::new(Admission {
             in_flight: AtomicUsize::new(0),
             limit,
@@ -70,16 +87,24 @@ impl Admission {
             } else {
                 max_lag.as_micros() as u64
             },
+            cpu_wait_milli: AtomicU64::new(0),
+            max_cpu_wait_milli: if max_cpu_wait > 0.0 {
+                (max_cpu_wait * 1000.0).round() as u64
+            } else {
+                u64::MAX
+            },
             shed: AtomicU64::new(0),
         })
     }
 
     /// Enters one request; it may do graph work if at most `limit`
     /// requests (itself included) are in flight and the latest scheduling
-    /// lag is within bounds.
+    /// lag and CPU wait are within bounds.
     pub fn enter(self: &Arc<Self>) -> Ticket {
         let n = self.in_flight.fetch_add(1, Ordering::AcqRel) + 1;
-        let admitted = n <= self.limit && self.lag_us.load(Ordering::Relaxed) <= self.max_lag_us;
+        let admitted = n <= self.limit
+            && self.lag_us.load(Ordering::Relaxed) <= self.max_lag_us
+            && self.cpu_wait_milli.load(Ordering::Relaxed) <= self.max_cpu_wait_milli;
         if !admitted {
             self.shed.fetch_add(1, Ordering::Relaxed);
         }
@@ -99,17 +124,38 @@ impl Admission {
         self.shed.load(Ordering::Relaxed)
     }
 
+    /// Latest CPU-wait share per worker (see [`crate::cpu_wait`]).
+    pub fn cpu_wait(&self) -> f64 {
+        self.cpu_wait_milli.load(Ordering::Relaxed) as f64 / 1000.0
+    }
+
+    /// Records one CPU-wait measurement (the probe's, or a test's).
+    pub fn record_cpu_wait(&self, share: f64) {
+        let milli = (share.max(0.0) * 1000.0).round() as u64;
+        self.cpu_wait_milli.store(milli, Ordering::Relaxed);
+    }
+
     /// Records one lateness measurement (the probe's, or a test's).
     pub fn record_lag(&self, lag: Duration) {
         self.lag_us.store(lag.as_micros() as u64, Ordering::Relaxed);
     }
 
     /// Measures scheduling lag on the current runtime until `shutdown`
-    /// resolves: sleeps one tick at a time and records how late it woke.
+    /// resolves: sleeps one tick at a time and records how late it woke;
+    /// every tenth tick also reads the CPU wait of the runtime's threads.
     pub async fn run_probe(self: Arc<Self>, shutdown: impl std::future::Future<Output = ()>) {
         tokio::pin!(shutdown);
         let mut window = LagWindow::default();
+        let workers = tokio::runtime::Handle::current().metrics().num_workers();
+        let mut meter = WaitMeter::new(WAIT_WINDOW, workers);
+        let mut tick = 0u32;
         loop {
+            tick = tick.wrapping_add(1);
+            if tick % WAIT_EVERY_TICKS == 0 {
+                if let Some(share) = meter.sample() {
+                    self.record_cpu_wait(share);
+                }
+            }
             let due = Instant::now() + PROBE_EVERY;
             tokio::select! {
                 _ = &mut shutdown => break,
@@ -120,6 +166,7 @@ impl Admission {
             self.record_lag(window.push(late.saturating_sub(PROBE_EVERY)));
         }
         self.record_lag(Duration::ZERO);
+        self.record_cpu_wait(0.0);
     }
 
     /// Requests in flight now.
@@ -162,7 +209,7 @@ mod tests {
 
     #[test]
     fn admits_up_to_the_limit_and_frees_on_drop() {
-        let a = Admission::new(2, Duration::from_millis(5));
+        let a = Admission::new(2, Duration::from_millis(5), 0.4);
         let t1 = a.enter();
         let t2 = a.enter();
         let t3 = a.enter();
@@ -178,13 +225,13 @@ mod tests {
         assert!(t4.admitted());
         drop((t2, t4));
         assert_eq!(a.in_flight(), 0);
-        let none = Admission::new(0, Duration::from_millis(5));
+        let none = Admission::new(0, Duration::from_millis(5), 0.4);
         assert!(!none.enter().admitted(), "limit 0 sheds everything");
     }
 
     #[test]
     fn sheds_while_the_lag_is_over_the_bound() {
-        let a = Admission::new(100, Duration::from_millis(5));
+        let a = Admission::new(100, Duration::from_millis(5), 0.4);
         a.record_lag(Duration::from_millis(5));
         assert!(a.enter().admitted(), "at the bound: admitted");
         a.record_lag(Duration::from_millis(6));
@@ -192,11 +239,21 @@ mod tests {
         a.record_lag(Duration::from_millis(1));
         assert!(a.enter().admitted());
         assert_eq!(a.shed_total(), 1);
-        let off = Admission::new(100, Duration::ZERO);
+        // CPU wait: over the bound sheds, at or under admits.
+        let w = Admission::new(100, Duration::from_millis(5), 0.5);
+        w.record_cpu_wait(0.5);
+        assert!(w.enter().admitted(), "at the bound: admitted");
+        w.record_cpu_wait(0.51);
+        assert!(!w.enter().admitted());
+        assert!((w.cpu_wait() - 0.51).abs() < 1e-9);
+        w.record_cpu_wait(0.1);
+        assert!(w.enter().admitted());
+        let off = Admission::new(100, Duration::ZERO, 0.0);
+        off.record_cpu_wait(5.0);
         off.record_lag(Duration::from_secs(1));
         assert!(
             off.enter().admitted(),
-            "max_queue_ms = 0 disables the lag signal"
+            "max_queue_ms = 0 and max_cpu_wait = 0 disable their signals"
         );
     }
 
@@ -224,7 +281,7 @@ mod tests {
             .enable_time()
             .build()
             .unwrap();
-        let a = Admission::new(100, Duration::from_millis(5));
+        let a = Admission::new(100, Duration::from_millis(5), 0.4);
         let (tx, rx) = tokio::sync::oneshot::channel::<()>();
         let seen = rt.block_on(async {
             let probe = tokio::spawn(a.clone().run_probe(async {

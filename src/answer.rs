@@ -56,6 +56,7 @@ impl Catalog {
             admission: Admission::new(
                 cfg.query.max_in_flight,
                 Duration::from_millis(cfg.query.max_queue_ms),
+                cfg.query.max_cpu_wait,
             ),
             regions,
             cfg,

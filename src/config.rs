@@ -118,6 +118,12 @@ pub struct QueryConfig {
     /// above which answer requests are shed the same way: the queueing
     /// delay a request arriving now would see. 0 disables this signal.
     pub max_queue_ms: u64,
+    /// Share of time the request threads may spend waiting for a CPU
+    /// (per worker, over the last 100 ms) before answer requests are shed
+    /// the same way: the signal for a machine whose cores are all busy
+    /// while the backlog sits in the callers' connection pools. Linux
+    /// only; 0 disables this signal.
+    pub max_cpu_wait: f64,
     /// Historical bucket metrics kept customized (besides the warm ones).
     pub bucket_cache: usize,
 }
@@ -132,6 +138,7 @@ impl Default for QueryConfig {
             graph_concurrency: 8,
             max_in_flight: 32,
             max_queue_ms: 5,
+            max_cpu_wait: 0.5,
             bucket_cache: 2,
         }
     }
@@ -352,6 +359,12 @@ impl Config {
         }
         if q.max_matrix_cells == 0 {
             return bad("query.max_matrix_cells", "must be positive");
+        }
+        if !(q.max_cpu_wait.is_finite() && q.max_cpu_wait >= 0.0) {
+            return bad(
+                "query.max_cpu_wait",
+                "must be a share of time, 0 or more (0 disables)",
+            );
         }
         let l = &self.live;
         if !(l.half_life_s > 0.0

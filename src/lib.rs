@@ -17,7 +17,8 @@
 //!   update path; [`customizer`]: the low-priority threads that run
 //!   customizations and other update work; [`retire`]: superseded data
 //!   freed on those threads, never by a request.
-//! - [`admission`], [`answer`], [`tier`]: shedding under overload, tier
+//! - [`admission`], [`cpu_wait`], [`answer`], [`tier`]: shedding under
+//!   overload (and the CPU-wait signal it reads), tier
 //!   choice and fallbacks.
 //! - [`service`], [`config`]: the HTTP API (axum), metrics, OpenAPI, and
 //!   the TOML configuration; [`demo`]: the demo city's files and feed.
@@ -29,6 +30,7 @@ pub mod build;
 pub mod calibration;
 pub mod cch;
 pub mod config;
+pub mod cpu_wait;
 pub mod customizer;
 pub mod demo;
 pub mod geo;
