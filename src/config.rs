@@ -138,7 +138,7 @@ impl Default for QueryConfig {
             graph_concurrency: 8,
             max_in_flight: 32,
             max_queue_ms: 5,
-            max_cpu_wait: 0.5,
+            max_cpu_wait: 0.4,
             bucket_cache: 2,
         }
     }

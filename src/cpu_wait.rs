@@ -7,12 +7,17 @@
 //! (`/proc/<pid>/task/<tid>/schedstat`, second field, nanoseconds), so the
 //! share of time the runtime's threads spent waiting over the last window
 //! says how CPU-starved request handling is, whether the waiting requests
-//! sit in this server's sockets or in a caller's connection pool. The
-//! update threads ([`crate::customizer`]) are not registered: they run at
-//! idle priority and are meant to wait.
+//! sit in this server's sockets or in a caller's connection pool. Only
+//! the runtime's *worker* threads count: the update threads
+//! ([`crate::customizer`]) run at idle priority and are meant to wait, and
+//! blocking-pool threads (matrices) wait behind each other within their
+//! own bounds (graph permits, budgets) without the workers waiting.
 //!
-//! The runtime registers its threads with [`register_current_thread`]
-//! (`on_thread_start`); [`WaitMeter`] reads them. Elsewhere than Linux, or
+//! The runtime's workers register with [`register_worker`] from its
+//! `on_thread_park` hook, which tokio calls on worker threads only (the
+//! first park registers; later ones cost a thread-local check), and leave
+//! with [`unregister_current_thread`] (`on_thread_stop`); [`WaitMeter`]
+//! reads them. Elsewhere than Linux, or
 //! with no registered thread, the meter reports nothing and the signal is
 //! off.
 
@@ -27,9 +32,16 @@ fn threads() -> std::sync::MutexGuard<'static, Vec<i32>> {
     THREADS.lock().unwrap_or_else(|p| p.into_inner())
 }
 
-/// Registers the calling thread as a request thread (a runtime's
-/// `on_thread_start`).
-pub fn register_current_thread() {
+thread_local! {
+    static REGISTERED: std::cell::Cell<bool> = const { std::cell::Cell::new(false) };
+}
+
+/// Registers the calling thread as a request worker, once (a runtime's
+/// `on_thread_park`).
+pub fn register_worker() {
+    if REGISTERED.with(|r| r.replace(true)) {
+        return;
+    }
     if let Some(tid) = current_tid() {
         threads().push(tid);
     }
@@ -145,6 +157,20 @@ mod tests {
         assert_eq!(parse_wait("1 2"), Some(2));
         assert_eq!(parse_wait("garbage"), None);
         assert_eq!(parse_wait(""), None);
+    }
+
+    #[test]
+    fn a_worker_registers_once_and_leaves() {
+        std::thread::spawn(|| {
+            let Some(tid) = current_tid() else { return };
+            register_worker();
+            register_worker(); // every park calls it
+            assert_eq!(threads().iter().filter(|&&t| t == tid).count(), 1);
+            unregister_current_thread();
+            assert!(!threads().contains(&tid));
+        })
+        .join()
+        .unwrap();
     }
 
     #[test]

@@ -318,11 +318,12 @@ fn cmd_demo_once() -> anyhow::Result<()> {
 }
 
 fn runtime() -> anyhow::Result<tokio::runtime::Runtime> {
-    // The runtime's threads are the request threads whose CPU wait the
-    // admission control reads (`hodos::cpu_wait`).
+    // The runtime's workers are the request threads whose CPU wait the
+    // admission control reads (`hodos::cpu_wait`); tokio calls the park
+    // hook on workers only.
     Ok(tokio::runtime::Builder::new_multi_thread()
         .enable_all()
-        .on_thread_start(hodos::cpu_wait::register_current_thread)
+        .on_thread_park(hodos::cpu_wait::register_worker)
         .on_thread_stop(hodos::cpu_wait::unregister_current_thread)
         .build()?)
 }
