@@ -25,7 +25,7 @@
 //!   the CPU away for a few ms, a page fault) makes one late and clears by
 //!   itself; shedding for it would only turn graph answers into estimates.
 //! - **CPU wait** above `query.max_cpu_wait`: the share of the last 100 ms
-//!   the runtime's threads spent ready but waiting for a CPU, per worker
+//!   the runtime's worker threads spent ready but waiting for a CPU, each
 //!   ([`crate::cpu_wait`]). This is the one that sees a backlog held
 //!   *outside* the server: when callers (or a load generator on the same
 //!   machine) keep every core busy, each connection carries one request at

@@ -17,15 +17,14 @@
 //! `on_thread_park` hook, which tokio calls on worker threads only (the
 //! first park registers; later ones cost a thread-local check), and leave
 //! with [`unregister_current_thread`] (`on_thread_stop`); [`WaitMeter`]
-//! reads them. Elsewhere than Linux, or
-//! with no registered thread, the meter reports nothing and the signal is
-//! off.
+//! reads them. Elsewhere than Linux, or with no registered thread, the
+//! meter reports nothing and the signal is off.
 
 use std::collections::{HashMap, VecDeque};
 use std::sync::Mutex;
 use std::time::{Duration, Instant};
 
-/// Thread ids of the request runtime's threads.
+/// Thread ids of the request runtime's worker threads.
 static THREADS: Mutex<Vec<i32>> = Mutex::new(Vec::new());
 
 fn threads() -> std::sync::MutexGuard<'static, Vec<i32>> {
@@ -87,6 +86,9 @@ pub struct WaitMeter {
     /// Last cumulative wait per thread (threads come and go: only a
     /// thread seen twice contributes, so an exit never counts negative).
     last: HashMap<i32, u64>,
+    /// This sample's readings, swapped into `last` (kept to reuse its
+    /// allocation).
+    seen: HashMap<i32, u64>,
     /// (when, wait added since the previous sample), oldest first.
     steps: VecDeque<(Instant, u64)>,
     tids: Vec<i32>,
@@ -99,6 +101,7 @@ impl WaitMeter {
             window,
             workers: workers.max(1) as f64,
             last: HashMap::new(),
+            seen: HashMap::new(),
             steps: VecDeque::new(),
             tids: Vec::new(),
         }
@@ -114,16 +117,16 @@ impl WaitMeter {
         }
         let now = Instant::now();
         let mut added = 0u64;
-        let mut seen = HashMap::with_capacity(self.tids.len());
+        self.seen.clear();
         for &tid in &self.tids {
             if let Some(w) = wait_ns(tid) {
                 if let Some(&prev) = self.last.get(&tid) {
                     added += w.saturating_sub(prev);
                 }
-                seen.insert(tid, w);
+                self.seen.insert(tid, w);
             }
         }
-        self.last = seen;
+        std::mem::swap(&mut self.last, &mut self.seen);
         self.push(now, added)
     }
 
