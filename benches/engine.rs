@@ -9,13 +9,13 @@
 mod common;
 
 use criterion::{criterion_group, criterion_main, BatchSize, Criterion};
-use hodos::artifact::Artifact;
-use hodos::build::{build_from_graph, Quiet};
-use hodos::cch::{Cch, CchQuery, CustomizedMetric};
-use hodos::geo::{LatLon, LocalProjection};
-use hodos::graph::RoadGraph;
-use hodos::order::{nested_dissection, UndirectedGraph};
-use hodos::region::Region;
+use hodos::engine::artifact::Artifact;
+use hodos::engine::build::{build_from_graph, Quiet};
+use hodos::engine::cch::{Cch, CchQuery, CustomizedMetric};
+use hodos::engine::geo::{LatLon, LocalProjection};
+use hodos::engine::graph::RoadGraph;
+use hodos::engine::order::{nested_dissection, UndirectedGraph};
+use hodos::engine::region::Region;
 use petgraph::graph::{DiGraph, NodeIndex};
 use std::hint::black_box;
 use std::path::PathBuf;
@@ -86,7 +86,7 @@ fn bench_preprocessing(c: &mut Criterion) {
         })
     });
     let region = &f.region;
-    let weights = hodos::metric::free_flow(&region.graph);
+    let weights = hodos::engine::metric::free_flow(&region.graph);
     let mut metric = CustomizedMetric::new(&region.cch, &weights, &region.graph.edge_len_m);
     group.bench_function("customize", |b| {
         b.iter(|| metric.customize(&region.cch, black_box(&weights), &region.graph.edge_len_m))

@@ -8,8 +8,8 @@
 
 mod common;
 
-use hodos::build::{build_from_graph, Quiet};
-use hodos::service::{bind, serve, AppState};
+use hodos::engine::build::{build_from_graph, Quiet};
+use hodos::http::{bind, serve, AppState};
 use serde_json::{json, Value};
 use std::time::{Duration, Instant};
 
@@ -46,14 +46,14 @@ coverage = {{ bbox = [{}, {}, {}, {}] }}
     let cfg = hodos::config::Config::parse(&text).unwrap();
     let recustomize_ms = cfg.live.recustomize_ms;
     // A trip across the middle of the region and the edges of its path.
-    let region = hodos::region::Region::from_artifact(art.clone());
+    let region = hodos::engine::region::Region::from_artifact(art.clone());
     let metric = region.free_flow();
-    let mut q = hodos::cch::CchQuery::new(&region.cch);
-    let a = hodos::geo::LatLon::new(
+    let mut q = hodos::engine::cch::CchQuery::new(&region.cch);
+    let a = hodos::engine::geo::LatLon::new(
         lo.lat + (hi.lat - lo.lat) * 0.4,
         lo.lon + (hi.lon - lo.lon) * 0.4,
     );
-    let b = hodos::geo::LatLon::new(
+    let b = hodos::engine::geo::LatLon::new(
         lo.lat + (hi.lat - lo.lat) * 0.6,
         lo.lon + (hi.lon - lo.lon) * 0.6,
     );

@@ -6,9 +6,9 @@
 
 mod common;
 
-use hodos::artifact::Artifact;
-use hodos::build::{build_from_graph, Quiet};
-use hodos::region::Region;
+use hodos::engine::artifact::Artifact;
+use hodos::engine::build::{build_from_graph, Quiet};
+use hodos::engine::region::Region;
 
 fn status_kb(key: &str) -> Option<u64> {
     let s = std::fs::read_to_string("/proc/self/status").ok()?;
@@ -44,7 +44,7 @@ fn main() {
     let metric = region.free_flow();
     let one = status_kb("VmRSS:").unwrap_or(0);
     let second = region.metric(
-        hodos::metric::free_flow(&region.graph)
+        hodos::engine::metric::free_flow(&region.graph)
             .iter()
             .map(|w| w + w / 3)
             .collect(),

@@ -1,8 +1,8 @@
 //! Prints search-space statistics of the hierarchy on an artifact:
 //! `cargo run --release --example search_space -- FILE`.
-use hodos::artifact::Artifact;
-use hodos::cch::CchQuery;
-use hodos::region::Region;
+use hodos::engine::artifact::Artifact;
+use hodos::engine::cch::CchQuery;
+use hodos::engine::region::Region;
 
 fn main() {
     let path = std::env::args().nth(1).expect("artifact path");
@@ -20,7 +20,7 @@ fn main() {
         "customization (fresh buffers) median {:.1} ms (of 5)",
         times[2]
     );
-    let w = hodos::metric::free_flow(&region.graph);
+    let w = hodos::engine::metric::free_flow(&region.graph);
     let mut reuse = metric.customized.clone();
     let mut times: Vec<f64> = (0..5)
         .map(|_| {

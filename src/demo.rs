@@ -5,11 +5,11 @@
 //! Everything here is invented for the demo; none of it is used by tests as
 //! a reference.
 
-use crate::build::{build, Progress, Source};
 use crate::config::Config;
-use crate::graph::{RoadClass, RoadGraph};
-use crate::import::synthetic::{generate_with_info, CityInfo};
-use crate::snapshot::RegionHandle;
+use crate::engine::build::{build, Progress, Source};
+use crate::engine::graph::{RoadClass, RoadGraph};
+use crate::engine::import::synthetic::{generate_with_info, CityInfo};
+use crate::serving::snapshot::RegionHandle;
 use chrono::Utc;
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
@@ -24,9 +24,9 @@ pub const DEMO_SEED: u64 = 7;
 #[derive(Debug, thiserror::Error)]
 pub enum DemoError {
     #[error(transparent)]
-    Build(#[from] crate::build::BuildError),
+    Build(#[from] crate::engine::build::BuildError),
     #[error(transparent)]
-    Artifact(#[from] crate::artifact::ArtifactError),
+    Artifact(#[from] crate::engine::artifact::ArtifactError),
     #[error("demo files: {0}")]
     Io(#[from] std::io::Error),
     #[error("demo configuration: {0}")]
@@ -44,8 +44,8 @@ pub struct DemoFiles {
     /// (from_node, to_node) external ids.
     pub bridge: (String, Vec<(u64, u64)>),
     /// Sample coordinates on either bank.
-    pub south: crate::geo::LatLon,
-    pub north: crate::geo::LatLon,
+    pub south: crate::engine::geo::LatLon,
+    pub north: crate::engine::geo::LatLon,
 }
 
 /// Hour-of-week speed factor for arterial roads: weekday rush hours
@@ -115,7 +115,7 @@ pub fn prepare(
     let artifact = dir.join("quellhaven.hodos");
     art.save(&artifact)?;
     let historical = dir.join("quellhaven-historical.csv");
-    crate::speeds::write_atomic(&historical, historical_csv(&art.graph).as_bytes())?;
+    crate::serving::speeds::write_atomic(&historical, historical_csv(&art.graph).as_bytes())?;
     let (lo, hi) = art.graph.bbox();
     let pad = 0.01;
     let text = format!(
@@ -174,16 +174,19 @@ fn central_bridge(raw: &RoadGraph, info: &CityInfo) -> (String, Vec<(u64, u64)>)
 }
 
 /// A node well south and one well north of the river, near the centre.
-fn banks(g: &RoadGraph, info: &CityInfo) -> (crate::geo::LatLon, crate::geo::LatLon) {
+fn banks(
+    g: &RoadGraph,
+    info: &CityInfo,
+) -> (crate::engine::geo::LatLon, crate::engine::geo::LatLon) {
     let c = info.center;
     let mut south = (f64::INFINITY, c);
     let mut north = (f64::INFINITY, c);
     for v in 0..g.num_nodes() as u32 {
         let p = g.node_pos(v);
-        let want_s = crate::geo::LatLon::new(c.lat - 0.012, c.lon - 0.01);
-        let want_n = crate::geo::LatLon::new(c.lat + 0.012, c.lon + 0.012);
-        let ds = crate::geo::haversine_m(p, want_s);
-        let dn = crate::geo::haversine_m(p, want_n);
+        let want_s = crate::engine::geo::LatLon::new(c.lat - 0.012, c.lon - 0.01);
+        let want_n = crate::engine::geo::LatLon::new(c.lat + 0.012, c.lon + 0.012);
+        let ds = crate::engine::geo::haversine_m(p, want_s);
+        let dn = crate::engine::geo::haversine_m(p, want_n);
         if ds < south.0 && info.north_of_river(p) == Some(false) {
             south = (ds, p);
         }

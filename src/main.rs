@@ -6,11 +6,11 @@
 
 use anyhow::Context;
 use clap::{Args, Parser, Subcommand};
-use hodos::artifact::Artifact;
-use hodos::build::{build, Progress, Source};
-use hodos::cch::CchQuery;
-use hodos::geo::LatLon;
-use hodos::region::{Region, DEFAULT_MAX_SNAP_M};
+use hodos::engine::artifact::Artifact;
+use hodos::engine::build::{build, Progress, Source};
+use hodos::engine::cch::CchQuery;
+use hodos::engine::geo::LatLon;
+use hodos::engine::region::{Region, DEFAULT_MAX_SNAP_M};
 use indicatif::{ProgressBar, ProgressStyle};
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -277,7 +277,7 @@ fn cmd_demo_once() -> anyhow::Result<()> {
     let dir = std::env::temp_dir().join("hodos-demo");
     std::fs::create_dir_all(&dir).with_context(|| format!("creating {}", dir.display()))?;
     let out = dir.join("quellhaven.hodos");
-    let (_, city) = hodos::import::synthetic::generate_with_info(30_000, 7);
+    let (_, city) = hodos::engine::import::synthetic::generate_with_info(30_000, 7);
     println!(
         "building the demo city {} (about 30,000 intersections)",
         city.name
@@ -319,12 +319,12 @@ fn cmd_demo_once() -> anyhow::Result<()> {
 
 fn runtime() -> anyhow::Result<tokio::runtime::Runtime> {
     // The runtime's workers are the request threads whose CPU wait the
-    // admission control reads (`hodos::cpu_wait`); tokio calls the park
+    // admission control reads (`hodos::serving::cpu_wait`); tokio calls the park
     // hook on workers only.
     Ok(tokio::runtime::Builder::new_multi_thread()
         .enable_all()
-        .on_thread_park(hodos::cpu_wait::register_worker)
-        .on_thread_stop(hodos::cpu_wait::unregister_current_thread)
+        .on_thread_park(hodos::serving::cpu_wait::register_worker)
+        .on_thread_stop(hodos::serving::cpu_wait::unregister_current_thread)
         .build()?)
 }
 
@@ -391,7 +391,7 @@ fn cmd_serve(config: &std::path::Path, strict: bool) -> anyhow::Result<()> {
     }
     runtime()?.block_on(async move {
         let (listen, admin) = (cfg.server.listen, cfg.admin.listen);
-        let state = hodos::service::AppState::open(cfg).await;
+        let state = hodos::http::AppState::open(cfg).await;
         let degraded = state.degraded();
         for (name, why) in &degraded {
             tracing::warn!(region = %name, reason = %why, "region degraded: answering from the heuristic tier");
@@ -400,10 +400,10 @@ fn cmd_serve(config: &std::path::Path, strict: bool) -> anyhow::Result<()> {
             anyhow::bail!("--strict: {} region(s) failed to load: {}", degraded.len(),
                 degraded.iter().map(|(n, w)| format!("{n} ({w})")).collect::<Vec<_>>().join("; "));
         }
-        let public = hodos::service::bind(listen).await.with_context(|| format!("binding {listen}"))?;
-        let admin_l = hodos::service::bind(admin).await.with_context(|| format!("binding {admin}"))?;
+        let public = hodos::http::bind(listen).await.with_context(|| format!("binding {listen}"))?;
+        let admin_l = hodos::http::bind(admin).await.with_context(|| format!("binding {admin}"))?;
         tracing::info!(public = %public.local_addr()?, admin = %admin_l.local_addr()?, "serving");
-        hodos::service::serve(state, public, admin_l, shutdown_signal()).await?;
+        hodos::http::serve(state, public, admin_l, shutdown_signal()).await?;
         Ok(())
     })
 }
@@ -414,19 +414,18 @@ fn cmd_demo(port: u16) -> anyhow::Result<()> {
     let dir = std::env::temp_dir().join("hodos-demo");
     let token = format!("demo-{:016x}", rand_token());
     runtime()?.block_on(async move {
-        let public = match hodos::service::bind(([127, 0, 0, 1], port).into()).await {
+        let public = match hodos::http::bind(([127, 0, 0, 1], port).into()).await {
             Ok(l) => l,
-            Err(_) => hodos::service::bind(([127, 0, 0, 1], 0).into()).await?,
+            Err(_) => hodos::http::bind(([127, 0, 0, 1], 0).into()).await?,
         };
-        let admin = match hodos::service::bind(([127, 0, 0, 1], port.wrapping_add(1)).into()).await
-        {
+        let admin = match hodos::http::bind(([127, 0, 0, 1], port.wrapping_add(1)).into()).await {
             Ok(l) => l,
-            Err(_) => hodos::service::bind(([127, 0, 0, 1], 0).into()).await?,
+            Err(_) => hodos::http::bind(([127, 0, 0, 1], 0).into()).await?,
         };
         let (pa, aa) = (public.local_addr()?, admin.local_addr()?);
         println!(
             "building the demo city {} ({} intersections)...",
-            hodos::import::synthetic::CITY_NAME,
+            hodos::engine::import::synthetic::CITY_NAME,
             hodos::demo::DEMO_NODES
         );
         let files = {
@@ -437,7 +436,7 @@ fn cmd_demo(port: u16) -> anyhow::Result<()> {
             })
             .await??
         };
-        let state = hodos::service::AppState::open(files.config.clone()).await;
+        let state = hodos::http::AppState::open(files.config.clone()).await;
         if let Some((name, why)) = state.degraded().first() {
             anyhow::bail!("demo region {name} failed to load: {why}");
         }
@@ -454,7 +453,7 @@ fn cmd_demo(port: u16) -> anyhow::Result<()> {
         println!();
         println!(
             "serving {} on http://{pa} (admin on http://{aa}, token {token})",
-            hodos::import::synthetic::CITY_NAME
+            hodos::engine::import::synthetic::CITY_NAME
         );
         println!(
             "live feed: {} slows to 8 km/h for a minute, then recovers, repeatedly",
@@ -463,7 +462,7 @@ fn cmd_demo(port: u16) -> anyhow::Result<()> {
         println!("Ctrl-C to stop. Try:");
         println!();
         print!("{}", hodos::demo::curl_lines(&files, pa, aa, &token));
-        hodos::service::serve(state, public, admin, async move {
+        hodos::http::serve(state, public, admin, async move {
             shutdown_signal().await;
             let _ = tx.send(true);
         })

@@ -7,7 +7,7 @@
 
 mod common;
 
-use hodos::build::{build, Quiet, Source};
+use hodos::engine::build::{build, Quiet, Source};
 
 #[test]
 fn monaco_circuity_in_published_range() {
@@ -29,12 +29,12 @@ fn monaco_circuity_in_published_range() {
     }
     // Heuristic estimates grow with distance and use the band factors.
     let (m1, s1) = cal.estimate(
-        hodos::geo::LatLon::new(43.73, 7.41),
-        hodos::geo::LatLon::new(43.735, 7.415),
+        hodos::engine::geo::LatLon::new(43.73, 7.41),
+        hodos::engine::geo::LatLon::new(43.735, 7.415),
     );
     let (m2, s2) = cal.estimate(
-        hodos::geo::LatLon::new(43.73, 7.41),
-        hodos::geo::LatLon::new(43.745, 7.43),
+        hodos::engine::geo::LatLon::new(43.73, 7.41),
+        hodos::engine::geo::LatLon::new(43.745, 7.43),
     );
     assert!(m2 > m1 && s2 > s1 && s1 > 0.0);
 }

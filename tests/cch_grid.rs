@@ -5,10 +5,10 @@
 mod common;
 
 use common::{petgraph_of, reference_dists, Pairs};
-use hodos::cch::{customize::CustomizedMetric, Cch, CchQuery};
-use hodos::geo::LatLon;
-use hodos::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
-use hodos::order::{nested_dissection, UndirectedGraph};
+use hodos::engine::cch::{customize::CustomizedMetric, Cch, CchQuery};
+use hodos::engine::geo::LatLon;
+use hodos::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
+use hodos::engine::order::{nested_dissection, UndirectedGraph};
 
 fn grid(w: u32, h: u32, seed: u64) -> RoadGraph {
     let mut rng = Pairs::new(seed);
@@ -74,7 +74,7 @@ fn build(g: &RoadGraph) -> Cch {
         g.num_nodes(),
         (0..g.num_edges()).map(|e| (g.edge_tail[e], g.edge_head[e])),
     );
-    let proj = hodos::geo::LocalProjection::new(45.0);
+    let proj = hodos::engine::geo::LocalProjection::new(45.0);
     let xy: Vec<[f64; 2]> = (0..g.num_nodes() as u32)
         .map(|v| proj.project(g.node_pos(v)))
         .collect();
@@ -87,7 +87,7 @@ fn grid_queries_equal_petgraph_dijkstra() {
     for (w, h, seed) in [(5, 4, 1), (30, 20, 2), (60, 50, 3)] {
         let g = grid(w, h, seed);
         let cch = build(&g);
-        let weights = hodos::metric::free_flow(&g);
+        let weights = hodos::engine::metric::free_flow(&g);
         let metric = CustomizedMetric::new(&cch, &weights, &g.edge_len_m);
         let pg = petgraph_of(&g, &weights);
         let mut q = CchQuery::new(&cch);

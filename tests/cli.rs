@@ -55,7 +55,7 @@ fn build_info_eta_on_a_synthetic_city() {
     let (ok, stdout, err) = hodos(&["info", out.to_str().unwrap()]);
     assert!(ok, "{err}");
     assert!(stdout.contains("synthetic:3000:seed=4"));
-    let art = hodos::artifact::Artifact::load(&out).unwrap();
+    let art = hodos::engine::artifact::Artifact::load(&out).unwrap();
     let (lo, hi) = art.graph.bbox();
     let from = format!(
         "{},{}",

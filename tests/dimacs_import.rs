@@ -6,9 +6,9 @@
 //! `../shared/data/dimacs` next to the crate) and print `SKIPPED: <why>` and
 //! pass when the files are absent.
 
-use hodos::geo::{haversine_m, LatLon};
-use hodos::graph::{RoadClass, NONE};
-use hodos::import::{dimacs, ImportError};
+use hodos::engine::geo::{haversine_m, LatLon};
+use hodos::engine::graph::{RoadClass, NONE};
+use hodos::engine::import::{dimacs, ImportError};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
@@ -41,7 +41,7 @@ fn dimacs_dir() -> Result<PathBuf, String> {
 
 /// Shared NY distance graph and its raw arcs, loaded once per test binary.
 struct Ny {
-    graph: hodos::graph::RoadGraph,
+    graph: hodos::engine::graph::RoadGraph,
     arcs: Vec<(u32, u32, u32)>,
     dir: PathBuf,
 }

@@ -8,11 +8,11 @@
 mod common;
 
 use common::{assert_exact, fixture, petgraph_of, random_speeds, reference_dists, Pairs};
-use hodos::build::{build, Quiet, Source};
-use hodos::cch::CchQuery;
-use hodos::geo::LatLon;
-use hodos::graph::NONE;
-use hodos::region::Region;
+use hodos::engine::build::{build, Quiet, Source};
+use hodos::engine::cch::CchQuery;
+use hodos::engine::geo::LatLon;
+use hodos::engine::graph::NONE;
+use hodos::engine::region::Region;
 
 fn region_of(source: Source) -> Region {
     Region::from_artifact(build(&source, &mut Quiet).expect("build"))
@@ -24,7 +24,7 @@ fn check(region: &Region, label: &str) {
     let n = assert_exact(region, &ff, 20, 60, 11, &format!("{label} free-flow"));
     assert!(n >= 1000);
     let speeds = random_speeds(&region.graph, 99);
-    let second = region.metric(hodos::metric::from_speeds(&region.graph, &speeds));
+    let second = region.metric(hodos::engine::metric::from_speeds(&region.graph, &speeds));
     let n = assert_exact(
         region,
         &second,
@@ -40,7 +40,7 @@ fn check(region: &Region, label: &str) {
 /// Snapped queries: the answer equals the best of (partial edge + Dijkstra
 /// distance + partial edge) over the ways out of the origin's road and into
 /// the destination's road, or the direct stretch along one road.
-fn check_snapped(region: &Region, metric: &hodos::region::Metric, label: &str) {
+fn check_snapped(region: &Region, metric: &hodos::engine::region::Metric, label: &str) {
     let g = &region.graph;
     let pg = petgraph_of(g, &metric.weights);
     let mut q = CchQuery::new(&region.cch);
@@ -92,8 +92,8 @@ fn check_snapped(region: &Region, metric: &hodos::region::Metric, label: &str) {
 }
 
 fn ways(
-    g: &hodos::graph::RoadGraph,
-    m: &hodos::region::Metric,
+    g: &hodos::engine::graph::RoadGraph,
+    m: &hodos::engine::region::Metric,
     e: u32,
     off: f64,
     origin: bool,

@@ -6,7 +6,7 @@ mod common;
 
 use common::Pairs;
 use geographiclib_rs::{Geodesic, InverseGeodesic};
-use hodos::geo::{haversine_m, haversine_with_radius, LatLon};
+use hodos::engine::geo::{haversine_m, haversine_with_radius, LatLon};
 
 #[test]
 fn haversine_within_half_percent_of_ellipsoidal_geodesic() {

@@ -17,15 +17,15 @@
 mod common;
 
 use common::{dimacs_ny, fixture, petgraph_of, random_speeds, reference_dists, Pairs};
-use hodos::build::{build, build_from_graph, Quiet, Source};
-use hodos::cch::customize::{CustomizedMetric, INFINITY};
-use hodos::cch::matrix::{matrix, Cell, ManyToMany, MatrixError, PointMatrix};
-use hodos::cch::query::Endpoint;
-use hodos::cch::{Cch, CchQuery};
-use hodos::geo::LatLon;
-use hodos::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph, NONE};
-use hodos::order::{nested_dissection, UndirectedGraph};
-use hodos::region::{Metric, Region};
+use hodos::engine::build::{build, build_from_graph, Quiet, Source};
+use hodos::engine::cch::customize::{CustomizedMetric, INFINITY};
+use hodos::engine::cch::matrix::{matrix, Cell, ManyToMany, MatrixError, PointMatrix};
+use hodos::engine::cch::query::Endpoint;
+use hodos::engine::cch::{Cch, CchQuery};
+use hodos::engine::geo::LatLon;
+use hodos::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph, NONE};
+use hodos::engine::order::{nested_dissection, UndirectedGraph};
+use hodos::engine::region::{Metric, Region};
 use petgraph::graph::{DiGraph, NodeIndex};
 use std::alloc::{GlobalAlloc, Layout, System};
 use std::cell::Cell as Counter;
@@ -215,7 +215,7 @@ fn check_region(region: &Region, label: &str) {
     let ff = region.free_flow();
     check_region_nodes(region, &ff, &mut m2m, &format!("{label} free-flow"));
     let speeds = random_speeds(&region.graph, 41);
-    let second = region.metric(hodos::metric::from_speeds(&region.graph, &speeds));
+    let second = region.metric(hodos::engine::metric::from_speeds(&region.graph, &speeds));
     check_region_nodes(region, &second, &mut m2m, &format!("{label} random speeds"));
     check_points(region, &second, &mut m2m, label);
 }
@@ -256,7 +256,7 @@ fn on_road_points(region: &Region, fractions: &[f64]) -> Vec<LatLon> {
         }
         let poly = g.edge_polyline(e);
         for &f in fractions {
-            out.push(hodos::geo::lerp(poly[0], poly[1], f));
+            out.push(hodos::engine::geo::lerp(poly[0], poly[1], f));
         }
         if tw {
             two_way = true;
@@ -313,12 +313,12 @@ fn check_points(region: &Region, metric: &Metric, m2m: &mut ManyToMany, label: &
                         e.meters
                     );
                 }
-                (Cell::Unavailable, Err(hodos::region::EtaError::OffNetwork { .. })) => {
+                (Cell::Unavailable, Err(hodos::engine::region::EtaError::OffNetwork { .. })) => {
                     unavailable += 1;
                     let off = |r: &Result<_, _>| r.is_err();
                     assert!(off(&out.from[i]) || off(&out.to[j]));
                 }
-                (Cell::Unreachable, Err(hodos::region::EtaError::Unreachable)) => {}
+                (Cell::Unreachable, Err(hodos::engine::region::EtaError::Unreachable)) => {}
                 (c, e) => panic!("{label}: {a} -> {b}: matrix {c:?}, eta {e:?}"),
             }
         }
@@ -328,7 +328,7 @@ fn check_points(region: &Region, metric: &Metric, m2m: &mut ManyToMany, label: &
         assert_eq!(
             s.as_ref().map(|s| s.edge).map_err(|e| *e),
             region
-                .snap_within(from[i], hodos::region::End::From, max_snap)
+                .snap_within(from[i], hodos::engine::region::End::From, max_snap)
                 .map(|s| s.edge)
         );
     }
@@ -371,7 +371,7 @@ fn check_points(region: &Region, metric: &Metric, m2m: &mut ManyToMany, label: &
     });
     let snapping = allocations_during(|| {
         for &p in from.iter().chain(&to) {
-            let _ = region.snap_within(p, hodos::region::End::From, max_snap);
+            let _ = region.snap_within(p, hodos::engine::region::End::From, max_snap);
         }
     });
     eprintln!("{label}: {allocs} allocations in a warmed-up coordinate matrix, {snapping} in snapping alone");
@@ -463,7 +463,7 @@ fn hierarchy(g: &RoadGraph) -> Cch {
         g.num_nodes(),
         (0..g.num_edges()).map(|e| (g.edge_tail[e], g.edge_head[e])),
     );
-    let proj = hodos::geo::LocalProjection::new(45.0);
+    let proj = hodos::engine::geo::LocalProjection::new(45.0);
     let xy: Vec<[f64; 2]> = (0..g.num_nodes() as u32)
         .map(|v| proj.project(g.node_pos(v)))
         .collect();
@@ -475,7 +475,7 @@ fn grids_with_unreachable_pairs_equal_dijkstra() {
     for (w, h, seed) in [(6, 5, 1), (14, 11, 2), (40, 30, 3)] {
         let g = grid(w, h, seed);
         let cch = hierarchy(&g);
-        let weights = hodos::metric::free_flow(&g);
+        let weights = hodos::engine::metric::free_flow(&g);
         let metric = CustomizedMetric::new(&cch, &weights, &g.edge_len_m);
         let mut m2m = ManyToMany::new(&cch);
         let n = g.num_nodes() as u32;
@@ -501,7 +501,7 @@ fn grids_with_unreachable_pairs_equal_dijkstra() {
 fn passed_deadline_and_bad_input() {
     let g = grid(10, 8, 5);
     let cch = hierarchy(&g);
-    let weights = hodos::metric::free_flow(&g);
+    let weights = hodos::engine::metric::free_flow(&g);
     let metric = CustomizedMetric::new(&cch, &weights, &g.edge_len_m);
     let mut m2m = ManyToMany::new(&cch);
     let (mut time, mut len) = (Vec::new(), Vec::new());
@@ -596,7 +596,7 @@ fn ny_node_matrix_equals_dijkstra() {
     let Some((gr, co, _)) = dimacs_ny() else {
         return;
     };
-    let raw = hodos::import::dimacs::read(&gr, &co).expect("read NY");
+    let raw = hodos::engine::import::dimacs::read(&gr, &co).expect("read NY");
     let art = build_from_graph("dimacs:NY".into(), raw, 0.0, &mut Quiet).expect("build");
     let region = Region::from_artifact(art);
     let ff = region.free_flow();

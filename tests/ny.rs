@@ -6,9 +6,9 @@
 mod common;
 
 use common::{assert_exact, dimacs_ny, random_speeds};
-use hodos::build::{build_from_graph, Quiet};
-use hodos::import::dimacs;
-use hodos::region::Region;
+use hodos::engine::build::{build_from_graph, Quiet};
+use hodos::engine::import::dimacs;
+use hodos::engine::region::Region;
 use std::collections::HashMap;
 use std::time::Instant;
 
@@ -103,6 +103,6 @@ fn ny_hierarchy_is_exact_small_and_calibrated() {
     assert_exact(&region, &tm, 10, 100, 22, "NY USA-road-t");
 
     // A third: random per-edge speeds.
-    let rs = region.metric(hodos::metric::from_speeds(g, &random_speeds(g, 7)));
+    let rs = region.metric(hodos::engine::metric::from_speeds(g, &random_speeds(g, 7)));
     assert_exact(&region, &rs, 5, 200, 23, "NY random speeds");
 }

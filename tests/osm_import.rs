@@ -1,7 +1,7 @@
 //! Integration tests of the OpenStreetMap PBF importer on real extracts.
 //!
 //! The extracts (tests/data/*.osm.pbf, attribution and checksums in
-//! tests/data/SOURCES.md) are read twice: by `hodos::import::osm::read_pbf`
+//! tests/data/SOURCES.md) are read twice: by `hodos::engine::import::osm::read_pbf`
 //! and, independently, by the test itself with the `osmpbf` crate's element
 //! reader. The graph is checked against what that external reader says is in
 //! the file (node coordinates, way node order, one-way tags), against the
@@ -16,9 +16,9 @@
 //! OpenStreetMap wiki "PBF Format"), and reads each fixture back with osmpbf
 //! to prove it is a well-formed file before using it.
 
-use hodos::graph::{RoadGraph, NONE};
-use hodos::import::osm::{read_pbf, read_pbf_with_progress, OsmImportStats};
-use hodos::import::ImportError;
+use hodos::engine::graph::{RoadGraph, NONE};
+use hodos::engine::import::osm::{read_pbf, read_pbf_with_progress, OsmImportStats};
+use hodos::engine::import::ImportError;
 use std::collections::{HashMap, HashSet};
 use std::path::{Path, PathBuf};
 
@@ -68,7 +68,7 @@ fn read_with_osmpbf(path: &Path) -> Osm {
 
 /// Haversine distance (R. W. Sinnott, "Virtues of the Haversine", Sky and
 /// Telescope 68(2), 1984) on a sphere of the IUGG mean Earth radius
-/// R1 = 6,371,008.8 m. Written out here rather than taken from hodos::geo so
+/// R1 = 6,371,008.8 m. Written out here rather than taken from hodos::engine::geo so
 /// the length check does not test the code with itself.
 fn haversine(a: (f64, f64), b: (f64, f64)) -> f64 {
     const R: f64 = 6_371_008.8;

@@ -10,7 +10,7 @@ use axum::body::Body;
 use axum::http::{Request, StatusCode};
 use axum::Router;
 use common::service::{at, city, config, TOKEN};
-use hodos::service::{admin_app, app, AppState};
+use hodos::http::{admin_app, app, AppState};
 use http_body_util::BodyExt;
 use serde_json::{json, Value};
 use tower::ServiceExt;
@@ -73,7 +73,7 @@ async fn post_json(app: &Router, uri: &str, v: &Value) -> Resp {
     .await
 }
 
-fn coord(p: hodos::geo::LatLon) -> Value {
+fn coord(p: hodos::engine::geo::LatLon) -> Value {
     json!({"lat": p.lat, "lon": p.lon})
 }
 
@@ -410,7 +410,7 @@ async fn every_tier_and_reason() {
     );
 
     // Far off-road but inside the coverage → heuristic, off_network.
-    let corner = hodos::geo::LatLon::new(c.lo.lat - 0.04, c.lo.lon - 0.04);
+    let corner = hodos::engine::geo::LatLon::new(c.lo.lat - 0.04, c.lo.lon - 0.04);
     let r = post_json(
         &pub_app,
         "/v1/eta",
@@ -560,8 +560,8 @@ async fn every_tier_and_reason() {
 
 #[tokio::test]
 async fn unreachable_pair_and_degraded_region() {
-    use hodos::artifact::{Artifact, Metadata};
-    use hodos::graph::{EdgeSpec, GraphBuilder, RoadClass};
+    use hodos::engine::artifact::{Artifact, Metadata};
+    use hodos::engine::graph::{EdgeSpec, GraphBuilder, RoadClass};
     // Two islands of the city's size with no road between them: the
     // artifact is assembled by hand, as `hodos build` keeps only the
     // largest strongly connected component.
@@ -574,7 +574,10 @@ async fn unreachable_pair_and_degraded_region() {
         for i in 0..10u32 {
             for j in 0..10u32 {
                 b.add_node(
-                    hodos::geo::LatLon::new(c.lo.lat + 0.002 * i as f64, lon0 + 0.002 * j as f64),
+                    hodos::engine::geo::LatLon::new(
+                        c.lo.lat + 0.002 * i as f64,
+                        lon0 + 0.002 * j as f64,
+                    ),
                     u64::from(base + i * 10 + j + 1),
                 );
             }
@@ -606,16 +609,16 @@ async fn unreachable_pair_and_degraded_region() {
         }
     }
     let g = b.finish();
-    let ug = hodos::order::UndirectedGraph::from_edges(
+    let ug = hodos::engine::order::UndirectedGraph::from_edges(
         g.num_nodes(),
         g.edge_tail.iter().copied().zip(g.edge_head.iter().copied()),
     );
-    let proj = hodos::geo::LocalProjection::new(c.lo.lat);
+    let proj = hodos::engine::geo::LocalProjection::new(c.lo.lat);
     let xy: Vec<[f64; 2]> = (0..g.num_nodes() as u32)
         .map(|v| proj.project(g.node_pos(v)))
         .collect();
-    let order = hodos::order::nested_dissection(&ug, &xy, &mut |_| {});
-    let cch = hodos::cch::Cch::build(&g, order.rank);
+    let order = hodos::engine::order::nested_dissection(&ug, &xy, &mut |_| {});
+    let cch = hodos::engine::cch::Cch::build(&g, order.rank);
     let art = Artifact {
         meta: Metadata {
             source: "test:two-islands".into(),
@@ -630,7 +633,7 @@ async fn unreachable_pair_and_degraded_region() {
             elimination_tree_depth: 0,
             phase_seconds: vec![],
         },
-        calibration: hodos::calibration::Calibration::fixed(1.3, 30.0),
+        calibration: hodos::engine::calibration::Calibration::fixed(1.3, 30.0),
         graph: g.clone(),
         cch,
     };
@@ -771,11 +774,11 @@ async fn metrics_geojson_and_openapi_parse_with_outside_tools() {
                 "[lon, lat] order"
             );
             // The polyline's length matches the reported distance.
-            let pts: Vec<hodos::geo::LatLon> = line
+            let pts: Vec<hodos::engine::geo::LatLon> = line
                 .iter()
-                .map(|c| hodos::geo::LatLon::new(c[1], c[0]))
+                .map(|c| hodos::engine::geo::LatLon::new(c[1], c[0]))
                 .collect();
-            let len = hodos::geo::polyline_length_m(&pts);
+            let len = hodos::engine::geo::polyline_length_m(&pts);
             let meters = v["meters"].as_f64().unwrap();
             assert!(
                 (len - meters).abs() <= 0.01 * meters + 1.0,

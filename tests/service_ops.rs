@@ -6,7 +6,7 @@
 mod common;
 
 use common::service::{at, city, config, TOKEN};
-use hodos::service::{bind, serve, AppState};
+use hodos::http::{bind, serve, AppState};
 use serde_json::{json, Value};
 use std::net::SocketAddr;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};

@@ -4,9 +4,9 @@
 
 use chrono::{DateTime, Duration as TimeDelta, Utc};
 use chrono_tz::Tz;
-use hodos::geo::LatLon;
-use hodos::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
-use hodos::speeds::*;
+use hodos::engine::geo::LatLon;
+use hodos::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
+use hodos::serving::speeds::*;
 use std::time::Duration;
 
 const A: u64 = 1001;

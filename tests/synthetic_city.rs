@@ -4,9 +4,9 @@
 //! geographiclib's WGS84 geodesic) and the river that only bridges cross.
 
 use geographiclib_rs::{Geodesic, InverseGeodesic};
-use hodos::geo::{polyline_length_m, LatLon};
-use hodos::graph::{RoadClass, RoadGraph, NONE};
-use hodos::import::synthetic::{self, CityInfo};
+use hodos::engine::geo::{polyline_length_m, LatLon};
+use hodos::engine::graph::{RoadClass, RoadGraph, NONE};
+use hodos::engine::import::synthetic::{self, CityInfo};
 use std::collections::{HashMap, HashSet};
 
 fn assert_same(a: &RoadGraph, b: &RoadGraph) {

@@ -2,7 +2,7 @@
 //! (default ../shared/data), or a 300,000-node synthetic city when the data
 //! is absent (said on stderr).
 
-use hodos::graph::RoadGraph;
+use hodos::engine::graph::RoadGraph;
 use std::path::PathBuf;
 
 /// `(name, graph before the SCC filter)`.
@@ -17,7 +17,7 @@ pub fn bench_graph() -> (String, RoadGraph) {
     if gr.exists() && co.exists() {
         (
             "USA-road-d.NY".into(),
-            hodos::import::dimacs::read(&gr, &co).expect("read NY"),
+            hodos::engine::import::dimacs::read(&gr, &co).expect("read NY"),
         )
     } else {
         eprintln!(
@@ -26,7 +26,7 @@ pub fn bench_graph() -> (String, RoadGraph) {
         );
         (
             "synthetic-300k".into(),
-            hodos::import::synthetic::generate(300_000, 1),
+            hodos::engine::import::synthetic::generate(300_000, 1),
         )
     }
 }

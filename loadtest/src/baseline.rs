@@ -15,10 +15,10 @@ use axum::extract::State;
 use axum::response::{IntoResponse, Response};
 use axum::routing::post;
 use axum::{Json, Router};
-use hodos::service::dto::{
+use hodos::http::dto::{
     parse_json, EtaRequest, EtaResponse, MatrixRequest, MatrixResponse, RouteResponse, SnapshotRef,
 };
-use hodos::service::problem::ApiError;
+use hodos::http::problem::ApiError;
 use std::net::SocketAddr;
 
 /// The fixed answer every trip gets.

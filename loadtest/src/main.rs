@@ -414,12 +414,12 @@ fn main() -> ExitCode {
 struct Drawn {
     w: Workloads,
     edges: Arc<Vec<workload::EdgeRef>>,
-    lo: hodos::geo::LatLon,
-    hi: hodos::geo::LatLon,
+    lo: hodos::engine::geo::LatLon,
+    hi: hodos::engine::geo::LatLon,
     nodes: usize,
 }
 
-fn draw(g: &hodos::graph::RoadGraph, seed: u64, scale: usize) -> Drawn {
+fn draw(g: &hodos::engine::graph::RoadGraph, seed: u64, scale: usize) -> Drawn {
     let mut s = Sampler::new(g, seed);
     let (lo, hi) = g.bbox();
     Drawn {
@@ -437,7 +437,7 @@ fn draw(g: &hodos::graph::RoadGraph, seed: u64, scale: usize) -> Drawn {
 }
 
 fn draw_from(path: &Path, seed: u64) -> anyhow::Result<Drawn> {
-    let art = hodos::artifact::Artifact::load(path)
+    let art = hodos::engine::artifact::Artifact::load(path)
         .with_context(|| format!("loading {}", path.display()))?;
     Ok(draw(&art.graph, seed, 1))
 }
@@ -855,12 +855,12 @@ async fn cmd_smoke(
             // built and served here on port 0.
             eprintln!("building a 3,000-node synthetic city for the smoke ...");
             let art = tokio::task::spawn_blocking(|| {
-                hodos::build::build(
-                    &hodos::build::Source::Synthetic {
+                hodos::engine::build::build(
+                    &hodos::engine::build::Source::Synthetic {
                         nodes: 3_000,
                         seed: 5,
                     },
-                    &mut hodos::build::Quiet,
+                    &mut hodos::engine::build::Quiet,
                 )
             })
             .await??;

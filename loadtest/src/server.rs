@@ -1,7 +1,7 @@
 //! The server under test: a separate `hodos serve` process the tool starts
 //! and stops itself (the real measurement: resident memory and CPU are the
 //! server's alone), hodos started in this process through
-//! `hodos::service::serve` on port 0 (smoke runs: nothing to clean up), or
+//! `hodos::http::serve` on port 0 (smoke runs: nothing to clean up), or
 //! one already running at a given loopback address.
 //!
 //! Also: one-off HTTP calls (readiness, admin uploads) and `/proc` readings
@@ -154,8 +154,8 @@ pub fn config_text(
     admin: SocketAddr,
     artifact: &Path,
     state_dir: &Path,
-    lo: hodos::geo::LatLon,
-    hi: hodos::geo::LatLon,
+    lo: hodos::engine::geo::LatLon,
+    hi: hodos::engine::geo::LatLon,
     time_zone: &str,
     live_ttl_s: f64,
 ) -> String {
@@ -199,8 +199,8 @@ pub struct Spawned {
 pub async fn spawn_external(
     bin: &Path,
     artifact: &Path,
-    lo: hodos::geo::LatLon,
-    hi: hodos::geo::LatLon,
+    lo: hodos::engine::geo::LatLon,
+    hi: hodos::engine::geo::LatLon,
     time_zone: &str,
     live_ttl_s: f64,
     env: &[(String, String)],
@@ -327,7 +327,7 @@ pub async fn start_in_process(
     token: String,
 ) -> anyhow::Result<InProcess> {
     let ttl = cfg.live.ttl_s;
-    let state = hodos::service::AppState::open(cfg).await;
+    let state = hodos::http::AppState::open(cfg).await;
     if let Some((name, why)) = state.degraded().first() {
         bail!("region {name} failed to load: {why}");
     }
@@ -337,12 +337,12 @@ pub async fn start_in_process(
         .first()
         .map(|r| r.name.clone())
         .unwrap_or_default();
-    let p = hodos::service::bind(([127, 0, 0, 1], 0).into()).await?;
-    let a = hodos::service::bind(([127, 0, 0, 1], 0).into()).await?;
+    let p = hodos::http::bind(([127, 0, 0, 1], 0).into()).await?;
+    let a = hodos::http::bind(([127, 0, 0, 1], 0).into()).await?;
     let (public, admin) = (p.local_addr()?, a.local_addr()?);
     let (tx, rx) = tokio::sync::oneshot::channel::<()>();
     let task = tokio::spawn(async move {
-        let _ = hodos::service::serve(state, p, a, async move {
+        let _ = hodos::http::serve(state, p, a, async move {
             let _ = rx.await;
         })
         .await;

@@ -82,7 +82,7 @@ pub fn historical_table(
     seed: u64,
 ) -> Bytes {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    let h = hodos::speeds::hour_of_week(Utc::now(), tz) as u32;
+    let h = hodos::serving::speeds::hour_of_week(Utc::now(), tz) as u32;
     let hours = [(h + 167) % 168, h, (h + 1) % 168];
     let mut s = String::from("from_node,to_node,hour_of_week,speed_kmh\n");
     for _ in 0..n {

@@ -151,8 +151,8 @@ pub struct Ctx {
     pub w: Workloads,
     pub edges: Arc<Vec<EdgeRef>>,
     /// Bounding box of the served graph (for server configurations).
-    pub lo: hodos::geo::LatLon,
-    pub hi: hodos::geo::LatLon,
+    pub lo: hodos::engine::geo::LatLon,
+    pub hi: hodos::engine::geo::LatLon,
     pub s: Settings,
     pub out: PathBuf,
     pub runs: Vec<Summary>,

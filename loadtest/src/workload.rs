@@ -16,8 +16,8 @@
 //! so the generator does no JSON work while it sends.
 
 use bytes::Bytes;
-use hodos::geo::{haversine_m, LatLon};
-use hodos::graph::RoadGraph;
+use hodos::engine::geo::{haversine_m, LatLon};
+use hodos::engine::graph::RoadGraph;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use std::collections::HashMap;
@@ -30,7 +30,7 @@ pub const TRIP_MIX: [(f64, f64, f64); 3] =
 pub const JITTER_M: f64 = 25.0;
 
 /// The sphere of the destination formula: the same as hodos' haversine.
-const EARTH_R: f64 = hodos::geo::EARTH_RADIUS_M;
+const EARTH_R: f64 = hodos::engine::geo::EARTH_RADIUS_M;
 
 /// What a request body asks for (decides how the answer is parsed).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
@@ -343,7 +343,7 @@ mod tests {
     fn drawn_trips_follow_the_mix() {
         // A synthetic city large enough for 30 km trips; shares must come
         // out as asked (binomial sd at n = 2000 is about 1.1 points).
-        let (g, _) = hodos::import::synthetic::generate_with_info(60_000, 3);
+        let (g, _) = hodos::engine::import::synthetic::generate_with_info(60_000, 3);
         let (lo, hi) = g.bbox();
         let span_km = haversine_m(lo, hi) / 1000.0;
         let mut s = Sampler::new(&g, 9);

@@ -2,7 +2,7 @@
 //! location, a deterministic pair sampler.
 #![allow(dead_code)]
 
-use hodos::graph::RoadGraph;
+use hodos::engine::graph::RoadGraph;
 use petgraph::graph::{DiGraph, NodeIndex};
 use std::path::PathBuf;
 
@@ -88,8 +88,8 @@ impl Pairs {
     }
 }
 
-use hodos::cch::CchQuery;
-use hodos::region::{Metric, Region};
+use hodos::engine::cch::CchQuery;
+use hodos::engine::region::{Metric, Region};
 
 /// Checks `pairs` node-to-node queries (sources × targets) against petgraph's
 /// Dijkstra on the same graph and metric: equal travel times, exactly.
@@ -133,9 +133,9 @@ pub fn random_speeds(g: &RoadGraph, seed: u64) -> Vec<f32> {
 /// A small service fixture: a synthetic-city artifact and a configuration
 /// with one region around it, in a temporary directory.
 pub mod service {
-    use hodos::build::{build, Quiet, Source};
     use hodos::config::Config;
-    use hodos::geo::LatLon;
+    use hodos::engine::build::{build, Quiet, Source};
+    use hodos::engine::geo::LatLon;
     use std::path::{Path, PathBuf};
     use std::sync::OnceLock;
 

@@ -1,0 +1,326 @@
+//! Point-to-point queries on a customized hierarchy.
+//!
+//! Elimination-tree search (Dibbelt, Strasser & Wagner 2016, §5.2): the
+//! upward search space of a node is exactly its ancestors in the elimination
+//! tree, so instead of a priority queue both searches walk the ancestor
+//! chains in increasing rank, relaxing upward arcs (forward) and downward
+//! arcs (backward). Every node on both chains is a meeting candidate. The
+//! walk supports several start nodes per side (a query that starts mid-edge
+//! leaves through both ends of a two-way road), each with an initial cost.
+//!
+//! [`CchQuery`] owns the per-thread scratch (distance arrays sized to the
+//! graph, reset after each query along the same chains), so a query
+//! allocates nothing.
+
+use super::customize::{CustomizedMetric, PrunedArc, INFINITY, VIA_EDGE, VIA_NONE};
+use super::Cch;
+use crate::engine::graph::NONE;
+
+/// Most start nodes per side.
+pub const MAX_ENDPOINTS: usize = 2;
+
+/// A start (or end) of a search: a road node reached at a given cost.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Endpoint {
+    /// Road graph node id.
+    pub node: u32,
+    /// Cost already spent to reach this node from the origin (or still to
+    /// spend from it to the destination), in the metric's unit.
+    pub time: u32,
+    /// Length of that partial stretch, in centimetres.
+    pub len_cm: u32,
+}
+
+impl Endpoint {
+    pub fn at(node: u32) -> Self {
+        Self {
+            node,
+            time: 0,
+            len_cm: 0,
+        }
+    }
+}
+
+/// The best path found by [`CchQuery::run`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct PathResult {
+    /// Total time including both endpoints' partial costs.
+    pub time: u32,
+    /// Total length in centimetres including the partial stretches.
+    pub len_cm: u64,
+    /// Which source endpoint (index into the slice given) the path uses.
+    pub source: usize,
+    /// Which target endpoint the path uses.
+    pub target: usize,
+}
+
+const UP: bool = true;
+const DOWN: bool = false;
+
+/// Relaxes the arcs of one node: `dist[head] = min(dist[head], d + weight)`,
+/// recording the arc as predecessor on improvement, with a branch-free
+/// update: this loop is most of a query's time.
+#[inline(always)]
+fn relax<const D: usize>(arcs: &[PrunedArc], d: u32, labels: &mut [Label]) {
+    for &PrunedArc {
+        head,
+        weight,
+        arc: a,
+    } in arcs
+    {
+        let l = &mut labels[head as usize];
+        let nd = d + weight;
+        let old = l.dist[D];
+        let better = nd < old;
+        l.dist[D] = if better { nd } else { old };
+        let p = l.pred[D];
+        l.pred[D] = if better { a } else { p };
+    }
+}
+
+/// Forward (index 0) and backward (index 1) distance and predecessor arc of
+/// one node, side by side: a query touches each visited node's label once
+/// per relaxation, and one cache line then serves both searches.
+#[derive(Debug, Clone, Copy)]
+#[repr(C, align(16))]
+struct Label {
+    dist: [u32; 2],
+    pred: [u32; 2],
+}
+
+const FWD: usize = 0;
+const BWD: usize = 1;
+
+const EMPTY_LABEL: Label = Label {
+    dist: [INFINITY; 2],
+    pred: [NONE; 2],
+};
+
+/// Reusable query scratch for one thread.
+#[derive(Debug, Clone)]
+pub struct CchQuery {
+    labels: Vec<Label>,
+    /// Hierarchy arcs of the last path, origin to destination, with
+    /// direction (UP = tail→head).
+    arc_path: Vec<(u32, bool)>,
+    stack: Vec<(u32, bool)>,
+    /// Tree nodes visited by the last query (for statistics).
+    pub last_visited: usize,
+}
+
+impl CchQuery {
+    pub fn new(cch: &Cch) -> Self {
+        let n = cch.num_nodes();
+        Self {
+            labels: vec![EMPTY_LABEL; n],
+            arc_path: Vec::new(),
+            stack: Vec::new(),
+            last_visited: 0,
+        }
+    }
+
+    /// Number of nodes this scratch is sized for.
+    pub fn num_nodes(&self) -> usize {
+        self.labels.len()
+    }
+
+    /// Shortest travel time between two road nodes, if connected.
+    pub fn node_to_node(
+        &mut self,
+        cch: &Cch,
+        metric: &CustomizedMetric,
+        s: u32,
+        t: u32,
+    ) -> Option<PathResult> {
+        self.run(cch, metric, &[Endpoint::at(s)], &[Endpoint::at(t)])
+    }
+
+    /// Best path from any source endpoint to any target endpoint. At most
+    /// [`MAX_ENDPOINTS`] per side (extra ones are ignored).
+    pub fn run(
+        &mut self,
+        cch: &Cch,
+        metric: &CustomizedMetric,
+        sources: &[Endpoint],
+        targets: &[Endpoint],
+    ) -> Option<PathResult> {
+        let sources = &sources[..sources.len().min(MAX_ENDPOINTS)];
+        let targets = &targets[..targets.len().min(MAX_ENDPOINTS)];
+        let mut fcur = [NONE; MAX_ENDPOINTS];
+        let mut bcur = [NONE; MAX_ENDPOINTS];
+        for (i, s) in sources.iter().enumerate() {
+            let r = cch.rank[s.node as usize];
+            fcur[i] = r;
+            let l = &mut self.labels[r as usize];
+            if s.time < l.dist[FWD] {
+                l.dist[FWD] = s.time;
+                l.pred[FWD] = NONE;
+            }
+        }
+        for (i, t) in targets.iter().enumerate() {
+            let r = cch.rank[t.node as usize];
+            bcur[i] = r;
+            let l = &mut self.labels[r as usize];
+            if t.time < l.dist[BWD] {
+                l.dist[BWD] = t.time;
+                l.pred[BWD] = NONE;
+            }
+        }
+        let (fstart, bstart) = (fcur, bcur);
+        let mut best = INFINITY;
+        let mut meet = NONE;
+        let mut visited = 0;
+        // Walk the union of all chains in increasing rank.
+        loop {
+            let x = fcur
+                .iter()
+                .chain(bcur.iter())
+                .copied()
+                .min()
+                .unwrap_or(NONE);
+            if x == NONE {
+                break;
+            }
+            visited += 1;
+            let xi = x as usize;
+            let p = cch.parent[xi];
+            let [df, db] = self.labels[xi].dist;
+            if df < INFINITY && db < INFINITY && df + db < best {
+                best = df + db;
+                meet = x;
+            }
+            let on_f = fcur.contains(&x);
+            let on_b = bcur.contains(&x);
+            if on_f && df < best {
+                let f = &metric.forward;
+                relax::<FWD>(&f.arcs[f.range(x)], df, &mut self.labels);
+            }
+            if on_b && db < best {
+                let b = &metric.backward;
+                relax::<BWD>(&b.arcs[b.range(x)], db, &mut self.labels);
+            }
+            for c in fcur.iter_mut().chain(bcur.iter_mut()) {
+                if *c == x {
+                    *c = p;
+                }
+            }
+        }
+        self.last_visited = visited;
+        let result = if meet == NONE {
+            self.arc_path.clear();
+            None
+        } else {
+            Some(self.extract(cch, metric, meet, best, sources, targets))
+        };
+        // Reset exactly what this query touched: the ancestor chains.
+        let mut cur = fstart;
+        cur.iter_mut().skip(sources.len()).for_each(|c| *c = NONE);
+        let mut bc = bstart;
+        bc.iter_mut().skip(targets.len()).for_each(|c| *c = NONE);
+        for chains in [cur, bc] {
+            let mut c = chains;
+            loop {
+                let x = c.iter().copied().min().unwrap_or(NONE);
+                if x == NONE {
+                    break;
+                }
+                self.labels[x as usize].dist = [INFINITY; 2];
+                let p = cch.parent[x as usize];
+                for v in c.iter_mut() {
+                    if *v == x {
+                        *v = p;
+                    }
+                }
+            }
+        }
+        result
+    }
+
+    fn extract(
+        &mut self,
+        cch: &Cch,
+        metric: &CustomizedMetric,
+        meet: u32,
+        best: u32,
+        sources: &[Endpoint],
+        targets: &[Endpoint],
+    ) -> PathResult {
+        self.arc_path.clear();
+        let mut len: u64 = 0;
+        let mut x = meet;
+        while self.labels[x as usize].pred[FWD] != NONE {
+            let a = self.labels[x as usize].pred[FWD];
+            self.arc_path.push((a, UP));
+            len += u64::from(metric.up_len[a as usize]);
+            x = cch.tail[a as usize];
+        }
+        let first = x;
+        self.arc_path.reverse();
+        let mut y = meet;
+        while self.labels[y as usize].pred[BWD] != NONE {
+            let a = self.labels[y as usize].pred[BWD];
+            self.arc_path.push((a, DOWN));
+            len += u64::from(metric.down_len[a as usize]);
+            y = cch.tail[a as usize];
+        }
+        let last = y;
+        // The chain ends where the cheapest endpoint seeded it.
+        let pick = |eps: &[Endpoint], r: u32| {
+            eps.iter()
+                .enumerate()
+                .filter(|(_, e)| cch.rank[e.node as usize] == r)
+                .min_by_key(|(_, e)| e.time)
+                .map(|(i, _)| i)
+                .unwrap_or_else(|| {
+                    debug_assert!(false, "chain must end at an endpoint");
+                    0
+                })
+        };
+        let source = pick(sources, first);
+        let target = pick(targets, last);
+        len += u64::from(sources[source].len_cm) + u64::from(targets[target].len_cm);
+        PathResult {
+            time: best,
+            len_cm: len,
+            source,
+            target,
+        }
+    }
+
+    /// Road edges of the last path found, origin to destination, appended
+    /// to `out` (partial first/last edges are the caller's business).
+    pub fn unpack_edges(&mut self, cch: &Cch, metric: &CustomizedMetric, out: &mut Vec<u32>) {
+        for i in 0..self.arc_path.len() {
+            let start = self.arc_path[i];
+            self.stack.clear();
+            self.stack.push(start);
+            while let Some((a, dir)) = self.stack.pop() {
+                let via = if dir == UP {
+                    metric.up_via[a as usize]
+                } else {
+                    metric.down_via[a as usize]
+                };
+                debug_assert_ne!(via, VIA_NONE, "a finite path never uses an infinite arc");
+                if via == VIA_NONE {
+                    continue;
+                }
+                if via & VIA_EDGE != 0 {
+                    out.push(via & !VIA_EDGE);
+                    continue;
+                }
+                let (x, y) = (cch.tail[a as usize], cch.head[a as usize]);
+                let awx = cch.find_arc(via, x).expect("triangle arc w-x");
+                let awy = cch.find_arc(via, y).expect("triangle arc w-y");
+                if dir == UP {
+                    // x→y = x→w (down of w–x), then w→y (up of w–y).
+                    self.stack.push((awy, UP));
+                    self.stack.push((awx, DOWN));
+                } else {
+                    // y→x = y→w (down of w–y), then w→x (up of w–x).
+                    self.stack.push((awx, UP));
+                    self.stack.push((awy, DOWN));
+                }
+            }
+        }
+    }
+}

@@ -1,0 +1,60 @@
+//! Importers: turn an input source into a [`RoadGraph`](crate::engine::graph::RoadGraph).
+//!
+//! - [`osm`]: OpenStreetMap PBF extracts (drivable roads, tags → speeds and
+//!   directions; the tag rules live in [`osm_tags`]).
+//! - [`dimacs`]: the 9th DIMACS Challenge `.gr` + `.co` text format (plain or
+//!   gzip).
+//! - [`synthetic`]: a deterministic fictional city for the demo and for scale.
+//!
+//! Importers report bad input as an [`ImportError`] naming the file (and the
+//! line, for text formats); they never panic on input.
+
+pub mod dimacs;
+pub mod osm;
+pub mod osm_tags;
+pub mod synthetic;
+
+use std::path::{Path, PathBuf};
+
+/// A failure to read an input source.
+#[derive(Debug, thiserror::Error)]
+pub enum ImportError {
+    #[error("{}: {source}", path.display())]
+    Io {
+        path: PathBuf,
+        #[source]
+        source: std::io::Error,
+    },
+    #[error("{}:{line}: {msg}", path.display())]
+    Syntax {
+        path: PathBuf,
+        line: usize,
+        msg: String,
+    },
+    #[error("{}: {msg}", path.display())]
+    Invalid { path: PathBuf, msg: String },
+    #[error("{}: no drivable road found in this extract", path.display())]
+    NoRoads { path: PathBuf },
+}
+
+impl ImportError {
+    pub fn io(path: &Path, source: std::io::Error) -> Self {
+        ImportError::Io {
+            path: path.to_path_buf(),
+            source,
+        }
+    }
+    pub fn syntax(path: &Path, line: usize, msg: impl Into<String>) -> Self {
+        ImportError::Syntax {
+            path: path.to_path_buf(),
+            line,
+            msg: msg.into(),
+        }
+    }
+    pub fn invalid(path: &Path, msg: impl Into<String>) -> Self {
+        ImportError::Invalid {
+            path: path.to_path_buf(),
+            msg: msg.into(),
+        }
+    }
+}

@@ -1,0 +1,216 @@
+//! The HTTP service: public API and admin API (axum on tokio).
+//!
+//! - [`app`] builds the public router (`/v1/eta`, `/v1/eta/matrix`,
+//!   `/v1/route`, `/healthz`, `/readyz`, `/metrics`, `/openapi.json`) so
+//!   tests can drive it with `oneshot`; [`admin_app`] builds the admin
+//!   router for its own listener.
+//! - [`serve`] binds both listeners, starts each region's live loop, and
+//!   runs until the `shutdown` future resolves, then drains in-flight
+//!   requests.
+//!
+//! **Architecture Invariant:** handlers parse into [`dto`] types, call
+//! [`crate::serving::answer`] / [`crate::serving::snapshot`], and convert the results back to
+//! DTOs; engine types never reach the wire.
+
+pub mod admin;
+pub mod dto;
+pub mod exporter;
+pub mod handlers;
+pub mod openapi;
+pub mod problem;
+pub mod settings;
+
+use crate::serving::answer::Catalog;
+use crate::serving::snapshot::{RegionHandle, UpdateSettings};
+use axum::extract::{MatchedPath, Request, State};
+use axum::middleware::Next;
+use axum::response::Response;
+use axum::routing::{get, post};
+use axum::Router;
+use metrics_exporter_prometheus::PrometheusHandle;
+use std::future::Future;
+use std::net::SocketAddr;
+use std::sync::Arc;
+use std::time::Instant;
+
+/// Shared state: a cheap `Clone` handle of `Arc`s.
+#[derive(Clone)]
+pub struct AppState {
+    pub catalog: Arc<Catalog>,
+    /// The `[server]` and `[admin]` sections (body limits, drain, token).
+    pub settings: Arc<settings::Settings>,
+    pub prometheus: PrometheusHandle,
+}
+
+impl AppState {
+    /// Opens every configured region (degraded ones included).
+    pub async fn open(settings: impl Into<settings::Settings>) -> AppState {
+        let settings: settings::Settings = settings.into();
+        // The recorder first: loading a region already records series.
+        let prometheus = exporter::handle();
+        let update = UpdateSettings::from_settings(&settings.serving);
+        let mut regions = Vec::new();
+        for r in &settings.regions {
+            regions.push(RegionHandle::open(r.clone(), update.clone()).await);
+        }
+        let names: Vec<String> = regions.iter().map(|r| r.name.clone()).collect();
+        crate::serving::metrics::register_zero(&handlers::ANSWER_ROUTES, &names);
+        AppState {
+            catalog: Arc::new(Catalog::new(settings.serving.clone(), regions)),
+            settings: Arc::new(settings),
+            prometheus,
+        }
+    }
+
+    /// Regions that are configured but serve no graph.
+    pub fn degraded(&self) -> Vec<(String, String)> {
+        self.catalog
+            .regions
+            .iter()
+            .filter(|r| r.snapshot().is_none())
+            .map(|r| {
+                (
+                    r.name.clone(),
+                    r.status().degraded_reason.unwrap_or_default(),
+                )
+            })
+            .collect()
+    }
+}
+
+/// Tier label a handler leaves on its response for the latency histogram.
+#[derive(Debug, Clone, Copy)]
+pub struct TierLabel(pub &'static str);
+
+/// Records latency by matched route (never the raw URI) and tier.
+async fn track(matched: Option<MatchedPath>, req: Request, next: Next) -> Response {
+    // The templates are a closed set: label with a static string (no
+    // allocation per request).
+    let route: &'static str = match matched.as_ref().map(|m| m.as_str()) {
+        Some(p) => ROUTES.iter().copied().find(|r| *r == p).unwrap_or("other"),
+        None => "unmatched",
+    };
+    let start = Instant::now();
+    let resp = next.run(req).await;
+    let tier = resp
+        .extensions()
+        .get::<TierLabel>()
+        .map(|t| t.0)
+        .unwrap_or("none");
+    ::metrics::histogram!(crate::serving::metrics::REQUEST_DURATION, "route" => route, "tier" => tier)
+        .record(start.elapsed().as_secs_f64());
+    resp
+}
+
+/// Admission control on the answer routes: counts the request in flight
+/// from here (headers read, body not yet) until its response is built, and
+/// tells the handler whether it may do graph work.
+async fn admit(State(state): State<AppState>, mut req: Request, next: Next) -> Response {
+    let ticket = state.catalog.admission.enter();
+    req.extensions_mut()
+        .insert(handlers::Admitted(ticket.admitted()));
+    let resp = next.run(req).await;
+    drop(ticket);
+    resp
+}
+
+/// Route templates of the public router (metric labels).
+const ROUTES: [&str; 7] = [
+    "/v1/eta",
+    "/v1/eta/matrix",
+    "/v1/route",
+    "/healthz",
+    "/readyz",
+    "/metrics",
+    "/openapi.json",
+];
+
+/// The public router.
+pub fn app(state: AppState) -> Router {
+    let answers = Router::new()
+        .route("/v1/eta", get(handlers::eta_get).post(handlers::eta_post))
+        .route("/v1/eta/matrix", post(handlers::matrix))
+        .route("/v1/route", post(handlers::route))
+        .route_layer(axum::middleware::from_fn_with_state(state.clone(), admit));
+    Router::new()
+        .merge(answers)
+        .route("/healthz", get(handlers::healthz))
+        .route("/readyz", get(handlers::readyz))
+        .route("/metrics", get(handlers::metrics_text))
+        .route("/openapi.json", get(handlers::openapi))
+        .fallback(handlers::not_found)
+        .layer(axum::extract::DefaultBodyLimit::disable())
+        .layer(axum::middleware::from_fn(track))
+        .layer(tower_http::trace::TraceLayer::new_for_http())
+        .with_state(state)
+}
+
+/// The admin router (bearer token on every route).
+pub fn admin_app(state: AppState) -> Router {
+    admin::router(state)
+}
+
+/// Runs both listeners until `shutdown` resolves, then drains. Returns the
+/// bound public and admin addresses through `bound` once listening.
+pub async fn serve(
+    state: AppState,
+    public: tokio::net::TcpListener,
+    admin: tokio::net::TcpListener,
+    shutdown: impl Future<Output = ()> + Send + 'static,
+) -> std::io::Result<()> {
+    let (tx, rx) = tokio::sync::watch::channel(false);
+    let stop = move || {
+        let mut rx = rx.clone();
+        async move {
+            let _ = rx.wait_for(|v| *v).await;
+        }
+    };
+    let mut loops = Vec::new();
+    // Scheduling-lag probe for admission control (see `admission`).
+    loops.push(tokio::spawn(
+        state.catalog.admission.clone().run_probe(stop()),
+    ));
+    for r in &state.catalog.regions {
+        loops.push(tokio::spawn(r.clone().run_live_loop(stop())));
+    }
+    // The exporter keeps histogram samples until upkeep folds them in; run it
+    // every few seconds so memory does not grow between scrapes.
+    {
+        let prometheus = state.prometheus.clone();
+        let stop_upkeep = stop();
+        loops.push(tokio::spawn(async move {
+            tokio::pin!(stop_upkeep);
+            loop {
+                tokio::select! {
+                    _ = &mut stop_upkeep => break,
+                    _ = tokio::time::sleep(std::time::Duration::from_secs(5)) => prometheus.run_upkeep(),
+                }
+            }
+        }));
+    }
+    let drain = std::time::Duration::from_secs(state.settings.server.drain_seconds);
+    let public_srv = axum::serve(public, app(state.clone())).with_graceful_shutdown(stop());
+    let admin_srv = axum::serve(admin, admin_app(state.clone())).with_graceful_shutdown(stop());
+    let a = tokio::spawn(async move { public_srv.await });
+    let b = tokio::spawn(async move { admin_srv.await });
+    shutdown.await;
+    tracing::info!("shutting down: draining in-flight requests");
+    let _ = tx.send(true);
+    let joined = tokio::time::timeout(drain, async {
+        let _ = a.await;
+        let _ = b.await;
+        for l in loops {
+            let _ = l.await;
+        }
+    })
+    .await;
+    if joined.is_err() {
+        tracing::warn!("drain timed out after {:?}", drain);
+    }
+    Ok(())
+}
+
+/// Binds `addr` (port 0 picks a free one).
+pub async fn bind(addr: SocketAddr) -> std::io::Result<tokio::net::TcpListener> {
+    tokio::net::TcpListener::bind(addr).await
+}

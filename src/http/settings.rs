@@ -1,0 +1,65 @@
+//! The settings the HTTP layer reads: the `[server]` and `[admin]`
+//! sections of the configuration file, and [`Settings`], everything
+//! [`super::AppState::open`] needs.
+
+use crate::serving::settings::{CustomizePriority, RegionConfig, ServingSettings};
+use serde::Deserialize;
+use std::net::SocketAddr;
+
+/// Everything the service needs to open: its own sections, the serving
+/// layer's, and the regions. [`crate::config::Config`] converts into it.
+#[derive(Debug, Clone, Default)]
+pub struct Settings {
+    pub server: ServerConfig,
+    pub admin: AdminConfig,
+    pub serving: ServingSettings,
+    pub regions: Vec<RegionConfig>,
+}
+
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct ServerConfig {
+    /// Public API listener.
+    pub listen: SocketAddr,
+    /// Largest request body accepted, bytes.
+    pub max_body_bytes: usize,
+    /// Seconds to let in-flight requests finish on shutdown.
+    pub drain_seconds: u64,
+    /// CPU priority of the thread that customizes metrics (live blends,
+    /// historical buckets). Customization is seconds of CPU per minute under
+    /// a busy feed; below the request workers' priority it takes only the
+    /// CPU they leave, so queries keep their latency during reloads.
+    pub customize_priority: CustomizePriority,
+}
+
+impl Default for ServerConfig {
+    fn default() -> Self {
+        Self {
+            listen: "127.0.0.1:8080".parse().expect("literal address"),
+            max_body_bytes: 256 * 1024,
+            drain_seconds: 10,
+            customize_priority: CustomizePriority::Idle,
+        }
+    }
+}
+
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct AdminConfig {
+    /// Admin listener; keep it on loopback or a private interface.
+    pub listen: SocketAddr,
+    /// Bearer token; prefer the HODOS_ADMIN_TOKEN environment variable.
+    pub token: String,
+    /// Largest upload (historical table), bytes.
+    pub max_upload_bytes: usize,
+}
+
+impl Default for AdminConfig {
+    fn default() -> Self {
+        Self {
+            listen: "127.0.0.1:8081".parse().expect("literal address"),
+            token: String::new(),
+            max_upload_bytes: 512 * 1024 * 1024,
+        }
+    }
+}

@@ -1,0 +1,94 @@
+//! Metric names and their recording: what the serving core counts.
+//!
+//! All series are prefixed `hodos_` and follow Prometheus naming (base units,
+//! `_total` for counters, `_seconds` for durations). Labels are closed sets:
+//! the matched route template (never the raw URI), the tier, the fallback
+//! reason, the region name from configuration, an outcome word.
+//!
+//! Recording goes through the `metrics` facade; which exporter (if any)
+//! renders the series is the HTTP layer's business
+//! (its `exporter` module).
+
+use crate::serving::tier::{FallbackReason, Tier};
+
+pub const REQUEST_DURATION: &str = "hodos_request_duration_seconds";
+pub const ANSWERS: &str = "hodos_answers_total";
+pub const FALLBACKS: &str = "hodos_fallbacks_total";
+pub const LIVE_AGE: &str = "hodos_live_data_age_seconds";
+pub const SNAPSHOT_GENERATION: &str = "hodos_snapshot_generation";
+pub const CUSTOMIZATION: &str = "hodos_customization_seconds";
+pub const RELOADS: &str = "hodos_reloads_total";
+pub const REJECTED_ROWS: &str = "hodos_rejected_rows_total";
+pub const GRAPH_IN_FLIGHT: &str = "hodos_graph_work_in_flight";
+pub const REGION_READY: &str = "hodos_region_ready";
+
+/// Describes every series (units and help text) to the installed recorder.
+pub fn describe() {
+    use metrics::{describe_counter, describe_gauge, describe_histogram, Unit};
+    describe_histogram!(
+        REQUEST_DURATION,
+        Unit::Seconds,
+        "Request latency by matched route and answering tier."
+    );
+    describe_counter!(ANSWERS, "Answers (ETAs or matrix cells) by route and tier.");
+    describe_counter!(
+        FALLBACKS,
+        "Answers below the live tier, by route and fallback reason."
+    );
+    describe_gauge!(
+        LIVE_AGE,
+        Unit::Seconds,
+        "Age of the newest live observation per region."
+    );
+    describe_gauge!(
+        SNAPSHOT_GENERATION,
+        "Generation of the serving snapshot per region."
+    );
+    describe_histogram!(
+        CUSTOMIZATION,
+        Unit::Seconds,
+        "Time to customize a metric, by region and kind."
+    );
+    describe_counter!(
+        RELOADS,
+        "Table and artifact reloads by region, table and outcome."
+    );
+    describe_counter!(
+        REJECTED_ROWS,
+        "Rejected input rows by region, table and kind."
+    );
+    describe_gauge!(GRAPH_IN_FLIGHT, "Requests doing graph work right now.");
+    describe_gauge!(
+        REGION_READY,
+        "1 when the region serves from a graph, 0 when degraded."
+    );
+}
+
+pub fn answer(route: &'static str, tier: Tier, reason: Option<FallbackReason>, n: u64) {
+    metrics::counter!(ANSWERS, "route" => route, "tier" => tier.as_str()).increment(n);
+    if let Some(r) = reason {
+        metrics::counter!(FALLBACKS, "route" => route, "reason" => r.as_str()).increment(n);
+    }
+}
+
+/// Pre-registers every labelled series at zero so dashboards see them from
+/// the first scrape.
+pub fn register_zero(routes: &[&'static str], regions: &[String]) {
+    for &route in routes {
+        for t in Tier::ALL {
+            metrics::counter!(ANSWERS, "route" => route, "tier" => t.as_str()).increment(0);
+        }
+        for r in FallbackReason::ALL {
+            metrics::counter!(FALLBACKS, "route" => route, "reason" => r.as_str()).increment(0);
+        }
+    }
+    for region in regions {
+        for table in ["historical", "live", "artifact"] {
+            for outcome in ["accepted", "rejected", "failed"] {
+                metrics::counter!(RELOADS, "region" => region.clone(), "table" => table, "outcome" => outcome)
+                    .increment(0);
+            }
+        }
+    }
+    metrics::gauge!(GRAPH_IN_FLIGHT).set(0.0);
+}

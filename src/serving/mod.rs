@@ -1,0 +1,31 @@
+//! Serving: per-region state behind `arc-swap`, speed tables, the answer
+//! to a trip or matrix with its tier, admission control and the background
+//! threads that do update work.
+//!
+//! # Layout
+//!
+//! - [`snapshot`]: per-region serving state behind `arc-swap` and every
+//!   update path; [`customizer`]: the low-priority threads that run
+//!   customizations and other update work; [`retire`]: superseded data
+//!   freed on those threads, never by a request.
+//! - [`speeds`]: historical profiles, live observations, blending, saving.
+//! - [`answer`], [`tier`]: tier choice and fallbacks for trips and matrices.
+//! - [`admission`], [`cpu_wait`]: shedding under overload and the CPU-wait
+//!   signal it reads.
+//! - [`metrics`]: metric names and their recording (the exporter is the
+//!   HTTP layer's).
+//!
+//! **Architecture Invariant:** serving knows nothing of HTTP: no
+//! `crate::http`, `crate::config` or `crate::demo` import, no axum type.
+//! It uses the engine, never the other way round.
+
+pub mod admission;
+pub mod answer;
+pub mod cpu_wait;
+pub mod customizer;
+pub mod metrics;
+pub mod retire;
+pub mod settings;
+pub mod snapshot;
+pub mod speeds;
+pub mod tier;
