@@ -217,11 +217,9 @@ impl RegionHandle {
                 let r = HistoricalProfile::parse(&csv, &index, &validation);
                 if r.is_ok() {
                     if let Some(dir) = path.parent() {
-                        std::fs::create_dir_all(dir).map_err(|source| {
-                            UpdateFailure::StateDir {
-                                dir: dir.to_path_buf(),
-                                source,
-                            }
+                        std::fs::create_dir_all(dir).map_err(|source| UpdateFailure::StateDir {
+                            dir: dir.to_path_buf(),
+                            source,
                         })?;
                     }
                     save_historical(&path, &csv).map_err(UpdateFailure::Save)?;
