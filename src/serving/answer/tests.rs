@@ -24,7 +24,7 @@ use crate::serving::tier::{FallbackReason as R, Tier};
 use chrono::{Duration as Days, Utc};
 use petgraph::graph::{DiGraph, NodeIndex};
 use std::path::{Path, PathBuf};
-use std::sync::{Arc, OnceLock};
+use std::sync::OnceLock;
 
 /// The synthetic city's artifact, built once per test binary.
 struct City {
@@ -113,11 +113,11 @@ fn dijkstra_ms(g: &RoadGraph, w: &[u32], s: u32, t: u32) -> Option<u64> {
     for _ in 0..g.num_nodes() {
         pg.add_node(());
     }
-    for e in 0..g.num_edges() {
+    for (e, &we) in w.iter().enumerate() {
         pg.add_edge(
             NodeIndex::new(g.edge_tail[e] as usize),
             NodeIndex::new(g.edge_head[e] as usize),
-            u64::from(w[e]),
+            u64::from(we),
         );
     }
     let d = petgraph::algo::dijkstra(
