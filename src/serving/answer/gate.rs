@@ -1,0 +1,184 @@
+//! The gate every answer passes before graph work, in this order: a region
+//! covers the request → it has a snapshot → the request was admitted → a
+//! graph permit is free → a metric is ready within the budget (live if
+//! "now" and fresh, else the departure hour's historical bucket). The first
+//! check that fails names the fallback reason; passing them all yields the
+//! snapshot, the chosen metric and the permit.
+
+use super::Catalog;
+use crate::engine::calibration::Calibration;
+use crate::engine::region::Metric;
+use crate::serving::metrics as m;
+use crate::serving::snapshot::{LiveMetric, RegionHandle, Snapshot};
+use crate::serving::tier::{FallbackReason, Tier};
+use chrono::{DateTime, Utc};
+use std::sync::Arc;
+use std::time::Instant;
+use tokio::sync::OwnedSemaphorePermit;
+
+/// Region name and snapshot generation an answer came from.
+pub(super) type Tag = Option<(String, u64)>;
+
+/// The metric for a departure, with its tier, reason and data age.
+pub(super) struct Chosen {
+    pub metric: Arc<MetricRef>,
+    pub tier: Tier,
+    pub reason: Option<FallbackReason>,
+    pub age_s: Option<f64>,
+}
+
+/// A metric owned by a snapshot: either its live blend or a bucket.
+pub(super) enum MetricRef {
+    Live(Arc<LiveMetric>),
+    Bucket(Arc<Metric>),
+}
+
+impl MetricRef {
+    pub fn get(&self) -> &Metric {
+        match self {
+            MetricRef::Live(l) => &l.metric,
+            MetricRef::Bucket(b) => b,
+        }
+    }
+}
+
+/// Decrements the in-flight gauge when graph work ends.
+pub(super) struct InFlight;
+
+impl InFlight {
+    fn start() -> Self {
+        metrics::gauge!(m::GRAPH_IN_FLIGHT).increment(1.0);
+        InFlight
+    }
+}
+
+impl Drop for InFlight {
+    fn drop(&mut self) {
+        metrics::gauge!(m::GRAPH_IN_FLIGHT).decrement(1.0);
+    }
+}
+
+/// Passed the gate: answer from the graph.
+pub(super) struct Granted {
+    pub snap: Arc<Snapshot>,
+    pub chosen: Chosen,
+    pub tag: Tag,
+    /// Held until the graph work ends.
+    pub permit: OwnedSemaphorePermit,
+    /// Held until the answer is built.
+    pub in_flight: InFlight,
+}
+
+/// Stopped at the gate: answer from the heuristic tier.
+pub(super) struct Fallback {
+    /// Whose calibration estimates: the snapshot's region, or the
+    /// configured defaults when there is none.
+    snap: Option<Arc<Snapshot>>,
+    pub reason: FallbackReason,
+    pub tag: Tag,
+}
+
+impl Fallback {
+    /// The calibration the heuristic answer uses.
+    pub fn calibration<'a>(&'a self, cat: &'a Catalog) -> &'a Calibration {
+        match &self.snap {
+            Some(s) => &s.region.calibration,
+            None => &cat.outside,
+        }
+    }
+}
+
+/// Runs the gate for a request that `handle` (if any) covers.
+pub(super) async fn gate(
+    cat: &Catalog,
+    handle: Option<&Arc<RegionHandle>>,
+    depart: Option<DateTime<Utc>>,
+    deadline: Instant,
+    admitted: bool,
+) -> Result<Granted, Fallback> {
+    let Some(handle) = handle else {
+        return Err(Fallback {
+            snap: None,
+            reason: FallbackReason::OutsideRegions,
+            tag: None,
+        });
+    };
+    let Some(snap) = handle.snapshot() else {
+        return Err(Fallback {
+            snap: None,
+            reason: FallbackReason::RegionUnavailable,
+            tag: Some((handle.name.clone(), 0)),
+        });
+    };
+    let tag = Some((handle.name.clone(), snap.generation));
+    let stop = |snap: Arc<Snapshot>, reason, tag| {
+        Err(Fallback {
+            snap: Some(snap),
+            reason,
+            tag,
+        })
+    };
+    if !admitted {
+        return stop(snap, FallbackReason::Overloaded, tag);
+    }
+    let Ok(permit) = cat.permits.clone().try_acquire_owned() else {
+        return stop(snap, FallbackReason::Overloaded, tag);
+    };
+    let in_flight = InFlight::start();
+    let Some(chosen) = choose(cat, handle, &snap, depart, deadline).await else {
+        return stop(snap, FallbackReason::BudgetExceeded, tag);
+    };
+    Ok(Granted {
+        snap,
+        chosen,
+        tag,
+        permit,
+        in_flight,
+    })
+}
+
+/// Picks the metric: live if the departure is "now" (within the TTL) and
+/// the region holds fresh live data, else the departure hour's bucket
+/// (`None` if it is not customized by `deadline`).
+async fn choose(
+    cat: &Catalog,
+    handle: &RegionHandle,
+    snap: &Snapshot,
+    depart: Option<DateTime<Utc>>,
+    deadline: Instant,
+) -> Option<Chosen> {
+    let now = Utc::now();
+    let ttl = cat.cfg.live.ttl_s;
+    let t = depart.unwrap_or(now);
+    let leaving_now = ((t - now).num_milliseconds() as f64 / 1000.0).abs() <= ttl;
+    let mut reason = None;
+    if leaving_now {
+        match &snap.live {
+            Some(l) => {
+                let age = l
+                    .newest_observed_at
+                    .map(|o| (now - o).num_milliseconds() as f64 / 1000.0);
+                if l.stats.any_fresh && age.map(|a| a <= ttl).unwrap_or(false) {
+                    return Some(Chosen {
+                        metric: Arc::new(MetricRef::Live(l.clone())),
+                        tier: Tier::Live,
+                        reason: None,
+                        age_s: age.map(|a| a.max(0.0)),
+                    });
+                }
+                reason = Some(FallbackReason::LiveStale);
+            }
+            None => reason = Some(FallbackReason::NoLiveData),
+        }
+    }
+    let hour = crate::serving::speeds::hour_of_week(t, handle.tz);
+    let bucket = handle.bucket(snap, hour, deadline).await?;
+    Some(Chosen {
+        metric: Arc::new(MetricRef::Bucket(bucket)),
+        tier: Tier::Historical,
+        reason,
+        age_s: snap
+            .historical_at
+            .map(|a| ((now - a).num_milliseconds() as f64 / 1000.0).max(0.0)),
+    })
+}

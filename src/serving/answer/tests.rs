@@ -1,0 +1,535 @@
+//! Tier and fallback decisions of [`super::trip`] and
+//! [`super::matrix_trip`], called directly on a [`Catalog`] over small
+//! synthetic regions of the fictional city Quellhaven (no HTTP).
+//!
+//! References outside the project, named beside each check:
+//! - graph answers: `petgraph::algo::dijkstra` (crates.io petgraph 0.8) on
+//!   the same edge weights, trips between two graph nodes whose roads are
+//!   all two-way (a node snaps onto itself, so the answer is node to node);
+//! - a table of one speed: weights by hand, length ÷ speed in ms;
+//! - heuristic answers: the haversine formula (great-circle distance on a
+//!   sphere, mean Earth radius 6 371 008.8 m, IUGG) × circuity ÷ speed,
+//!   written out here;
+//! - unreachable pairs: `petgraph::algo::has_path_connecting`.
+
+use super::{matrix_trip, trip, Catalog};
+use crate::engine::artifact::{Artifact, Metadata};
+use crate::engine::build::{build_from_graph, Quiet};
+use crate::engine::calibration::Calibration;
+use crate::engine::geo::LatLon;
+use crate::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
+use crate::serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
+use crate::serving::snapshot::{RegionHandle, UpdateError, UpdateSettings};
+use crate::serving::tier::{FallbackReason as R, Tier};
+use chrono::{Duration as Days, Utc};
+use petgraph::graph::{DiGraph, NodeIndex};
+use std::path::{Path, PathBuf};
+use std::sync::OnceLock;
+
+/// The synthetic city's artifact, built once per test binary.
+struct City {
+    _dir: tempfile::TempDir,
+    artifact: PathBuf,
+    graph: RoadGraph,
+}
+
+fn city() -> &'static City {
+    static C: OnceLock<City> = OnceLock::new();
+    C.get_or_init(|| {
+        let dir = tempfile::tempdir().unwrap();
+        let raw = crate::engine::import::synthetic::generate(600, 11);
+        let art = build_from_graph("synthetic:quellhaven".into(), raw, 0.0, &mut Quiet).unwrap();
+        let artifact = dir.path().join("quellhaven.hodos");
+        art.save(&artifact).unwrap();
+        City {
+            _dir: dir,
+            artifact,
+            graph: art.graph,
+        }
+    })
+}
+
+fn settings() -> ServingSettings {
+    let mut s = ServingSettings {
+        // Tests share the machine; an idle-priority customizer could wait
+        // behind other tests for seconds.
+        customize_priority: CustomizePriority::Normal,
+        ..ServingSettings::default()
+    };
+    s.live.ttl_s = 600.0;
+    s.live.half_life_s = 120.0;
+    s.query.max_queue_ms = 0;
+    s.query.max_cpu_wait = 0.0;
+    s
+}
+
+/// A catalog of one region on `artifact` (coverage: the graph's box with a
+/// margin), with its own state directory.
+async fn catalog(artifact: &Path, g: &RoadGraph, state: &Path) -> Catalog {
+    let (lo, hi) = g.bbox();
+    let cfg = RegionConfig {
+        name: "quellhaven".into(),
+        artifact: artifact.to_path_buf(),
+        time_zone: "UTC".into(),
+        coverage: Coverage::Bbox([lo.lat - 0.05, lo.lon - 0.05, hi.lat + 0.05, hi.lon + 0.05]),
+        historical: None,
+        live_dir: None,
+        state_dir: state.to_path_buf(),
+    };
+    let s = settings();
+    let h = RegionHandle::open(cfg, UpdateSettings::from_settings(&s)).await;
+    Catalog::new(s, vec![h])
+}
+
+/// Haversine distance (published formula, mean Earth radius in metres).
+fn haversine(a: LatLon, b: LatLon) -> f64 {
+    let r = 6_371_008.8;
+    let (p1, p2) = (a.lat.to_radians(), b.lat.to_radians());
+    let (dp, dl) = (p2 - p1, (b.lon - a.lon).to_radians());
+    let h = (dp / 2.0).sin().powi(2) + p1.cos() * p2.cos() * (dl / 2.0).sin().powi(2);
+    2.0 * r * h.sqrt().asin()
+}
+
+/// (metres, seconds) of the heuristic: distance × circuity at `kmh`.
+fn by_hand(a: LatLon, b: LatLon, circuity: f64, kmh: f64) -> (f64, f64) {
+    let m = haversine(a, b) * circuity;
+    (m, m / (kmh / 3.6))
+}
+
+fn close(x: f64, y: f64) -> bool {
+    (x - y).abs() <= 1e-6 * y.abs().max(1.0)
+}
+
+/// The heuristic the region's calibration gives, worked by hand from its
+/// factors for this distance.
+fn region_estimate(cal: &Calibration, a: LatLon, b: LatLon) -> (f64, f64) {
+    let (c, v) = cal.factors(haversine(a, b));
+    by_hand(a, b, c, v)
+}
+
+/// petgraph Dijkstra travel time (ms) from node `s` to `t` over `w`.
+fn dijkstra_ms(g: &RoadGraph, w: &[u32], s: u32, t: u32) -> Option<u64> {
+    let mut pg = DiGraph::<(), u64>::new();
+    for _ in 0..g.num_nodes() {
+        pg.add_node(());
+    }
+    for (e, &we) in w.iter().enumerate() {
+        pg.add_edge(
+            NodeIndex::new(g.edge_tail[e] as usize),
+            NodeIndex::new(g.edge_head[e] as usize),
+            u64::from(we),
+        );
+    }
+    let d = petgraph::algo::dijkstra(
+        &pg,
+        NodeIndex::new(s as usize),
+        Some(NodeIndex::new(t as usize)),
+        |e| *e.weight(),
+    );
+    d.get(&NodeIndex::new(t as usize)).copied()
+}
+
+/// Free-flow weights in ms, by hand: length ÷ speed.
+fn weights_at(g: &RoadGraph, kmh: impl Fn(usize) -> f64) -> Vec<u32> {
+    (0..g.num_edges())
+        .map(|e| (g.edge_len_m[e] * 3600.0 / kmh(e)).round().max(1.0) as u32)
+        .collect()
+}
+
+/// Two nodes far apart whose every road is two-way.
+fn two_way_pair(g: &RoadGraph) -> (u32, u32) {
+    let ok = |v: u32| {
+        (0..g.num_edges())
+            .all(|e| (g.edge_tail[e] != v && g.edge_head[e] != v) || g.edge_twin[e] != u32::MAX)
+            && (0..g.num_edges()).any(|e| g.edge_tail[e] == v)
+    };
+    let (lo, hi) = g.bbox();
+    let near = |fy: f64, fx: f64| {
+        let p = LatLon::new(
+            lo.lat + (hi.lat - lo.lat) * fy,
+            lo.lon + (hi.lon - lo.lon) * fx,
+        );
+        (0..g.num_nodes() as u32)
+            .filter(|&v| ok(v))
+            .min_by(|&a, &b| haversine(g.node_pos(a), p).total_cmp(&haversine(g.node_pos(b), p)))
+            .unwrap()
+    };
+    (near(0.2, 0.25), near(0.8, 0.7))
+}
+
+#[tokio::test]
+async fn gate_fallbacks_and_graph_tiers() {
+    let c = city();
+    let g = &c.graph;
+    let state = tempfile::tempdir().unwrap();
+    let cat = catalog(&c.artifact, g, state.path()).await;
+    let region = cat.regions[0].clone();
+    let cal = region.snapshot().unwrap().region.calibration.clone();
+    let gen = region.snapshot().unwrap().generation;
+    let (s, t) = two_way_pair(g);
+    let (a, b) = (g.node_pos(s), g.node_pos(t));
+
+    // Outside every region: configured defaults (1.3, 30 km/h), no tag.
+    let (p, q) = (LatLon::new(10.0, 10.0), LatLon::new(10.1, 10.1));
+    let r = trip(&cat, p, q, None, None, false, true).await;
+    assert_eq!(
+        (r.tier, r.reason, r.snapshot.clone()),
+        (Tier::Heuristic, Some(R::OutsideRegions), None)
+    );
+    let (m, secs) = by_hand(p, q, 1.3, 30.0); // haversine × 1.3 ÷ 30 km/h
+    assert!(
+        close(r.meters, m) && close(r.eta_s, secs),
+        "{r:?} vs {m} m {secs} s"
+    );
+
+    // Not admitted → overloaded, from the region's calibration.
+    let r = trip(&cat, a, b, None, Some(2000), false, false).await;
+    assert_eq!((r.tier, r.reason), (Tier::Heuristic, Some(R::Overloaded)));
+    assert_eq!(r.snapshot, Some(("quellhaven".into(), gen)));
+    let (m, secs) = region_estimate(&cal, a, b); // haversine × factors
+    assert!(close(r.meters, m) && close(r.eta_s, secs), "{r:?}");
+
+    // Every graph permit taken → overloaded too.
+    let n = cat.cfg.query.graph_concurrency as u32;
+    let held = cat.permits.clone().try_acquire_many_owned(n).unwrap();
+    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    assert_eq!((r.tier, r.reason), (Tier::Heuristic, Some(R::Overloaded)));
+    let mx = matrix_trip(&cat, vec![a], vec![b], None, Some(2000), true).await;
+    assert_eq!(
+        (mx.cells[0].tier, mx.cells[0].reason),
+        (Tier::Heuristic, Some(R::Overloaded))
+    );
+    drop(held);
+
+    // No live data, leaving now → historical (free-flow), no_live_data;
+    // the time is petgraph's Dijkstra on free-flow weights.
+    let free = weights_at(g, |e| f64::from(g.edge_speed_kmh[e]));
+    let want = dijkstra_ms(g, &free, s, t).unwrap() as f64 / 1000.0;
+    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    assert_eq!(
+        (r.tier, r.reason),
+        (Tier::Historical, Some(R::NoLiveData)),
+        "{r:?}"
+    );
+    assert!(
+        (r.eta_s - want).abs() < 1e-6,
+        "{} vs petgraph {want}",
+        r.eta_s
+    );
+    assert!(r.from_snap_m.unwrap() < 1e-3 && r.to_snap_m.unwrap() < 1e-3);
+    // Routes take the same path and time.
+    let r = trip(&cat, a, b, None, Some(2000), true, true).await;
+    assert!((r.eta_s - want).abs() < 1e-6 && r.geometry.is_some());
+
+    // A departure next week is not "now": historical, no reason.
+    let later = Utc::now() + Days::days(7);
+    let r = trip(&cat, a, b, Some(later), Some(2000), false, true).await;
+    assert_eq!((r.tier, r.reason), (Tier::Historical, None));
+
+    // Far off-road but inside the coverage → off_network.
+    let (lo, _) = g.bbox();
+    let corner = LatLon::new(lo.lat - 0.04, lo.lon - 0.04);
+    let r = trip(&cat, corner, b, None, Some(2000), false, true).await;
+    assert_eq!((r.tier, r.reason), (Tier::Heuristic, Some(R::OffNetwork)));
+    let (m, secs) = region_estimate(&cal, corner, b);
+    assert!(close(r.meters, m) && close(r.eta_s, secs), "{r:?}");
+
+    // Matrix: graph cells from petgraph, the off-road row per cell.
+    let mx = matrix_trip(&cat, vec![a, corner], vec![b, a], None, Some(2000), true).await;
+    assert_eq!(
+        (mx.rows, mx.cols, mx.snapshot.clone()),
+        (2, 2, Some(("quellhaven".into(), gen)))
+    );
+    assert_eq!(
+        (mx.cells[0].tier, mx.cells[0].reason),
+        (Tier::Historical, Some(R::NoLiveData))
+    );
+    assert!(
+        (mx.cells[0].eta_s - want).abs() < 1e-6,
+        "{:?} vs petgraph {want}",
+        mx.cells[0]
+    );
+    assert_eq!(mx.cells[1].eta_s, 0.0, "a to itself");
+    for cell in &mx.cells[2..] {
+        assert_eq!(
+            (cell.tier, cell.reason),
+            (Tier::Heuristic, Some(R::OffNetwork))
+        );
+    }
+    let (_, secs) = region_estimate(&cal, corner, b);
+    assert!(close(mx.cells[2].eta_s, secs));
+    // Matrix outside every region.
+    let mx = matrix_trip(&cat, vec![p], vec![q], None, None, true).await;
+    assert_eq!(
+        (mx.cells[0].tier, mx.cells[0].reason, mx.snapshot),
+        (Tier::Heuristic, Some(R::OutsideRegions), None)
+    );
+
+    // A table of one speed (20 km/h) for next week's hour: historical, and
+    // the time is petgraph's Dijkstra on length ÷ 20 km/h.
+    let hour = crate::serving::speeds::hour_of_week(later, region.tz);
+    let mut csv = String::from("from_node,to_node,hour_of_week,speed_kmh\n");
+    for e in 0..g.num_edges() {
+        let (u, v) = (
+            g.node_ext[g.edge_tail[e] as usize],
+            g.node_ext[g.edge_head[e] as usize],
+        );
+        csv.push_str(&format!("{u},{v},{hour},20\n"));
+    }
+    region.put_historical(csv.into_bytes()).await.unwrap();
+    let slow = weights_at(g, |_| 20.0);
+    let want20 = dijkstra_ms(g, &slow, s, t).unwrap() as f64 / 1000.0;
+    let r = trip(&cat, a, b, Some(later), Some(2000), false, true).await;
+    assert_eq!((r.tier, r.reason), (Tier::Historical, None));
+    assert!(
+        (r.eta_s - want20).abs() < 1e-6,
+        "{} vs petgraph {want20}",
+        r.eta_s
+    );
+
+    // A cold bucket (an hour nobody warmed) and no time to customize it →
+    // budget_exceeded, for trips and whole matrices.
+    let cold = later + Days::hours(5);
+    let r = trip(&cat, a, b, Some(cold), Some(0), false, true).await;
+    assert_eq!(
+        (r.tier, r.reason),
+        (Tier::Heuristic, Some(R::BudgetExceeded)),
+        "{r:?}"
+    );
+    let cold2 = later + Days::hours(9);
+    let mx = matrix_trip(&cat, vec![a], vec![b], Some(cold2), Some(0), true).await;
+    assert_eq!(
+        (mx.cells[0].tier, mx.cells[0].reason),
+        (Tier::Heuristic, Some(R::BudgetExceeded))
+    );
+
+    // Fresh live observations (12 km/h everywhere) → live, no reason, and
+    // slower than petgraph's free-flow time (every road is faster than 12).
+    let now = Utc::now().to_rfc3339();
+    let batch: Vec<serde_json::Value> = (0..g.num_edges())
+        .map(|e| {
+            let (u, v) = (g.node_ext[g.edge_tail[e] as usize], g.node_ext[g.edge_head[e] as usize]);
+            serde_json::json!({"from_node": u, "to_node": v, "speed_kmh": 12.0, "observed_at": now, "samples": 3})
+        })
+        .collect();
+    region
+        .put_live(&serde_json::to_vec(&batch).unwrap(), false)
+        .await
+        .unwrap();
+    assert!(region.refresh_live(true).await);
+    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    assert_eq!((r.tier, r.reason), (Tier::Live, None), "{r:?}");
+    assert!(r.eta_s > want, "{} vs free-flow {want}", r.eta_s);
+    assert!(r.speeds_age_s.unwrap() < 60.0);
+    let mx = matrix_trip(&cat, vec![a], vec![b], None, Some(2000), true).await;
+    assert_eq!((mx.cells[0].tier, mx.cells[0].reason), (Tier::Live, None));
+    assert!(
+        (mx.cells[0].eta_s - r.eta_s).abs() < 1e-6,
+        "matrix and trip agree"
+    );
+}
+
+#[tokio::test]
+async fn stale_live_data_falls_back_to_historical() {
+    let c = city();
+    let g = &c.graph;
+    let state = tempfile::tempdir().unwrap();
+    let cat = catalog(&c.artifact, g, state.path()).await;
+    let region = cat.regions[0].clone();
+    let (s, t) = two_way_pair(g);
+    // Observations an hour old, beyond the 600 s TTL.
+    let old = (Utc::now() - Days::seconds(3600)).to_rfc3339();
+    let batch: Vec<serde_json::Value> = (0..50)
+        .map(|e| {
+            let (u, v) = (g.node_ext[g.edge_tail[e] as usize], g.node_ext[g.edge_head[e] as usize]);
+            serde_json::json!({"from_node": u, "to_node": v, "speed_kmh": 20.0, "observed_at": old, "samples": 1})
+        })
+        .collect();
+    region
+        .put_live(&serde_json::to_vec(&batch).unwrap(), false)
+        .await
+        .unwrap();
+    region.refresh_live(true).await;
+    let r = trip(
+        &cat,
+        g.node_pos(s),
+        g.node_pos(t),
+        None,
+        Some(2000),
+        false,
+        true,
+    )
+    .await;
+    assert_eq!(
+        (r.tier, r.reason),
+        (Tier::Historical, Some(R::LiveStale)),
+        "{r:?}"
+    );
+    // Nothing fresh: the time is free-flow, as petgraph's Dijkstra has it.
+    let free = weights_at(g, |e| f64::from(g.edge_speed_kmh[e]));
+    let want = dijkstra_ms(g, &free, s, t).unwrap() as f64 / 1000.0;
+    assert!(
+        (r.eta_s - want).abs() < 1e-6,
+        "{} vs petgraph {want}",
+        r.eta_s
+    );
+}
+
+#[tokio::test]
+async fn unavailable_region_answers_from_the_defaults() {
+    let dir = tempfile::tempdir().unwrap();
+    let broken = dir.path().join("broken.hodos");
+    std::fs::write(&broken, b"not an artifact").unwrap();
+    let c = city();
+    let cat = catalog(&broken, &c.graph, &dir.path().join("state")).await;
+    let region = cat.regions[0].clone();
+    assert!(region.snapshot().is_none());
+    let reason = region.status().degraded_reason.unwrap();
+    assert!(reason.contains("broken.hodos"), "{reason}");
+    let (a, b) = (c.graph.node_pos(0), c.graph.node_pos(1));
+    let r = trip(&cat, a, b, None, None, false, true).await;
+    assert_eq!(
+        (r.tier, r.reason),
+        (Tier::Heuristic, Some(R::RegionUnavailable))
+    );
+    assert_eq!(r.snapshot, Some(("quellhaven".into(), 0)));
+    let (m, secs) = by_hand(a, b, 1.3, 30.0); // haversine × 1.3 ÷ 30 km/h
+    assert!(close(r.meters, m) && close(r.eta_s, secs), "{r:?}");
+    let mx = matrix_trip(&cat, vec![a], vec![b, a], None, None, true).await;
+    assert!(mx
+        .cells
+        .iter()
+        .all(|c| c.reason == Some(R::RegionUnavailable)));
+    // Updates say why, with the load error's text.
+    let e = region.put_live(b"[]", false).await.unwrap_err();
+    assert!(matches!(e, UpdateError::Unavailable(_)));
+    assert_eq!(
+        e.to_string(),
+        format!("the region has no loaded graph: {reason}")
+    );
+}
+
+/// Two 4×4 grids of two-way roads with no road between them (assembled by
+/// hand: a build keeps only the largest strongly connected component).
+fn islands(dir: &Path) -> (PathBuf, RoadGraph) {
+    let mut b = GraphBuilder::default();
+    let mut way = 0;
+    for island in 0..2u32 {
+        let base = b.num_nodes() as u32;
+        for i in 0..4u32 {
+            for j in 0..4u32 {
+                let p = LatLon::new(
+                    0.01 + 0.002 * f64::from(i),
+                    0.01 + 0.02 * f64::from(island) + 0.002 * f64::from(j),
+                );
+                b.add_node(p, u64::from(base + i * 4 + j + 1));
+            }
+        }
+        for i in 0..4u32 {
+            for j in 0..4u32 {
+                let v = base + i * 4 + j;
+                for w in [(j + 1 < 4).then_some(v + 1), (i + 1 < 4).then_some(v + 4)]
+                    .into_iter()
+                    .flatten()
+                {
+                    way += 1;
+                    for (tail, head) in [(v, w), (w, v)] {
+                        b.add_edge(EdgeSpec {
+                            tail,
+                            head,
+                            length_m: None,
+                            speed_kmh: 30.0,
+                            way_id: way,
+                            class: RoadClass::Residential,
+                            shape: &[],
+                        });
+                    }
+                }
+            }
+        }
+    }
+    let g = b.finish();
+    let ug = crate::engine::order::UndirectedGraph::from_edges(
+        g.num_nodes(),
+        g.edge_tail.iter().copied().zip(g.edge_head.iter().copied()),
+    );
+    let proj = crate::engine::geo::LocalProjection::new(0.01);
+    let xy: Vec<[f64; 2]> = (0..g.num_nodes() as u32)
+        .map(|v| proj.project(g.node_pos(v)))
+        .collect();
+    let order = crate::engine::order::nested_dissection(&ug, &xy, &mut |_| {});
+    let cch = crate::engine::cch::Cch::build(&g, order.rank);
+    let art = Artifact {
+        meta: Metadata {
+            source: "test:islands".into(),
+            built_at_unix: 0,
+            hodos_version: "test".into(),
+            nodes: g.num_nodes(),
+            edges: g.num_edges(),
+            dropped: Default::default(),
+            arcs: cch.num_arcs(),
+            shortcuts: 0,
+            top_separator: 0,
+            elimination_tree_depth: 0,
+            phase_seconds: vec![],
+        },
+        calibration: Calibration::fixed(1.3, 30.0),
+        graph: g.clone(),
+        cch,
+    };
+    let path = dir.join("islands.hodos");
+    art.save(&path).unwrap();
+    (path, g)
+}
+
+#[tokio::test]
+async fn unreachable_pairs_fall_back_per_trip_and_per_cell() {
+    let dir = tempfile::tempdir().unwrap();
+    let (artifact, g) = islands(dir.path());
+    let cat = catalog(&artifact, &g, &dir.path().join("state")).await;
+    let (s, t, u) = (0u32, 16u32, 5u32);
+    // petgraph agrees there is no path from island one to island two.
+    let mut pg = DiGraph::<(), ()>::new();
+    for _ in 0..g.num_nodes() {
+        pg.add_node(());
+    }
+    for e in 0..g.num_edges() {
+        pg.add_edge(
+            NodeIndex::new(g.edge_tail[e] as usize),
+            NodeIndex::new(g.edge_head[e] as usize),
+            (),
+        );
+    }
+    assert!(!petgraph::algo::has_path_connecting(
+        &pg,
+        NodeIndex::new(s as usize),
+        NodeIndex::new(t as usize),
+        None
+    ));
+    let (a, b, c) = (g.node_pos(s), g.node_pos(t), g.node_pos(u));
+    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    assert_eq!(
+        (r.tier, r.reason),
+        (Tier::Heuristic, Some(R::Unreachable)),
+        "{r:?}"
+    );
+    // Both ends snapped (onto nodes), and the estimate is the calibration's.
+    assert!(r.from_snap_m.unwrap() < 1e-3 && r.to_snap_m.unwrap() < 1e-3);
+    let (m, secs) = by_hand(a, b, 1.3, 30.0); // haversine × 1.3 ÷ 30 km/h
+    assert!(close(r.meters, m) && close(r.eta_s, secs), "{r:?}");
+    // Matrix: the reachable cell from the graph (petgraph Dijkstra), the
+    // other per cell unreachable.
+    let mx = matrix_trip(&cat, vec![a], vec![b, c], None, Some(2000), true).await;
+    assert_eq!(
+        (mx.cells[0].tier, mx.cells[0].reason),
+        (Tier::Heuristic, Some(R::Unreachable))
+    );
+    assert_eq!(mx.cells[1].tier, Tier::Historical);
+    let free = weights_at(&g, |e| f64::from(g.edge_speed_kmh[e]));
+    let want = dijkstra_ms(&g, &free, s, u).unwrap() as f64 / 1000.0;
+    assert!(
+        (mx.cells[1].eta_s - want).abs() < 1e-6,
+        "{:?} vs petgraph {want}",
+        mx.cells[1]
+    );
+}

@@ -1,0 +1,119 @@
+//! One trip (ETA, or route with geometry): the gate, then snap and search
+//! with this thread's query scratch; off-road and unreachable ends fall
+//! back to the heuristic tier from the region's calibration.
+
+use super::gate::{gate, Granted, Tag};
+use super::scratch::{with_scratch, ScratchCache};
+use super::{Answer, Catalog};
+use crate::engine::calibration::Calibration;
+use crate::engine::cch::CchQuery;
+use crate::engine::geo::LatLon;
+use crate::engine::region::{End, EtaError};
+use crate::serving::tier::{FallbackReason, Tier};
+use chrono::{DateTime, Utc};
+use std::cell::RefCell;
+use std::sync::Arc;
+use std::time::Instant;
+
+thread_local! {
+    /// Query scratch per worker thread, keyed by the region it is sized for.
+    static SCRATCH: RefCell<ScratchCache<CchQuery>> = const { RefCell::new(ScratchCache::new(4)) };
+}
+
+/// A heuristic-tier answer for `reason`.
+fn heuristic(
+    cal: &Calibration,
+    a: LatLon,
+    b: LatLon,
+    reason: FallbackReason,
+    snapshot: Tag,
+) -> Answer {
+    let (meters, secs) = cal.estimate(a, b);
+    Answer {
+        eta_s: secs,
+        meters,
+        tier: Tier::Heuristic,
+        reason: Some(reason),
+        speeds_age_s: None,
+        snapshot,
+        from_snap_m: None,
+        to_snap_m: None,
+        geometry: None,
+    }
+}
+
+/// Answers one trip (ETA, or route when `with_geometry`). `admitted` is
+/// false when admission control shed the request.
+pub async fn trip(
+    cat: &Catalog,
+    from: LatLon,
+    to: LatLon,
+    depart: Option<DateTime<Utc>>,
+    budget_ms: Option<u64>,
+    with_geometry: bool,
+    admitted: bool,
+) -> Answer {
+    let deadline = Instant::now() + cat.budget(budget_ms);
+    let handle = cat.region_for(from, to);
+    let Granted {
+        snap,
+        chosen,
+        tag,
+        permit,
+        in_flight: _in_flight,
+    } = match gate(cat, handle, depart, deadline, admitted).await {
+        Ok(g) => g,
+        Err(mut f) => {
+            let tag = f.tag.take();
+            return heuristic(f.calibration(cat), from, to, f.reason, tag);
+        }
+    };
+    let max_snap = cat.cfg.query.max_snap_m;
+    let region = &snap.region;
+    let metric = chosen.metric.get();
+    let n = region.cch.num_nodes();
+    let result = with_scratch(
+        &SCRATCH,
+        Arc::as_ptr(region) as usize,
+        |q| q.num_nodes() == n,
+        || CchQuery::new(&region.cch),
+        |q| {
+            if with_geometry {
+                region
+                    .route(metric, q, from, to, max_snap)
+                    .map(|r| (r.eta, Some(r.geometry)))
+            } else {
+                region.eta(metric, q, from, to, max_snap).map(|e| (e, None))
+            }
+        },
+    );
+    drop(permit);
+    let cal = &region.calibration;
+    match result {
+        Ok((eta, geometry)) => Answer {
+            eta_s: eta.time_s,
+            meters: eta.meters,
+            tier: chosen.tier,
+            reason: chosen.reason,
+            speeds_age_s: chosen.age_s,
+            snapshot: tag,
+            from_snap_m: Some(eta.from.distance_m),
+            to_snap_m: Some(eta.to.distance_m),
+            geometry,
+        },
+        Err(EtaError::OffNetwork { .. }) => {
+            heuristic(cal, from, to, FallbackReason::OffNetwork, tag)
+        }
+        Err(EtaError::Unreachable) => {
+            let mut a = heuristic(cal, from, to, FallbackReason::Unreachable, tag);
+            if let (Ok(s1), Ok(s2)) = (
+                region.snap_within(from, End::From, max_snap),
+                region.snap_within(to, End::To, max_snap),
+            ) {
+                a.from_snap_m = Some(s1.distance_m);
+                a.to_snap_m = Some(s2.distance_m);
+            }
+            a
+        }
+    }
+}

@@ -1,0 +1,94 @@
+//! The typed errors of the snapshot layer: why a region failed to load,
+//! why its historical table was skipped at load, why an update did not
+//! take effect. Their `Display` text is what `/admin/status`, the admin
+//! API and the logs show, unchanged from when they were strings.
+
+use crate::engine::artifact::ArtifactError;
+use crate::serving::speeds::{PersistError, SpeedsError};
+use std::path::PathBuf;
+use std::sync::Arc;
+
+/// Why a region's artifact could not be loaded (the region then serves no
+/// graph: this is its degraded reason).
+#[derive(Debug, thiserror::Error)]
+pub enum LoadError {
+    #[error(transparent)]
+    Artifact(#[from] ArtifactError),
+}
+
+/// Why a region serves no graph, as far as is known: the failed load, or
+/// nothing when no load has finished (shown as an empty reason).
+#[derive(Debug, Clone, Default)]
+pub struct Degraded(pub Option<Arc<LoadError>>);
+
+impl std::fmt::Display for Degraded {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match &self.0 {
+            Some(e) => e.fmt(f),
+            None => Ok(()),
+        }
+    }
+}
+
+/// A historical table that could not be read from its configured path.
+#[derive(Debug, thiserror::Error)]
+pub enum TableReadError {
+    #[error("{}: {source}", path.display())]
+    Read {
+        path: PathBuf,
+        source: std::io::Error,
+    },
+    #[error("{}: {source}", path.display())]
+    Parse { path: PathBuf, source: SpeedsError },
+}
+
+/// Why a load went ahead without a historical table (the region then
+/// serves free-flow for the historical tier; the artifact outcome's
+/// `error` carries this text).
+#[derive(Debug, thiserror::Error)]
+pub enum HistoricalNote {
+    #[error("historical table not loaded: {0}")]
+    Configured(TableReadError),
+    #[error("saved historical table not restored: {0}")]
+    Saved(PersistError),
+}
+
+/// What went wrong inside an update that was not the data's fault.
+#[derive(Debug, thiserror::Error)]
+pub enum UpdateFailure {
+    /// The blocking load task itself failed (panicked or was cancelled).
+    #[error("load task failed: {0}")]
+    LoadTask(tokio::task::JoinError),
+    /// The artifact did not load.
+    #[error("{0}")]
+    Load(Arc<LoadError>),
+    /// The job parsing a historical table panicked.
+    #[error("parse task failed")]
+    ParseTask,
+    /// The job applying a live batch panicked.
+    #[error("live batch task failed")]
+    LiveTask,
+    /// The state directory could not be created.
+    #[error("{}: {source}", dir.display())]
+    StateDir {
+        dir: PathBuf,
+        source: std::io::Error,
+    },
+    /// An accepted table could not be saved to the state directory.
+    #[error("{0}")]
+    Save(PersistError),
+}
+
+/// Why an update did not take effect.
+#[derive(Debug, thiserror::Error)]
+pub enum UpdateError {
+    /// The data failed validation; the serving snapshot is unchanged.
+    #[error("{0}")]
+    Rejected(SpeedsError),
+    /// The region has no snapshot to update.
+    #[error("the region has no loaded graph: {0}")]
+    Unavailable(Degraded),
+    /// The update could not be carried out.
+    #[error("{0}")]
+    Failed(UpdateFailure),
+}

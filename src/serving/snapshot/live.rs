@@ -1,0 +1,337 @@
+//! The live tier's upkeep: blending the held live layer over the current
+//! hour's historical speeds, customizing and publishing the blend, the
+//! background loop that does it (at most once per `recustomize_ms`), and
+//! the watched folder of live CSV files.
+//!
+//! Blending, saving and all file work run off the request workers: blends
+//! and saves on the `updates` thread, customizations on the customizer
+//! thread, the watched folder's `std::fs` calls on tokio's blocking pool.
+
+use super::load::live_state_path;
+use super::{age_s, LiveMetric, RegionHandle, Snapshot};
+use crate::engine::region::{Metric, Region};
+use crate::serving::metrics as m;
+use crate::serving::speeds::{
+    blend_into, save_live, BlendStats, EdgeIndex, HistoricalProfile, LiveLayer, SpeedsError,
+};
+use chrono::{DateTime, Utc};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::Ordering;
+use std::sync::Arc;
+use std::time::{Duration, Instant};
+
+/// What a live blend needs besides the layer (owned, for the customizer).
+#[derive(Debug, Clone, Copy)]
+struct BlendParams {
+    ttl: Duration,
+    half_life: Duration,
+    tz: chrono_tz::Tz,
+}
+
+/// Blended speeds per edge, the blend's statistics and the newest
+/// observation it used.
+pub(super) type Blended = (Vec<f32>, BlendStats, Option<DateTime<Utc>>);
+
+/// The parts of a snapshot a live blend reads (owned, for the updates
+/// thread).
+struct BlendBase {
+    historical: Option<Arc<HistoricalProfile>>,
+    free_flow_kmh: Arc<Vec<f32>>,
+    index: Arc<EdgeIndex>,
+}
+
+/// Expires old observations and blends the layer over the current hour's
+/// historical speeds of `snap`.
+fn blend_layer(
+    snap: &BlendBase,
+    layer: &mut LiveLayer,
+    now: DateTime<Utc>,
+    p: BlendParams,
+) -> Result<Blended, SpeedsError> {
+    layer.expire(now, p.ttl);
+    let newest = layer.newest_observed_at();
+    let hour = crate::serving::speeds::hour_of_week(now, p.tz);
+    let base = match &snap.historical {
+        Some(h) => h.speeds_for_hour(&snap.free_flow_kmh, hour),
+        None => snap.free_flow_kmh.to_vec(),
+    };
+    let mut blended = Vec::new();
+    blend_into(&base, layer, now, p.half_life, p.ttl, &mut blended)
+        .map(|stats| (blended, stats, newest))
+}
+
+/// Saves `layer` to `path` (creating its folder); whether it worked.
+fn save_layer(path: &Path, layer: &LiveLayer, index: &EdgeIndex, name: &str) -> bool {
+    if let Some(dir) = path.parent() {
+        let _ = std::fs::create_dir_all(dir);
+    }
+    match save_live(path, layer, index) {
+        Ok(()) => true,
+        Err(e) => {
+            tracing::warn!(region = %name, error = %e, "live layer not saved");
+            false
+        }
+    }
+}
+
+/// The `*.csv` files of the watched folder, sorted; `None` if it cannot be
+/// read.
+fn list_csv(dir: &Path) -> Option<Vec<PathBuf>> {
+    let entries = std::fs::read_dir(dir).ok()?;
+    let mut files: Vec<PathBuf> = entries
+        .flatten()
+        .map(|e| e.path())
+        .filter(|p| p.extension().map(|x| x == "csv").unwrap_or(false))
+        .collect();
+    files.sort();
+    Some(files)
+}
+
+/// Renames an applied file to `.done` or `.rejected`.
+fn mark(f: &Path, ext: &str) {
+    if let Err(e) = std::fs::rename(f, f.with_extension(ext)) {
+        tracing::warn!(file = %f.display(), error = %e, "could not mark live file");
+    }
+}
+
+impl RegionHandle {
+    fn blend_params(&self) -> BlendParams {
+        BlendParams {
+            ttl: Duration::from_secs_f64(self.settings.live.ttl_s),
+            half_life: Duration::from_secs_f64(self.settings.live.half_life_s),
+            tz: self.tz,
+        }
+    }
+
+    /// Blends `layer` over `snap` on the updates thread (the layer is
+    /// moved there and back), so request workers never do it. `save`
+    /// writes the layer to the state directory first.
+    pub(super) async fn blend_off_worker(
+        &self,
+        snap: &Snapshot,
+        layer: LiveLayer,
+        now: DateTime<Utc>,
+        save: bool,
+    ) -> (LiveLayer, Option<Blended>, Option<bool>) {
+        let base = BlendBase {
+            historical: snap.historical.clone(),
+            free_flow_kmh: snap.free_flow_kmh.clone(),
+            index: snap.index.clone(),
+        };
+        let (params, name) = (self.blend_params(), self.name.clone());
+        let path = live_state_path(&self.cfg);
+        let back = self
+            .settings
+            .updates
+            .run(move || {
+                let mut layer = layer;
+                let saved = save.then(|| save_layer(&path, &layer, &base.index, &name));
+                let blended = match blend_layer(&base, &mut layer, now, params) {
+                    Ok(b) => Some(b),
+                    Err(e) => {
+                        tracing::error!(region = %name, error = %e, "live blend failed");
+                        None
+                    }
+                };
+                (layer, blended, saved)
+            })
+            .await;
+        match back {
+            Some(x) => x,
+            // The job panicked: the layer is lost with it; start empty
+            // rather than serve a half-applied one.
+            None => (LiveLayer::new(snap.index.num_edges()), None, None),
+        }
+    }
+
+    /// Customizes blended speeds on `region` on the customizer thread;
+    /// `None` if the job panicked.
+    pub(super) async fn customize_live(
+        &self,
+        region: Arc<Region>,
+        blended: Vec<f32>,
+    ) -> Option<Metric> {
+        self.settings
+            .customizer
+            .run(move || region.metric(crate::engine::metric::from_speeds(&region.graph, &blended)))
+            .await
+    }
+
+    /// Whether a refresh is due: observations arrived (`dirty`), the held
+    /// blend is getting old, or `force`; never for a held blend with
+    /// nothing fresh to decay unless something arrived.
+    fn refresh_due(&self, snap: &Snapshot, dirty: bool, force: bool) -> bool {
+        let interval = Duration::from_millis(self.settings.live.recustomize_ms);
+        let aging = snap
+            .live
+            .as_ref()
+            .map(|l| (Utc::now() - l.built_at).to_std().unwrap_or_default() > interval * 20)
+            .unwrap_or(false);
+        if !(dirty || aging || force) {
+            return false;
+        }
+        // Nothing arrived and the held blend has nothing fresh to decay: a
+        // new blend would equal it (a stale feed must not cost a
+        // customization every few seconds).
+        let held_stale = snap
+            .live
+            .as_ref()
+            .map(|l| !l.stats.any_fresh)
+            .unwrap_or(false);
+        dirty || force || !held_stale
+    }
+
+    /// Re-blends and re-customizes the live metric if observations arrived
+    /// (or the held blend is getting old), and publishes it. Returns whether
+    /// a new snapshot was published.
+    pub async fn refresh_live(&self, force: bool) -> bool {
+        let dirty = self.live_dirty.swap(false, Ordering::SeqCst);
+        let Some(snap) = self.snapshot() else {
+            return false;
+        };
+        if !self.refresh_due(&snap, dirty, force) {
+            return false;
+        }
+        let Some(((blended, stats, newest), now)) = self.blend_held_layer(&snap).await else {
+            return false;
+        };
+        // Customize without holding the writer lock: uploads need not wait.
+        let t = Instant::now();
+        let Some(metric) = self.customize_live(snap.region.clone(), blended).await else {
+            return false;
+        };
+        metrics::histogram!(m::CUSTOMIZATION, "region" => self.name.clone(), "kind" => "live")
+            .record(t.elapsed().as_secs_f64());
+        let live = Arc::new(LiveMetric {
+            metric,
+            stats,
+            newest_observed_at: newest,
+            built_at: now,
+        });
+        self.publish_live(&snap, live)
+    }
+
+    /// Blends the writer's live layer over `snap` (saving it now and then
+    /// so a restart brings it back), under the writer lock. Returns the
+    /// blend and the time it was made for.
+    async fn blend_held_layer(&self, snap: &Snapshot) -> Option<(Blended, DateTime<Utc>)> {
+        let mut guard = self.writer.lock().await;
+        let layer = guard.live.take()?;
+        let now = Utc::now();
+        // Save the layer now and then so a restart brings it back.
+        let save = guard.live_changed
+            && guard
+                .live_saved_at
+                .map(|t| t.elapsed() > Duration::from_secs(2))
+                .unwrap_or(true);
+        let (layer, blended, saved) = self.blend_off_worker(snap, layer, now, save).await;
+        guard.live = Some(layer);
+        if saved == Some(true) {
+            guard.live_saved_at = Some(Instant::now());
+            guard.live_changed = false;
+        }
+        blended.map(|b| (b, now))
+    }
+
+    /// Publishes `live` on top of whatever is current now (a table may
+    /// have landed meanwhile: it marks the live layer dirty, so the next
+    /// round blends over it). If the artifact was reloaded since `snap`,
+    /// the blend belongs to the old graph: nothing is published and the
+    /// next round blends again over the new one.
+    fn publish_live(&self, snap: &Arc<Snapshot>, live: Arc<LiveMetric>) -> bool {
+        let cur = self.snapshot().unwrap_or(snap.clone());
+        if !Arc::ptr_eq(&cur.region, &snap.region) {
+            self.live_dirty.store(true, Ordering::SeqCst);
+            self.wake.notify_one();
+            return false;
+        }
+        let newest = live.newest_observed_at;
+        self.publish(|g| Snapshot {
+            generation: g,
+            region: cur.region.clone(),
+            index: cur.index.clone(),
+            free_flow_kmh: cur.free_flow_kmh.clone(),
+            historical: cur.historical.clone(),
+            historical_at: cur.historical_at,
+            live: Some(live),
+            artifact_load: cur.artifact_load,
+            artifact_at: cur.artifact_at,
+        });
+        if let Some(n) = newest {
+            metrics::gauge!(m::LIVE_AGE, "region" => self.name.clone()).set(age_s(Utc::now(), n));
+        }
+        true
+    }
+
+    /// Runs the live loop until `shutdown` resolves: re-customizes at most
+    /// every `recustomize_ms` when observations arrived, and scans the
+    /// watched directory.
+    pub async fn run_live_loop(self: Arc<Self>, shutdown: impl std::future::Future<Output = ()>) {
+        tokio::pin!(shutdown);
+        let interval = Duration::from_millis(self.settings.live.recustomize_ms);
+        let watch_every = Duration::from_secs_f64(self.settings.live.watch_interval_s);
+        let mut last_scan = Instant::now() - watch_every;
+        let mut last_warm = Instant::now();
+        loop {
+            tokio::select! {
+                _ = &mut shutdown => break,
+                _ = self.wake.notified() => {},
+                _ = tokio::time::sleep(interval) => {},
+            }
+            let started = Instant::now();
+            self.refresh_live(false).await;
+            self.sweep_retired();
+            self.record_live_age();
+            if self.cfg.live_dir.is_some() && last_scan.elapsed() >= watch_every {
+                last_scan = Instant::now();
+                self.scan_live_dir().await;
+            }
+            if last_warm.elapsed() > Duration::from_secs(60) {
+                last_warm = Instant::now();
+                self.warm();
+            }
+            // At most one re-customization per interval.
+            let spent = started.elapsed();
+            if spent < interval {
+                tokio::select! {
+                    _ = &mut shutdown => break,
+                    _ = tokio::time::sleep(interval - spent) => {},
+                }
+            }
+        }
+    }
+
+    /// Sets the live-age gauge from the serving blend's newest observation.
+    fn record_live_age(&self) {
+        if let Some(snap) = self.snapshot() {
+            if let Some(l) = &snap.live {
+                if let Some(n) = l.newest_observed_at {
+                    metrics::gauge!(m::LIVE_AGE, "region" => self.name.clone())
+                        .set(age_s(Utc::now(), n));
+                }
+            }
+        }
+    }
+
+    /// Applies every `*.csv` file in the watched directory, then renames it
+    /// to `.done` or `.rejected` so nothing is applied twice or lost. The
+    /// listing, reading and renaming run on tokio's blocking pool.
+    pub async fn scan_live_dir(&self) {
+        let Some(dir) = self.cfg.live_dir.clone() else {
+            return;
+        };
+        let Ok(Some(files)) = tokio::task::spawn_blocking(move || list_csv(&dir)).await else {
+            return;
+        };
+        for f in files {
+            let path = f.clone();
+            let Ok(Ok(bytes)) = tokio::task::spawn_blocking(move || std::fs::read(&path)).await
+            else {
+                continue;
+            };
+            let outcome = self.put_live(&bytes, true).await;
+            let ext = if outcome.is_ok() { "done" } else { "rejected" };
+            let _ = tokio::task::spawn_blocking(move || mark(&f, ext)).await;
+        }
+    }
+}

@@ -1,0 +1,306 @@
+//! Per-region serving state: immutable snapshots behind `arc-swap`, the
+//! lazily customized historical buckets, and every update path (historical
+//! table, live observations, artifact reload).
+//!
+//! Readers call [`RegionHandle::snapshot`] and get an `Arc<Snapshot>`: a
+//! consistent set of graph, hierarchy, metrics, calibration and data
+//! versions that stays valid for as long as they hold it. They never take a
+//! lock. Writers build a complete new snapshot off to the side and publish
+//! it with one atomic swap; a request in flight keeps the snapshot it
+//! started with. Writers serialize among themselves on an async mutex that
+//! readers never touch. A table that fails validation never reaches a
+//! snapshot: the old one keeps serving, and the rejection is recorded in
+//! [`RegionStatus`] and in metrics.
+//!
+//! # Layout
+//!
+//! - this file: [`Snapshot`], [`LiveMetric`], [`RegionStatus`],
+//!   [`ReloadOutcome`], [`UpdateSettings`], the [`RegionHandle`] itself,
+//!   opening a region, reading and publishing snapshots, recording
+//!   outcomes;
+//! - `buckets`: the request path's historical bucket metrics (lazy
+//!   customization, the bounded cache, eviction and the warm-up);
+//! - `update`: the three update paths ([`RegionHandle::reload`],
+//!   [`RegionHandle::put_historical`], [`RegionHandle::put_live`]);
+//! - `live`: blending and publishing the live tier, the live loop and the
+//!   watched folder;
+//! - `load`: the file work of a load (artifact, historical table, saved
+//!   live layer), run on tokio's blocking pool;
+//! - `error`: the typed errors ([`UpdateError`], [`LoadError`], ...).
+//!
+//! **Architecture Invariant:** nothing here knows about HTTP; the service
+//! layer calls these methods and converts results to its DTOs.
+
+mod buckets;
+mod error;
+mod live;
+mod load;
+mod update;
+
+pub use error::{Degraded, HistoricalNote, LoadError, TableReadError, UpdateError, UpdateFailure};
+
+use crate::engine::region::{Metric, Region};
+use crate::serving::customizer::Customizer;
+use crate::serving::metrics as m;
+use crate::serving::retire::RetireBin;
+use crate::serving::settings::{LiveConfig, RegionConfig, ServingSettings};
+use crate::serving::speeds::{
+    BlendStats, EdgeIndex, HistoricalProfile, LiveLayer, TableReport, ValidationConfig,
+};
+use arc_swap::{ArcSwap, ArcSwapOption};
+use buckets::Buckets;
+use chrono::{DateTime, Utc};
+use serde::Serialize;
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::sync::Arc;
+use std::time::{Duration, Instant};
+use tokio::sync::Notify;
+
+/// Everything a request needs, frozen.
+#[derive(Debug)]
+pub struct Snapshot {
+    /// Increases with every publish in this region (any data change).
+    pub generation: u64,
+    pub region: Arc<Region>,
+    pub index: Arc<EdgeIndex>,
+    /// Free-flow speed per edge (the base under the historical profile).
+    pub free_flow_kmh: Arc<Vec<f32>>,
+    pub historical: Option<Arc<HistoricalProfile>>,
+    /// When the serving historical table was accepted.
+    pub historical_at: Option<DateTime<Utc>>,
+    /// The blended live metric, once observations have arrived.
+    pub live: Option<Arc<LiveMetric>>,
+    /// Identifies the artifact load (bucket cache keys include it).
+    pub artifact_load: u64,
+    pub artifact_at: DateTime<Utc>,
+}
+
+impl Snapshot {
+    /// Cache key of the historical data: its version, or "free-flow".
+    pub fn historical_key(&self) -> String {
+        historical_key(self.artifact_load, self.historical.as_deref())
+    }
+}
+
+/// Bucket cache key of a historical table (or free-flow) on an artifact load.
+fn historical_key(artifact_load: u64, h: Option<&HistoricalProfile>) -> String {
+    match h {
+        Some(h) => format!("{artifact_load}:{}", h.version()),
+        None => format!("{artifact_load}:free-flow"),
+    }
+}
+
+/// A customized live blend.
+#[derive(Debug)]
+pub struct LiveMetric {
+    pub metric: Metric,
+    pub stats: BlendStats,
+    /// Newest observation held when this blend was made.
+    pub newest_observed_at: Option<DateTime<Utc>>,
+    pub built_at: DateTime<Utc>,
+}
+
+/// What the last update of each kind did (for `/admin/status`).
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct RegionStatus {
+    pub ready: bool,
+    /// Why the region serves no graph, when it does not.
+    pub degraded_reason: Option<String>,
+    pub generation: u64,
+    pub historical_version: Option<String>,
+    pub historical_rows: Option<u64>,
+    pub historical_age_s: Option<f64>,
+    pub live_edges: u64,
+    pub live_newest_age_s: Option<f64>,
+    pub last_reload: Option<ReloadOutcome>,
+    pub last_live_batch: Option<ReloadOutcome>,
+}
+
+/// One update's outcome.
+#[derive(Debug, Clone, Serialize)]
+pub struct ReloadOutcome {
+    /// `historical`, `live` or `artifact`.
+    pub table: &'static str,
+    /// `accepted`, `rejected` or `failed`.
+    pub outcome: &'static str,
+    pub at: DateTime<Utc>,
+    /// Error text for rejected/failed updates.
+    pub error: Option<String>,
+    pub report: Option<TableReport>,
+}
+
+/// Settings the update paths need, taken from the configuration once.
+#[derive(Debug, Clone)]
+pub struct UpdateSettings {
+    pub validation: ValidationConfig,
+    pub live: LiveConfig,
+    pub bucket_cache: usize,
+    /// Where every customization runs (one thread, low CPU priority,
+    /// shared by all regions).
+    pub customizer: Customizer,
+    /// Where the lighter update work runs: parsing live batches and
+    /// historical tables, blending and saving the live layer. A thread of
+    /// its own at the same priority, so an upload is not queued behind a
+    /// customization of several hundred milliseconds.
+    pub updates: Customizer,
+}
+
+impl UpdateSettings {
+    pub fn from_settings(cfg: &ServingSettings) -> Self {
+        UpdateSettings {
+            validation: ValidationConfig {
+                max_speed_kmh: cfg.tables.max_speed_kmh,
+                max_bad_share: cfg.tables.max_bad_share,
+                max_future_skew_s: cfg.live.max_future_skew_s.max(0.0) as u64,
+                ..ValidationConfig::default()
+            },
+            live: cfg.live.clone(),
+            bucket_cache: cfg.query.bucket_cache.max(2),
+            customizer: Customizer::start(cfg.customize_priority),
+            updates: Customizer::start_named("hodos-update", cfg.customize_priority),
+        }
+    }
+}
+
+/// Writer-side state: only update paths touch it, one at a time.
+struct Writer {
+    live: Option<LiveLayer>,
+    live_saved_at: Option<Instant>,
+    live_changed: bool,
+}
+
+/// One configured region for the life of the process.
+pub struct RegionHandle {
+    pub name: String,
+    pub cfg: RegionConfig,
+    pub tz: chrono_tz::Tz,
+    settings: UpdateSettings,
+    current: ArcSwapOption<Snapshot>,
+    status: ArcSwap<RegionStatus>,
+    /// Copy-on-write list of bucket slots, newest last, bounded.
+    buckets: ArcSwap<Buckets>,
+    writer: tokio::sync::Mutex<Writer>,
+    /// Why the region serves no graph (typed; the status shows its text).
+    degraded: ArcSwapOption<LoadError>,
+    /// Superseded snapshots and evicted buckets, freed on the `updates`
+    /// thread once no request holds them (see [`crate::serving::retire`]).
+    retired: Arc<RetireBin>,
+    live_dirty: AtomicBool,
+    wake: Notify,
+    generation: AtomicU64,
+    loads: AtomicU64,
+}
+
+impl std::fmt::Debug for RegionHandle {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("RegionHandle")
+            .field("name", &self.name)
+            .finish()
+    }
+}
+
+impl RegionHandle {
+    /// Creates the handle and loads the region (artifact, then the saved or
+    /// configured historical table, then the saved live layer). A failed
+    /// artifact leaves the region degraded; the error is in its status.
+    pub async fn open(cfg: RegionConfig, settings: UpdateSettings) -> Arc<RegionHandle> {
+        let tz = cfg.time_zone.parse().unwrap_or(chrono_tz::UTC);
+        let h = Arc::new(RegionHandle {
+            name: cfg.name.clone(),
+            cfg,
+            tz,
+            settings,
+            current: ArcSwapOption::empty(),
+            status: ArcSwap::from_pointee(RegionStatus::default()),
+            buckets: ArcSwap::from_pointee(Vec::new()),
+            writer: tokio::sync::Mutex::new(Writer {
+                live: None,
+                live_saved_at: None,
+                live_changed: false,
+            }),
+            degraded: ArcSwapOption::empty(),
+            retired: Arc::default(),
+            live_dirty: AtomicBool::new(false),
+            wake: Notify::new(),
+            generation: AtomicU64::new(0),
+            loads: AtomicU64::new(0),
+        });
+        if let Err(e) = h.reload().await {
+            tracing::warn!(region = %h.name, error = %e, "region starts degraded");
+        }
+        // Ready means ready to answer from the graph: wait (bounded) for the
+        // current hour's metric that `reload` started warming, so the first
+        // requests after start-up are not heuristic fallbacks.
+        if let Some(snap) = h.snapshot() {
+            let hour = crate::serving::speeds::hour_of_week(Utc::now(), h.tz);
+            let deadline = Instant::now() + Duration::from_secs(60);
+            if h.bucket(&snap, hour, deadline).await.is_none() {
+                tracing::warn!(region = %h.name, "current hour's metric not ready after 60 s; serving anyway");
+            }
+        }
+        h
+    }
+
+    /// The serving snapshot, or `None` while degraded.
+    pub fn snapshot(&self) -> Option<Arc<Snapshot>> {
+        self.current.load_full()
+    }
+
+    pub fn status(&self) -> RegionStatus {
+        let mut s = (**self.status.load()).clone();
+        let now = Utc::now();
+        if let Some(snap) = self.snapshot() {
+            s.ready = true;
+            s.generation = snap.generation;
+            s.historical_version = snap.historical.as_ref().map(|h| h.version().to_string());
+            s.historical_rows = snap.historical.as_ref().map(|h| h.rows());
+            s.historical_age_s = snap.historical_at.map(|t| age_s(now, t));
+            if let Some(l) = &snap.live {
+                s.live_edges = l.stats.fresh_edges;
+                s.live_newest_age_s = l.newest_observed_at.map(|t| age_s(now, t));
+            }
+        }
+        s
+    }
+
+    fn set_status(&self, f: impl FnOnce(&mut RegionStatus)) {
+        let mut s = (**self.status.load()).clone();
+        f(&mut s);
+        self.status.store(Arc::new(s));
+    }
+
+    fn record(&self, outcome: ReloadOutcome) {
+        metrics::counter!(m::RELOADS, "region" => self.name.clone(), "table" => outcome.table, "outcome" => outcome.outcome)
+            .increment(1);
+        if let Some(r) = &outcome.report {
+            for (kind, n) in &r.bad_by_kind {
+                metrics::counter!(m::REJECTED_ROWS, "region" => self.name.clone(), "table" => outcome.table, "kind" => kind.clone())
+                    .increment(*n);
+            }
+        }
+        let is_live = outcome.table == "live";
+        self.set_status(|s| {
+            if is_live {
+                s.last_live_batch = Some(outcome);
+            } else {
+                s.last_reload = Some(outcome);
+            }
+        });
+    }
+
+    fn publish(&self, build: impl FnOnce(u64) -> Snapshot) -> Arc<Snapshot> {
+        let g = self.generation.fetch_add(1, Ordering::SeqCst) + 1;
+        let snap = Arc::new(build(g));
+        if let Some(old) = self.current.swap(Some(snap.clone())) {
+            self.retired.retire(old);
+            self.sweep_retired();
+        }
+        metrics::gauge!(m::SNAPSHOT_GENERATION, "region" => self.name.clone()).set(g as f64);
+        metrics::gauge!(m::REGION_READY, "region" => self.name.clone()).set(1.0);
+        snap
+    }
+}
+
+fn age_s(now: DateTime<Utc>, t: DateTime<Utc>) -> f64 {
+    ((now - t).num_milliseconds() as f64 / 1000.0).max(0.0)
+}
