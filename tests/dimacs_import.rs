@@ -255,9 +255,9 @@ fn crlf_comments_and_blank_lines_are_fine() {
     let gr = write(
         dir.path(),
         "crlf.gr",
-        &GOOD_GR.replace('\n', "\r\n").replace("p sp", "\nc\np sp"),
+        GOOD_GR.replace('\n', "\r\n").replace("p sp", "\nc\np sp"),
     );
-    let co = write(dir.path(), "crlf.co", &GOOD_CO.replace('\n', "\r\n"));
+    let co = write(dir.path(), "crlf.co", GOOD_CO.replace('\n', "\r\n"));
     let g = dimacs::read(&gr, &co).unwrap();
     assert_eq!((g.num_nodes(), g.num_edges()), (3, 4));
 }
