@@ -16,6 +16,7 @@ use hodos::engine::geo::{LatLon, LocalProjection};
 use hodos::engine::graph::RoadGraph;
 use hodos::engine::order::{nested_dissection, UndirectedGraph};
 use hodos::engine::region::Region;
+use hodos::testkit::node_pairs;
 use petgraph::graph::{DiGraph, NodeIndex};
 use std::hint::black_box;
 use std::path::PathBuf;
@@ -52,19 +53,6 @@ fn fixture() -> &'static Fixture {
     })
 }
 
-/// Deterministic pairs of node ids (SplitMix64).
-fn pairs(n: usize, count: usize, seed: u64) -> Vec<(u32, u32)> {
-    let mut s = seed;
-    let mut next = move || {
-        s = s.wrapping_add(0x9E3779B97F4A7C15);
-        let mut z = s;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58476D1CE4E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D049BB133111EB);
-        ((z ^ (z >> 31)) % n as u64) as u32
-    };
-    (0..count).map(|_| (next(), next())).collect()
-}
-
 fn bench_preprocessing(c: &mut Criterion) {
     let f = fixture();
     let g = &f.raw;
@@ -99,7 +87,7 @@ fn bench_queries(c: &mut Criterion) {
     let region = &f.region;
     let metric = region.free_flow();
     let n = region.graph.num_nodes();
-    let ps = pairs(n, 1000, 7);
+    let ps = node_pairs(n, 1000, 7);
     let mut group = c.benchmark_group(format!("{}/query", f.name));
     let mut q = CchQuery::new(&region.cch);
     let mut i = 0;
@@ -139,7 +127,7 @@ fn bench_queries(c: &mut Criterion) {
     });
     group.sample_size(100);
     let (lo, hi) = g.bbox();
-    let pts: Vec<LatLon> = pairs(10_000, 1000, 9)
+    let pts: Vec<LatLon> = node_pairs(10_000, 1000, 9)
         .into_iter()
         .map(|(a, b)| {
             LatLon::new(

@@ -10,6 +10,7 @@ mod common;
 
 use hodos::engine::build::{build_from_graph, Quiet};
 use hodos::http::{bind, serve, AppState};
+use hodos::testkit::{observation, region_table};
 use serde_json::{json, Value};
 use std::time::{Duration, Instant};
 
@@ -30,18 +31,8 @@ fn main() {
 token = "bench"
 [query]
 default_budget_ms = 2000
-[[region]]
-name = "bench"
-artifact = "{}"
-state_dir = "{}"
-coverage = {{ bbox = [{}, {}, {}, {}] }}
-"#,
-        path.display(),
-        dir.path().join("state").display(),
-        lo.lat - 0.01,
-        lo.lon - 0.01,
-        hi.lat + 0.01,
-        hi.lon + 0.01
+{}"#,
+        region_table("bench", &path, &dir.path().join("state"), lo, hi, 0.01)
     );
     let cfg = hodos::config::Config::parse(&text).unwrap();
     let recustomize_ms = cfg.live.recustomize_ms;
@@ -90,7 +81,7 @@ coverage = {{ bbox = [{}, {}, {}, {}] }}
             let mut batch = Vec::new();
             for e in path_edges.iter().copied().chain((0..g.num_edges() as u32).step_by(g.num_edges() / 2000 + 1)).take(2000) {
                 let (f, t) = (g.node_ext[g.edge_tail[e as usize] as usize], g.node_ext[g.edge_head[e as usize] as usize]);
-                batch.push(json!({"from_node": f, "to_node": t, "speed_kmh": speed, "observed_at": now, "samples": 1}));
+                batch.push(observation(f, t, speed, &now, 1));
             }
             let before = eta(http.clone(), trip.clone()).await["eta_s"].as_f64().unwrap();
             let t0 = Instant::now();

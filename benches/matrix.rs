@@ -16,6 +16,7 @@ use hodos::engine::cch::matrix::{matrix, ManyToMany, PointMatrix};
 use hodos::engine::cch::CchQuery;
 use hodos::engine::geo::LatLon;
 use hodos::engine::region::Region;
+use hodos::testkit::nodes;
 use std::hint::black_box;
 use std::sync::OnceLock;
 
@@ -38,20 +39,6 @@ fn fixture() -> &'static Fixture {
             region: Region::from_artifact(art),
         }
     })
-}
-
-/// Deterministic node ids (SplitMix64).
-fn nodes(n: usize, count: usize, seed: u64) -> Vec<u32> {
-    let mut s = seed;
-    (0..count)
-        .map(|_| {
-            s = s.wrapping_add(0x9E3779B97F4A7C15);
-            let mut z = s;
-            z = (z ^ (z >> 30)).wrapping_mul(0xBF58476D1CE4E5B9);
-            z = (z ^ (z >> 27)).wrapping_mul(0x94D049BB133111EB);
-            ((z ^ (z >> 31)) % n as u64) as u32
-        })
-        .collect()
 }
 
 fn bench_matrix(c: &mut Criterion) {

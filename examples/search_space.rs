@@ -4,45 +4,34 @@ use hodos::engine::artifact::Artifact;
 use hodos::engine::cch::CchQuery;
 use hodos::engine::region::Region;
 
+/// The median wall time of five runs of `f`, in milliseconds.
+fn median_of_5_ms(mut f: impl FnMut()) -> f64 {
+    let mut times: Vec<f64> = (0..5)
+        .map(|_| {
+            let t = std::time::Instant::now();
+            f();
+            t.elapsed().as_secs_f64() * 1000.0
+        })
+        .collect();
+    times.sort_by(f64::total_cmp);
+    times[2]
+}
+
 fn main() {
     let path = std::env::args().nth(1).expect("artifact path");
     let region = Region::from_artifact(Artifact::load(std::path::Path::new(&path)).expect("load"));
     let metric = region.free_flow();
-    let mut times: Vec<f64> = (0..5)
-        .map(|_| {
-            let t = std::time::Instant::now();
-            std::hint::black_box(region.free_flow());
-            t.elapsed().as_secs_f64() * 1000.0
-        })
-        .collect();
-    times.sort_by(f64::total_cmp);
-    println!(
-        "customization (fresh buffers) median {:.1} ms (of 5)",
-        times[2]
-    );
+    let ms = median_of_5_ms(|| {
+        std::hint::black_box(region.free_flow());
+    });
+    println!("customization (fresh buffers) median {ms:.1} ms (of 5)");
     let w = hodos::engine::metric::free_flow(&region.graph);
     let mut reuse = metric.customized.clone();
-    let mut times: Vec<f64> = (0..5)
-        .map(|_| {
-            let t = std::time::Instant::now();
-            reuse.customize(&region.cch, &w, &region.graph.edge_len_m);
-            t.elapsed().as_secs_f64() * 1000.0
-        })
-        .collect();
-    times.sort_by(f64::total_cmp);
-    println!("customization (in place) median {:.1} ms (of 5)", times[2]);
-    let mut times: Vec<f64> = (0..5)
-        .map(|_| {
-            let t = std::time::Instant::now();
-            reuse.customize_with(&region.cch, &w, &region.graph.edge_len_m, false);
-            t.elapsed().as_secs_f64() * 1000.0
-        })
-        .collect();
-    times.sort_by(f64::total_cmp);
-    println!(
-        "customization (in place, one thread) median {:.1} ms (of 5)",
-        times[2]
-    );
+    let ms = median_of_5_ms(|| reuse.customize(&region.cch, &w, &region.graph.edge_len_m));
+    println!("customization (in place) median {ms:.1} ms (of 5)");
+    let ms =
+        median_of_5_ms(|| reuse.customize_with(&region.cch, &w, &region.graph.edge_len_m, false));
+    println!("customization (in place, one thread) median {ms:.1} ms (of 5)");
     let cch = &region.cch;
     let n = cch.num_nodes();
     let mut q = CchQuery::new(cch);

@@ -17,9 +17,13 @@
 //! - [`config`]: the TOML configuration file, which composes the settings
 //!   each layer declares; [`demo`]: the demo city's files and feed. Both sit
 //!   on top, beside the binary.
+//! - [`testkit`]: support code for tests, benchmarks, examples and the load
+//!   generator (deterministic sampling, the shared datasets' location, speed
+//!   tables and configuration text); also on top, used by no other layer.
 
 pub mod config;
 pub mod demo;
 pub mod engine;
 pub mod http;
 pub mod serving;
+pub mod testkit;

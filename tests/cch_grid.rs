@@ -4,53 +4,26 @@
 
 mod common;
 
-use common::{petgraph_of, reference_dists, Pairs};
-use hodos::engine::cch::{customize::CustomizedMetric, Cch, CchQuery};
-use hodos::engine::geo::LatLon;
-use hodos::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
-use hodos::engine::order::{nested_dissection, UndirectedGraph};
+use common::graphs::{add_link, grid_nodes, hierarchy, Link};
+use common::{petgraph_of, reference_dists, SplitMix64};
+use hodos::engine::cch::{customize::CustomizedMetric, CchQuery};
+use hodos::engine::graph::{GraphBuilder, RoadGraph};
 
 fn grid(w: u32, h: u32, seed: u64) -> RoadGraph {
-    let mut rng = Pairs::new(seed);
-    let mut b = GraphBuilder::default();
-    for y in 0..h {
-        for x in 0..w {
-            b.add_node(
-                LatLon::new(45.0 + y as f64 * 0.001, 7.0 + x as f64 * 0.0013),
-                (y * w + x) as u64,
-            );
-        }
-    }
+    let mut rng = SplitMix64::new(seed);
+    let mut b = grid_nodes(w, h);
     let mut way = 0;
-    let mut add = |b: &mut GraphBuilder, a: u32, c: u32, rng: &mut Pairs| {
+    let mut add = |b: &mut GraphBuilder, a: u32, c: u32, rng: &mut SplitMix64| {
         way += 1;
-        let kind = rng.below(10);
-        if kind == 0 {
-            return; // missing link
-        }
-        let speed = 10.0 + rng.below(90) as f32;
-        let spec = |t, h| EdgeSpec {
-            tail: t,
-            head: h,
-            length_m: None,
-            speed_kmh: speed,
-            way_id: way,
-            class: RoadClass::Residential,
-            shape: &[],
+        let link = match rng.below(10) {
+            0 => return, // missing link
+            1 => Link::Backward,
+            2 => Link::Forward,
+            3 => Link::BothWithSlowParallel,
+            _ => Link::Both,
         };
-        if kind != 1 {
-            b.add_edge(spec(a, c));
-        }
-        if kind != 2 {
-            b.add_edge(spec(c, a));
-        }
-        if kind == 3 {
-            // A parallel slower edge.
-            b.add_edge(EdgeSpec {
-                speed_kmh: speed / 2.0,
-                ..spec(a, c)
-            });
-        }
+        let speed = 10.0 + rng.below(90) as f32;
+        add_link(b, a, c, link, speed, way);
     };
     for y in 0..h {
         for x in 0..w {
@@ -69,29 +42,16 @@ fn grid(w: u32, h: u32, seed: u64) -> RoadGraph {
     b.finish()
 }
 
-fn build(g: &RoadGraph) -> Cch {
-    let ug = UndirectedGraph::from_edges(
-        g.num_nodes(),
-        (0..g.num_edges()).map(|e| (g.edge_tail[e], g.edge_head[e])),
-    );
-    let proj = hodos::engine::geo::LocalProjection::new(45.0);
-    let xy: Vec<[f64; 2]> = (0..g.num_nodes() as u32)
-        .map(|v| proj.project(g.node_pos(v)))
-        .collect();
-    let order = nested_dissection(&ug, &xy, &mut |_| {});
-    Cch::build(g, order.rank)
-}
-
 #[test]
 fn grid_queries_equal_petgraph_dijkstra() {
     for (w, h, seed) in [(5, 4, 1), (30, 20, 2), (60, 50, 3)] {
         let g = grid(w, h, seed);
-        let cch = build(&g);
+        let cch = hierarchy(&g);
         let weights = hodos::engine::metric::free_flow(&g);
         let metric = CustomizedMetric::new(&cch, &weights, &g.edge_len_m);
         let pg = petgraph_of(&g, &weights);
         let mut q = CchQuery::new(&cch);
-        let mut rng = Pairs::new(seed * 77);
+        let mut rng = SplitMix64::new(seed * 77);
         let mut edges = Vec::new();
         for _ in 0..20 {
             let s = rng.below(g.num_nodes());

@@ -6,9 +6,14 @@
 //! `../shared/data/dimacs` next to the crate) and print `SKIPPED: <why>` and
 //! pass when the files are absent.
 
+mod common;
+
+use common::graphs::assert_same_graph;
+use common::write;
 use hodos::engine::geo::{haversine_m, LatLon};
 use hodos::engine::graph::{RoadClass, NONE};
 use hodos::engine::import::{dimacs, ImportError};
+use hodos::testkit::{skipped, DimacsNy};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
@@ -16,28 +21,6 @@ use std::sync::OnceLock;
 // ---------------------------------------------------------------------------
 // Real data
 // ---------------------------------------------------------------------------
-
-fn dimacs_dir() -> Result<PathBuf, String> {
-    let base = match std::env::var_os("HODOS_DATA_DIR") {
-        Some(d) => PathBuf::from(d),
-        None => Path::new(env!("CARGO_MANIFEST_DIR")).join("../shared/data"),
-    };
-    let dir = base.join("dimacs");
-    let needed = [
-        "USA-road-d.NY.gr.gz",
-        "USA-road-d.NY.co.gz",
-        "USA-road-t.NY.gr.gz",
-    ];
-    for f in needed {
-        if !dir.join(f).is_file() {
-            return Err(format!(
-                "{} not found (set HODOS_DATA_DIR to the directory holding dimacs/)",
-                dir.join(f).display()
-            ));
-        }
-    }
-    Ok(dir)
-}
 
 /// Shared NY distance graph and its raw arcs, loaded once per test binary.
 struct Ny {
@@ -49,9 +32,8 @@ struct Ny {
 fn ny() -> Option<&'static Ny> {
     static NY: OnceLock<Result<Ny, String>> = OnceLock::new();
     let r = NY.get_or_init(|| {
-        let dir = dimacs_dir()?;
-        let gr = dir.join("USA-road-d.NY.gr.gz");
-        let co = dir.join("USA-road-d.NY.co.gz");
+        let files = DimacsNy::find()?;
+        let (gr, co, dir) = (files.distance_gr, files.coordinates, files.dir);
         let t = std::time::Instant::now();
         let graph = dimacs::read(&gr, &co).map_err(|e| e.to_string())?;
         eprintln!("read USA-road-d.NY in {:.2?}", t.elapsed());
@@ -61,7 +43,7 @@ fn ny() -> Option<&'static Ny> {
     match r {
         Ok(ny) => Some(ny),
         Err(why) => {
-            eprintln!("SKIPPED: {why}");
+            skipped(why);
             None
         }
     }
@@ -187,12 +169,6 @@ fn ny_travel_time_graph_has_the_same_arcs() {
 const GOOD_GR: &str = "c tiny test graph\np sp 3 4\na 1 2 100\na 2 1 100\na 2 3 250\na 3 2 250\n";
 const GOOD_CO: &str = "c coords\np aux sp co 3\nv 1 -30000000 45000000\nv 2 -29999000 45000000\nv 3 -29999000 45001000\n";
 
-fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
-    let p = dir.join(name);
-    std::fs::write(&p, text).unwrap();
-    p
-}
-
 fn write_gz(dir: &Path, name: &str, text: &str) -> PathBuf {
     let p = dir.join(name);
     let mut enc = flate2::write::GzEncoder::new(
@@ -267,14 +243,7 @@ fn gzip_reads_the_same_as_plain() {
     let coz = write(dir.path(), "notpacked.co.gz", GOOD_CO);
     let a = dimacs::read(&gr, &co).unwrap();
     let b = dimacs::read(&grz, &coz).unwrap();
-    assert_eq!(a.node_lat, b.node_lat);
-    assert_eq!(a.node_lon, b.node_lon);
-    assert_eq!(a.node_ext, b.node_ext);
-    assert_eq!(a.edge_tail, b.edge_tail);
-    assert_eq!(a.edge_head, b.edge_head);
-    assert_eq!(a.edge_len_m, b.edge_len_m);
-    assert_eq!(a.edge_way, b.edge_way);
-    assert_eq!(a.edge_twin, b.edge_twin);
+    assert_same_graph(&a, &b);
     let coz2 = write_gz(dir.path(), "packed.co", GOOD_CO);
     let c = dimacs::read(&grz, &coz2).unwrap();
     assert_eq!(a.node_lat, c.node_lat);
@@ -286,9 +255,9 @@ fn crlf_comments_and_blank_lines_are_fine() {
     let gr = write(
         dir.path(),
         "crlf.gr",
-        &GOOD_GR.replace('\n', "\r\n").replace("p sp", "\nc\np sp"),
+        GOOD_GR.replace('\n', "\r\n").replace("p sp", "\nc\np sp"),
     );
-    let co = write(dir.path(), "crlf.co", &GOOD_CO.replace('\n', "\r\n"));
+    let co = write(dir.path(), "crlf.co", GOOD_CO.replace('\n', "\r\n"));
     let g = dimacs::read(&gr, &co).unwrap();
     assert_eq!((g.num_nodes(), g.num_edges()), (3, 4));
 }

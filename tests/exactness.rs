@@ -7,16 +7,12 @@
 
 mod common;
 
-use common::{assert_exact, fixture, petgraph_of, random_speeds, reference_dists, Pairs};
-use hodos::engine::build::{build, Quiet, Source};
+use common::graphs::{point_in_box, region_of};
+use common::{assert_exact, fixture, petgraph_of, random_speeds, reference_dists, SplitMix64};
+use hodos::engine::build::Source;
 use hodos::engine::cch::CchQuery;
-use hodos::engine::geo::LatLon;
 use hodos::engine::graph::NONE;
 use hodos::engine::region::Region;
-
-fn region_of(source: Source) -> Region {
-    Region::from_artifact(build(&source, &mut Quiet).expect("build"))
-}
 
 fn check(region: &Region, label: &str) {
     let ff = region.free_flow();
@@ -44,17 +40,14 @@ fn check_snapped(region: &Region, metric: &hodos::engine::region::Metric, label:
     let g = &region.graph;
     let pg = petgraph_of(g, &metric.weights);
     let mut q = CchQuery::new(&region.cch);
-    let mut rng = Pairs::new(5);
+    let mut rng = SplitMix64::new(5);
     let (lo, hi) = g.bbox();
     let mut checked = 0;
     while checked < 60 {
-        let p = |rng: &mut Pairs| {
-            LatLon::new(
-                lo.lat + (hi.lat - lo.lat) * (rng.below(10_000) as f64 / 10_000.0),
-                lo.lon + (hi.lon - lo.lon) * (rng.below(10_000) as f64 / 10_000.0),
-            )
-        };
-        let (a, b) = (p(&mut rng), p(&mut rng));
+        let (a, b) = (
+            point_in_box(lo, hi, &mut rng),
+            point_in_box(lo, hi, &mut rng),
+        );
         let Ok(eta) = region.eta(metric, &mut q, a, b, 1e9) else {
             continue;
         };

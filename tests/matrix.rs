@@ -16,15 +16,15 @@
 
 mod common;
 
-use common::{dimacs_ny, fixture, petgraph_of, random_speeds, reference_dists, Pairs};
-use hodos::engine::build::{build, build_from_graph, Quiet, Source};
+use common::graphs::{add_link, grid_nodes, hierarchy, point_in_box, region_of, Link};
+use common::{dimacs_ny, fixture, petgraph_of, random_speeds, reference_dists, SplitMix64};
+use hodos::engine::build::{build_from_graph, Quiet, Source};
 use hodos::engine::cch::customize::{CustomizedMetric, INFINITY};
 use hodos::engine::cch::matrix::{matrix, Cell, ManyToMany, MatrixError, PointMatrix};
 use hodos::engine::cch::query::Endpoint;
 use hodos::engine::cch::{Cch, CchQuery};
 use hodos::engine::geo::LatLon;
-use hodos::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph, NONE};
-use hodos::engine::order::{nested_dissection, UndirectedGraph};
+use hodos::engine::graph::{RoadGraph, NONE};
 use hodos::engine::region::{Metric, Region};
 use petgraph::graph::{DiGraph, NodeIndex};
 use std::alloc::{GlobalAlloc, Layout, System};
@@ -66,10 +66,6 @@ fn allocations_during(f: impl FnOnce()) -> usize {
     let before = ALLOCATIONS.with(Counter::get);
     f();
     ALLOCATIONS.with(Counter::get) - before
-}
-
-fn region_of(source: Source) -> Region {
-    Region::from_artifact(build(&source, &mut Quiet).expect("build"))
 }
 
 /// Dijkstra weight ordered by time, then by a signed length: `(t, len)`
@@ -132,7 +128,7 @@ fn check_nodes(
     seed: u64,
     label: &str,
 ) -> usize {
-    let mut rng = Pairs::new(seed);
+    let mut rng = SplitMix64::new(seed);
     let sources: Vec<u32> = (0..ns).map(|_| rng.below(g.num_nodes())).collect();
     let targets: Vec<u32> = (0..nt).map(|_| rng.below(g.num_nodes())).collect();
     check_node_lists(g, cch, weights, metric, m2m, &sources, &targets, label)
@@ -225,15 +221,8 @@ fn check_region(region: &Region, label: &str) {
 fn points(region: &Region, count: usize, seed: u64) -> Vec<LatLon> {
     let g = &region.graph;
     let (lo, hi) = g.bbox();
-    let mut rng = Pairs::new(seed);
-    let mut pts: Vec<LatLon> = (0..count)
-        .map(|_| {
-            LatLon::new(
-                lo.lat + (hi.lat - lo.lat) * (rng.below(10_000) as f64 / 10_000.0),
-                lo.lon + (hi.lon - lo.lon) * (rng.below(10_000) as f64 / 10_000.0),
-            )
-        })
-        .collect();
+    let mut rng = SplitMix64::new(seed);
+    let mut pts: Vec<LatLon> = (0..count).map(|_| point_in_box(lo, hi, &mut rng)).collect();
     // Far off the map: off the network at any sane limit.
     pts.push(LatLon::new(lo.lat - 1.0, lo.lon - 1.0));
     pts
@@ -399,16 +388,8 @@ fn synthetic_city_matrices_equal_dijkstra_and_eta() {
 /// not reduced to one strongly connected component (so some pairs are
 /// unreachable).
 fn grid(w: u32, h: u32, seed: u64) -> RoadGraph {
-    let mut rng = Pairs::new(seed);
-    let mut b = GraphBuilder::default();
-    for y in 0..h {
-        for x in 0..w {
-            b.add_node(
-                LatLon::new(45.0 + y as f64 * 0.001, 7.0 + x as f64 * 0.0013),
-                (y * w + x) as u64,
-            );
-        }
-    }
+    let mut rng = SplitMix64::new(seed);
+    let mut b = grid_nodes(w, h);
     let mut way = 0;
     for y in 0..h {
         for x in 0..w {
@@ -424,50 +405,18 @@ fn grid(w: u32, h: u32, seed: u64) -> RoadGraph {
                 way += 1;
                 let kind = rng.below(6);
                 let speed = 10.0 + rng.below(90) as f32;
-                let spec = |t, h| EdgeSpec {
-                    tail: t,
-                    head: h,
-                    length_m: None,
-                    speed_kmh: speed,
-                    way_id: way,
-                    class: RoadClass::Residential,
-                    shape: &[],
+                let link = match kind {
+                    0 => Link::Missing,
+                    1 => Link::Forward,
+                    2 => Link::Backward,
+                    3 => Link::BothWithSlowParallel,
+                    _ => Link::Both,
                 };
-                match kind {
-                    0 => {}
-                    1 => {
-                        b.add_edge(spec(v, c));
-                    }
-                    2 => {
-                        b.add_edge(spec(c, v));
-                    }
-                    _ => {
-                        b.add_edge(spec(v, c));
-                        b.add_edge(spec(c, v));
-                        if kind == 3 {
-                            b.add_edge(EdgeSpec {
-                                speed_kmh: speed / 2.0,
-                                ..spec(v, c)
-                            });
-                        }
-                    }
-                }
+                add_link(&mut b, v, c, link, speed, way);
             }
         }
     }
     b.finish()
-}
-
-fn hierarchy(g: &RoadGraph) -> Cch {
-    let ug = UndirectedGraph::from_edges(
-        g.num_nodes(),
-        (0..g.num_edges()).map(|e| (g.edge_tail[e], g.edge_head[e])),
-    );
-    let proj = hodos::engine::geo::LocalProjection::new(45.0);
-    let xy: Vec<[f64; 2]> = (0..g.num_nodes() as u32)
-        .map(|v| proj.project(g.node_pos(v)))
-        .collect();
-    Cch::build(g, nested_dissection(&ug, &xy, &mut |_| {}).rank)
 }
 
 #[test]
@@ -484,7 +433,7 @@ fn grids_with_unreachable_pairs_equal_dijkstra() {
         let (sources, targets) = if n <= 200 {
             (all.clone(), all)
         } else {
-            let mut rng = Pairs::new(seed);
+            let mut rng = SplitMix64::new(seed);
             ((0..25).map(|_| rng.below(n as usize)).collect(), all)
         };
         let label = format!("grid {w}x{h}");
@@ -593,10 +542,11 @@ fn passed_deadline_and_bad_input() {
 
 #[test]
 fn ny_node_matrix_equals_dijkstra() {
-    let Some((gr, co, _)) = dimacs_ny() else {
+    let Some(ny) = dimacs_ny() else {
         return;
     };
-    let raw = hodos::engine::import::dimacs::read(&gr, &co).expect("read NY");
+    let raw =
+        hodos::engine::import::dimacs::read(&ny.distance_gr, &ny.coordinates).expect("read NY");
     let art = build_from_graph("dimacs:NY".into(), raw, 0.0, &mut Quiet).expect("build");
     let region = Region::from_artifact(art);
     let ff = region.free_flow();

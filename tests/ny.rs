@@ -14,9 +14,10 @@ use std::time::Instant;
 
 #[test]
 fn ny_hierarchy_is_exact_small_and_calibrated() {
-    let Some((gr, co, t_gr)) = dimacs_ny() else {
+    let Some(ny) = dimacs_ny() else {
         return;
     };
+    let (gr, co, t_gr) = (ny.distance_gr, ny.coordinates, ny.time_gr);
     let t0 = Instant::now();
     let raw = dimacs::read(&gr, &co).expect("read NY");
     // 9th DIMACS Challenge, USA-road-d.NY header `p sp 264346 733846`

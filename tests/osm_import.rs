@@ -16,17 +16,14 @@
 //! OpenStreetMap wiki "PBF Format"), and reads each fixture back with osmpbf
 //! to prove it is a well-formed file before using it.
 
+mod common;
+
+use common::{fixture, write};
 use hodos::engine::graph::{RoadGraph, NONE};
 use hodos::engine::import::osm::{read_pbf, read_pbf_with_progress, OsmImportStats};
 use hodos::engine::import::ImportError;
 use std::collections::{HashMap, HashSet};
-use std::path::{Path, PathBuf};
-
-fn data(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("tests/data")
-        .join(name)
-}
+use std::path::Path;
 
 /// Bounding boxes from tests/data/SOURCES.md: (lat_min, lat_max, lon_min, lon_max).
 const HELSINKI_BBOX: (f64, f64, f64, f64) = (60.1642, 60.1791, 24.9352, 24.9534);
@@ -93,7 +90,7 @@ struct Imported {
 }
 
 fn import(name: &str) -> Imported {
-    let path = data(name);
+    let path = fixture(name);
     let mut calls = Vec::new();
     let (graph, stats) = read_pbf_with_progress(&path, &mut |b| calls.push(b)).unwrap();
     let len = std::fs::metadata(&path).unwrap().len();
@@ -440,7 +437,7 @@ fn monaco_imports() {
 /// edges tail→head along the way only, and so does the first roundabout.
 #[test]
 fn one_way_street_and_roundabout_single_direction() {
-    let path = data("monaco.osm.pbf");
+    let path = fixture("monaco.osm.pbf");
     let osm = read_with_osmpbf(&path);
     let g = read_pbf(&path).unwrap();
     let by_way = edges_by_way(&g);
@@ -483,7 +480,7 @@ fn assert_err_names(path: &Path, err: &ImportError) {
 
 #[test]
 fn truncated_copies_are_errors() {
-    let bytes = std::fs::read(data("monaco.osm.pbf")).unwrap();
+    let bytes = std::fs::read(fixture("monaco.osm.pbf")).unwrap();
     let dir = tempfile::tempdir().unwrap();
     for n in [
         1,
@@ -711,12 +708,6 @@ fn square_nodes() -> Vec<(i64, i64, i64)> {
         (3, c(43.7310), c(7.4210)),
         (4, c(43.7310), c(7.4200)),
     ]
-}
-
-fn write(dir: &Path, name: &str, content: &[u8]) -> PathBuf {
-    let path = dir.join(name);
-    std::fs::write(&path, content).unwrap();
-    path
 }
 
 /// An extract with ways but no drivable road: footway, track (excluded by

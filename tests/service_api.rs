@@ -10,7 +10,9 @@ use axum::body::Body;
 use axum::http::{Request, StatusCode};
 use axum::Router;
 use common::service::{at, city, config, TOKEN};
+use common::tables;
 use hodos::http::{admin_app, app, AppState};
+use hodos::testkit::{HistoricalCsv, LiveCsv};
 use http_body_util::BodyExt;
 use serde_json::{json, Value};
 use tower::ServiceExt;
@@ -343,11 +345,7 @@ async fn every_tier_and_reason() {
     // Fresh live observations on every edge (half speed) → live, slower.
     let now = chrono::Utc::now().to_rfc3339();
     let c = city();
-    let batch: Vec<Value> = c
-        .edges
-        .iter()
-        .map(|(f, t)| json!({"from_node": f, "to_node": t, "speed_kmh": 12.0, "observed_at": now, "samples": 3}))
-        .collect();
+    let batch = tables::observations(usize::MAX, 12.0, &now, 3);
     let r = send(
         &admin,
         "POST",
@@ -392,12 +390,7 @@ async fn every_tier_and_reason() {
     let old = (chrono::Utc::now() - chrono::Duration::seconds(3600)).to_rfc3339();
     let (st2, _d2) = state("").await;
     let r2 = st2.catalog.regions[0].clone();
-    let stale: Vec<Value> = c
-        .edges
-        .iter()
-        .take(50)
-        .map(|(f, t)| json!({"from_node": f, "to_node": t, "speed_kmh": 20.0, "observed_at": old, "samples": 1}))
-        .collect();
+    let stale = tables::observations(50, 20.0, &old, 1);
     r2.put_live(&serde_json::to_vec(&stale).unwrap(), false)
         .await
         .unwrap();
@@ -709,12 +702,13 @@ async fn rejected_table_is_reported_and_never_served() {
     let (st, _d) = state("").await;
     let admin = admin_app(st.clone());
     let c = city();
-    let mut csv = String::from("from_node,to_node,hour_of_week,speed_kmh\n");
+    let mut csv = HistoricalCsv::with_header();
     for (i, (f, t)) in c.edges.iter().take(100).enumerate() {
         // 20% bad rows (speed 0), over the 5% default threshold.
         let v = if i % 5 == 0 { 0.0 } else { 25.0 };
-        csv.push_str(&format!("{f},{t},10,{v}\n"));
+        csv.row(f, t, 10, v);
     }
+    let csv = csv.into_string();
     let before = st.catalog.regions[0].status().generation;
     let r = send(
         &admin,
@@ -877,19 +871,16 @@ async fn watched_directory_applies_and_marks_files() {
     let st = AppState::open(cfg).await;
     let region = st.catalog.regions[0].clone();
     let now = chrono::Utc::now().to_rfc3339();
-    let mut good = String::from("from_node,to_node,speed_kmh,observed_at,samples\n");
+    let mut good = LiveCsv::with_header();
     for (f, t) in city().edges.iter().take(40) {
-        good.push_str(&format!("{f},{t},15,{now},2\n"));
+        good.row(f, t, 15, &now, 2);
     }
+    let good = good.into_string();
     std::fs::write(incoming.join("001-good.csv"), &good).unwrap();
     // Every row refers to an edge that does not exist: rejected whole.
-    std::fs::write(
-        incoming.join("002-bad.csv"),
-        format!(
-            "from_node,to_node,speed_kmh,observed_at,samples\n999999991,999999992,15,{now},1\n"
-        ),
-    )
-    .unwrap();
+    let mut bad = LiveCsv::with_header();
+    bad.row(999999991, 999999992, 15, &now, 1);
+    std::fs::write(incoming.join("002-bad.csv"), bad.into_string()).unwrap();
     std::fs::write(incoming.join("notes.txt"), "ignored").unwrap();
     region.scan_live_dir().await;
     assert!(incoming.join("001-good.done").exists());

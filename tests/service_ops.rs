@@ -5,7 +5,8 @@
 
 mod common;
 
-use common::service::{at, city, config, TOKEN};
+use common::service::{at, config, TOKEN};
+use common::tables;
 use hodos::http::{bind, serve, AppState};
 use serde_json::{json, Value};
 use std::net::SocketAddr;
@@ -71,30 +72,6 @@ fn trip_body(hour_offset_days: i64) -> Value {
     json!({"from": {"lat": a.lat, "lon": a.lon}, "to": {"lat": b.lat, "lon": b.lon}, "depart_at": depart, "budget_ms": 2000})
 }
 
-/// A historical table setting every edge to `speed` at every weekday 10:00.
-fn table(speed: f64) -> String {
-    let mut s = String::from("from_node,to_node,hour_of_week,speed_kmh\n");
-    for (f, t) in &city().edges {
-        for day in 0..7 {
-            s.push_str(&format!("{f},{t},{},{speed}\n", day * 24 + 10));
-        }
-    }
-    s
-}
-
-/// Mostly bad rows: rejected whole.
-fn corrupt_table() -> String {
-    let mut s = String::from("from_node,to_node,hour_of_week,speed_kmh\n");
-    for (i, (f, t)) in city().edges.iter().enumerate() {
-        if i % 2 == 0 {
-            s.push_str(&format!("{f},{t},999,-3\n"));
-        } else {
-            s.push_str(&format!("{f},{t},10,abc\n"));
-        }
-    }
-    s
-}
-
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn fifty_hot_swaps_under_load_fail_nothing() {
     let dir = tempfile::tempdir().unwrap();
@@ -146,7 +123,7 @@ async fn fifty_hot_swaps_under_load_fail_nothing() {
             v["tier"].as_str().unwrap().to_string(),
         )
     };
-    let (good, bad) = (table(0.0), corrupt_table());
+    let (good, bad) = (tables::every_edge_at_ten(0.0), tables::corrupt());
     let mut good_swaps = 0u64;
     for i in 0..50 {
         if i % 2 == 0 {
@@ -230,7 +207,7 @@ async fn live_post_reaches_answers_and_restart_restores_data() {
 
     // Upload a historical table, then post live observations and time how
     // long until answers reflect them (the live loop re-customizes).
-    let t = table(33.0);
+    let t = tables::every_edge_at_ten(33.0);
     let r = http
         .put(format!(
             "http://{}/admin/regions/testcity/historical",
@@ -243,11 +220,7 @@ async fn live_post_reaches_answers_and_restart_restores_data() {
         .unwrap();
     assert_eq!(r.status(), 200);
     let obs_time = chrono::Utc::now().to_rfc3339();
-    let batch: Vec<Value> = city()
-        .edges
-        .iter()
-        .map(|(f, t)| json!({"from_node": f, "to_node": t, "speed_kmh": 9.0, "observed_at": obs_time, "samples": 2}))
-        .collect();
+    let batch = tables::observations(usize::MAX, 9.0, &obs_time, 2);
     let posted = Instant::now();
     let r = http
         .post(format!("http://{}/admin/regions/testcity/live", srv.admin))

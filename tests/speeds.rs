@@ -7,6 +7,7 @@ use chrono_tz::Tz;
 use hodos::engine::geo::LatLon;
 use hodos::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
 use hodos::serving::speeds::*;
+use hodos::testkit::{HistoricalCsv, HISTORICAL_HEADER as HIST_HEADER};
 use std::time::Duration;
 
 const A: u64 = 1001;
@@ -198,8 +199,6 @@ fn hour_of_week_on_literal_instants() {
 
 // ------------------------------------------------------------ historical
 
-const HIST_HEADER: &str = "from_node,to_node,hour_of_week,speed_kmh\n";
-
 #[test]
 fn historical_detects_each_bad_kind_on_its_line() {
     let (_, idx, _) = setup();
@@ -290,14 +289,14 @@ fn historical_line_numbers_count_physical_lines() {
 /// `n` good rows (hour 0..n on B→C) followed by `bad` rows with an unknown
 /// edge.
 fn hist_rows(good: usize, bad: usize) -> String {
-    let mut s = HIST_HEADER.to_string();
+    let mut csv = HistoricalCsv::with_header();
     for h in 0..good {
-        s += &format!("1002,1003,{h},{}\n", 10 + h);
+        csv.row(1002, 1003, h, 10 + h);
     }
     for _ in 0..bad {
-        s += "1004,1001,0,40\n";
+        csv.row(1004, 1001, 0, 40);
     }
-    s
+    csv.into_string()
 }
 
 #[test]

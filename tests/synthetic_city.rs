@@ -3,34 +3,22 @@
 //! one-way streets, geometry (haversine lengths, cross-checked against
 //! geographiclib's WGS84 geodesic) and the river that only bridges cross.
 
+mod common;
+
+use common::graphs::assert_same_graph;
 use geographiclib_rs::{Geodesic, InverseGeodesic};
 use hodos::engine::geo::{polyline_length_m, LatLon};
 use hodos::engine::graph::{RoadClass, RoadGraph, NONE};
 use hodos::engine::import::synthetic::{self, CityInfo};
 use std::collections::{HashMap, HashSet};
 
-fn assert_same(a: &RoadGraph, b: &RoadGraph) {
-    assert_eq!(a.node_lat, b.node_lat);
-    assert_eq!(a.node_lon, b.node_lon);
-    assert_eq!(a.node_ext, b.node_ext);
-    assert_eq!(a.edge_tail, b.edge_tail);
-    assert_eq!(a.edge_head, b.edge_head);
-    assert_eq!(a.edge_len_m, b.edge_len_m);
-    assert_eq!(a.edge_speed_kmh, b.edge_speed_kmh);
-    assert_eq!(a.edge_way, b.edge_way);
-    assert_eq!(a.edge_class, b.edge_class);
-    assert_eq!(a.edge_shape_first, b.edge_shape_first);
-    assert_eq!(a.shape, b.shape);
-    assert_eq!(a.edge_twin, b.edge_twin);
-}
-
 #[test]
 fn same_seed_same_city_other_seed_other_city() {
     let (a, ia) = synthetic::generate_with_info(5_000, 42);
     let (b, ib) = synthetic::generate_with_info(5_000, 42);
-    assert_same(&a, &b);
+    assert_same_graph(&a, &b);
     assert_eq!(ia, ib);
-    assert_same(&a, &synthetic::generate(5_000, 42));
+    assert_same_graph(&a, &synthetic::generate(5_000, 42));
     let c = synthetic::generate(5_000, 43);
     assert!(a.node_lat != c.node_lat || a.edge_tail != c.edge_tail);
 }

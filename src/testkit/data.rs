@@ -1,0 +1,65 @@
+//! Where the shared open datasets are: `$HODOS_DATA_DIR` (set by the CI
+//! script), else `../shared/data` beside the repository. Checks that need
+//! them and find them absent print one `SKIPPED: <why>` line and pass;
+//! benchmarks say so and fall back to a synthetic city.
+
+use std::fmt::Display;
+use std::path::{Path, PathBuf};
+
+/// The environment variable naming the datasets directory.
+pub const DATA_DIR_ENV: &str = "HODOS_DATA_DIR";
+
+/// `$HODOS_DATA_DIR`, else `../shared/data` next to the crate. Not checked:
+/// callers test for the files they need.
+pub fn data_dir() -> PathBuf {
+    std::env::var_os(DATA_DIR_ENV)
+        .map(PathBuf::from)
+        .unwrap_or_else(|| Path::new(env!("CARGO_MANIFEST_DIR")).join("../shared/data"))
+}
+
+/// Prints the line a check prints when it passes without running.
+pub fn skipped(why: impl Display) {
+    eprintln!("SKIPPED: {why}");
+}
+
+/// USA-road-*.NY of the 9th DIMACS Implementation Challenge, under
+/// `<data dir>/dimacs`.
+#[derive(Debug, Clone)]
+pub struct DimacsNy {
+    /// The folder holding the files (its SOURCES.md documents them).
+    pub dir: PathBuf,
+    /// `USA-road-d.NY.gr.gz`: arc lengths in decimetres.
+    pub distance_gr: PathBuf,
+    /// `USA-road-d.NY.co.gz`: node coordinates.
+    pub coordinates: PathBuf,
+    /// `USA-road-t.NY.gr.gz`: the same arcs with travel times.
+    pub time_gr: PathBuf,
+}
+
+impl DimacsNy {
+    /// The paths, whether or not the files exist.
+    pub fn locate() -> Self {
+        let dir = data_dir().join("dimacs");
+        Self {
+            distance_gr: dir.join("USA-road-d.NY.gr.gz"),
+            coordinates: dir.join("USA-road-d.NY.co.gz"),
+            time_gr: dir.join("USA-road-t.NY.gr.gz"),
+            dir,
+        }
+    }
+
+    /// The paths when all three files exist, else why not (for
+    /// [`skipped`]).
+    pub fn find() -> Result<Self, String> {
+        let ny = Self::locate();
+        for f in [&ny.distance_gr, &ny.coordinates, &ny.time_gr] {
+            if !f.is_file() {
+                return Err(format!(
+                    "{} not found (set {DATA_DIR_ENV} to the directory holding dimacs/)",
+                    f.display()
+                ));
+            }
+        }
+        Ok(ny)
+    }
+}

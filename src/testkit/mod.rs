@@ -1,0 +1,25 @@
+//! Support code for tests, benchmarks, examples and the load generator:
+//! a small deterministic generator, the location of the shared open
+//! datasets, and writers for speed tables and configuration text. Nothing
+//! here is used by the service itself; it sits in the top layer beside
+//! [`crate::config`] and [`crate::demo`] and needs no test-only
+//! dependencies.
+//!
+//! # Layout
+//!
+//! - [`splitmix`]: SplitMix64 and the node samplers built on it.
+//! - [`data`]: `$HODOS_DATA_DIR` (default `../shared/data`), the DIMACS NY
+//!   files and the `SKIPPED:` line printed when they are absent.
+//! - [`tables`]: historical and live speed tables as CSV text, and live
+//!   observations as JSON values.
+//! - [`config_text`]: the `[[region]]` table of a configuration file.
+
+pub mod config_text;
+pub mod data;
+pub mod splitmix;
+pub mod tables;
+
+pub use config_text::region_table;
+pub use data::{data_dir, skipped, DimacsNy, DATA_DIR_ENV};
+pub use splitmix::{node_pairs, nodes, SplitMix64};
+pub use tables::{observation, HistoricalCsv, LiveCsv, HISTORICAL_HEADER, LIVE_HEADER};
