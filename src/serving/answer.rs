@@ -21,9 +21,10 @@
 //! [`Answer`] to its DTOs.
 
 use crate::engine::calibration::Calibration;
-use crate::engine::cch::matrix::{matrix, Cell, ManyToMany, PointMatrix};
+use crate::engine::cch::matrix::ManyToMany;
 use crate::engine::cch::CchQuery;
 use crate::engine::geo::LatLon;
+use crate::engine::region::matrix::{matrix, Cell, PointMatrix};
 use crate::engine::region::{EtaError, Metric, Region};
 use crate::serving::admission::Admission;
 use crate::serving::metrics as m;

@@ -3,8 +3,8 @@
 //! Elimination-tree search (Dibbelt, Strasser & Wagner 2016, §5.2): the
 //! upward search space of a node is exactly its ancestors in the elimination
 //! tree, so instead of a priority queue both searches walk the ancestor
-//! chains in increasing rank, relaxing upward arcs (forward) and downward
-//! arcs (backward). Every node on both chains is a meeting candidate. The
+//! chains in increasing rank ([`super::chains`]), relaxing upward arcs
+//! (forward) and downward arcs (backward). Every node on both chains is a meeting candidate. The
 //! walk supports several start nodes per side (a query that starts mid-edge
 //! leaves through both ends of a two-way road), each with an initial cost.
 //!
@@ -12,6 +12,7 @@
 //! graph, reset after each query along the same chains), so a query
 //! allocates nothing.
 
+use super::chains::Chains;
 use super::customize::{CustomizedMetric, PrunedArc, INFINITY, VIA_EDGE, VIA_NONE};
 use super::Cch;
 use crate::engine::graph::NONE;
@@ -146,38 +147,54 @@ impl CchQuery {
     ) -> Option<PathResult> {
         let sources = &sources[..sources.len().min(MAX_ENDPOINTS)];
         let targets = &targets[..targets.len().min(MAX_ENDPOINTS)];
-        let mut fcur = [NONE; MAX_ENDPOINTS];
-        let mut bcur = [NONE; MAX_ENDPOINTS];
-        for (i, s) in sources.iter().enumerate() {
-            let r = cch.rank[s.node as usize];
-            fcur[i] = r;
-            let l = &mut self.labels[r as usize];
-            if s.time < l.dist[FWD] {
-                l.dist[FWD] = s.time;
-                l.pred[FWD] = NONE;
+        let fwd = self.seed::<FWD>(&cch.rank, sources);
+        let bwd = self.seed::<BWD>(&cch.rank, targets);
+        let (best, meet) = self.search(cch, metric, fwd, bwd);
+        let result = if meet == NONE {
+            self.arc_path.clear();
+            None
+        } else {
+            Some(self.extract(cch, metric, meet, best, sources, targets))
+        };
+        // Reset exactly what this query touched: the ancestor chains.
+        self.reset(&cch.parent, fwd);
+        self.reset(&cch.parent, bwd);
+        result
+    }
+
+    /// Seeds side `D` with its endpoints' partial costs (the first of
+    /// equally cheap endpoints on one rank wins) and returns its chains.
+    #[inline]
+    fn seed<const D: usize>(&mut self, rank: &[u32], eps: &[Endpoint]) -> Chains<MAX_ENDPOINTS> {
+        for e in eps {
+            let l = &mut self.labels[rank[e.node as usize] as usize];
+            if e.time < l.dist[D] {
+                l.dist[D] = e.time;
+                l.pred[D] = NONE;
             }
         }
-        for (i, t) in targets.iter().enumerate() {
-            let r = cch.rank[t.node as usize];
-            bcur[i] = r;
-            let l = &mut self.labels[r as usize];
-            if t.time < l.dist[BWD] {
-                l.dist[BWD] = t.time;
-                l.pred[BWD] = NONE;
-            }
-        }
-        let (fstart, bstart) = (fcur, bcur);
+        Chains::new(eps.iter().map(|e| rank[e.node as usize]))
+    }
+
+    /// Walks the union of both sides' chains in increasing rank, relaxing
+    /// upward arcs on the forward chains and downward arcs on the backward
+    /// ones; every node on both is a meeting candidate. A side stops
+    /// relaxing from nodes it reaches no cheaper than the best meeting so
+    /// far. Returns the best time and its meeting rank (NONE if none).
+    #[inline]
+    fn search(
+        &mut self,
+        cch: &Cch,
+        metric: &CustomizedMetric,
+        mut fwd: Chains<MAX_ENDPOINTS>,
+        mut bwd: Chains<MAX_ENDPOINTS>,
+    ) -> (u32, u32) {
         let mut best = INFINITY;
         let mut meet = NONE;
         let mut visited = 0;
-        // Walk the union of all chains in increasing rank.
         loop {
-            let x = fcur
-                .iter()
-                .chain(bcur.iter())
-                .copied()
-                .min()
-                .unwrap_or(NONE);
+            let (xf, xb) = (fwd.peek(), bwd.peek());
+            let x = xf.min(xb);
             if x == NONE {
                 break;
             }
@@ -189,51 +206,27 @@ impl CchQuery {
                 best = df + db;
                 meet = x;
             }
-            let on_f = fcur.contains(&x);
-            let on_b = bcur.contains(&x);
-            if on_f && df < best {
+            if xf == x && df < best {
                 let f = &metric.forward;
                 relax::<FWD>(&f.arcs[f.range(x)], df, &mut self.labels);
             }
-            if on_b && db < best {
+            if xb == x && db < best {
                 let b = &metric.backward;
                 relax::<BWD>(&b.arcs[b.range(x)], db, &mut self.labels);
             }
-            for c in fcur.iter_mut().chain(bcur.iter_mut()) {
-                if *c == x {
-                    *c = p;
-                }
-            }
+            fwd.step(x, p);
+            bwd.step(x, p);
         }
         self.last_visited = visited;
-        let result = if meet == NONE {
-            self.arc_path.clear();
-            None
-        } else {
-            Some(self.extract(cch, metric, meet, best, sources, targets))
-        };
-        // Reset exactly what this query touched: the ancestor chains.
-        let mut cur = fstart;
-        cur.iter_mut().skip(sources.len()).for_each(|c| *c = NONE);
-        let mut bc = bstart;
-        bc.iter_mut().skip(targets.len()).for_each(|c| *c = NONE);
-        for chains in [cur, bc] {
-            let mut c = chains;
-            loop {
-                let x = c.iter().copied().min().unwrap_or(NONE);
-                if x == NONE {
-                    break;
-                }
-                self.labels[x as usize].dist = [INFINITY; 2];
-                let p = cch.parent[x as usize];
-                for v in c.iter_mut() {
-                    if *v == x {
-                        *v = p;
-                    }
-                }
-            }
+        (best, meet)
+    }
+
+    /// Clears the distances along `chains` (all a search wrote to).
+    #[inline]
+    fn reset(&mut self, parent: &[u32], mut chains: Chains<MAX_ENDPOINTS>) {
+        while let Some(x) = chains.next(parent) {
+            self.labels[x as usize].dist = [INFINITY; 2];
         }
-        result
     }
 
     fn extract(

@@ -4,14 +4,28 @@
 //! This is the query engine's front door. It snaps both coordinates, starts
 //! and ends the search mid-edge with the partial costs, and reports time,
 //! distance and snap distances. It does no I/O and knows nothing about HTTP.
+//!
+//! # Layout
+//!
+//! - this file: [`Region`], [`Metric`], the ETA and route of one pair of
+//!   coordinates, and why there may be none ([`EtaError`]).
+//! - `endpoints`: a snapped point as search endpoints with partial costs,
+//!   the trip along one shared road, and the rule choosing between that and
+//!   the graph answer.
+//! - [`matrix`]: coordinate matrices (every point snapped once, one bucket
+//!   many-to-many over [`crate::engine::cch::matrix`]), each cell equal to
+//!   [`Region::eta`] for the same pair.
+
+pub(crate) mod endpoints;
+pub mod matrix;
 
 use crate::engine::artifact::{Artifact, Metadata};
 use crate::engine::calibration::Calibration;
-use crate::engine::cch::query::Endpoint;
 use crate::engine::cch::{Cch, CchQuery, CustomizedMetric};
 use crate::engine::geo::LatLon;
 use crate::engine::graph::{RoadGraph, NONE};
 use crate::engine::snap::{Snap, SnapIndex};
+use endpoints::{choose, direct_stretch, snap_endpoints, Choice, Direct};
 
 /// Largest snap distance accepted by default, in metres.
 pub const DEFAULT_MAX_SNAP_M: f64 = 500.0;
@@ -155,23 +169,16 @@ impl Region {
             from: a,
             to: b,
         };
-        match (graph_best, direct) {
-            (Some(r), Some(d)) if d.time_ms > f64::from(r.time) => Ok((
+        match choose(graph_best.map(|r| (r, f64::from(r.time))), direct) {
+            Some(Choice::Graph(r)) => Ok((
                 eta(f64::from(r.time), r.len_cm as f64),
                 Via::Graph {
                     source: r.source,
                     target: r.target,
                 },
             )),
-            (Some(r), None) => Ok((
-                eta(f64::from(r.time), r.len_cm as f64),
-                Via::Graph {
-                    source: r.source,
-                    target: r.target,
-                },
-            )),
-            (_, Some(d)) => Ok((eta(d.time_ms, d.len_m * 100.0), Via::Direct(d))),
-            (None, None) => Err(EtaError::Unreachable),
+            Some(Choice::Direct(d)) => Ok((eta(d.time_ms, d.len_m * 100.0), Via::Direct(d))),
+            None => Err(EtaError::Unreachable),
         }
     }
 
@@ -232,91 +239,6 @@ enum Via {
     Graph { source: usize, target: usize },
     /// Along a single road between the two snapped points.
     Direct(Direct),
-}
-
-/// Search starts (origin) or ends (destination) for a snapped point:
-/// endpoint 0 runs along the snapped edge, endpoint 1 along its twin.
-/// Shared with the matrix so its cells equal ETAs.
-pub(crate) fn snap_endpoints(
-    g: &RoadGraph,
-    weights: &[u32],
-    s: Snap,
-    origin: bool,
-) -> ([Endpoint; 2], usize) {
-    let e = s.edge as usize;
-    let len = g.edge_len_m[e].max(1e-9);
-    let t = (s.offset_m / len).clamp(0.0, 1.0);
-    let mut out = [Endpoint::at(0); 2];
-    let part = |w: u32, frac: f64, meters: f64| {
-        (
-            (f64::from(w) * frac).round() as u32,
-            (meters * 100.0).round() as u32,
-        )
-    };
-    // Along the edge itself: origin leaves through its head, destination
-    // is entered from its tail.
-    let (node, frac, meters) = if origin {
-        (g.edge_head[e], 1.0 - t, len - s.offset_m)
-    } else {
-        (g.edge_tail[e], t, s.offset_m)
-    };
-    let (time, len_cm) = part(weights[e], frac, meters);
-    out[0] = Endpoint { node, time, len_cm };
-    let twin = g.edge_twin[e];
-    if twin == NONE {
-        return (out, 1);
-    }
-    // Along the twin (reverse direction): offset from its tail is len−off.
-    let tw = twin as usize;
-    let (node, frac, meters) = if origin {
-        (g.edge_head[tw], t, s.offset_m)
-    } else {
-        (g.edge_tail[tw], 1.0 - t, len - s.offset_m)
-    };
-    let (time, len_cm) = part(weights[tw], frac, meters);
-    out[1] = Endpoint { node, time, len_cm };
-    (out, 2)
-}
-
-/// A trip that stays on one road between the two snapped points.
-pub(crate) fn direct_stretch(g: &RoadGraph, weights: &[u32], a: Snap, b: Snap) -> Option<Direct> {
-    if a.edge != b.edge {
-        return None;
-    }
-    let e = a.edge as usize;
-    let len = g.edge_len_m[e].max(1e-9);
-    if a.offset_m <= b.offset_m {
-        let d = b.offset_m - a.offset_m;
-        return Some(Direct {
-            edge: a.edge,
-            from_m: a.offset_m,
-            to_m: b.offset_m,
-            time_ms: (f64::from(weights[e]) * d / len).round(),
-            len_m: d,
-        });
-    }
-    let tw = g.edge_twin[e];
-    if tw == NONE {
-        return None;
-    }
-    let d = a.offset_m - b.offset_m;
-    Some(Direct {
-        edge: tw,
-        from_m: len - a.offset_m,
-        to_m: len - b.offset_m,
-        time_ms: (f64::from(weights[tw as usize]) * d / len).round(),
-        len_m: d,
-    })
-}
-
-/// A trip along a single road between two snapped points.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) struct Direct {
-    pub(crate) edge: u32,
-    pub(crate) from_m: f64,
-    pub(crate) to_m: f64,
-    pub(crate) time_ms: f64,
-    pub(crate) len_m: f64,
 }
 
 /// Appends the part of edge `e`'s polyline between offsets `from_m..to_m`.
