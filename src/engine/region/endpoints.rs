@@ -118,3 +118,43 @@ pub(crate) fn choose<G>(graph: Option<(G, f64)>, direct: Option<Direct>) -> Opti
         (None, None) => None,
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn direct(time_ms: f64) -> Direct {
+        Direct {
+            edge: 0,
+            from_m: 0.0,
+            to_m: 1.0,
+            time_ms,
+            len_m: 1.0,
+        }
+    }
+
+    /// The rule as `Region::eta` documents it: the graph answer only when
+    /// strictly faster than staying on the shared road (a tie stays on the
+    /// road), the graph when there is no shared road, nothing when neither.
+    #[test]
+    fn choose_prefers_the_road_unless_the_graph_is_strictly_faster() {
+        assert_eq!(
+            choose(Some(("g", 999.0)), Some(direct(1000.0))),
+            Some(Choice::Graph("g"))
+        );
+        assert_eq!(
+            choose(Some(("g", 1000.0)), Some(direct(1000.0))),
+            Some(Choice::Direct(direct(1000.0)))
+        );
+        assert_eq!(
+            choose(Some(("g", 1001.0)), Some(direct(1000.0))),
+            Some(Choice::Direct(direct(1000.0)))
+        );
+        assert_eq!(choose(Some(("g", 5.0)), None), Some(Choice::Graph("g")));
+        assert_eq!(
+            choose(None::<(&str, f64)>, Some(direct(7.0))),
+            Some(Choice::Direct(direct(7.0)))
+        );
+        assert_eq!(choose(None::<(&str, f64)>, None), None);
+    }
+}

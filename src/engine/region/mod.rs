@@ -271,3 +271,180 @@ fn push_sub_polyline(g: &RoadGraph, e: u32, from_m: f64, to_m: f64, out: &mut Ve
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::engine::testing::{city, reference_dists, Rng};
+
+    fn region() -> Region {
+        Region::from_artifact(city(3_000, 21))
+    }
+
+    /// Ways out of (origin) or into (destination) the road of a snapped
+    /// point: (node, partial cost in ms), the share of the edge's time
+    /// proportional to the distance along it, per direction of travel.
+    fn ways(g: &RoadGraph, w: &[u32], s: Snap, origin: bool) -> Vec<(u32, u64)> {
+        let e = s.edge as usize;
+        let t = s.offset_m / g.edge_len_m[e];
+        let part = |w: u32, frac: f64| (f64::from(w) * frac).round() as u64;
+        let mut v = vec![if origin {
+            (g.edge_head[e], part(w[e], 1.0 - t))
+        } else {
+            (g.edge_tail[e], part(w[e], t))
+        }];
+        let tw = g.edge_twin[e];
+        if tw != NONE {
+            let tw = tw as usize;
+            v.push(if origin {
+                (g.edge_head[tw], part(w[tw], t))
+            } else {
+                (g.edge_tail[tw], part(w[tw], 1.0 - t))
+            });
+        }
+        v
+    }
+
+    /// The best trip through the graph between two snapped points by
+    /// petgraph's Dijkstra (the reference): partial cost out of the origin's
+    /// road + Dijkstra distance + partial cost into the destination's road.
+    fn graph_reference(g: &RoadGraph, w: &[u32], a: Snap, b: Snap) -> Option<u64> {
+        let ins = ways(g, w, b, false);
+        ways(g, w, a, true)
+            .into_iter()
+            .flat_map(|(s, cs)| {
+                let d = reference_dists(g, w, s);
+                ins.iter()
+                    .filter_map(move |&(t, ct)| d[t as usize].map(|x| cs + x + ct))
+                    .collect::<Vec<_>>()
+            })
+            .min()
+    }
+
+    /// `Region::eta` between coordinates exactly at two intersections
+    /// equals petgraph's Dijkstra (the reference) between the two nodes,
+    /// exactly, and `Region::route` reports the same ETA. Intersections
+    /// whose roads are all two-way: a point at a node is snapped onto one
+    /// of its roads, and on a one-way road it can only leave forwards.
+    #[test]
+    fn eta_at_nodes_equals_dijkstra() {
+        let r = region();
+        let g = &r.graph;
+        let metric = r.free_flow();
+        let mut two_way = vec![true; g.num_nodes()];
+        for e in 0..g.num_edges() {
+            if g.edge_twin[e] == NONE {
+                two_way[g.edge_tail[e] as usize] = false;
+                two_way[g.edge_head[e] as usize] = false;
+            }
+        }
+        let nodes: Vec<u32> = (0..g.num_nodes() as u32)
+            .filter(|&v| two_way[v as usize])
+            .collect();
+        assert!(nodes.len() > 100, "the city has two-way intersections");
+        let mut q = CchQuery::new(&r.cch);
+        let mut rng = Rng::new(8);
+        let mut compared = 0;
+        for _ in 0..10 {
+            let s = nodes[rng.below(nodes.len()) as usize];
+            let reference = reference_dists(g, &metric.weights, s);
+            for _ in 0..20 {
+                let t = nodes[rng.below(nodes.len()) as usize];
+                let (a, b) = (g.node_pos(s), g.node_pos(t));
+                if s == t || a == b {
+                    continue;
+                }
+                let eta = r
+                    .eta(&metric, &mut q, a, b, DEFAULT_MAX_SNAP_M)
+                    .expect("strongly connected");
+                let d = reference[t as usize].expect("strongly connected");
+                assert_eq!(eta.time_s, d as f64 / 1000.0, "{s} -> {t}");
+                let route = r
+                    .route(&metric, &mut q, a, b, DEFAULT_MAX_SNAP_M)
+                    .expect("route");
+                assert_eq!(route.eta, eta);
+                compared += 1;
+            }
+        }
+        assert!(compared >= 150, "{compared} pairs compared");
+    }
+
+    /// Two points on one straight road, at 30 % and 70 % of its length:
+    /// along the road's direction the answer is the along-road time (the
+    /// share of the edge's time, the snapped offsets measured against the
+    /// haversine length) unless the graph reference (petgraph's Dijkstra) is
+    /// strictly faster; against a one-way road's direction there is no
+    /// along-road trip and the answer is the graph reference.
+    #[test]
+    fn direct_stretch_rule() {
+        let r = region();
+        let g = &r.graph;
+        let metric = r.free_flow();
+        let w = &metric.weights;
+        let mut q = CchQuery::new(&r.cch);
+        let (mut along, mut one_way) = (0, 0);
+        for e in (0..g.num_edges() as u32).step_by(7) {
+            let ei = e as usize;
+            let len = g.edge_len_m[ei];
+            if !g.edge_interior(e).is_empty() || len < 40.0 {
+                continue;
+            }
+            let twin = g.edge_twin[ei];
+            let (tail, head) = (g.node_pos(g.edge_tail[ei]), g.node_pos(g.edge_head[ei]));
+            let (p30, p70) = (
+                crate::engine::geo::lerp(tail, head, 0.3),
+                crate::engine::geo::lerp(tail, head, 0.7),
+            );
+            // Forward along e (or, if two-way, backward along its twin).
+            for (from, to, forward) in [(p30, p70, true), (p70, p30, false)] {
+                let Ok(eta) = r.eta(&metric, &mut q, from, to, DEFAULT_MAX_SNAP_M) else {
+                    continue;
+                };
+                let (a, b) = (eta.from, eta.to);
+                // Only points that landed on this road (another road may
+                // cross it exactly there).
+                let on_e = |s: Snap| s.edge == e || (twin != NONE && s.edge == twin);
+                if !on_e(a) || !on_e(b) || a.edge != b.edge {
+                    continue;
+                }
+                // Offsets in e's frame.
+                let off = |s: Snap| {
+                    if s.edge == e {
+                        s.offset_m
+                    } else {
+                        len - s.offset_m
+                    }
+                };
+                let (oa, ob) = (off(a), off(b));
+                assert!((oa - (if forward { 0.3 } else { 0.7 }) * len).abs() < 0.01 * len);
+                assert!((ob - (if forward { 0.7 } else { 0.3 }) * len).abs() < 0.01 * len);
+                let direct = if oa <= ob {
+                    Some((f64::from(w[ei]) * (ob - oa) / len).round())
+                } else if twin != NONE {
+                    Some((f64::from(w[twin as usize]) * (oa - ob) / len).round())
+                } else {
+                    None
+                };
+                let via_graph = graph_reference(g, w, a, b).map(|x| x as f64);
+                let expect = match (direct, via_graph) {
+                    (Some(d), Some(gr)) if gr < d => gr,
+                    (Some(d), _) => {
+                        along += 1;
+                        d
+                    }
+                    (None, Some(gr)) => {
+                        one_way += 1;
+                        gr
+                    }
+                    (None, None) => panic!("strongly connected"),
+                };
+                assert_eq!(eta.time_s, expect / 1000.0, "edge {e}, forward {forward}");
+            }
+            if along > 40 && one_way > 5 {
+                break;
+            }
+        }
+        assert!(along > 40, "{along} along-road answers checked");
+        assert!(one_way > 5, "{one_way} one-way reverse trips checked");
+    }
+}
