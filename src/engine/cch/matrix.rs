@@ -10,7 +10,7 @@
 //!
 //! On a CCH both upward search spaces are ancestor chains of the elimination
 //! tree, so the searches are the priority-queue-free walks of
-//! [`super::query`] (over [`super::chains`]) on the same perfectly
+//! [`super::query`] (over `cch::chains`) on the same perfectly
 //! customized (pruned) search graphs, but without stopping criterion (there
 //! is no single target to bound by).
 //! Buckets are dense: targets are sorted by the preorder position of their

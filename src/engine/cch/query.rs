@@ -3,7 +3,7 @@
 //! Elimination-tree search (Dibbelt, Strasser & Wagner 2016, §5.2): the
 //! upward search space of a node is exactly its ancestors in the elimination
 //! tree, so instead of a priority queue both searches walk the ancestor
-//! chains in increasing rank ([`super::chains`]), relaxing upward arcs
+//! chains in increasing rank (`cch::chains`), relaxing upward arcs
 //! (forward) and downward arcs (backward). Every node on both chains is a meeting candidate. The
 //! walk supports several start nodes per side (a query that starts mid-edge
 //! leaves through both ends of a two-way road), each with an initial cost.

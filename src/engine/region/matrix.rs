@@ -1,9 +1,9 @@
 //! Coordinate matrices: every origin and destination snapped once (within
-//! the snap limit), one bucket many-to-many
-//! ([`ManyToMany`](crate::engine::cch::matrix::ManyToMany)) over the snapped
-//! points, then per cell the same choice as [`Region::eta`] between the
-//! graph answer and a trip along one shared road. A point off the network
-//! makes its row or column [`Cell::Unavailable`], not the whole matrix.
+//! the snap limit), one bucket many-to-many ([`ManyToMany`]) over the
+//! snapped points, then per cell the same choice as [`Region::eta`] between
+//! the graph answer and a trip along one shared road. A point off the
+//! network makes its row or column [`Cell::Unavailable`], not the whole
+//! matrix.
 
 use super::endpoints::{choose, direct_stretch, snap_endpoints, Choice};
 use super::{End, EtaError, Metric, Region};
