@@ -12,9 +12,10 @@ mod common;
 
 use criterion::{criterion_group, criterion_main, Criterion};
 use hodos::engine::build::{build_from_graph, Quiet};
-use hodos::engine::cch::matrix::{matrix, ManyToMany, PointMatrix};
+use hodos::engine::cch::matrix::ManyToMany;
 use hodos::engine::cch::CchQuery;
 use hodos::engine::geo::LatLon;
+use hodos::engine::region::matrix::{matrix, PointMatrix};
 use hodos::engine::region::Region;
 use hodos::testkit::nodes;
 use std::hint::black_box;

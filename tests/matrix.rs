@@ -20,11 +20,12 @@ use common::graphs::{add_link, grid_nodes, hierarchy, point_in_box, region_of, L
 use common::{dimacs_ny, fixture, petgraph_of, random_speeds, reference_dists, SplitMix64};
 use hodos::engine::build::{build_from_graph, Quiet, Source};
 use hodos::engine::cch::customize::{CustomizedMetric, INFINITY};
-use hodos::engine::cch::matrix::{matrix, Cell, ManyToMany, MatrixError, PointMatrix};
+use hodos::engine::cch::matrix::{ManyToMany, MatrixError};
 use hodos::engine::cch::query::Endpoint;
 use hodos::engine::cch::{Cch, CchQuery};
 use hodos::engine::geo::LatLon;
 use hodos::engine::graph::{RoadGraph, NONE};
+use hodos::engine::region::matrix::{matrix, Cell, PointMatrix};
 use hodos::engine::region::{Metric, Region};
 use petgraph::graph::{DiGraph, NodeIndex};
 use std::alloc::{GlobalAlloc, Layout, System};

@@ -15,6 +15,8 @@
 //! - [`region`]: the query front door: coordinates → ETAs, routes and
 //!   coordinate matrices for one metric.
 //! - [`build`], [`artifact`]: the offline pipeline and its file format.
+//! - `testing` (unit tests only): a small synthetic city and petgraph's
+//!   Dijkstra as the reference.
 //!
 //! **Architecture Invariant:** the engine knows nothing of serving or HTTP:
 //! no `crate::serving`, `crate::http`, `crate::config` or `crate::demo`
@@ -31,3 +33,5 @@ pub mod metric;
 pub mod order;
 pub mod region;
 pub mod snap;
+#[cfg(test)]
+pub(crate) mod testing;

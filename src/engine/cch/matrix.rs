@@ -10,9 +10,9 @@
 //!
 //! On a CCH both upward search spaces are ancestor chains of the elimination
 //! tree, so the searches are the priority-queue-free walks of
-//! [`super::query`] over the same perfectly customized (pruned) search
-//! graphs, but without stopping criterion (there is no single target to
-//! bound by).
+//! [`super::query`] (over `cch::chains`) on the same perfectly
+//! customized (pruned) search graphs, but without stopping criterion (there
+//! is no single target to bound by).
 //! Buckets are dense: targets are sorted by the preorder position of their
 //! node in the elimination tree, which makes the targets below any node (the
 //! ones that can have an entry there) a contiguous run of slots. A bucket is
@@ -26,17 +26,15 @@
 //! length is the forward length there plus the bucket's backward length.
 //!
 //! [`ManyToMany`] owns all scratch; after a warm-up call of the same size a
-//! call allocates nothing. [`matrix`] is the coordinate front end: it snaps
-//! every point once and gives per-cell answers equal to
-//! [`Region::eta`](crate::engine::region::Region::eta) for the same pair.
+//! call allocates nothing. Its endpoints are road nodes with partial costs;
+//! the coordinate front end (snapping, trips along one road) is
+//! [`crate::engine::region::matrix`].
 
+use super::chains::Chains;
 use super::customize::{CustomizedMetric, PrunedArc, PrunedArcs, INFINITY};
 use super::query::{Endpoint, MAX_ENDPOINTS};
 use super::Cch;
-use crate::engine::geo::LatLon;
 use crate::engine::graph::NONE;
-use crate::engine::region::{direct_stretch, snap_endpoints, End, EtaError, Metric, Region};
-use crate::engine::snap::Snap;
 use std::time::Instant;
 
 /// Why a matrix could not be computed at all.
@@ -110,29 +108,6 @@ pub struct ManyToMany {
     row_meet: Vec<u32>,
 }
 
-/// The union of up to [`MAX_ENDPOINTS`] elimination-tree ancestor chains,
-/// walked in increasing rank (as [`super::query`] does).
-struct Chains {
-    cur: [u32; MAX_ENDPOINTS],
-}
-
-impl Chains {
-    #[inline]
-    fn next(&mut self, parent: &[u32]) -> Option<u32> {
-        let x = self.cur.iter().copied().min().unwrap_or(NONE);
-        if x == NONE {
-            return None;
-        }
-        let p = parent[x as usize];
-        for c in self.cur.iter_mut() {
-            if *c == x {
-                *c = p;
-            }
-        }
-        Some(x)
-    }
-}
-
 impl ManyToMany {
     /// Scratch for `cch` (per-node arrays plus the tree's preorder). Used
     /// with another hierarchy of the same size it stays exact, only the
@@ -199,7 +174,7 @@ impl ManyToMany {
     /// order, checking `deadline` before each. Rows from the first one found
     /// past the deadline on are left INFINITY; [`MatrixOutcome::rows_done`]
     /// says how many were computed.
-    #[allow(clippy::too_many_arguments)]
+    #[allow(clippy::too_many_arguments)] // public signature, kept for callers
     pub fn run(
         &mut self,
         cch: &Cch,
@@ -210,21 +185,21 @@ impl ManyToMany {
         out_time: &mut Vec<u32>,
         out_len_cm: &mut Vec<u64>,
     ) -> Result<MatrixOutcome, MatrixError> {
-        self.run_with(
+        self.run_points(
             cch,
             metric,
-            sources.len(),
-            |i| sources[i],
-            targets.len(),
-            |j| targets[j],
+            Points::new(sources.len(), |i| sources[i]),
+            Points::new(targets.len(), |j| targets[j]),
             deadline,
-            out_time,
-            out_len_cm,
+            NodeCells {
+                time: out_time,
+                len_cm: out_len_cm,
+            },
         )
     }
 
     /// [`run`](Self::run) with node-to-node endpoints (road node ids).
-    #[allow(clippy::too_many_arguments)]
+    #[allow(clippy::too_many_arguments)] // public signature, kept for callers
     pub fn run_nodes(
         &mut self,
         cch: &Cch,
@@ -235,128 +210,38 @@ impl ManyToMany {
         out_time: &mut Vec<u32>,
         out_len_cm: &mut Vec<u64>,
     ) -> Result<MatrixOutcome, MatrixError> {
-        let src = |i: usize| [Endpoint::at(sources[i])];
-        let dst = |j: usize| [Endpoint::at(targets[j])];
-        self.run_inner(
+        self.run_points(
             cch,
             metric,
-            sources.len(),
-            src,
-            targets.len(),
-            dst,
+            Points::new(sources.len(), |i| [Endpoint::at(sources[i])]),
+            Points::new(targets.len(), |j| [Endpoint::at(targets[j])]),
             deadline,
-            out_time,
-            out_len_cm,
-        )
-    }
-
-    /// `run` over points given by index (so callers can keep endpoints in
-    /// their own reusable storage).
-    #[allow(clippy::too_many_arguments)]
-    pub(crate) fn run_with<'e>(
-        &mut self,
-        cch: &Cch,
-        metric: &CustomizedMetric,
-        num_sources: usize,
-        source: impl Fn(usize) -> &'e [Endpoint],
-        num_targets: usize,
-        target: impl Fn(usize) -> &'e [Endpoint],
-        deadline: Option<Instant>,
-        out_time: &mut Vec<u32>,
-        out_len_cm: &mut Vec<u64>,
-    ) -> Result<MatrixOutcome, MatrixError> {
-        self.run_inner(
-            cch,
-            metric,
-            num_sources,
-            source,
-            num_targets,
-            target,
-            deadline,
-            out_time,
-            out_len_cm,
-        )
-    }
-
-    #[allow(clippy::too_many_arguments)]
-    fn run_inner<L: AsRef<[Endpoint]>>(
-        &mut self,
-        cch: &Cch,
-        metric: &CustomizedMetric,
-        num_sources: usize,
-        source: impl Fn(usize) -> L,
-        num_targets: usize,
-        target: impl Fn(usize) -> L,
-        deadline: Option<Instant>,
-        out_time: &mut Vec<u32>,
-        out_len_cm: &mut Vec<u64>,
-    ) -> Result<MatrixOutcome, MatrixError> {
-        let n = cch.num_nodes();
-        if self.walker.dist.len() != n || cch.parent.len() != n {
-            return Err(MatrixError::ScratchMismatch {
-                scratch: self.walker.dist.len(),
-                graph: n,
-            });
-        }
-        let m = cch.num_arcs();
-        let pruned_ok = |p: &PrunedArcs| {
-            p.first.len() == n + 1 && p.first.last().is_some_and(|&l| l as usize == p.arcs.len())
-        };
-        for l in [
-            metric.up_via.len(),
-            metric.down_via.len(),
-            metric.up_len.len(),
-            metric.down_len.len(),
-            if pruned_ok(&metric.forward) && pruned_ok(&metric.backward) {
-                m
-            } else {
-                usize::MAX
+            NodeCells {
+                time: out_time,
+                len_cm: out_len_cm,
             },
-        ] {
-            if l != m {
-                return Err(MatrixError::MetricMismatch {
-                    metric: l,
-                    graph: m,
-                });
-            }
-        }
-        let too_large = MatrixError::TooLarge {
-            sources: num_sources,
-            targets: num_targets,
-        };
-        let cells = num_sources.checked_mul(num_targets).ok_or(too_large)?;
-        if num_targets >= NONE as usize {
-            return Err(too_large);
-        }
-        let check = |eps: &[Endpoint]| -> Result<(), MatrixError> {
-            if eps.len() > MAX_ENDPOINTS {
-                return Err(MatrixError::TooManyEndpoints {
-                    count: eps.len(),
-                    max: MAX_ENDPOINTS,
-                });
-            }
-            match eps.iter().find(|e| e.node as usize >= n) {
-                Some(e) => Err(MatrixError::NodeOutOfRange {
-                    node: e.node,
-                    nodes: n,
-                }),
-                None => Ok(()),
-            }
-        };
-        for i in 0..num_sources {
-            check(source(i).as_ref())?;
-        }
-        for j in 0..num_targets {
-            check(target(j).as_ref())?;
-        }
-        out_time.clear();
-        out_time.resize(cells, INFINITY);
-        out_len_cm.clear();
-        out_len_cm.resize(cells, u64::MAX);
-        let past = |d: Option<Instant>| d.is_some_and(|d| Instant::now() >= d);
-        if num_targets == 0 || num_sources == 0 {
+        )
+    }
+
+    /// [`run`](Self::run) over points given by index (so callers can keep
+    /// endpoints in their own reusable storage).
+    pub(crate) fn run_points<L: AsRef<[Endpoint]>>(
+        &mut self,
+        cch: &Cch,
+        metric: &CustomizedMetric,
+        sources: Points<impl Fn(usize) -> L>,
+        targets: Points<impl Fn(usize) -> L>,
+        deadline: Option<Instant>,
+        out: NodeCells<'_>,
+    ) -> Result<MatrixOutcome, MatrixError> {
+        let cells = self.check(cch, metric, &sources, &targets)?;
+        out.time.clear();
+        out.time.resize(cells, INFINITY);
+        out.len_cm.clear();
+        out.len_cm.resize(cells, u64::MAX);
+        if targets.count == 0 || sources.count == 0 {
             return Ok(MatrixOutcome {
-                rows_done: num_sources,
+                rows_done: sources.count,
                 bucket_cells: 0,
             });
         }
@@ -366,26 +251,92 @@ impl ManyToMany {
                 bucket_cells: 0,
             });
         }
-
-        // Slots: targets sorted by the preorder of their first endpoint, so
-        // the targets below a node occupy (nearly) one run of slots.
-        let rank = &cch.rank;
-        self.slot_target.clear();
-        self.slot_target.extend(0..num_targets as u32);
-        {
-            let pre = &self.preorder;
-            let key = |j: u32| {
-                target(j as usize)
-                    .as_ref()
-                    .first()
-                    .map_or(u32::MAX, |e| pre[rank[e.node as usize] as usize])
-            };
-            self.slot_target.sort_unstable_by_key(|&j| key(j));
+        self.sort_slots(&cch.rank, &targets);
+        let Some(total) = self.lay_out_buckets(cch, &targets) else {
+            return Err(MatrixError::TooLarge {
+                sources: sources.count,
+                targets: targets.count,
+            });
+        };
+        if !self.fill_buckets(cch, metric, &targets, deadline) {
+            self.clear_buckets();
+            return Ok(MatrixOutcome {
+                rows_done: 0,
+                bucket_cells: total,
+            });
         }
+        let rows_done = self.source_rows(cch, metric, &sources, deadline, out);
+        self.clear_buckets();
+        Ok(MatrixOutcome {
+            rows_done,
+            bucket_cells: total,
+        })
+    }
 
-        // Pass 1: which slots pass each node (tree structure only).
+    /// Checks scratch, metric and every endpoint against the hierarchy;
+    /// returns the number of cells.
+    fn check<L: AsRef<[Endpoint]>>(
+        &self,
+        cch: &Cch,
+        metric: &CustomizedMetric,
+        sources: &Points<impl Fn(usize) -> L>,
+        targets: &Points<impl Fn(usize) -> L>,
+    ) -> Result<usize, MatrixError> {
+        let n = cch.num_nodes();
+        if self.walker.dist.len() != n || cch.parent.len() != n {
+            return Err(MatrixError::ScratchMismatch {
+                scratch: self.walker.dist.len(),
+                graph: n,
+            });
+        }
+        check_metric(cch, metric)?;
+        let too_large = MatrixError::TooLarge {
+            sources: sources.count,
+            targets: targets.count,
+        };
+        let cells = sources.count.checked_mul(targets.count).ok_or(too_large)?;
+        if targets.count >= NONE as usize {
+            return Err(too_large);
+        }
+        for i in 0..sources.count {
+            check_endpoints(sources.get(i).as_ref(), n)?;
+        }
+        for j in 0..targets.count {
+            check_endpoints(targets.get(j).as_ref(), n)?;
+        }
+        Ok(cells)
+    }
+
+    /// Slots: targets sorted by the preorder of their first endpoint, so
+    /// the targets below a node occupy (nearly) one run of slots.
+    fn sort_slots<L: AsRef<[Endpoint]>>(
+        &mut self,
+        rank: &[u32],
+        targets: &Points<impl Fn(usize) -> L>,
+    ) {
+        self.slot_target.clear();
+        self.slot_target.extend(0..targets.count as u32);
+        let pre = &self.preorder;
+        let key = |j: u32| {
+            targets
+                .get(j as usize)
+                .as_ref()
+                .first()
+                .map_or(u32::MAX, |e| pre[rank[e.node as usize] as usize])
+        };
+        self.slot_target.sort_unstable_by_key(|&j| key(j));
+    }
+
+    /// Pass 1: which slots pass each node (tree structure only), then where
+    /// each bucket's slice starts. Returns the number of bucket cells, or
+    /// `None` (scratch left clean) when they do not fit u32 offsets.
+    fn lay_out_buckets<L: AsRef<[Endpoint]>>(
+        &mut self,
+        cch: &Cch,
+        targets: &Points<impl Fn(usize) -> L>,
+    ) -> Option<usize> {
         for (k, &j) in self.slot_target.iter().enumerate() {
-            let mut walk = chains_of(target(j as usize).as_ref(), rank);
+            let mut walk = chains_of(targets.get(j as usize).as_ref(), &cch.rank);
             while let Some(x) = walk.next(&cch.parent) {
                 let b = &mut self.bucket[x as usize];
                 if b.first == NONE {
@@ -403,27 +354,32 @@ impl ManyToMany {
             if total > u32::MAX as usize {
                 // Undo so the scratch stays clean for the next call.
                 self.clear_buckets();
-                return Err(too_large);
+                return None;
             }
         }
         self.bucket_time.clear();
         self.bucket_time.resize(total, INFINITY);
         self.bucket_len.clear();
         self.bucket_len.resize(total, 0);
+        Some(total)
+    }
 
-        // Pass 2: backward walks (down arcs) fill the buckets. No row can be
-        // computed without all of them, so a deadline passing here (checked
-        // every few walks) abandons the whole matrix.
-        for k in 0..num_targets {
+    /// Pass 2: backward walks (down arcs) fill the buckets. No row can be
+    /// computed without all of them, so a deadline passing here (checked
+    /// every few walks) abandons the whole matrix: returns false.
+    fn fill_buckets<L: AsRef<[Endpoint]>>(
+        &mut self,
+        cch: &Cch,
+        metric: &CustomizedMetric,
+        targets: &Points<impl Fn(usize) -> L>,
+        deadline: Option<Instant>,
+    ) -> bool {
+        for k in 0..targets.count {
             if k % DEADLINE_EVERY == DEADLINE_EVERY - 1 && past(deadline) {
-                self.clear_buckets();
-                return Ok(MatrixOutcome {
-                    rows_done: 0,
-                    bucket_cells: total,
-                });
+                return false;
             }
             let j = self.slot_target[k];
-            let eps = target(j as usize);
+            let eps = targets.get(j as usize);
             let eps = eps.as_ref();
             let (bucket, bucket_time, bucket_len) =
                 (&self.bucket, &mut self.bucket_time, &mut self.bucket_len);
@@ -435,19 +391,29 @@ impl ManyToMany {
                     bucket_len[at] = l;
                 });
         }
+        true
+    }
 
-        // Source rows.
+    /// Source rows in order, checking `deadline` before each: forward walks
+    /// (up arcs) scan the buckets they pass. Returns the rows computed.
+    fn source_rows<L: AsRef<[Endpoint]>>(
+        &mut self,
+        cch: &Cch,
+        metric: &CustomizedMetric,
+        sources: &Points<impl Fn(usize) -> L>,
+        deadline: Option<Instant>,
+        out: NodeCells<'_>,
+    ) -> usize {
+        let num_targets = self.slot_target.len();
         self.row_time.clear();
         self.row_time.resize(num_targets, INFINITY);
         self.row_meet.clear();
         self.row_meet.resize(num_targets, NONE);
-        let mut rows_done = num_sources;
-        for i in 0..num_sources {
+        for i in 0..sources.count {
             if past(deadline) {
-                rows_done = i;
-                break;
+                return i;
             }
-            let eps = source(i);
+            let eps = sources.get(i);
             let eps = eps.as_ref();
             let (bucket, bucket_time, row_time, row_meet) = (
                 &self.bucket,
@@ -470,29 +436,32 @@ impl ManyToMany {
                         );
                     }
                 });
-            // The row, back in target order, with lengths from the meeting
-            // nodes; then clear it for the next source.
             let base = i * num_targets;
-            for k in 0..num_targets {
-                let t = self.row_time[k];
-                if t >= INFINITY {
-                    continue;
-                }
-                self.row_time[k] = INFINITY;
-                let j = self.slot_target[k] as usize;
-                let meet = self.row_meet[k] as usize;
-                let b = self.bucket[meet];
-                let back = self.bucket_len[b.offset as usize + k - b.first as usize];
-                out_time[base + j] = t;
-                out_len_cm[base + j] = u64::from(self.walker.len[meet]) + u64::from(back);
-            }
+            self.emit_row(
+                &mut out.time[base..base + num_targets],
+                &mut out.len_cm[base..base + num_targets],
+            );
         }
+        sources.count
+    }
 
-        self.clear_buckets();
-        Ok(MatrixOutcome {
-            rows_done,
-            bucket_cells: total,
-        })
+    /// The current row, back in target order, with lengths from the meeting
+    /// nodes; clears it for the next source.
+    #[inline]
+    fn emit_row(&mut self, time: &mut [u32], len_cm: &mut [u64]) {
+        for k in 0..self.row_time.len() {
+            let t = self.row_time[k];
+            if t >= INFINITY {
+                continue;
+            }
+            self.row_time[k] = INFINITY;
+            let j = self.slot_target[k] as usize;
+            let meet = self.row_meet[k] as usize;
+            let b = self.bucket[meet];
+            let back = self.bucket_len[b.offset as usize + k - b.first as usize];
+            time[j] = t;
+            len_cm[j] = u64::from(self.walker.len[meet]) + u64::from(back);
+        }
     }
 
     /// Empties the buckets this call used (the per-node array is reused).
@@ -588,12 +557,89 @@ impl Walker {
     }
 }
 
-fn chains_of(eps: &[Endpoint], rank: &[u32]) -> Chains {
-    let mut cur = [NONE; MAX_ENDPOINTS];
-    for (c, e) in cur.iter_mut().zip(eps) {
-        *c = rank[e.node as usize];
+/// One side of a node-level matrix: `count` points, point `i` given by
+/// `at(i)` as its endpoints (so callers can keep them in their own storage
+/// or build them on the fly).
+pub(crate) struct Points<F> {
+    pub(crate) count: usize,
+    pub(crate) at: F,
+}
+
+impl<F> Points<F> {
+    pub(crate) fn new(count: usize, at: F) -> Self {
+        Self { count, at }
     }
-    Chains { cur }
+
+    #[inline]
+    fn get<L>(&self, i: usize) -> L
+    where
+        F: Fn(usize) -> L,
+    {
+        (self.at)(i)
+    }
+}
+
+/// Where a node-level matrix goes: row-major times and lengths (see
+/// [`ManyToMany::run`]).
+pub(crate) struct NodeCells<'a> {
+    pub(crate) time: &'a mut Vec<u32>,
+    pub(crate) len_cm: &'a mut Vec<u64>,
+}
+
+/// Whether `deadline` has passed.
+#[inline]
+fn past(deadline: Option<Instant>) -> bool {
+    deadline.is_some_and(|d| Instant::now() >= d)
+}
+
+/// The customized metric must belong to a hierarchy of `cch`'s shape.
+fn check_metric(cch: &Cch, metric: &CustomizedMetric) -> Result<(), MatrixError> {
+    let (n, m) = (cch.num_nodes(), cch.num_arcs());
+    let pruned_ok = |p: &PrunedArcs| {
+        p.first.len() == n + 1 && p.first.last().is_some_and(|&l| l as usize == p.arcs.len())
+    };
+    for l in [
+        metric.up_via.len(),
+        metric.down_via.len(),
+        metric.up_len.len(),
+        metric.down_len.len(),
+        if pruned_ok(&metric.forward) && pruned_ok(&metric.backward) {
+            m
+        } else {
+            usize::MAX
+        },
+    ] {
+        if l != m {
+            return Err(MatrixError::MetricMismatch {
+                metric: l,
+                graph: m,
+            });
+        }
+    }
+    Ok(())
+}
+
+/// A point's endpoints: at most [`MAX_ENDPOINTS`], each an existing node.
+fn check_endpoints(eps: &[Endpoint], n: usize) -> Result<(), MatrixError> {
+    if eps.len() > MAX_ENDPOINTS {
+        return Err(MatrixError::TooManyEndpoints {
+            count: eps.len(),
+            max: MAX_ENDPOINTS,
+        });
+    }
+    match eps.iter().find(|e| e.node as usize >= n) {
+        Some(e) => Err(MatrixError::NodeOutOfRange {
+            node: e.node,
+            nodes: n,
+        }),
+        None => Ok(()),
+    }
+}
+
+/// The ancestor chains of a point's endpoints.
+#[inline]
+fn chains_of(eps: &[Endpoint], rank: &[u32]) -> Chains<MAX_ENDPOINTS> {
+    Chains::new(eps.iter().map(|e| rank[e.node as usize]))
 }
 
 /// One bucket against the current row: `row = min(row, d + bucket)`,
@@ -609,162 +655,4 @@ fn scan(d: u32, x: u32, bucket: &[u32], row: &mut [u32], meet: &mut [u32]) {
         *r = if better { c } else { *r };
         *m = if better { x } else { *m };
     }
-}
-
-/// One cell of a coordinate matrix.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum Cell {
-    /// The graph answer, as [`Region::eta`] gives it for the same pair.
-    Eta { time_s: f64, meters: f64 },
-    /// Both points are on the network but no road path joins them.
-    Unreachable,
-    /// The origin or the destination is off the network (see
-    /// [`PointMatrix::from`] / [`PointMatrix::to`]).
-    Unavailable,
-    /// The deadline passed before this row was computed.
-    NotComputed,
-}
-
-/// A coordinate matrix and the buffers that produce it (reused between
-/// calls; create once per thread with [`Default`]).
-#[derive(Debug, Clone, Default)]
-pub struct PointMatrix {
-    /// Row-major `from.len() × to.len()` cells.
-    pub cells: Vec<Cell>,
-    /// Each origin's snap, or why it is off the network.
-    pub from: Vec<Result<Snap, EtaError>>,
-    /// Each destination's snap, or why it is off the network.
-    pub to: Vec<Result<Snap, EtaError>>,
-    /// Rows fully answered (a prefix); later rows hold
-    /// [`Cell::NotComputed`] except cells that are [`Cell::Unavailable`].
-    pub rows_done: usize,
-    /// Statistics of the node-level run.
-    pub bucket_cells: usize,
-    /// Compact index of each snapped origin / destination (NONE when off
-    /// the network).
-    src_compact: Vec<u32>,
-    dst_compact: Vec<u32>,
-    /// Endpoints of the snapped points, in compact order.
-    src_eps: Vec<([Endpoint; 2], usize)>,
-    dst_eps: Vec<([Endpoint; 2], usize)>,
-    /// Node-level results over the snapped points.
-    node_time: Vec<u32>,
-    node_len: Vec<u64>,
-}
-
-/// Travel-time matrix between coordinates: each point snapped once (within
-/// `max_snap_m`), then one bucket many-to-many over the snapped points. A
-/// point off the network makes its row or column [`Cell::Unavailable`], not
-/// the whole matrix. Cells equal [`Region::eta`] for the same pair,
-/// including trips that stay on one road.
-#[allow(clippy::too_many_arguments)]
-pub fn matrix(
-    region: &Region,
-    metric: &Metric,
-    m2m: &mut ManyToMany,
-    from: &[LatLon],
-    to: &[LatLon],
-    max_snap_m: f64,
-    deadline: Option<Instant>,
-    out: &mut PointMatrix,
-) -> Result<(), MatrixError> {
-    let g = &region.graph;
-    let PointMatrix {
-        cells,
-        from: from_snaps,
-        to: to_snaps,
-        rows_done,
-        bucket_cells,
-        src_compact,
-        dst_compact,
-        src_eps,
-        dst_eps,
-        node_time,
-        node_len,
-    } = out;
-    let cell_count = from
-        .len()
-        .checked_mul(to.len())
-        .ok_or(MatrixError::TooLarge {
-            sources: from.len(),
-            targets: to.len(),
-        })?;
-    let snap_all = |pts: &[LatLon],
-                    which: End,
-                    snaps: &mut Vec<Result<Snap, EtaError>>,
-                    compact: &mut Vec<u32>,
-                    eps: &mut Vec<([Endpoint; 2], usize)>| {
-        snaps.clear();
-        compact.clear();
-        eps.clear();
-        for &p in pts {
-            let s = region.snap_within(p, which, max_snap_m);
-            match s {
-                Ok(s) => {
-                    compact.push(eps.len() as u32);
-                    eps.push(snap_endpoints(g, &metric.weights, s, which == End::From));
-                }
-                Err(_) => compact.push(NONE),
-            }
-            snaps.push(s);
-        }
-    };
-    snap_all(from, End::From, from_snaps, src_compact, src_eps);
-    snap_all(to, End::To, to_snaps, dst_compact, dst_eps);
-
-    let outcome = m2m.run_with(
-        &region.cch,
-        &metric.customized,
-        src_eps.len(),
-        |i| &src_eps[i].0[..src_eps[i].1],
-        dst_eps.len(),
-        |j| &dst_eps[j].0[..dst_eps[j].1],
-        deadline,
-        node_time,
-        node_len,
-    )?;
-    *bucket_cells = outcome.bucket_cells;
-
-    // The first origin row that was not computed bounds the done prefix.
-    *rows_done = src_compact
-        .iter()
-        .position(|&c| c != NONE && c as usize >= outcome.rows_done)
-        .unwrap_or(from.len());
-    let nt = dst_eps.len();
-    cells.clear();
-    cells.reserve(cell_count);
-    for (i, a) in from_snaps.iter().enumerate() {
-        for (j, b) in to_snaps.iter().enumerate() {
-            let (Ok(a), Ok(b)) = (a, b) else {
-                cells.push(Cell::Unavailable);
-                continue;
-            };
-            let (ci, cj) = (src_compact[i] as usize, dst_compact[j] as usize);
-            if ci >= outcome.rows_done {
-                cells.push(Cell::NotComputed);
-                continue;
-            }
-            let t = node_time[ci * nt + cj];
-            let graph = (t < INFINITY).then(|| (f64::from(t), node_len[ci * nt + cj] as f64));
-            // Same choice as Region::eta: the graph path only when strictly
-            // faster than staying on the shared road.
-            let best = match (
-                graph,
-                direct_stretch(g, &metric.weights, *a, *b).map(|d| (d.time_ms, d.len_m)),
-            ) {
-                (Some(gr), Some(d)) if d.0 > gr.0 => Some(gr),
-                (Some(gr), None) => Some(gr),
-                (_, Some(d)) => Some((d.0, d.1 * 100.0)),
-                (None, None) => None,
-            };
-            cells.push(match best {
-                Some((ms, cm)) => Cell::Eta {
-                    time_s: ms / 1000.0,
-                    meters: cm / 100.0,
-                },
-                None => Cell::Unreachable,
-            });
-        }
-    }
-    Ok(())
 }

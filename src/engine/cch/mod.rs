@@ -12,14 +12,27 @@
 //!    enough to rerun whenever speeds change.
 //! 3. **Query** ([`query`]): bidirectional elimination-tree search, exact
 //!    (equal to Dijkstra on the same metric), plus path unpacking to the
-//!    original edges.
+//!    original edges; [`matrix`]: bucket many-to-many between node-level
+//!    endpoints.
 //!
 //! Nodes inside the hierarchy are identified by rank; `rank[v]` maps a road
 //! graph node to it.
 //!
+//! # Layout
+//!
+//! - this file: [`Cch`], the contraction (topology only).
+//! - [`customize`]: [`CustomizedMetric`], weights of every hierarchy arc.
+//! - `chains`: the walk over elimination-tree ancestor chains shared by
+//!   every search.
+//! - [`query`]: [`CchQuery`], point-to-point search and path unpacking.
+//! - [`matrix`]: [`matrix::ManyToMany`], bucket many-to-many.
+//!
 //! **Architecture Invariant:** this module does no I/O and knows nothing about
-//! HTTP, files or speed tables: it maps `&[u32]` edge weights to answers.
+//! HTTP, files or speed tables: it maps `&[u32]` edge weights to answers. It
+//! never imports the region (coordinates, snapping): that front end sits on
+//! top, in [`crate::engine::region`].
 
+mod chains;
 pub mod customize;
 pub mod matrix;
 pub mod query;

@@ -3,8 +3,8 @@
 //! Elimination-tree search (Dibbelt, Strasser & Wagner 2016, §5.2): the
 //! upward search space of a node is exactly its ancestors in the elimination
 //! tree, so instead of a priority queue both searches walk the ancestor
-//! chains in increasing rank, relaxing upward arcs (forward) and downward
-//! arcs (backward). Every node on both chains is a meeting candidate. The
+//! chains in increasing rank (`cch::chains`), relaxing upward arcs
+//! (forward) and downward arcs (backward). Every node on both chains is a meeting candidate. The
 //! walk supports several start nodes per side (a query that starts mid-edge
 //! leaves through both ends of a two-way road), each with an initial cost.
 //!
@@ -12,6 +12,7 @@
 //! graph, reset after each query along the same chains), so a query
 //! allocates nothing.
 
+use super::chains::Chains;
 use super::customize::{CustomizedMetric, PrunedArc, INFINITY, VIA_EDGE, VIA_NONE};
 use super::Cch;
 use crate::engine::graph::NONE;
@@ -146,38 +147,54 @@ impl CchQuery {
     ) -> Option<PathResult> {
         let sources = &sources[..sources.len().min(MAX_ENDPOINTS)];
         let targets = &targets[..targets.len().min(MAX_ENDPOINTS)];
-        let mut fcur = [NONE; MAX_ENDPOINTS];
-        let mut bcur = [NONE; MAX_ENDPOINTS];
-        for (i, s) in sources.iter().enumerate() {
-            let r = cch.rank[s.node as usize];
-            fcur[i] = r;
-            let l = &mut self.labels[r as usize];
-            if s.time < l.dist[FWD] {
-                l.dist[FWD] = s.time;
-                l.pred[FWD] = NONE;
+        let fwd = self.seed::<FWD>(&cch.rank, sources);
+        let bwd = self.seed::<BWD>(&cch.rank, targets);
+        let (best, meet) = self.search(cch, metric, fwd, bwd);
+        let result = if meet == NONE {
+            self.arc_path.clear();
+            None
+        } else {
+            Some(self.extract(cch, metric, meet, best, sources, targets))
+        };
+        // Reset exactly what this query touched: the ancestor chains.
+        self.reset(&cch.parent, fwd);
+        self.reset(&cch.parent, bwd);
+        result
+    }
+
+    /// Seeds side `D` with its endpoints' partial costs (the first of
+    /// equally cheap endpoints on one rank wins) and returns its chains.
+    #[inline]
+    fn seed<const D: usize>(&mut self, rank: &[u32], eps: &[Endpoint]) -> Chains<MAX_ENDPOINTS> {
+        for e in eps {
+            let l = &mut self.labels[rank[e.node as usize] as usize];
+            if e.time < l.dist[D] {
+                l.dist[D] = e.time;
+                l.pred[D] = NONE;
             }
         }
-        for (i, t) in targets.iter().enumerate() {
-            let r = cch.rank[t.node as usize];
-            bcur[i] = r;
-            let l = &mut self.labels[r as usize];
-            if t.time < l.dist[BWD] {
-                l.dist[BWD] = t.time;
-                l.pred[BWD] = NONE;
-            }
-        }
-        let (fstart, bstart) = (fcur, bcur);
+        Chains::new(eps.iter().map(|e| rank[e.node as usize]))
+    }
+
+    /// Walks the union of both sides' chains in increasing rank, relaxing
+    /// upward arcs on the forward chains and downward arcs on the backward
+    /// ones; every node on both is a meeting candidate. A side stops
+    /// relaxing from nodes it reaches no cheaper than the best meeting so
+    /// far. Returns the best time and its meeting rank (NONE if none).
+    #[inline]
+    fn search(
+        &mut self,
+        cch: &Cch,
+        metric: &CustomizedMetric,
+        mut fwd: Chains<MAX_ENDPOINTS>,
+        mut bwd: Chains<MAX_ENDPOINTS>,
+    ) -> (u32, u32) {
         let mut best = INFINITY;
         let mut meet = NONE;
         let mut visited = 0;
-        // Walk the union of all chains in increasing rank.
         loop {
-            let x = fcur
-                .iter()
-                .chain(bcur.iter())
-                .copied()
-                .min()
-                .unwrap_or(NONE);
+            let (xf, xb) = (fwd.peek(), bwd.peek());
+            let x = xf.min(xb);
             if x == NONE {
                 break;
             }
@@ -189,51 +206,27 @@ impl CchQuery {
                 best = df + db;
                 meet = x;
             }
-            let on_f = fcur.contains(&x);
-            let on_b = bcur.contains(&x);
-            if on_f && df < best {
+            if xf == x && df < best {
                 let f = &metric.forward;
                 relax::<FWD>(&f.arcs[f.range(x)], df, &mut self.labels);
             }
-            if on_b && db < best {
+            if xb == x && db < best {
                 let b = &metric.backward;
                 relax::<BWD>(&b.arcs[b.range(x)], db, &mut self.labels);
             }
-            for c in fcur.iter_mut().chain(bcur.iter_mut()) {
-                if *c == x {
-                    *c = p;
-                }
-            }
+            fwd.step(x, p);
+            bwd.step(x, p);
         }
         self.last_visited = visited;
-        let result = if meet == NONE {
-            self.arc_path.clear();
-            None
-        } else {
-            Some(self.extract(cch, metric, meet, best, sources, targets))
-        };
-        // Reset exactly what this query touched: the ancestor chains.
-        let mut cur = fstart;
-        cur.iter_mut().skip(sources.len()).for_each(|c| *c = NONE);
-        let mut bc = bstart;
-        bc.iter_mut().skip(targets.len()).for_each(|c| *c = NONE);
-        for chains in [cur, bc] {
-            let mut c = chains;
-            loop {
-                let x = c.iter().copied().min().unwrap_or(NONE);
-                if x == NONE {
-                    break;
-                }
-                self.labels[x as usize].dist = [INFINITY; 2];
-                let p = cch.parent[x as usize];
-                for v in c.iter_mut() {
-                    if *v == x {
-                        *v = p;
-                    }
-                }
-            }
+        (best, meet)
+    }
+
+    /// Clears the distances along `chains` (all a search wrote to).
+    #[inline]
+    fn reset(&mut self, parent: &[u32], mut chains: Chains<MAX_ENDPOINTS>) {
+        while let Some(x) = chains.next(parent) {
+            self.labels[x as usize].dist = [INFINITY; 2];
         }
-        result
     }
 
     fn extract(
@@ -320,6 +313,112 @@ impl CchQuery {
                     self.stack.push((awx, UP));
                     self.stack.push((awy, DOWN));
                 }
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::engine::graph::RoadGraph;
+    use crate::engine::testing::{city, reference_dists, Rng};
+
+    /// The road edges of the last path form a walk from endpoint `a`'s node
+    /// to `b`'s whose weights add up to the time less both partial costs,
+    /// and whose lengths (cm, rounded per edge as customization does) add
+    /// up to the length less both partial lengths.
+    fn check_path(
+        q: &mut CchQuery,
+        cch: &Cch,
+        metric: &CustomizedMetric,
+        (g, weights): (&RoadGraph, &[u32]),
+        r: PathResult,
+        (a, b): (Endpoint, Endpoint),
+    ) {
+        let mut edges = Vec::new();
+        q.unpack_edges(cch, metric, &mut edges);
+        let (to, partial_time) = (b.node, a.time + b.time);
+        let partial_cm = u64::from(a.len_cm) + u64::from(b.len_cm);
+        let mut at = a.node;
+        let (mut time, mut cm) = (0u64, 0u64);
+        for &e in &edges {
+            assert_eq!(g.edge_tail[e as usize], at, "path is a walk");
+            at = g.edge_head[e as usize];
+            time += u64::from(weights[e as usize]);
+            cm += (g.edge_len_m[e as usize] * 100.0).round() as u64;
+        }
+        assert_eq!(at, to, "path ends at the target endpoint");
+        assert_eq!(time + u64::from(partial_time), u64::from(r.time));
+        assert_eq!(cm + partial_cm, r.len_cm);
+    }
+
+    /// `CchQuery::run` against petgraph's Dijkstra (`petgraph::algo::dijkstra`,
+    /// the reference) on a synthetic city, for free-flow and random speeds:
+    /// node-to-node times equal the reference exactly over random pairs, and
+    /// with two endpoints per side carrying partial costs the time equals
+    /// the best of `cost + Dijkstra + cost` over the four combinations, the
+    /// reported endpoints realise it, and the unpacked path is a road walk
+    /// of that time.
+    #[test]
+    fn run_equals_dijkstra() {
+        let art = city(3_000, 21);
+        let (g, cch) = (&art.graph, &art.cch);
+        let n = g.num_nodes();
+        let mut rng = Rng::new(4);
+        let speeds: Vec<f32> = (0..g.num_edges())
+            .map(|_| 5.0 + rng.below(116) as f32)
+            .collect();
+        for weights in [
+            crate::engine::metric::free_flow(g),
+            crate::engine::metric::from_speeds(g, &speeds),
+        ] {
+            let metric = CustomizedMetric::new(cch, &weights, &g.edge_len_m);
+            let mut q = CchQuery::new(cch);
+            let mut compared = 0;
+            for _ in 0..12 {
+                let s = rng.below(n);
+                let reference = reference_dists(g, &weights, s);
+                for _ in 0..25 {
+                    let t = rng.below(n);
+                    let got = q.node_to_node(cch, &metric, s, t);
+                    assert_eq!(
+                        got.map(|r| u64::from(r.time)),
+                        reference[t as usize],
+                        "{s} -> {t}"
+                    );
+                    if let Some(r) = got {
+                        let ends = (Endpoint::at(s), Endpoint::at(t));
+                        check_path(&mut q, cch, &metric, (g, &weights), r, ends);
+                    }
+                    compared += 1;
+                }
+            }
+            assert_eq!(compared, 300);
+
+            for _ in 0..40 {
+                let ends = |rng: &mut Rng| {
+                    [0, 1].map(|_| Endpoint {
+                        node: rng.below(n),
+                        time: rng.below(20_000),
+                        len_cm: rng.below(50_000),
+                    })
+                };
+                let (src, dst) = (ends(&mut rng), ends(&mut rng));
+                let d = src.map(|s| reference_dists(g, &weights, s.node));
+                let cost = |i: usize, j: usize| {
+                    d[i][dst[j].node as usize]
+                        .map(|x| u64::from(src[i].time) + x + u64::from(dst[j].time))
+                };
+                let expect = (0..2)
+                    .flat_map(|i| (0..2).filter_map(move |j| cost(i, j)))
+                    .min();
+                let got = q.run(cch, &metric, &src, &dst);
+                assert_eq!(got.map(|r| u64::from(r.time)), expect, "{src:?} -> {dst:?}");
+                let r = got.expect("the city is strongly connected");
+                assert_eq!(cost(r.source, r.target), expect, "reported endpoints");
+                let ends = (src[r.source], dst[r.target]);
+                check_path(&mut q, cch, &metric, (g, &weights), r, ends);
             }
         }
     }

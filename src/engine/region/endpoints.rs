@@ -1,0 +1,160 @@
+//! How a snapped point enters the search, and the one-road shortcut.
+//!
+//! A snapped point lies part-way along a road edge. [`snap_endpoints`] turns
+//! it into search endpoints with the partial cost of the stretch to each end
+//! of the road; [`direct_stretch`] is the trip that never leaves the shared
+//! road when both points lie on it; [`choose`] is the single rule that picks
+//! between the two. The ETA, the route and every matrix cell go through
+//! these three, so they give the same answer for the same pair.
+
+use crate::engine::cch::query::Endpoint;
+use crate::engine::graph::{RoadGraph, NONE};
+use crate::engine::snap::Snap;
+
+/// Search starts (origin) or ends (destination) for a snapped point:
+/// endpoint 0 runs along the snapped edge, endpoint 1 along its twin.
+/// Shared with the matrix so its cells equal ETAs.
+pub(crate) fn snap_endpoints(
+    g: &RoadGraph,
+    weights: &[u32],
+    s: Snap,
+    origin: bool,
+) -> ([Endpoint; 2], usize) {
+    let e = s.edge as usize;
+    let len = g.edge_len_m[e].max(1e-9);
+    let t = (s.offset_m / len).clamp(0.0, 1.0);
+    let mut out = [Endpoint::at(0); 2];
+    let part = |w: u32, frac: f64, meters: f64| {
+        (
+            (f64::from(w) * frac).round() as u32,
+            (meters * 100.0).round() as u32,
+        )
+    };
+    // Along the edge itself: origin leaves through its head, destination
+    // is entered from its tail.
+    let (node, frac, meters) = if origin {
+        (g.edge_head[e], 1.0 - t, len - s.offset_m)
+    } else {
+        (g.edge_tail[e], t, s.offset_m)
+    };
+    let (time, len_cm) = part(weights[e], frac, meters);
+    out[0] = Endpoint { node, time, len_cm };
+    let twin = g.edge_twin[e];
+    if twin == NONE {
+        return (out, 1);
+    }
+    // Along the twin (reverse direction): offset from its tail is len−off.
+    let tw = twin as usize;
+    let (node, frac, meters) = if origin {
+        (g.edge_head[tw], t, s.offset_m)
+    } else {
+        (g.edge_tail[tw], 1.0 - t, len - s.offset_m)
+    };
+    let (time, len_cm) = part(weights[tw], frac, meters);
+    out[1] = Endpoint { node, time, len_cm };
+    (out, 2)
+}
+
+/// A trip that stays on one road between the two snapped points.
+pub(crate) fn direct_stretch(g: &RoadGraph, weights: &[u32], a: Snap, b: Snap) -> Option<Direct> {
+    if a.edge != b.edge {
+        return None;
+    }
+    let e = a.edge as usize;
+    let len = g.edge_len_m[e].max(1e-9);
+    if a.offset_m <= b.offset_m {
+        let d = b.offset_m - a.offset_m;
+        return Some(Direct {
+            edge: a.edge,
+            from_m: a.offset_m,
+            to_m: b.offset_m,
+            time_ms: (f64::from(weights[e]) * d / len).round(),
+            len_m: d,
+        });
+    }
+    let tw = g.edge_twin[e];
+    if tw == NONE {
+        return None;
+    }
+    let d = a.offset_m - b.offset_m;
+    Some(Direct {
+        edge: tw,
+        from_m: len - a.offset_m,
+        to_m: len - b.offset_m,
+        time_ms: (f64::from(weights[tw as usize]) * d / len).round(),
+        len_m: d,
+    })
+}
+
+/// A trip along a single road between two snapped points.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Direct {
+    pub(crate) edge: u32,
+    pub(crate) from_m: f64,
+    pub(crate) to_m: f64,
+    pub(crate) time_ms: f64,
+    pub(crate) len_m: f64,
+}
+
+/// Which of the two candidate answers a trip uses.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) enum Choice<G> {
+    /// The graph answer (whatever the caller carries with it).
+    Graph(G),
+    /// Staying on the shared road.
+    Direct(Direct),
+}
+
+/// The rule for a pair of snapped points, given the graph answer with its
+/// time in milliseconds and the direct stretch: the graph answer only when
+/// there is no direct stretch or the direct stretch is strictly slower;
+/// otherwise the direct stretch. `None` when neither exists.
+#[inline]
+pub(crate) fn choose<G>(graph: Option<(G, f64)>, direct: Option<Direct>) -> Option<Choice<G>> {
+    match (graph, direct) {
+        (Some((g, ms)), Some(d)) if d.time_ms > ms => Some(Choice::Graph(g)),
+        (Some((g, _)), None) => Some(Choice::Graph(g)),
+        (_, Some(d)) => Some(Choice::Direct(d)),
+        (None, None) => None,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn direct(time_ms: f64) -> Direct {
+        Direct {
+            edge: 0,
+            from_m: 0.0,
+            to_m: 1.0,
+            time_ms,
+            len_m: 1.0,
+        }
+    }
+
+    /// The rule as `Region::eta` documents it: the graph answer only when
+    /// strictly faster than staying on the shared road (a tie stays on the
+    /// road), the graph when there is no shared road, nothing when neither.
+    #[test]
+    fn choose_prefers_the_road_unless_the_graph_is_strictly_faster() {
+        assert_eq!(
+            choose(Some(("g", 999.0)), Some(direct(1000.0))),
+            Some(Choice::Graph("g"))
+        );
+        assert_eq!(
+            choose(Some(("g", 1000.0)), Some(direct(1000.0))),
+            Some(Choice::Direct(direct(1000.0)))
+        );
+        assert_eq!(
+            choose(Some(("g", 1001.0)), Some(direct(1000.0))),
+            Some(Choice::Direct(direct(1000.0)))
+        );
+        assert_eq!(choose(Some(("g", 5.0)), None), Some(Choice::Graph("g")));
+        assert_eq!(
+            choose(None::<(&str, f64)>, Some(direct(7.0))),
+            Some(Choice::Direct(direct(7.0)))
+        );
+        assert_eq!(choose(None::<(&str, f64)>, None), None);
+    }
+}
