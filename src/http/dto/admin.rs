@@ -179,7 +179,7 @@ mod tests {
     /// `serde_json::Value`, keys sorted; captured from `/admin/status` and a
     /// rejected upload), with the timestamp in chrono's RFC 3339 form.
     #[test]
-    fn dtos_serialize_as_the_serving_types_did() {
+    fn dtos_keep_the_wire_form() {
         let report = TableReport {
             rows: 3,
             accepted: 1,
