@@ -3,24 +3,28 @@
 //! requires `Authorization: Bearer <token>`, compared in constant time; with
 //! no token configured every request is refused.
 
+use super::dto::{
+    HistoricalAccepted, LiveAccepted, RegionStatusDto, ReloadResponse, StatusResponse,
+    TableReportDto,
+};
 use super::problem::ApiError;
-use super::AppState;
+use super::{routes, AppState};
 use crate::serving::snapshot::{RegionHandle, UpdateError};
 use axum::extract::{Path, Request, State};
 use axum::http::{header, HeaderMap};
 use axum::middleware::Next;
 use axum::response::{IntoResponse, Response};
-use axum::routing::{get, post, put};
 use axum::{Json, Router};
 use std::sync::Arc;
 use subtle::ConstantTimeEq;
 
+/// The admin router, built from [`routes::ADMIN`].
 pub fn router(state: AppState) -> Router {
-    Router::new()
-        .route("/admin/status", get(status))
-        .route("/admin/regions/{region}/historical", put(put_historical))
-        .route("/admin/regions/{region}/live", post(post_live))
-        .route("/admin/regions/{region}/reload", post(reload))
+    routes::ADMIN
+        .iter()
+        .fold(Router::new(), |r, route| {
+            r.route(route.path, route.method_router())
+        })
         .fallback(|| async { ApiError::NotFound("no such admin endpoint".into()) })
         .layer(axum::extract::DefaultBodyLimit::disable())
         .layer(axum::middleware::from_fn_with_state(
@@ -82,10 +86,7 @@ fn update_error(e: UpdateError) -> ApiError {
     match e {
         UpdateError::Rejected(err) => ApiError::Rejected {
             detail: err.to_string(),
-            report: err
-                .report()
-                .map(|r| serde_json::to_value(r).unwrap_or_default())
-                .unwrap_or(serde_json::Value::Null),
+            report: err.report().map(|r| Box::new(TableReportDto::from(r))),
         },
         UpdateError::Unavailable(msg) => {
             ApiError::NotFound(format!("region has no loaded graph: {msg}"))
@@ -97,54 +98,53 @@ fn update_error(e: UpdateError) -> ApiError {
     }
 }
 
-async fn status(State(state): State<AppState>) -> impl IntoResponse {
-    let regions: Vec<serde_json::Value> = state
-        .catalog
-        .regions
-        .iter()
-        .map(|r| {
-            let mut v = serde_json::to_value(r.status()).unwrap_or_default();
-            v["region"] = serde_json::Value::String(r.name.clone());
-            v
-        })
-        .collect();
-    Json(serde_json::json!({ "regions": regions }))
+pub(super) async fn status(State(state): State<AppState>) -> Json<StatusResponse> {
+    Json(StatusResponse {
+        regions: state
+            .catalog
+            .regions
+            .iter()
+            .map(|r| RegionStatusDto::new(&r.name, &r.status()))
+            .collect(),
+    })
 }
 
-async fn put_historical(
+pub(super) async fn put_historical(
     State(state): State<AppState>,
     Path(name): Path<String>,
     req: Request,
-) -> Result<Response, ApiError> {
+) -> Result<Json<HistoricalAccepted>, ApiError> {
     let r = region(&state, &name)?;
     let (_, body) = read_body(&state, req).await?;
     let report = r.put_historical(body).await.map_err(update_error)?;
     let st = r.status();
-    Ok(Json(serde_json::json!({
-        "outcome": "accepted",
-        "generation": st.generation,
-        "version": st.historical_version,
-        "report": report,
+    Ok(Json(HistoricalAccepted {
+        generation: st.generation,
+        outcome: "accepted",
+        report: TableReportDto::from(&report),
+        version: st.historical_version,
     }))
-    .into_response())
 }
 
-async fn post_live(
+pub(super) async fn post_live(
     State(state): State<AppState>,
     Path(name): Path<String>,
     req: Request,
-) -> Result<Response, ApiError> {
+) -> Result<Json<LiveAccepted>, ApiError> {
     let r = region(&state, &name)?;
     let (ct, body) = read_body(&state, req).await?;
     let csv = ct.starts_with("text/csv");
     let report = r.put_live(&body, csv).await.map_err(update_error)?;
-    Ok(Json(serde_json::json!({ "outcome": "accepted", "report": report })).into_response())
+    Ok(Json(LiveAccepted {
+        outcome: "accepted",
+        report: TableReportDto::from(&report),
+    }))
 }
 
-async fn reload(
+pub(super) async fn reload(
     State(state): State<AppState>,
     Path(name): Path<String>,
-) -> Result<Response, ApiError> {
+) -> Result<Json<ReloadResponse>, ApiError> {
     let r = region(&state, &name)?;
     let result = r.reload().await;
     let st = r.status();
@@ -152,11 +152,10 @@ async fn reload(
         Ok(()) => ("accepted", None),
         Err(e) => ("failed", Some(e.to_string())),
     };
-    Ok(Json(serde_json::json!({
-        "outcome": outcome,
-        "error": error,
-        "serving_generation": st.generation,
-        "ready": st.ready,
+    Ok(Json(ReloadResponse {
+        error,
+        outcome,
+        ready: st.ready,
+        serving_generation: st.generation,
     }))
-    .into_response())
 }

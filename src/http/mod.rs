@@ -1,16 +1,24 @@
 //! The HTTP service: public API and admin API (axum on tokio).
 //!
-//! - [`app`] builds the public router (`/v1/eta`, `/v1/eta/matrix`,
-//!   `/v1/route`, `/healthz`, `/readyz`, `/metrics`, `/openapi.json`) so
-//!   tests can drive it with `oneshot`; [`admin_app`] builds the admin
-//!   router for its own listener.
+//! - [`app`] builds the public router from [`routes::PUBLIC`] (`/v1/eta`,
+//!   `/v1/eta/matrix`, `/v1/route`, `/healthz`, `/readyz`, `/metrics`,
+//!   `/openapi.json`) so tests can drive it with `oneshot`; [`admin_app`]
+//!   builds the admin router from [`routes::ADMIN`] for its own listener.
 //! - [`serve`] binds both listeners, starts each region's live loop, and
 //!   runs until the `shutdown` future resolves, then drains in-flight
 //!   requests.
 //!
 //! **Architecture Invariant:** handlers parse into [`dto`] types, call
 //! [`crate::serving::answer`] / [`crate::serving::snapshot`], and convert the results back to
-//! DTOs; engine types never reach the wire.
+//! DTOs; engine and serving types never reach the wire.
+//!
+//! # Layout
+//!
+//! - [`routes`]: the route table (routers, metric labels, OpenAPI paths).
+//! - [`handlers`]: public handlers; [`admin`]: admin handlers and token.
+//! - [`dto`]: request and response shapes, conversions from serving types.
+//! - [`openapi`]: the OpenAPI document; [`problem`]: RFC 9457 errors.
+//! - [`exporter`]: the Prometheus recorder; [`settings`]: `[server]`/`[admin]`.
 
 pub mod admin;
 pub mod dto;
@@ -18,6 +26,7 @@ pub mod exporter;
 pub mod handlers;
 pub mod openapi;
 pub mod problem;
+pub mod routes;
 pub mod settings;
 
 use crate::serving::answer::Catalog;
@@ -25,7 +34,6 @@ use crate::serving::snapshot::{RegionHandle, UpdateSettings};
 use axum::extract::{MatchedPath, Request, State};
 use axum::middleware::Next;
 use axum::response::Response;
-use axum::routing::{get, post};
 use axum::Router;
 use metrics_exporter_prometheus::PrometheusHandle;
 use std::future::Future;
@@ -54,7 +62,7 @@ impl AppState {
             regions.push(RegionHandle::open(r.clone(), update.clone()).await);
         }
         let names: Vec<String> = regions.iter().map(|r| r.name.clone()).collect();
-        crate::serving::metrics::register_zero(&handlers::ANSWER_ROUTES, &names);
+        crate::serving::metrics::register_zero(&routes::answer_paths(), &names);
         AppState {
             catalog: Arc::new(Catalog::new(settings.serving.clone(), regions)),
             settings: Arc::new(settings),
@@ -87,7 +95,7 @@ async fn track(matched: Option<MatchedPath>, req: Request, next: Next) -> Respon
     // The templates are a closed set: label with a static string (no
     // allocation per request).
     let route: &'static str = match matched.as_ref().map(|m| m.as_str()) {
-        Some(p) => ROUTES.iter().copied().find(|r| *r == p).unwrap_or("other"),
+        Some(p) => routes::label(p),
         None => "unmatched",
     };
     let start = Instant::now();
@@ -114,30 +122,23 @@ async fn admit(State(state): State<AppState>, mut req: Request, next: Next) -> R
     resp
 }
 
-/// Route templates of the public router (metric labels).
-const ROUTES: [&str; 7] = [
-    "/v1/eta",
-    "/v1/eta/matrix",
-    "/v1/route",
-    "/healthz",
-    "/readyz",
-    "/metrics",
-    "/openapi.json",
-];
-
-/// The public router.
+/// The public router, built from [`routes::PUBLIC`]; answer routes sit
+/// behind admission control.
 pub fn app(state: AppState) -> Router {
-    let answers = Router::new()
-        .route("/v1/eta", get(handlers::eta_get).post(handlers::eta_post))
-        .route("/v1/eta/matrix", post(handlers::matrix))
-        .route("/v1/route", post(handlers::route))
-        .route_layer(axum::middleware::from_fn_with_state(state.clone(), admit));
+    let (answers, others) =
+        routes::PUBLIC
+            .iter()
+            .fold((Router::new(), Router::new()), |(answers, others), r| {
+                if r.answers {
+                    (answers.route(r.path, r.method_router()), others)
+                } else {
+                    (answers, others.route(r.path, r.method_router()))
+                }
+            });
+    let answers = answers.route_layer(axum::middleware::from_fn_with_state(state.clone(), admit));
     Router::new()
         .merge(answers)
-        .route("/healthz", get(handlers::healthz))
-        .route("/readyz", get(handlers::readyz))
-        .route("/metrics", get(handlers::metrics_text))
-        .route("/openapi.json", get(handlers::openapi))
+        .merge(others)
         .fallback(handlers::not_found)
         .layer(axum::extract::DefaultBodyLimit::disable())
         .layer(axum::middleware::from_fn(track))

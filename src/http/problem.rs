@@ -6,6 +6,7 @@
 //! carries internal error text: anything unexpected becomes a generic 500
 //! and the cause is logged by the tracing middleware, not returned.
 
+use super::dto::TableReportDto;
 use axum::http::{header, StatusCode};
 use axum::response::{IntoResponse, Response};
 use serde::Serialize;
@@ -30,10 +31,11 @@ pub enum ApiError {
     /// No such resource (e.g. an unknown region in the admin API).
     NotFound(String),
     /// The uploaded table was refused; `detail` summarises, `report` is the
-    /// validation report as JSON.
+    /// validation report (`null` when the table was refused before rows
+    /// were read, e.g. for its header).
     Rejected {
         detail: String,
-        report: serde_json::Value,
+        report: Option<Box<TableReportDto>>,
     },
     /// Content type the endpoint does not take.
     UnsupportedMediaType(String),
@@ -52,8 +54,10 @@ struct Problem<'a> {
     field: Option<&'a str>,
     #[serde(skip_serializing_if = "Option::is_none")]
     rule: Option<&'a str>,
+    /// Absent unless the problem is a rejected table; then the report or
+    /// `null`.
     #[serde(skip_serializing_if = "Option::is_none")]
-    report: Option<&'a serde_json::Value>,
+    report: Option<Option<&'a TableReportDto>>,
 }
 
 impl ApiError {
@@ -136,7 +140,7 @@ impl IntoResponse for ApiError {
             _ => (None, None),
         };
         let report = match &self {
-            ApiError::Rejected { report, .. } => Some(report),
+            ApiError::Rejected { report, .. } => Some(report.as_deref()),
             _ => None,
         };
         let status = self.status();

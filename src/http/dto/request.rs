@@ -1,13 +1,13 @@
-//! The HTTP API's own request and response shapes, and their validation.
+//! Request shapes of the answer API and their validation.
 //!
 //! Requests are parsed from raw bytes with `serde_path_to_error`, so a type
 //! error names its field (`from.lat`), and unknown fields are refused. After
-//! parsing, [`Validate`] checks every rule and returns the first broken one
-//! as a problem naming field and rule. The engine's types never appear here:
-//! handlers convert to and from these DTOs.
+//! parsing, `validate` checks every rule and returns the first broken one
+//! as a problem naming field and rule, yielding a [`Trip`] or [`MatrixTrip`]
+//! the handlers pass to the serving layer.
 
-use super::problem::ApiError;
 use crate::engine::geo::LatLon;
+use crate::http::problem::ApiError;
 use chrono::{DateTime, Utc};
 use serde::de::DeserializeOwned;
 use serde::{Deserialize, Serialize};
@@ -304,40 +304,4 @@ fn decode(s: &str) -> String {
         i += 1;
     }
     String::from_utf8_lossy(&out).into_owned()
-}
-
-/// Which snapshot answered.
-#[derive(Debug, Clone, Serialize, PartialEq)]
-pub struct SnapshotRef {
-    pub region: String,
-    pub generation: u64,
-}
-
-#[derive(Debug, Clone, Serialize, PartialEq)]
-pub struct EtaResponse {
-    pub eta_s: f64,
-    pub meters: f64,
-    pub tier: &'static str,
-    pub fallback_reason: Option<&'static str>,
-    pub speeds_age_s: Option<f64>,
-    pub snapshot: Option<SnapshotRef>,
-    pub from_snap_m: Option<f64>,
-    pub to_snap_m: Option<f64>,
-}
-
-#[derive(Debug, Clone, Serialize, PartialEq)]
-pub struct RouteResponse {
-    #[serde(flatten)]
-    pub eta: EtaResponse,
-    /// GeoJSON LineString (RFC 7946), `[lon, lat]` positions.
-    pub geometry: serde_json::Value,
-}
-
-#[derive(Debug, Clone, Serialize, PartialEq)]
-pub struct MatrixResponse {
-    pub eta_s: Vec<Vec<f64>>,
-    pub meters: Vec<Vec<f64>>,
-    pub tier: Vec<Vec<&'static str>>,
-    pub fallback_reason: Vec<Vec<Option<&'static str>>>,
-    pub snapshot: Option<SnapshotRef>,
 }

@@ -1,0 +1,161 @@
+//! Response shapes of the answer API (`/v1/eta`, `/v1/eta/matrix`,
+//! `/v1/route`) and their conversions from the serving layer's answers.
+//!
+//! Numbers are rounded to millimetres / milliseconds here, once, so every
+//! answer route reports the same precision.
+
+use crate::engine::geo::LatLon;
+use crate::serving::answer::{Answer, MatrixAnswer};
+use serde::Serialize;
+
+/// Rounds to three decimals (metres → millimetres, seconds → milliseconds).
+pub fn round3(x: f64) -> f64 {
+    (x * 1000.0).round() / 1000.0
+}
+
+/// Which snapshot answered.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct SnapshotRef {
+    pub region: String,
+    pub generation: u64,
+}
+
+impl SnapshotRef {
+    /// From the serving layer's `(region, generation)` pair.
+    pub fn from_pair(s: &Option<(String, u64)>) -> Option<SnapshotRef> {
+        s.as_ref().map(|(region, generation)| SnapshotRef {
+            region: region.clone(),
+            generation: *generation,
+        })
+    }
+}
+
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct EtaResponse {
+    pub eta_s: f64,
+    pub meters: f64,
+    pub tier: &'static str,
+    pub fallback_reason: Option<&'static str>,
+    pub speeds_age_s: Option<f64>,
+    pub snapshot: Option<SnapshotRef>,
+    pub from_snap_m: Option<f64>,
+    pub to_snap_m: Option<f64>,
+}
+
+impl From<&Answer> for EtaResponse {
+    fn from(a: &Answer) -> Self {
+        EtaResponse {
+            eta_s: round3(a.eta_s),
+            meters: round3(a.meters),
+            tier: a.tier.as_str(),
+            fallback_reason: a.reason.map(|r| r.as_str()),
+            speeds_age_s: a.speeds_age_s.map(round3),
+            snapshot: SnapshotRef::from_pair(&a.snapshot),
+            from_snap_m: a.from_snap_m.map(round3),
+            to_snap_m: a.to_snap_m.map(round3),
+        }
+    }
+}
+
+/// A GeoJSON LineString (RFC 7946 §3.1.4): `[lon, lat]` positions.
+///
+/// Fields in this order (`coordinates`, `type`) so the bytes on the wire
+/// stay those of the earlier `serde_json::Value` form, whose keys were sorted.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct LineString {
+    pub coordinates: Vec<[f64; 2]>,
+    /// Always `LineString`.
+    #[serde(rename = "type")]
+    pub kind: &'static str,
+}
+
+impl LineString {
+    pub fn new(points: impl IntoIterator<Item = LatLon>) -> Self {
+        LineString {
+            coordinates: points.into_iter().map(|p| [p.lon, p.lat]).collect(),
+            kind: "LineString",
+        }
+    }
+}
+
+/// An ETA with its path. Generic in the geometry's type only so a caller
+/// can give a ready-made GeoJSON value (the load tool's baseline server
+/// does); the service always sends a [`LineString`].
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct RouteResponse<G = LineString> {
+    #[serde(flatten)]
+    pub eta: EtaResponse,
+    /// GeoJSON LineString (RFC 7946), `[lon, lat]` positions.
+    pub geometry: G,
+}
+
+impl RouteResponse<LineString> {
+    /// The answer with its road path; heuristic answers have none, so their
+    /// geometry is the straight line from `from` to `to`.
+    pub fn new(a: &Answer, from: LatLon, to: LatLon) -> Self {
+        let geometry = match &a.geometry {
+            Some(g) => LineString::new(g.iter().copied()),
+            None => LineString::new([from, to]),
+        };
+        RouteResponse {
+            eta: EtaResponse::from(a),
+            geometry,
+        }
+    }
+}
+
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct MatrixResponse {
+    pub eta_s: Vec<Vec<f64>>,
+    pub meters: Vec<Vec<f64>>,
+    pub tier: Vec<Vec<&'static str>>,
+    pub fallback_reason: Vec<Vec<Option<&'static str>>>,
+    pub snapshot: Option<SnapshotRef>,
+}
+
+impl From<&MatrixAnswer> for MatrixResponse {
+    fn from(a: &MatrixAnswer) -> Self {
+        let rows = || (0..a.rows).map(|i| &a.cells[i * a.cols..(i + 1) * a.cols]);
+        MatrixResponse {
+            eta_s: rows()
+                .map(|row| row.iter().map(|c| round3(c.eta_s)).collect())
+                .collect(),
+            meters: rows()
+                .map(|row| row.iter().map(|c| round3(c.meters)).collect())
+                .collect(),
+            tier: rows()
+                .map(|row| row.iter().map(|c| c.tier.as_str()).collect())
+                .collect(),
+            fallback_reason: rows()
+                .map(|row| row.iter().map(|c| c.reason.map(|r| r.as_str())).collect())
+                .collect(),
+            snapshot: SnapshotRef::from_pair(&a.snapshot),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// RFC 7946 §3.1.1: positions are `[longitude, latitude]`; §3.1.4: a
+    /// LineString has `"type": "LineString"` and `coordinates`.
+    #[test]
+    fn line_string_is_lon_lat_geojson() {
+        let l = LineString::new([LatLon::new(10.0, 20.0), LatLon::new(11.0, 21.0)]);
+        let v = serde_json::to_value(&l).unwrap();
+        assert_eq!(
+            v,
+            serde_json::json!({"type": "LineString", "coordinates": [[20.0, 10.0], [21.0, 11.0]]})
+        );
+    }
+
+    /// Rounding half away from zero at the third decimal (`f64::round`).
+    #[test]
+    fn round3_keeps_three_decimals() {
+        // 1.0625 = 1 + 2^-4 is exact in binary: 1062.5 rounds up.
+        assert_eq!(round3(1.0625), 1.063);
+        assert_eq!(round3(1.0624), 1.062);
+        assert_eq!(round3(-0.0004), -0.0);
+    }
+}
