@@ -17,8 +17,10 @@
 //!
 //! # Layout
 //!
-//! Modules from the bottom up; each uses only modules above it in this
-//! list (never one below):
+//! Modules from the bottom up; each uses only modules earlier in this list
+//! (never a later one), so imports run one way. The run's result types live
+//! in `model`, which `engine` fills and `report`, `plot` and `output` read:
+//! none of those three imports another.
 //!
 //! 1. `workload` (request pools from the road graph), `guard` (loopback
 //!    targets only), `goals` (the goal thresholds), `noise` (the noise
@@ -29,10 +31,11 @@
 //! 4. `server` (the server under test, `/proc` readings), `admin` (admin
 //!    traffic beside a load), `baseline` (the in-process ceiling);
 //! 5. `suite`: the driver and its scenarios;
-//! 6. `draw` (pools from an artifact), `open` (the server of a command),
+//! 6. `cli`: the clap definitions (turned into the suite's settings);
+//! 7. `draw` (pools from an artifact), `open` (the server of a command),
 //!    `output` (`results.json`, `table.txt`, plots);
-//! 7. `cli` (clap definitions), then `commands` (one module per command);
-//! 8. `watchdog` and `signals` (process bounds), and `main`: parse, start
+//! 8. `commands`: one module per command;
+//! 9. `watchdog` and `signals` (process bounds), and `main`: parse, start
 //!    them, run the command, map the result to an exit code.
 
 mod admin;

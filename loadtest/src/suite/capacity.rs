@@ -8,58 +8,11 @@
 use crate::goals::STEP_MIN_ACHIEVED_SHARE;
 use crate::model::Summary;
 use crate::suite::ctx::{Ctx, System};
+use crate::suite::pools::Workset;
+use crate::suite::records::{Capacity, Probe, Step};
 use crate::suite::settings::Settings;
 use crate::workload::Workload;
-use serde::Serialize;
 use std::time::Duration;
-
-/// One capacity-search step's verdict.
-#[derive(Debug, Clone, Serialize)]
-pub struct Step {
-    pub rate: f64,
-    pub pass: bool,
-    pub why: String,
-    pub achieved: f64,
-    pub p99_ms: f64,
-    pub errors: u64,
-    /// Cores taken by other work and by the hypervisor during the step.
-    pub other_cores: f64,
-    pub stolen_cores: f64,
-}
-
-impl Step {
-    fn of(rate: f64, why: &Option<String>, s: &Summary) -> Step {
-        Step {
-            rate,
-            pass: why.is_none(),
-            why: why.clone().unwrap_or_else(|| "ok".into()),
-            achieved: s.achieved_rate,
-            p99_ms: s.latency_ms.p99,
-            errors: s.error_total,
-            other_cores: s
-                .machine
-                .as_ref()
-                .map(|m| m.other_cpu_s / m.wall_s.max(1e-9))
-                .unwrap_or(0.0),
-            stolen_cores: s
-                .machine
-                .as_ref()
-                .map(|m| m.stolen_cpu_s / m.wall_s.max(1e-9))
-                .unwrap_or(0.0),
-        }
-    }
-}
-
-/// A capacity search.
-#[derive(Debug, Clone, Serialize)]
-pub struct Probe {
-    pub scenario: String,
-    pub system: String,
-    pub workload: String,
-    /// The last rate that passed every criterion.
-    pub capacity: Option<f64>,
-    pub steps: Vec<Step>,
-}
 
 /// Where the search goes after a step: the next rate, or `None` when done.
 /// `refined` counts the bisection steps taken so far.
@@ -179,22 +132,6 @@ impl Ctx {
         }
         None
     }
-}
-
-/// A workload the suite measures: its name, its pool, and the first rate
-/// the capacity search tries on hodos (the baseline starts at 4×).
-pub struct Workset {
-    pub name: &'static str,
-    pub w: Workload,
-    pub start: f64,
-}
-
-/// The capacity of one workload on hodos and on the baseline.
-#[derive(Debug, Clone)]
-pub struct Capacity {
-    pub workload: String,
-    pub hodos: Option<f64>,
-    pub baseline: Option<f64>,
 }
 
 impl Ctx {

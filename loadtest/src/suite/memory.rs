@@ -6,19 +6,8 @@
 use crate::admin;
 use crate::server::{proc_stat, ProcStat};
 use crate::suite::ctx::{Ctx, System};
-use serde::Serialize;
+use crate::suite::records::Memory;
 use std::time::{Duration, Instant};
-
-/// Resident memory of the server at one moment.
-#[derive(Debug, Clone, Serialize)]
-pub struct Memory {
-    pub when: String,
-    pub rss_mb: f64,
-    pub hwm_mb: f64,
-    /// Smallest and largest VmRSS over a sampling window, when sampled.
-    pub min_rss_mb: Option<f64>,
-    pub max_rss_mb: Option<f64>,
-}
 
 /// Smallest and largest VmRSS (MB) over a sampling window, and the last
 /// reading.

@@ -6,13 +6,17 @@
 //! # Layout
 //!
 //! - `settings`: the knobs shared by every scenario;
-//! - `pools`: the request pools and what is drawn from the artifact;
+//! - `pools`: the request pools, what is drawn from the artifact, and the
+//!   workloads the suite measures;
+//! - `records`: what the suite records (plain data, below `ctx`);
 //! - `ctx`: the running state (`Ctx`) and which server a run targets;
+//!   every module below adds methods to `Ctx` and uses only `ctx` and the
+//!   modules above it;
 //! - `drive`: one measured run with CPU and memory readings, noise redo;
 //! - `observe`: waiting for answer tiers, scraping `/metrics`;
 //! - scenarios: `cold_start`, `capacity`, `steady`, `overload`, `stale`,
 //!   `storm`, `memory`;
-//! - `run`: the suite's order (the driver) and the figures it keeps;
+//! - `run`: the suite's order (the driver), keeping the figures for the goals;
 //! - `verdicts`: the figures held against `crate::goals`.
 
 mod capacity;
@@ -23,6 +27,7 @@ mod memory;
 mod observe;
 mod overload;
 mod pools;
+mod records;
 mod run;
 mod settings;
 mod stale;
@@ -30,9 +35,7 @@ mod steady;
 mod storm;
 mod verdicts;
 
-pub use capacity::Probe;
 pub use ctx::{Ctx, System};
-pub use memory::Memory;
 pub use pools::{pick, Drawn, Workloads};
+pub use records::{Goal, Memory, Probe};
 pub use settings::Settings;
-pub use verdicts::Goal;

@@ -4,22 +4,11 @@
 //! what the machine itself allows.
 
 use crate::goals::OVERLOAD_MULTIPLES;
-use crate::model::Summary;
-use crate::suite::capacity::{Capacity, Workset};
 use crate::suite::ctx::{Ctx, System};
+use crate::suite::pools::Workset;
+use crate::suite::records::{Capacity, Overload};
 use crate::workload::Workload;
 use std::time::Duration;
-
-/// One overload run and, where a baseline runs, the baseline at the same
-/// offered rate (the machine's own ceiling for that load).
-#[derive(Clone)]
-pub struct Overload {
-    pub workload: String,
-    /// Multiple of the capacity offered.
-    pub k: f64,
-    pub hodos: Summary,
-    pub baseline: Option<Summary>,
-}
 
 impl Ctx {
     /// Every overload run of the suite (ETA and 1×50 matrices).

@@ -1,6 +1,7 @@
 //! The request pools a suite draws from, one per query workload, the pool
-//! of a given kind for single-scenario commands, and everything drawn from
-//! the served artifact (pools, edges for admin traffic, bounding box).
+//! of a given kind for single-scenario commands, everything drawn from the
+//! served artifact (pools, edges for admin traffic, bounding box), and the
+//! workloads the suite measures with their first capacity-search rate.
 
 use crate::workload::{EdgeRef, Kind, Workload};
 use hodos::engine::geo::LatLon;
@@ -32,4 +33,12 @@ pub struct Drawn {
     pub lo: LatLon,
     pub hi: LatLon,
     pub nodes: usize,
+}
+
+/// A workload the suite measures: its name, its pool, and the first rate
+/// the capacity search tries on hodos (the baseline starts at 4×).
+pub struct Workset {
+    pub name: &'static str,
+    pub w: Workload,
+    pub start: f64,
 }

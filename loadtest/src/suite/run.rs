@@ -6,19 +6,9 @@
 
 use crate::goals::STEADY_SHARE_OF_CAPACITY;
 use crate::model::Summary;
-use crate::suite::capacity::{Capacity, Workset};
 use crate::suite::ctx::{Ctx, System};
-use crate::suite::overload::Overload;
-
-/// The suite's figures, kept until the memory phase is done.
-pub struct SuiteOutcome {
-    pub(crate) caps: Vec<Capacity>,
-    pub(crate) steady: Option<Summary>,
-    pub(crate) overloads: Vec<Overload>,
-    /// The steady run just before the storm, at the storm's rate.
-    pub(crate) pre: Summary,
-    pub(crate) storm: Option<Summary>,
-}
+use crate::suite::pools::Workset;
+use crate::suite::records::SuiteOutcome;
 
 impl Ctx {
     /// The whole run: every scenario, back to back, and the goals.

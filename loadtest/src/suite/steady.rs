@@ -3,8 +3,9 @@
 
 use crate::goals::STEADY_SHARE_OF_CAPACITY;
 use crate::model::Summary;
-use crate::suite::capacity::{Capacity, Workset};
 use crate::suite::ctx::{Ctx, System};
+use crate::suite::pools::Workset;
+use crate::suite::records::Capacity;
 
 impl Ctx {
     /// One steady run per workload with a capacity; returns the single-ETA

@@ -9,18 +9,8 @@ use crate::goals::{
     STORM_P99_VS_STEADY, TWO_METRICS_RSS_MB,
 };
 use crate::model::Summary;
-use crate::suite::capacity::Capacity;
 use crate::suite::ctx::Ctx;
-use crate::suite::overload::Overload;
-use serde::Serialize;
-
-/// One goal and how the run did against it.
-#[derive(Debug, Clone, Serialize)]
-pub struct Goal {
-    pub goal: String,
-    pub measured: String,
-    pub pass: Option<bool>,
-}
+use crate::suite::records::{Capacity, Goal, Overload, SuiteOutcome};
 
 /// Capacity of one workload (a goal for single ETAs, reported for others).
 fn capacity_goal(c: &Capacity) -> Goal {
@@ -109,7 +99,7 @@ impl Ctx {
         }
     }
 
-    fn goals(&mut self, o: &crate::suite::run::SuiteOutcome) {
+    fn goals(&mut self, o: &SuiteOutcome) {
         let mut g: Vec<Goal> = o.caps.iter().map(capacity_goal).collect();
         g.extend(o.steady.as_ref().map(steady_goal));
         g.extend(o.overloads.iter().map(overload_goal));
