@@ -16,7 +16,7 @@
 //! last scheduled time is given up (tickets never sent count as `unsent`,
 //! requests in flight as `timeout`), so a run always ends by itself.
 
-use crate::report::Tally;
+use crate::model::{Outcome, Plan, Tally};
 use crate::workload::{Kind, Workload};
 use bytes::Bytes;
 use hdrhistogram::Histogram;
@@ -27,50 +27,11 @@ use std::net::SocketAddr;
 use std::sync::Arc;
 use std::time::{Duration, Instant};
 
-/// One run at one rate.
-#[derive(Debug, Clone)]
-pub struct Plan {
-    /// Scenario name (report key).
-    pub scenario: String,
-    /// `hodos` or `baseline`.
-    pub system: String,
-    pub target: SocketAddr,
-    pub workload: Workload,
-    /// Arrivals per second.
-    pub rate: f64,
-    /// No ticket is scheduled after this.
-    pub duration: Duration,
-    /// No more tickets than this.
-    pub max_requests: u64,
-    /// Size of the connection pool.
-    pub connections: usize,
-    /// Longest wait for one answer once sent.
-    pub request_timeout: Duration,
-    /// How long after the last scheduled time answers are still awaited.
-    pub drain: Duration,
-    /// Run the pacer thread at the lowest real-time priority.
-    pub realtime_pacer: bool,
-}
-
 /// A scheduled arrival.
 #[derive(Debug, Clone, Copy)]
 struct Ticket {
     seq: u64,
     at: Instant,
-}
-
-/// What one run measured.
-#[derive(Debug)]
-pub struct Outcome {
-    pub plan: Plan,
-    /// Tickets the pacer released.
-    pub scheduled: u64,
-    /// Merged counts and latencies of all connections.
-    pub tally: Tally,
-    /// How late the pacer released tickets (µs): the generator's own error.
-    pub pacer_late: Histogram<u64>,
-    /// From the first scheduled time to the last answer.
-    pub elapsed: Duration,
 }
 
 type Sender = SendRequest<Full<Bytes>>;

@@ -2,26 +2,12 @@
 //! of scenarios in one chart, and latency over time for one scenario.
 //!
 //! The percentile axis is in "nines": x = −log10(1 − q), so p90 is 1, p99
-//! is 2 and p99.9 is 3, which spreads the tail out where it matters.
+//! is 2 and p99.9 is 3, which spreads the tail out where it matters (the
+//! curves themselves are computed in `model::latency`).
 
-use crate::report::{Summary, Window};
-use hdrhistogram::Histogram;
+use crate::model::{Summary, Window};
 use plotters::prelude::*;
 use std::path::Path;
-
-/// Latency (ms) at x = 0, 0.05, ... 4 nines of one histogram.
-pub fn curve(h: &Histogram<u64>) -> Vec<(f64, f64)> {
-    if h.is_empty() {
-        return Vec::new();
-    }
-    (0..=80)
-        .map(|i| {
-            let x = i as f64 * 0.05;
-            let q = 1.0 - 10f64.powf(-x);
-            (x, h.value_at_quantile(q).max(1) as f64 / 1000.0)
-        })
-        .collect()
-}
 
 fn y_range(max: f64, min: f64) -> (f64, f64) {
     let lo = 10f64.powf(min.max(0.001).log10().floor());

@@ -283,6 +283,11 @@ pub async fn spawn_external(
 }
 
 impl Spawned {
+    /// The child's pid (0 if unknown).
+    pub fn child_id(&self) -> u32 {
+        self.info.pid.unwrap_or(0)
+    }
+
     /// SIGTERM, up to 15 s for the drain, then SIGKILL.
     pub fn stop(&mut self) {
         if let Ok(Some(_)) = self.child.try_wait() {

@@ -1,0 +1,148 @@
+//! One measured run at a fixed rate: the engine's run wrapped in readings
+//! of server, generator and machine CPU (and server memory) before and
+//! after, its table row printed, and a run spoiled by other work redone.
+
+use crate::engine;
+use crate::model::{MachineUse, Plan, ServerUse, Summary};
+use crate::noise::QUIET_CORES;
+use crate::report;
+use crate::server::{self, proc_stat, ProcStat};
+use crate::suite::ctx::{Ctx, System};
+use crate::workload::Workload;
+use std::time::{Duration, Instant};
+
+/// `/proc` readings taken around a run.
+struct Readings {
+    /// The server's process (hodos runs with a known pid only).
+    server: Option<ProcStat>,
+    /// This process: the generator (and the server when in process).
+    generator: Option<ProcStat>,
+    /// Machine-wide (busy, stolen) CPU seconds.
+    machine: Option<(f64, f64)>,
+}
+
+impl Readings {
+    fn now(server_pid: Option<u32>) -> Readings {
+        Readings {
+            server: server_pid.and_then(proc_stat),
+            generator: proc_stat(std::process::id()),
+            machine: server::machine_cpu(),
+        }
+    }
+}
+
+impl Ctx {
+    /// One run at a fixed rate; prints its row.
+    #[allow(clippy::too_many_arguments)]
+    pub async fn drive(
+        &mut self,
+        scenario: &str,
+        sys: System,
+        w: &Workload,
+        rate: f64,
+        duration: Duration,
+        connections: usize,
+        drain: Duration,
+    ) -> Summary {
+        let mut attempt = 0;
+        loop {
+            let sum = self
+                .drive_once(scenario, sys, w, rate, duration, connections, drain)
+                .await;
+            let noisy = report::is_noisy(&sum);
+            let row = report::table_row(&sum);
+            if !noisy || attempt >= self.s.noise_retries || !self.s.retry_noisy {
+                self.print(row);
+                return sum;
+            }
+            // A run spoiled by other work says nothing about the server:
+            // note it, wait for the machine to calm down, and run it again.
+            self.print(format!("{row}  -> redone"));
+            attempt += 1;
+            server::wait_quiet(Duration::from_secs(30), QUIET_CORES).await;
+        }
+    }
+
+    /// One measured run (no printing, no retry).
+    #[allow(clippy::too_many_arguments)]
+    async fn drive_once(
+        &mut self,
+        scenario: &str,
+        sys: System,
+        w: &Workload,
+        rate: f64,
+        duration: Duration,
+        connections: usize,
+        drain: Duration,
+    ) -> Summary {
+        let plan = Plan {
+            scenario: scenario.to_string(),
+            system: sys.name().to_string(),
+            target: self.target(sys),
+            workload: w.clone(),
+            rate,
+            duration,
+            max_requests: self.s.max_requests,
+            connections,
+            request_timeout: self.s.request_timeout.max(drain),
+            drain,
+            realtime_pacer: self.s.realtime_pacer,
+        };
+        if !self.s.quiet_per_run.is_zero() {
+            // Other work on a shared machine spoils a run: give it a
+            // moment to pass (bounded), and record what was left.
+            server::wait_quiet(self.s.quiet_per_run, QUIET_CORES).await;
+        }
+        let spid = if sys == System::Hodos {
+            self.server.pid
+        } else {
+            None
+        };
+        let before = Readings::now(spid);
+        let la = server::loadavg_1m();
+        let t0 = Instant::now();
+        let out = engine::run(&plan).await;
+        let wall = t0.elapsed().as_secs_f64();
+        let after = Readings::now(spid);
+        let mut sum = Summary::of(&out);
+        if let (Some(pid), Some(a), Some(b)) = (spid, before.server, after.server) {
+            sum.server = Some(self.server_use(pid, &a, &b, sum.ok));
+        }
+        if let (Some(a), Some(b), Some(ma), Some(mb)) = (
+            before.generator,
+            after.generator,
+            before.machine,
+            after.machine,
+        ) {
+            let gen = b.cpu_s - a.cpu_s;
+            let srv = match (&sum.server, self.server.in_process) {
+                (Some(s), false) => s.cpu_s,
+                _ => 0.0,
+            };
+            let busy = mb.0 - ma.0;
+            sum.machine = Some(MachineUse {
+                wall_s: wall,
+                busy_cpu_s: busy,
+                stolen_cpu_s: mb.1 - ma.1,
+                generator_cpu_s: gen,
+                server_cpu_s: srv,
+                other_cpu_s: (busy - gen - srv).max(0.0),
+                loadavg_1m_before: la,
+            });
+        }
+        sum
+    }
+
+    /// The server's CPU and memory over a run, from `/proc` before and after.
+    fn server_use(&self, pid: u32, a: &ProcStat, b: &ProcStat, answers: u64) -> ServerUse {
+        let cpu = b.cpu_s - a.cpu_s;
+        ServerUse {
+            pid,
+            in_process: self.server.in_process,
+            cpu_s: cpu,
+            cpu_ms_per_answer: 1000.0 * cpu / answers.max(1) as f64,
+            rss_mb: b.rss_kb as f64 / 1024.0,
+            hwm_mb: b.hwm_kb as f64 / 1024.0,
+        }
+    }
+}
