@@ -12,10 +12,10 @@ mod common;
 
 use criterion::{criterion_group, criterion_main, Criterion};
 use hodos::engine::build::{build_from_graph, Quiet};
-use hodos::engine::cch::matrix::ManyToMany;
+use hodos::engine::cch::matrix::{ManyToMany, NodeCells};
 use hodos::engine::cch::CchQuery;
 use hodos::engine::geo::LatLon;
-use hodos::engine::region::matrix::{matrix, PointMatrix};
+use hodos::engine::region::matrix::{matrix, MatrixLimits, PointMatrix};
 use hodos::engine::region::Region;
 use hodos::testkit::nodes;
 use std::hint::black_box;
@@ -61,14 +61,28 @@ fn bench_matrix(c: &mut Criterion) {
             group.sample_size(10);
         }
         let out = m2m
-            .run_nodes(cch, cm, &sources, &targets, None, &mut time, &mut len)
+            .run_nodes(
+                cch,
+                cm,
+                &sources,
+                &targets,
+                None,
+                NodeCells::new(&mut time, &mut len),
+            )
             .expect("matrix");
         eprintln!("{ns}x{nt}: {} bucket cells", out.bucket_cells);
         group.bench_function(format!("nodes_{ns}x{nt}"), |b| {
             b.iter(|| {
                 black_box(
-                    m2m.run_nodes(cch, cm, &sources, &targets, None, &mut time, &mut len)
-                        .expect("matrix"),
+                    m2m.run_nodes(
+                        cch,
+                        cm,
+                        &sources,
+                        &targets,
+                        None,
+                        NodeCells::new(&mut time, &mut len),
+                    )
+                    .expect("matrix"),
                 )
             })
         });
@@ -107,7 +121,19 @@ fn bench_matrix(c: &mut Criterion) {
     let mut out = PointMatrix::default();
     group.bench_function("coordinates_100x100", |b| {
         b.iter(|| {
-            matrix(region, &metric, &mut m2m, from, to, 500.0, None, &mut out).expect("matrix");
+            matrix(
+                region,
+                &metric,
+                &mut m2m,
+                from,
+                to,
+                MatrixLimits {
+                    max_snap_m: 500.0,
+                    deadline: None,
+                },
+                &mut out,
+            )
+            .expect("matrix");
             black_box(out.rows_done)
         })
     });

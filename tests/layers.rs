@@ -5,7 +5,8 @@
 //! Layers, bottom to top: `engine` → `serving` → `http` → the top
 //! (`config`, `demo`, `testkit`, `lib.rs`; the binary uses `hodos::`).
 //! Inside `engine`: `geo` → `graph` → {`import`, `order`, `snap`} → `cch`
-//! → `metric` → `calibration` → `artifact` → {`region`, `build`}.
+//! → `metric` → `calibration` → `artifact` → {`region`, `build`} →
+//! `testing` (test-only fixtures).
 //!
 //! Lines that are comments are skipped, and so is everything from the
 //! first `#[cfg(test)]` of a file on (unit tests may reach anywhere).
@@ -36,6 +37,9 @@ fn engine_rank(module: &str) -> Option<u8> {
         "calibration" => 5,
         "artifact" => 6,
         "region" | "build" => 7,
+        // Test-only fixtures (`#[cfg(test)] mod testing`): may use every
+        // engine module, none may use it.
+        "testing" => 8,
         _ => return None,
     })
 }

@@ -20,12 +20,12 @@ use common::graphs::{add_link, grid_nodes, hierarchy, point_in_box, region_of, L
 use common::{dimacs_ny, fixture, petgraph_of, random_speeds, reference_dists, SplitMix64};
 use hodos::engine::build::{build_from_graph, Quiet, Source};
 use hodos::engine::cch::customize::{CustomizedMetric, INFINITY};
-use hodos::engine::cch::matrix::{ManyToMany, MatrixError};
+use hodos::engine::cch::matrix::{ManyToMany, MatrixError, NodeCells};
 use hodos::engine::cch::query::Endpoint;
 use hodos::engine::cch::{Cch, CchQuery};
 use hodos::engine::geo::LatLon;
 use hodos::engine::graph::{RoadGraph, NONE};
-use hodos::engine::region::matrix::{matrix, Cell, PointMatrix};
+use hodos::engine::region::matrix::{matrix, Cell, MatrixLimits, PointMatrix};
 use hodos::engine::region::{Metric, Region};
 use petgraph::graph::{DiGraph, NodeIndex};
 use std::alloc::{GlobalAlloc, Layout, System};
@@ -148,7 +148,14 @@ fn check_node_lists(
 ) -> usize {
     let (mut time, mut len) = (Vec::new(), Vec::new());
     let out = m2m
-        .run_nodes(cch, metric, sources, targets, None, &mut time, &mut len)
+        .run_nodes(
+            cch,
+            metric,
+            sources,
+            targets,
+            None,
+            NodeCells::new(&mut time, &mut len),
+        )
         .expect("matrix");
     assert_eq!(out.rows_done, sources.len(), "{label}");
     assert_eq!(time.len(), sources.len() * targets.len());
@@ -270,7 +277,16 @@ fn check_points(region: &Region, metric: &Metric, m2m: &mut ManyToMany, label: &
     from.splice(0..0, road.iter().copied());
     to.extend(road.iter().rev().copied());
     let mut out = PointMatrix::default();
-    matrix(region, metric, m2m, &from, &to, max_snap, None, &mut out).expect("matrix");
+    matrix(
+        region,
+        metric,
+        m2m,
+        &from,
+        &to,
+        limits(max_snap, None),
+        &mut out,
+    )
+    .expect("matrix");
     assert_eq!(out.rows_done, from.len());
     assert_eq!(out.cells.len(), from.len() * to.len());
     let mut q = CchQuery::new(&region.cch);
@@ -340,8 +356,7 @@ fn check_points(region: &Region, metric: &Metric, m2m: &mut ManyToMany, label: &
         m2m,
         &from,
         &to,
-        max_snap,
-        Some(past),
+        limits(max_snap, Some(past)),
         &mut late,
     )
     .expect("late");
@@ -355,9 +370,27 @@ fn check_points(region: &Region, metric: &Metric, m2m: &mut ManyToMany, label: &
     // Warmed up (same sizes): the call again, allocation-free apart from
     // snapping, which is the snap index's business.
     let mut again = PointMatrix::default();
-    matrix(region, metric, m2m, &from, &to, max_snap, None, &mut again).expect("again");
+    matrix(
+        region,
+        metric,
+        m2m,
+        &from,
+        &to,
+        limits(max_snap, None),
+        &mut again,
+    )
+    .expect("again");
     let allocs = allocations_during(|| {
-        matrix(region, metric, m2m, &from, &to, max_snap, None, &mut again).expect("again");
+        matrix(
+            region,
+            metric,
+            m2m,
+            &from,
+            &to,
+            limits(max_snap, None),
+            &mut again,
+        )
+        .expect("again");
     });
     let snapping = allocations_during(|| {
         for &p in from.iter().chain(&to) {
@@ -464,8 +497,7 @@ fn passed_deadline_and_bad_input() {
             &nodes,
             &nodes,
             Some(past),
-            &mut time,
-            &mut len,
+            NodeCells::new(&mut time, &mut len),
         )
         .expect("late run");
     assert_eq!(out.rows_done, 0);
@@ -480,8 +512,7 @@ fn passed_deadline_and_bad_input() {
             &nodes,
             &nodes,
             Some(ahead),
-            &mut time,
-            &mut len,
+            NodeCells::new(&mut time, &mut len),
         )
         .expect("run");
     assert_eq!(out.rows_done, nodes.len());
@@ -489,23 +520,51 @@ fn passed_deadline_and_bad_input() {
     // Warmed up: the same call, and a smaller one, allocate nothing.
     let few = &nodes[..30];
     let allocs = allocations_during(|| {
-        m2m.run_nodes(&cch, &metric, &nodes, &nodes, None, &mut time, &mut len)
-            .expect("run");
-        m2m.run_nodes(&cch, &metric, few, &nodes[10..], None, &mut time, &mut len)
-            .expect("run");
+        m2m.run_nodes(
+            &cch,
+            &metric,
+            &nodes,
+            &nodes,
+            None,
+            NodeCells::new(&mut time, &mut len),
+        )
+        .expect("run");
+        m2m.run_nodes(
+            &cch,
+            &metric,
+            few,
+            &nodes[10..],
+            None,
+            NodeCells::new(&mut time, &mut len),
+        )
+        .expect("run");
     });
     assert_eq!(allocs, 0, "a warmed-up matrix call allocates nothing");
 
     // Bad input is an error, not a panic.
     let bad = [Endpoint::at(g.num_nodes() as u32)];
     let ok = [Endpoint::at(0)];
-    let r = m2m.run(&cch, &metric, &[&ok], &[&bad], None, &mut time, &mut len);
+    let r = m2m.run(
+        &cch,
+        &metric,
+        &[&ok],
+        &[&bad],
+        None,
+        NodeCells::new(&mut time, &mut len),
+    );
     assert!(
         matches!(r, Err(MatrixError::NodeOutOfRange { .. })),
         "{r:?}"
     );
     let many = [Endpoint::at(0); 5];
-    let r = m2m.run(&cch, &metric, &[&many], &[&ok], None, &mut time, &mut len);
+    let r = m2m.run(
+        &cch,
+        &metric,
+        &[&many],
+        &[&ok],
+        None,
+        NodeCells::new(&mut time, &mut len),
+    );
     assert!(
         matches!(r, Err(MatrixError::TooManyEndpoints { .. })),
         "{r:?}"
@@ -516,8 +575,7 @@ fn passed_deadline_and_bad_input() {
         &[&ok],
         &[&ok],
         None,
-        &mut time,
-        &mut len,
+        NodeCells::new(&mut time, &mut len),
     );
     assert!(
         matches!(other, Err(MatrixError::ScratchMismatch { .. })),
@@ -525,7 +583,14 @@ fn passed_deadline_and_bad_input() {
     );
     // Empty sides are fine.
     let out = m2m
-        .run(&cch, &metric, &[], &[&ok], None, &mut time, &mut len)
+        .run(
+            &cch,
+            &metric,
+            &[],
+            &[&ok],
+            None,
+            NodeCells::new(&mut time, &mut len),
+        )
         .expect("empty");
     assert_eq!((out.rows_done, time.len()), (0, 0));
     // And the scratch still gives exact answers afterwards.
@@ -564,4 +629,12 @@ fn ny_node_matrix_equals_dijkstra() {
         "NY 20x20",
     );
     assert_eq!(r, 400);
+}
+
+/// The snap limit and deadline of a coordinate matrix.
+fn limits(max_snap_m: f64, deadline: Option<Instant>) -> MatrixLimits {
+    MatrixLimits {
+        max_snap_m,
+        deadline,
+    }
 }

@@ -163,9 +163,9 @@ impl ManyToMany {
         }
     }
 
-    /// Computes the `sources × targets` matrix, row-major, into `out_time`
+    /// Computes the `sources × targets` matrix, row-major, into `out.time`
     /// (metric units, [`INFINITY`] when unreachable or not computed) and
-    /// `out_len_cm` (`u64::MAX` where the time is INFINITY). Each source or
+    /// `out.len_cm` (`u64::MAX` where the time is INFINITY). Each source or
     /// target is a list of at most [`MAX_ENDPOINTS`] endpoints (a snapped
     /// point leaves through both ends of its road), with partial costs.
     ///
@@ -174,7 +174,6 @@ impl ManyToMany {
     /// order, checking `deadline` before each. Rows from the first one found
     /// past the deadline on are left INFINITY; [`MatrixOutcome::rows_done`]
     /// says how many were computed.
-    #[allow(clippy::too_many_arguments)] // public signature, kept for callers
     pub fn run(
         &mut self,
         cch: &Cch,
@@ -182,8 +181,7 @@ impl ManyToMany {
         sources: &[&[Endpoint]],
         targets: &[&[Endpoint]],
         deadline: Option<Instant>,
-        out_time: &mut Vec<u32>,
-        out_len_cm: &mut Vec<u64>,
+        out: NodeCells<'_>,
     ) -> Result<MatrixOutcome, MatrixError> {
         self.run_points(
             cch,
@@ -191,15 +189,11 @@ impl ManyToMany {
             Points::new(sources.len(), |i| sources[i]),
             Points::new(targets.len(), |j| targets[j]),
             deadline,
-            NodeCells {
-                time: out_time,
-                len_cm: out_len_cm,
-            },
+            out,
         )
     }
 
     /// [`run`](Self::run) with node-to-node endpoints (road node ids).
-    #[allow(clippy::too_many_arguments)] // public signature, kept for callers
     pub fn run_nodes(
         &mut self,
         cch: &Cch,
@@ -207,8 +201,7 @@ impl ManyToMany {
         sources: &[u32],
         targets: &[u32],
         deadline: Option<Instant>,
-        out_time: &mut Vec<u32>,
-        out_len_cm: &mut Vec<u64>,
+        out: NodeCells<'_>,
     ) -> Result<MatrixOutcome, MatrixError> {
         self.run_points(
             cch,
@@ -216,10 +209,7 @@ impl ManyToMany {
             Points::new(sources.len(), |i| [Endpoint::at(sources[i])]),
             Points::new(targets.len(), |j| [Endpoint::at(targets[j])]),
             deadline,
-            NodeCells {
-                time: out_time,
-                len_cm: out_len_cm,
-            },
+            out,
         )
     }
 
@@ -581,9 +571,20 @@ impl<F> Points<F> {
 
 /// Where a node-level matrix goes: row-major times and lengths (see
 /// [`ManyToMany::run`]).
-pub(crate) struct NodeCells<'a> {
-    pub(crate) time: &'a mut Vec<u32>,
-    pub(crate) len_cm: &'a mut Vec<u64>,
+/// Where a node-level run writes its row-major cells: the caller's
+/// buffers, reused between calls so a warm run allocates nothing.
+#[derive(Debug)]
+pub struct NodeCells<'a> {
+    /// Travel time per cell in metric units ([`INFINITY`] when none).
+    pub time: &'a mut Vec<u32>,
+    /// Length per cell in cm (`u64::MAX` where the time is INFINITY).
+    pub len_cm: &'a mut Vec<u64>,
+}
+
+impl<'a> NodeCells<'a> {
+    pub fn new(time: &'a mut Vec<u32>, len_cm: &'a mut Vec<u64>) -> Self {
+        NodeCells { time, len_cm }
+    }
 }
 
 /// Whether `deadline` has passed.

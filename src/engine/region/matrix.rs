@@ -103,22 +103,33 @@ impl Snapped {
     }
 }
 
+/// The bounds a coordinate matrix works within.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct MatrixLimits {
+    /// Farthest a point may be from a road and still be snapped, metres.
+    pub max_snap_m: f64,
+    /// Rows not started by then are left [`Cell::NotComputed`].
+    pub deadline: Option<Instant>,
+}
+
 /// Travel-time matrix between coordinates: each point snapped once (within
 /// `max_snap_m`), then one bucket many-to-many over the snapped points. A
 /// point off the network makes its row or column [`Cell::Unavailable`], not
 /// the whole matrix. Cells equal [`Region::eta`] for the same pair,
 /// including trips that stay on one road.
-#[allow(clippy::too_many_arguments)] // public signature, kept for callers
 pub fn matrix(
     region: &Region,
     metric: &Metric,
     m2m: &mut ManyToMany,
     from: &[LatLon],
     to: &[LatLon],
-    max_snap_m: f64,
-    deadline: Option<Instant>,
+    limits: MatrixLimits,
     out: &mut PointMatrix,
 ) -> Result<(), MatrixError> {
+    let MatrixLimits {
+        max_snap_m,
+        deadline,
+    } = limits;
     let cell_count = from
         .len()
         .checked_mul(to.len())

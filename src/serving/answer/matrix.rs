@@ -8,8 +8,8 @@ use super::scratch::{with_scratch, ScratchCache};
 use super::{Catalog, CellAnswer, MatrixAnswer};
 use crate::engine::calibration::Calibration;
 use crate::engine::cch::matrix::ManyToMany;
-use crate::engine::region::matrix::{matrix, Cell, PointMatrix};
 use crate::engine::geo::LatLon;
+use crate::engine::region::matrix::{matrix, Cell, MatrixLimits, PointMatrix};
 use crate::serving::tier::{FallbackReason, Tier};
 use chrono::{DateTime, Utc};
 use std::cell::RefCell;
@@ -104,8 +104,10 @@ pub async fn matrix_trip(
                     m2m,
                     &from2,
                     &to2,
-                    max_snap,
-                    Some(deadline),
+                    MatrixLimits {
+                        max_snap_m: max_snap,
+                        deadline: Some(deadline),
+                    },
                     out,
                 )
                 .map(|_| out.cells.clone())
