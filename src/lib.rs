@@ -2,8 +2,8 @@
 //!
 //! # Layout
 //!
-//! The folders are the layers; each uses only the ones above it in this
-//! list (checked by `tests/layers.rs`):
+//! The folders are the layers, bottom first; each uses only the ones listed
+//! before it (checked by `tests/layers.rs`):
 //!
 //! - [`engine`]: road graphs, import, nested-dissection order, the
 //!   customizable contraction hierarchy and its queries and matrices,

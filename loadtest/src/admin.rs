@@ -10,6 +10,7 @@ use crate::workload::EdgeRef;
 use bytes::Bytes;
 use chrono::{SecondsFormat, Utc};
 use hdrhistogram::Histogram;
+use hodos::testkit::HistoricalCsv;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use serde::Serialize;
@@ -84,20 +85,15 @@ pub fn historical_table(
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
     let h = hodos::serving::speeds::hour_of_week(Utc::now(), tz) as u32;
     let hours = [(h + 167) % 168, h, (h + 1) % 168];
-    let mut s = String::from("from_node,to_node,hour_of_week,speed_kmh\n");
+    let mut table = HistoricalCsv::with_header();
     for _ in 0..n {
         let e = &edges[rng.random_range(0..edges.len())];
+        let speed = (e.free_kmh as f64 * factor).max(1.0);
         for hr in hours {
-            let _ = writeln!(
-                s,
-                "{},{},{hr},{:.1}",
-                e.from_node,
-                e.to_node,
-                (e.free_kmh as f64 * factor).max(1.0)
-            );
+            table.row(e.from_node, e.to_node, hr, format_args!("{speed:.1}"));
         }
     }
-    Bytes::from(s)
+    Bytes::from(table.into_string())
 }
 
 fn finish(mut r: StreamReport, h: &Histogram<u64>) -> StreamReport {

@@ -16,7 +16,8 @@ use axum::response::{IntoResponse, Response};
 use axum::routing::post;
 use axum::{Json, Router};
 use hodos::http::dto::{
-    parse_json, EtaRequest, EtaResponse, MatrixRequest, MatrixResponse, RouteResponse, SnapshotRef,
+    parse_json, EtaRequest, EtaResponse, LineString, MatrixRequest, MatrixResponse, RouteResponse,
+    SnapshotRef,
 };
 use hodos::http::problem::ApiError;
 use std::net::SocketAddr;
@@ -52,10 +53,7 @@ async fn route(body: Bytes) -> Result<Response, ApiError> {
     let t = parse_json::<EtaRequest>(&body)?.validate()?;
     Ok(Json(RouteResponse {
         eta: fixed_eta(),
-        geometry: serde_json::json!({
-            "type": "LineString",
-            "coordinates": [[t.from.lon, t.from.lat], [t.to.lon, t.to.lat]]
-        }),
+        geometry: LineString::new([t.from, t.to]),
     })
     .into_response())
 }

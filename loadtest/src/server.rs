@@ -159,7 +159,7 @@ pub fn config_text(
     time_zone: &str,
     live_ttl_s: f64,
 ) -> String {
-    let pad = 0.01;
+    let region = hodos::testkit::region_table(REGION, artifact, state_dir, lo, hi, 0.01);
     format!(
         r#"# Written by hodos-load for one run; defaults everywhere else.
 [server]
@@ -169,19 +169,8 @@ listen = "{admin}"
 # token: from the HODOS_ADMIN_TOKEN environment variable
 [live]
 ttl_s = {live_ttl_s}
-[[region]]
-name = "{REGION}"
-artifact = "{artifact}"
-time_zone = "{time_zone}"
-state_dir = "{state}"
-coverage = {{ bbox = [{a:.5}, {b:.5}, {c:.5}, {d:.5}] }}
-"#,
-        artifact = artifact.display(),
-        state = state_dir.display(),
-        a = lo.lat - pad,
-        b = lo.lon - pad,
-        c = hi.lat + pad,
-        d = hi.lon + pad,
+{region}time_zone = "{time_zone}"
+"#
     )
 }
 

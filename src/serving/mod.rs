@@ -14,6 +14,8 @@
 //!   signal it reads.
 //! - [`metrics`]: metric names and their recording (the exporter is the
 //!   HTTP layer's).
+//! - [`settings`]: the serving knobs as plain `serde` types (the file that
+//!   holds them is `config`'s business).
 //!
 //! **Architecture Invariant:** serving knows nothing of HTTP: no
 //! `crate::http`, `crate::config` or `crate::demo` import, no axum type.

@@ -78,18 +78,16 @@ impl LineString {
     }
 }
 
-/// An ETA with its path. Generic in the geometry's type only so a caller
-/// can give a ready-made GeoJSON value (the load tool's baseline server
-/// does); the service always sends a [`LineString`].
+/// An ETA with its path.
 #[derive(Debug, Clone, Serialize, PartialEq)]
-pub struct RouteResponse<G = LineString> {
+pub struct RouteResponse {
     #[serde(flatten)]
     pub eta: EtaResponse,
     /// GeoJSON LineString (RFC 7946), `[lon, lat]` positions.
-    pub geometry: G,
+    pub geometry: LineString,
 }
 
-impl RouteResponse<LineString> {
+impl RouteResponse {
     /// The answer with its road path; heuristic answers have none, so their
     /// geometry is the straight line from `from` to `to`.
     pub fn new(a: &Answer, from: LatLon, to: LatLon) -> Self {

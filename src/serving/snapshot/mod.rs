@@ -50,7 +50,6 @@ use crate::serving::speeds::{
 use arc_swap::{ArcSwap, ArcSwapOption};
 use buckets::Buckets;
 use chrono::{DateTime, Utc};
-use serde::Serialize;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::Arc;
 use std::time::{Duration, Instant};
@@ -101,7 +100,7 @@ pub struct LiveMetric {
 }
 
 /// What the last update of each kind did (for `/admin/status`).
-#[derive(Debug, Clone, Default, Serialize)]
+#[derive(Debug, Clone, Default)]
 pub struct RegionStatus {
     pub ready: bool,
     /// Why the region serves no graph, when it does not.
@@ -117,7 +116,7 @@ pub struct RegionStatus {
 }
 
 /// One update's outcome.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone)]
 pub struct ReloadOutcome {
     /// `historical`, `live` or `artifact`.
     pub table: &'static str,
