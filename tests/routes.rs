@@ -7,47 +7,20 @@
 
 mod common;
 
-use axum::body::Body;
-use axum::http::{Request, StatusCode};
+use axum::http::StatusCode;
 use axum::Router;
+use common::http::Resp;
 use common::service::{at, config, TOKEN};
 use hodos::http::routes::{self, Route, Verb, ADMIN, PUBLIC};
 use hodos::http::{admin_app, app, AppState};
 use http_body_util::BodyExt;
 use serde_json::{json, Value};
 use std::collections::BTreeSet;
-use tower::ServiceExt;
 
-struct Resp {
-    status: StatusCode,
-    allow: Option<String>,
-    text: String,
-}
-
+/// One request with a JSON content type, with the admin token or none.
 async fn send(app: &Router, method: &str, uri: &str, body: Vec<u8>, token: bool) -> Resp {
-    let mut b = Request::builder()
-        .method(method)
-        .uri(uri)
-        .header("content-type", "application/json");
-    if token {
-        b = b.header("authorization", format!("Bearer {TOKEN}"));
-    }
-    let resp = app
-        .clone()
-        .oneshot(b.body(Body::from(body)).unwrap())
-        .await
-        .unwrap();
-    let status = resp.status();
-    let allow = resp
-        .headers()
-        .get("allow")
-        .map(|v| v.to_str().unwrap().to_string());
-    let bytes = resp.into_body().collect().await.unwrap().to_bytes();
-    Resp {
-        status,
-        allow,
-        text: String::from_utf8_lossy(&bytes).into_owned(),
-    }
+    let ct = Some("application/json");
+    common::http::send(app, method, uri, ct, body, token.then_some(TOKEN)).await
 }
 
 async fn state(extra: &str) -> (AppState, tempfile::TempDir) {

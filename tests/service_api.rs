@@ -6,62 +6,13 @@
 
 mod common;
 
-use axum::body::Body;
-use axum::http::{Request, StatusCode};
 use axum::Router;
+use common::http::{send, Resp};
 use common::service::{at, city, config, TOKEN};
 use common::tables;
 use hodos::http::{admin_app, app, AppState};
 use hodos::testkit::{HistoricalCsv, LiveCsv};
-use http_body_util::BodyExt;
 use serde_json::{json, Value};
-use tower::ServiceExt;
-
-struct Resp {
-    status: StatusCode,
-    content_type: String,
-    text: String,
-}
-
-impl Resp {
-    fn json(&self) -> Value {
-        serde_json::from_str(&self.text).unwrap_or_else(|e| panic!("not JSON ({e}): {}", self.text))
-    }
-}
-
-async fn send(
-    app: &Router,
-    method: &str,
-    uri: &str,
-    ct: Option<&str>,
-    body: Vec<u8>,
-    token: Option<&str>,
-) -> Resp {
-    let mut b = Request::builder().method(method).uri(uri);
-    if let Some(ct) = ct {
-        b = b.header("content-type", ct);
-    }
-    if let Some(t) = token {
-        b = b.header("authorization", format!("Bearer {t}"));
-    }
-    let resp = app
-        .clone()
-        .oneshot(b.body(Body::from(body)).unwrap())
-        .await
-        .unwrap();
-    let status = resp.status();
-    let content_type = resp
-        .headers()
-        .get("content-type")
-        .map(|v| v.to_str().unwrap().to_string())
-        .unwrap_or_default();
-    let bytes = resp.into_body().collect().await.unwrap().to_bytes();
-    Resp {
-        status,
-        content_type,
-        text: String::from_utf8_lossy(&bytes).into_owned(),
-    }
-}
 
 async fn post_json(app: &Router, uri: &str, v: &Value) -> Resp {
     send(

@@ -7,12 +7,14 @@
 //!   files with their `SKIPPED` line) and writing small input files.
 //! - [`graphs`]: the petgraph reference Dijkstra, exactness checks, grids
 //!   and hierarchies, sampled points and metrics.
+//! - [`http`]: one request through a router, read back.
 //! - [`service`]: a synthetic-city artifact and configuration for service
 //!   tests.
 //! - [`tables`]: speed tables over that city's edges.
 #![allow(dead_code, unused_imports)]
 
 pub mod graphs;
+pub mod http;
 pub mod service;
 pub mod tables;
 
