@@ -13,7 +13,6 @@ use common::http::Resp;
 use common::service::{at, config, TOKEN};
 use hodos::http::routes::{self, Route, Verb, ADMIN, PUBLIC};
 use hodos::http::{admin_app, app, AppState};
-use http_body_util::BodyExt;
 use serde_json::{json, Value};
 use std::collections::BTreeSet;
 
