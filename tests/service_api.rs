@@ -504,83 +504,14 @@ async fn every_tier_and_reason() {
 
 #[tokio::test]
 async fn unreachable_pair_and_degraded_region() {
-    use hodos::engine::artifact::{Artifact, Metadata};
-    use hodos::engine::graph::{EdgeSpec, GraphBuilder, RoadClass};
     // Two islands of the city's size with no road between them: the
-    // artifact is assembled by hand, as `hodos build` keeps only the
+    // artifact is assembled as it is, as `hodos build` keeps only the
     // largest strongly connected component.
     let c = city();
-    let mut b = GraphBuilder::default();
-    let mut way = 0;
-    for island in 0..2 {
-        let lon0 = c.lo.lon + island as f64 * (c.hi.lon - c.lo.lon) * 0.7;
-        let base = b.num_nodes() as u32;
-        for i in 0..10u32 {
-            for j in 0..10u32 {
-                b.add_node(
-                    hodos::engine::geo::LatLon::new(
-                        c.lo.lat + 0.002 * i as f64,
-                        lon0 + 0.002 * j as f64,
-                    ),
-                    u64::from(base + i * 10 + j + 1),
-                );
-            }
-        }
-        for i in 0..10u32 {
-            for j in 0..10u32 {
-                let v = base + i * 10 + j;
-                for w in [
-                    (j + 1 < 10).then_some(v + 1),
-                    (i + 1 < 10).then_some(v + 10),
-                ]
-                .into_iter()
-                .flatten()
-                {
-                    way += 1;
-                    for (t, h) in [(v, w), (w, v)] {
-                        b.add_edge(EdgeSpec {
-                            tail: t,
-                            head: h,
-                            length_m: None,
-                            speed_kmh: 30.0,
-                            way_id: way,
-                            class: RoadClass::Residential,
-                            shape: &[],
-                        });
-                    }
-                }
-            }
-        }
-    }
-    let g = b.finish();
-    let ug = hodos::engine::order::UndirectedGraph::from_edges(
-        g.num_nodes(),
-        g.edge_tail.iter().copied().zip(g.edge_head.iter().copied()),
-    );
-    let proj = hodos::engine::geo::LocalProjection::new(c.lo.lat);
-    let xy: Vec<[f64; 2]> = (0..g.num_nodes() as u32)
-        .map(|v| proj.project(g.node_pos(v)))
-        .collect();
-    let order = hodos::engine::order::nested_dissection(&ug, &xy, &mut |_| {});
-    let cch = hodos::engine::cch::Cch::build(&g, order.rank);
-    let art = Artifact {
-        meta: Metadata {
-            source: "test:two-islands".into(),
-            built_at_unix: 0,
-            hodos_version: "test".into(),
-            nodes: g.num_nodes(),
-            edges: g.num_edges(),
-            dropped: Default::default(),
-            arcs: cch.num_arcs(),
-            shortcuts: 0,
-            top_separator: 0,
-            elimination_tree_depth: 0,
-            phase_seconds: vec![],
-        },
-        calibration: hodos::engine::calibration::Calibration::fixed(1.3, 30.0),
-        graph: g.clone(),
-        cch,
-    };
+    let gap = (c.hi.lon - c.lo.lon) * 0.7;
+    let g = hodos::engine::import::synthetic::islands(10, c.lo, gap);
+    let calibration = hodos::engine::calibration::Calibration::fixed(1.3, 30.0);
+    let art = hodos::engine::build::assemble("test:two-islands".into(), g.clone(), calibration);
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("islands.hodos");
     art.save(&path).unwrap();

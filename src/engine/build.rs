@@ -6,12 +6,12 @@
 //! nothing; the binary draws progress bars.
 
 use crate::engine::artifact::{Artifact, Metadata};
-use crate::engine::calibration::calibrate;
+use crate::engine::calibration::{calibrate, Calibration};
 use crate::engine::cch::{Cch, CustomizedMetric};
 use crate::engine::geo::LocalProjection;
 use crate::engine::graph::RoadGraph;
 use crate::engine::import::{self, ImportError};
-use crate::engine::order::{nested_dissection, UndirectedGraph};
+use crate::engine::order::{nested_dissection, NodeOrder, UndirectedGraph};
 use crate::engine::snap::SnapIndex;
 use std::path::PathBuf;
 use std::time::Instant;
@@ -111,21 +111,7 @@ pub fn build_from_graph(
     let n = graph.num_nodes();
 
     progress.start("order (inertial flow)", Some(n as u64));
-    let ug = UndirectedGraph::from_edges(
-        n,
-        graph
-            .edge_tail
-            .iter()
-            .copied()
-            .zip(graph.edge_head.iter().copied()),
-    );
-    let (lo, hi) = graph.bbox();
-    let proj = LocalProjection::new((lo.lat + hi.lat) / 2.0);
-    let xy: Vec<[f64; 2]> = (0..n as u32)
-        .map(|v| proj.project(graph.node_pos(v)))
-        .collect();
-    let order = nested_dissection(&ug, &xy, &mut |d| progress.advance(d as u64));
-    drop((ug, xy));
+    let order = order_of(&graph, &mut |d| progress.advance(d as u64));
     progress.finish();
     lap("order", &mut phases);
 
@@ -165,4 +151,52 @@ pub fn build_from_graph(
         cch,
         calibration,
     })
+}
+
+/// The nested-dissection order of `graph` (inertial flow on its local
+/// projection).
+fn order_of(graph: &RoadGraph, progress: &mut dyn FnMut(usize)) -> NodeOrder {
+    let ug = UndirectedGraph::from_edges(
+        graph.num_nodes(),
+        graph
+            .edge_tail
+            .iter()
+            .copied()
+            .zip(graph.edge_head.iter().copied()),
+    );
+    let (lo, hi) = graph.bbox();
+    let proj = LocalProjection::new((lo.lat + hi.lat) / 2.0);
+    let xy: Vec<[f64; 2]> = (0..graph.num_nodes() as u32)
+        .map(|v| proj.project(graph.node_pos(v)))
+        .collect();
+    nested_dissection(&ug, &xy, progress)
+}
+
+/// An artifact over `graph` exactly as given: no strongly connected filter
+/// and no calibration run (`calibration` is kept). For graphs the pipeline
+/// would trim, such as [`crate::engine::import::synthetic::islands`] in
+/// tests of unreachable pairs.
+pub fn assemble(source: String, graph: RoadGraph, calibration: Calibration) -> Artifact {
+    let order = order_of(&graph, &mut |_| {});
+    let top_separator = order.top_separator;
+    let cch = Cch::build(&graph, order.rank);
+    let meta = Metadata {
+        source,
+        built_at_unix: 0,
+        hodos_version: env!("CARGO_PKG_VERSION").to_string(),
+        nodes: graph.num_nodes(),
+        edges: graph.num_edges(),
+        dropped: Default::default(),
+        arcs: cch.num_arcs(),
+        shortcuts: cch.num_shortcuts(),
+        top_separator,
+        elimination_tree_depth: cch.elimination_tree_depth(),
+        phase_seconds: vec![],
+    };
+    Artifact {
+        meta,
+        graph,
+        cch,
+        calibration,
+    }
 }

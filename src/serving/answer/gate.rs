@@ -66,7 +66,7 @@ pub(super) struct Granted {
     /// Held until the graph work ends.
     pub permit: OwnedSemaphorePermit,
     /// Held until the answer is built.
-    pub in_flight: InFlight,
+    pub _in_flight: InFlight,
 }
 
 /// Stopped at the gate: answer from the heuristic tier.
@@ -79,6 +79,17 @@ pub(super) struct Fallback {
 }
 
 impl Fallback {
+    /// The heuristic answer `estimate` builds from this fallback's
+    /// calibration, reason and tag.
+    pub fn answer<T>(
+        mut self,
+        cat: &Catalog,
+        estimate: impl FnOnce(&Calibration, FallbackReason, Tag) -> T,
+    ) -> T {
+        let tag = self.tag.take();
+        estimate(self.calibration(cat), self.reason, tag)
+    }
+
     /// The calibration the heuristic answer uses.
     pub fn calibration<'a>(&'a self, cat: &'a Catalog) -> &'a Calibration {
         match &self.snap {
@@ -133,7 +144,7 @@ pub(super) async fn gate(
         chosen,
         tag,
         permit,
-        in_flight,
+        _in_flight: in_flight,
     })
 }
 

@@ -73,19 +73,18 @@ pub async fn matrix_trip(
         .regions
         .iter()
         .find(|r| from.iter().chain(&to).all(|p| r.cfg.coverage.contains(*p)));
+    let g = match gate(cat, handle, depart, deadline, admitted).await {
+        Ok(g) => g,
+        Err(f) => return f.answer(cat, all_heuristic),
+    };
+    // `_in_flight` stays in `g`, counted until the answer is built.
     let Granted {
         snap,
         chosen,
         tag,
         permit,
-        in_flight: _in_flight,
-    } = match gate(cat, handle, depart, deadline, admitted).await {
-        Ok(g) => g,
-        Err(mut f) => {
-            let tag = f.tag.take();
-            return all_heuristic(f.calibration(cat), f.reason, tag);
-        }
-    };
+        ..
+    } = g;
     let max_snap = cat.cfg.query.max_snap_m;
     let snap2 = snap.clone();
     let (from2, to2) = (from.clone(), to.clone());

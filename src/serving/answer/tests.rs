@@ -13,11 +13,10 @@
 //! - unreachable pairs: `petgraph::algo::has_path_connecting`.
 
 use super::{matrix_trip, trip, Catalog};
-use crate::engine::artifact::{Artifact, Metadata};
-use crate::engine::build::{build_from_graph, Quiet};
+use crate::engine::build::{assemble, build_from_graph, Quiet};
 use crate::engine::calibration::Calibration;
 use crate::engine::geo::LatLon;
-use crate::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
+use crate::engine::graph::RoadGraph;
 use crate::serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
 use crate::serving::snapshot::{RegionHandle, UpdateError, UpdateSettings};
 use crate::serving::tier::{FallbackReason as R, Tier};
@@ -409,74 +408,16 @@ async fn unavailable_region_answers_from_the_defaults() {
     );
 }
 
-/// Two 4×4 grids of two-way roads with no road between them (assembled by
-/// hand: a build keeps only the largest strongly connected component).
+/// Two 4×4 grids of two-way roads with no road between them (a build
+/// keeps only the largest strongly connected component, so the artifact
+/// is assembled as it is).
 fn islands(dir: &Path) -> (PathBuf, RoadGraph) {
-    let mut b = GraphBuilder::default();
-    let mut way = 0;
-    for island in 0..2u32 {
-        let base = b.num_nodes() as u32;
-        for i in 0..4u32 {
-            for j in 0..4u32 {
-                let p = LatLon::new(
-                    0.01 + 0.002 * f64::from(i),
-                    0.01 + 0.02 * f64::from(island) + 0.002 * f64::from(j),
-                );
-                b.add_node(p, u64::from(base + i * 4 + j + 1));
-            }
-        }
-        for i in 0..4u32 {
-            for j in 0..4u32 {
-                let v = base + i * 4 + j;
-                for w in [(j + 1 < 4).then_some(v + 1), (i + 1 < 4).then_some(v + 4)]
-                    .into_iter()
-                    .flatten()
-                {
-                    way += 1;
-                    for (tail, head) in [(v, w), (w, v)] {
-                        b.add_edge(EdgeSpec {
-                            tail,
-                            head,
-                            length_m: None,
-                            speed_kmh: 30.0,
-                            way_id: way,
-                            class: RoadClass::Residential,
-                            shape: &[],
-                        });
-                    }
-                }
-            }
-        }
-    }
-    let g = b.finish();
-    let ug = crate::engine::order::UndirectedGraph::from_edges(
-        g.num_nodes(),
-        g.edge_tail.iter().copied().zip(g.edge_head.iter().copied()),
+    let g = crate::engine::import::synthetic::islands(4, LatLon::new(0.01, 0.01), 0.02);
+    let art = assemble(
+        "test:islands".into(),
+        g.clone(),
+        Calibration::fixed(1.3, 30.0),
     );
-    let proj = crate::engine::geo::LocalProjection::new(0.01);
-    let xy: Vec<[f64; 2]> = (0..g.num_nodes() as u32)
-        .map(|v| proj.project(g.node_pos(v)))
-        .collect();
-    let order = crate::engine::order::nested_dissection(&ug, &xy, &mut |_| {});
-    let cch = crate::engine::cch::Cch::build(&g, order.rank);
-    let art = Artifact {
-        meta: Metadata {
-            source: "test:islands".into(),
-            built_at_unix: 0,
-            hodos_version: "test".into(),
-            nodes: g.num_nodes(),
-            edges: g.num_edges(),
-            dropped: Default::default(),
-            arcs: cch.num_arcs(),
-            shortcuts: 0,
-            top_separator: 0,
-            elimination_tree_depth: 0,
-            phase_seconds: vec![],
-        },
-        calibration: Calibration::fixed(1.3, 30.0),
-        graph: g.clone(),
-        cch,
-    };
     let path = dir.join("islands.hodos");
     art.save(&path).unwrap();
     (path, g)

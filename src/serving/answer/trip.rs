@@ -55,19 +55,22 @@ pub async fn trip(
 ) -> Answer {
     let deadline = Instant::now() + cat.budget(budget_ms);
     let handle = cat.region_for(from, to);
+    let g = match gate(cat, handle, depart, deadline, admitted).await {
+        Ok(g) => g,
+        Err(f) => {
+            return f.answer(cat, |cal, reason, tag| {
+                heuristic(cal, from, to, reason, tag)
+            })
+        }
+    };
+    // `_in_flight` stays in `g`, counted until the answer is built.
     let Granted {
         snap,
         chosen,
         tag,
         permit,
-        in_flight: _in_flight,
-    } = match gate(cat, handle, depart, deadline, admitted).await {
-        Ok(g) => g,
-        Err(mut f) => {
-            let tag = f.tag.take();
-            return heuristic(f.calibration(cat), from, to, f.reason, tag);
-        }
-    };
+        ..
+    } = g;
     let max_snap = cat.cfg.query.max_snap_m;
     let region = &snap.region;
     let metric = chosen.metric.get();
