@@ -3,6 +3,7 @@
 //! with a bad line, an extract without drivable roads, a damaged artifact)
 //! exit non-zero with a message naming the file. No panics.
 
+use hodos::engine::geo::LatLon;
 use std::path::Path;
 use std::process::Command;
 
@@ -167,9 +168,15 @@ fn serve_strict_refuses_a_broken_region() {
     std::fs::write(
         &cfg,
         format!(
-            "[server]\nlisten = \"127.0.0.1:0\"\n[admin]\nlisten = \"127.0.0.1:0\"\n[[region]]\nname = \"r\"\nartifact = \"{}\"\nstate_dir = \"{}\"\ncoverage = {{ bbox = [1, 1, 2, 2] }}\n",
-            broken.display(),
-            dir.path().join("state").display()
+            "[server]\nlisten = \"127.0.0.1:0\"\n[admin]\nlisten = \"127.0.0.1:0\"\n{}",
+            hodos::testkit::region_table(
+                "r",
+                &broken,
+                &dir.path().join("state"),
+                LatLon::new(1.0, 1.0),
+                LatLon::new(2.0, 2.0),
+                0.0
+            )
         ),
     )
     .unwrap();

@@ -9,7 +9,8 @@
 //! `testing` (test-only fixtures).
 //!
 //! Lines that are comments are skipped, and so is everything from the
-//! first `#[cfg(test)]` of a file on (unit tests may reach anywhere).
+//! first `#[cfg(test)]` of a file on, and files named `tests.rs` (unit
+//! tests kept in a file of their own): unit tests may reach anywhere.
 
 use std::path::{Path, PathBuf};
 
@@ -112,6 +113,11 @@ fn violations(src: &Path) -> Vec<String> {
         if rel == Path::new("main.rs") || rel == Path::new("lib.rs") {
             continue;
         }
+        if rel.file_name().is_some_and(|f| f == "tests.rs") {
+            // A `#[cfg(test)] mod tests;` file; the declaration is checked
+            // where it stands.
+            continue;
+        }
         let (layer, module) = place(rel);
         let Some(rank) = layer_rank(&layer) else {
             bad.push(format!(
@@ -121,9 +127,17 @@ fn violations(src: &Path) -> Vec<String> {
             continue;
         };
         let text = std::fs::read_to_string(&f).expect("read file");
-        for (n, line) in text.lines().enumerate() {
+        let lines: Vec<&str> = text.lines().collect();
+        for (n, line) in lines.iter().enumerate() {
             let code = line.trim_start();
             if code.starts_with("#[cfg(test)]") {
+                // `#[cfg(test)] mod tests;` names a file (skipped above) and
+                // the code after it is still checked; an inline test module
+                // runs to the end of the file by convention.
+                let next = lines.get(n + 1).map(|l| l.trim()).unwrap_or("");
+                if next.starts_with("mod ") && next.ends_with(';') {
+                    continue;
+                }
                 break;
             }
             if code.starts_with("//") {
@@ -195,10 +209,16 @@ fn checker_catches_an_upward_import() {
         "http/mod.rs",
         "use crate::serving::answer::Catalog;\n#[cfg(test)]\nmod t { use crate::demo::X; }\n",
     );
+    write(
+        "serving/snapshot/mod.rs",
+        "#[cfg(test)]\nmod tests;\nuse crate::http::Y;\n",
+    );
+    write("serving/snapshot/tests.rs", "use crate::testkit::Z;\n");
     let bad = violations(dir.path());
-    assert_eq!(bad.len(), 4, "{bad:#?}");
+    assert_eq!(bad.len(), 5, "{bad:#?}");
     assert!(bad[0].contains("engine::cch reaches up to engine::region"));
     assert!(bad[1].contains("engine uses metrics::"));
     assert!(bad[2].contains("serving reaches up to http"));
     assert!(bad[3].contains("serving uses axum::"));
+    assert!(bad[4].contains("serving/snapshot/mod.rs:3: serving reaches up to http"));
 }

@@ -267,15 +267,18 @@ async fn gate_fallbacks_and_graph_tiers() {
     // A table of one speed (20 km/h) for next week's hour: historical, and
     // the time is petgraph's Dijkstra on length ÷ 20 km/h.
     let hour = crate::serving::speeds::hour_of_week(later, region.tz);
-    let mut csv = String::from("from_node,to_node,hour_of_week,speed_kmh\n");
+    let mut csv = crate::testkit::HistoricalCsv::with_header();
     for e in 0..g.num_edges() {
         let (u, v) = (
             g.node_ext[g.edge_tail[e] as usize],
             g.node_ext[g.edge_head[e] as usize],
         );
-        csv.push_str(&format!("{u},{v},{hour},20\n"));
+        csv.row(u, v, hour, 20);
     }
-    region.put_historical(csv.into_bytes()).await.unwrap();
+    region
+        .put_historical(csv.into_string().into_bytes())
+        .await
+        .unwrap();
     let slow = weights_at(g, |_| 20.0);
     let want20 = dijkstra_ms(g, &slow, s, t).unwrap() as f64 / 1000.0;
     let r = trip(&cat, a, b, Some(later), Some(2000), false, true).await;
