@@ -3,13 +3,14 @@
 //! rows not done in time, off-network points and unreachable cells come
 //! from the heuristic tier and are marked per cell.
 
-use super::gate::{gate, Granted};
+use super::gate::{gate, Chosen, Granted, MetricRef};
 use super::scratch::{with_scratch, ScratchCache};
 use super::{Catalog, CellAnswer, MatrixAnswer};
 use crate::engine::calibration::Calibration;
 use crate::engine::cch::matrix::ManyToMany;
 use crate::engine::geo::LatLon;
 use crate::engine::region::matrix::{matrix, Cell, MatrixLimits, PointMatrix};
+use crate::serving::snapshot::Snapshot;
 use crate::serving::tier::{FallbackReason, Tier};
 use chrono::{DateTime, Utc};
 use std::cell::RefCell;
@@ -85,42 +86,68 @@ pub async fn matrix_trip(
         permit,
         ..
     } = g;
-    let max_snap = cat.cfg.query.max_snap_m;
-    let snap2 = snap.clone();
-    let (from2, to2) = (from.clone(), to.clone());
-    let metric = chosen.metric.clone();
+    let limits = MatrixLimits {
+        max_snap_m: cat.cfg.query.max_snap_m,
+        deadline: Some(deadline),
+    };
+    let computed = compute(&snap, chosen.metric.clone(), &from, &to, limits).await;
+    drop(permit);
+    let cal = &snap.region.calibration;
+    let Some(cells) = computed else {
+        return all_heuristic(cal, FallbackReason::BudgetExceeded, tag);
+    };
+    let out = answers(&cells, &from, &to, &chosen, cal);
+    MatrixAnswer {
+        rows,
+        cols,
+        cells: out,
+        snapshot: tag,
+    }
+}
+
+/// The graph part of a matrix, on the blocking pool (a large matrix is
+/// milliseconds of CPU): this thread's scratch for the region, one
+/// coordinate matrix. `None` when the task or the matrix failed.
+async fn compute(
+    snap: &Arc<Snapshot>,
+    metric: Arc<MetricRef>,
+    from: &[LatLon],
+    to: &[LatLon],
+    limits: MatrixLimits,
+) -> Option<Vec<Cell>> {
+    let snap = snap.clone();
+    let (from, to) = (from.to_vec(), to.to_vec());
     let computed = tokio::task::spawn_blocking(move || {
-        let region = &snap2.region;
+        let region = &snap.region;
         with_scratch(
             &MATRIX_SCRATCH,
             Arc::as_ptr(region) as usize,
             |_| true,
             || (ManyToMany::new(&region.cch), PointMatrix::default()),
             |(m2m, out)| {
-                matrix(
-                    region,
-                    metric.get(),
-                    m2m,
-                    &from2,
-                    &to2,
-                    MatrixLimits {
-                        max_snap_m: max_snap,
-                        deadline: Some(deadline),
-                    },
-                    out,
-                )
-                .map(|_| out.cells.clone())
+                matrix(region, metric.get(), m2m, &from, &to, limits, out)
+                    .map(|_| out.cells.clone())
             },
         )
     })
     .await;
-    drop(permit);
-    let cal = &snap.region.calibration;
-    let cells = match computed {
-        Ok(Ok(cells)) => cells,
-        _ => return all_heuristic(cal, FallbackReason::BudgetExceeded, tag),
-    };
-    let mut out = Vec::with_capacity(rows * cols);
+    match computed {
+        Ok(Ok(cells)) => Some(cells),
+        _ => None,
+    }
+}
+
+/// Each cell's answer: the graph's with the chosen tier, or an estimate
+/// from `cal` marked with why the graph gave none.
+fn answers(
+    cells: &[Cell],
+    from: &[LatLon],
+    to: &[LatLon],
+    chosen: &Chosen,
+    cal: &Calibration,
+) -> Vec<CellAnswer> {
+    let cols = to.len();
+    let mut out = Vec::with_capacity(cells.len());
     for (i, c) in cells.iter().enumerate() {
         let (a, b) = (from[i / cols], to[i % cols]);
         out.push(match *c {
@@ -135,10 +162,5 @@ pub async fn matrix_trip(
             Cell::NotComputed => heuristic_cell(cal, a, b, FallbackReason::BudgetExceeded),
         });
     }
-    MatrixAnswer {
-        rows,
-        cols,
-        cells: out,
-        snapshot: tag,
-    }
+    out
 }
