@@ -10,7 +10,7 @@ use crate::engine::calibration::Calibration;
 use crate::engine::cch::matrix::ManyToMany;
 use crate::engine::geo::LatLon;
 use crate::engine::region::matrix::{matrix, Cell, MatrixLimits, PointMatrix};
-use crate::serving::snapshot::Snapshot;
+use crate::serving::snapshot::{RegionHandle, Snapshot};
 use crate::serving::tier::{FallbackReason, Tier};
 use chrono::{DateTime, Utc};
 use std::cell::RefCell;
@@ -53,6 +53,14 @@ fn heuristic_cells(
 /// Answers a matrix: bucket many-to-many within the budget; rows not done
 /// in time, off-network points and unreachable cells come from the
 /// heuristic tier and are marked.
+///
+/// Cell by cell, like trips: a cell belongs to the first region whose
+/// coverage holds both its ends. When one region holds every point the
+/// whole matrix is one many-to-many there; otherwise each region answers
+/// the rows × columns it holds, and a cell whose ends share no region is
+/// an `outside_regions` estimate, so one stray point degrades only its own
+/// row or column. The answer's snapshot is that of the region answering
+/// the most cells.
 pub async fn matrix_trip(
     cat: &Catalog,
     from: Vec<LatLon>,
@@ -61,19 +69,89 @@ pub async fn matrix_trip(
     budget_ms: Option<u64>,
     admitted: bool,
 ) -> MatrixAnswer {
-    let (rows, cols) = (from.len(), to.len());
     let deadline = Instant::now() + cat.budget(budget_ms);
+    let covers = |r: &RegionHandle, p: &LatLon| r.cfg.coverage.contains(*p);
+    let whole = cat
+        .regions
+        .iter()
+        .find(|r| from.iter().chain(&to).all(|p| covers(r, p)));
+    if whole.is_some() || cat.regions.is_empty() {
+        return region_matrix(cat, whole, &from, &to, depart, deadline, admitted).await;
+    }
+    let (rows, cols) = (from.len(), to.len());
+    let mut cells: Vec<Option<CellAnswer>> = vec![None; rows * cols];
+    let (mut snapshot, mut most) = (None, 0);
+    for handle in &cat.regions {
+        let held_rows: Vec<usize> = (0..rows).filter(|&i| covers(handle, &from[i])).collect();
+        let held_cols: Vec<usize> = (0..cols).filter(|&j| covers(handle, &to[j])).collect();
+        let unowned = |i: usize, j: usize| cells[i * cols + j].is_none();
+        let owned = held_rows
+            .iter()
+            .map(|&i| held_cols.iter().filter(|&&j| unowned(i, j)).count())
+            .sum::<usize>();
+        if owned == 0 {
+            continue;
+        }
+        let sub_from: Vec<LatLon> = held_rows.iter().map(|&i| from[i]).collect();
+        let sub_to: Vec<LatLon> = held_cols.iter().map(|&j| to[j]).collect();
+        let sub = region_matrix(
+            cat,
+            Some(handle),
+            &sub_from,
+            &sub_to,
+            depart,
+            deadline,
+            admitted,
+        )
+        .await;
+        for (a, &i) in held_rows.iter().enumerate() {
+            for (b, &j) in held_cols.iter().enumerate() {
+                let cell = &mut cells[i * cols + j];
+                if cell.is_none() {
+                    *cell = Some(sub.cells[a * held_cols.len() + b]);
+                }
+            }
+        }
+        if owned > most {
+            (snapshot, most) = (sub.snapshot, owned);
+        }
+    }
+    let cells = cells
+        .into_iter()
+        .enumerate()
+        .map(|(k, c)| {
+            c.unwrap_or_else(|| {
+                let (a, b) = (from[k / cols], to[k % cols]);
+                heuristic_cell(&cat.outside, a, b, FallbackReason::OutsideRegions)
+            })
+        })
+        .collect();
+    MatrixAnswer {
+        rows,
+        cols,
+        cells,
+        snapshot,
+    }
+}
+
+/// One region's matrix over points it holds (`None`: outside every
+/// region): the gate, then the graph within the deadline.
+async fn region_matrix(
+    cat: &Catalog,
+    handle: Option<&Arc<RegionHandle>>,
+    from: &[LatLon],
+    to: &[LatLon],
+    depart: Option<DateTime<Utc>>,
+    deadline: Instant,
+    admitted: bool,
+) -> MatrixAnswer {
+    let (rows, cols) = (from.len(), to.len());
     let all_heuristic = |cal: &Calibration, reason, snapshot| MatrixAnswer {
         rows,
         cols,
-        cells: heuristic_cells(cal, &from, &to, reason),
+        cells: heuristic_cells(cal, from, to, reason),
         snapshot,
     };
-    // A matrix belongs to one region: all points inside its coverage.
-    let handle = cat
-        .regions
-        .iter()
-        .find(|r| from.iter().chain(&to).all(|p| r.cfg.coverage.contains(*p)));
     let g = match gate(cat, handle, depart, deadline, admitted).await {
         Ok(g) => g,
         Err(f) => return f.answer(cat, all_heuristic),
@@ -90,13 +168,13 @@ pub async fn matrix_trip(
         max_snap_m: cat.cfg.query.max_snap_m,
         deadline: Some(deadline),
     };
-    let computed = compute(&snap, chosen.metric.clone(), &from, &to, limits).await;
+    let computed = compute(&snap, chosen.metric.clone(), from, to, limits).await;
     drop(permit);
     let cal = &snap.region.calibration;
     let Some(cells) = computed else {
         return all_heuristic(cal, FallbackReason::BudgetExceeded, tag);
     };
-    let out = answers(&cells, &from, &to, &chosen, cal);
+    let out = answers(&cells, from, to, &chosen, cal);
     MatrixAnswer {
         rows,
         cols,

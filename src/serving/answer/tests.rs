@@ -264,6 +264,27 @@ async fn gate_fallbacks_and_graph_tiers() {
         (Tier::Heuristic, Some(R::OutsideRegions), None)
     );
 
+    // One point outside every region degrades only its own row and column:
+    // the cell whose ends share the region is the graph's answer (the trip
+    // between the same points, petgraph-checked above), the others are
+    // estimates from the configured defaults (haversine × 1.3 ÷ 30 km/h).
+    let mx = matrix_trip(&cat, vec![a, p], vec![b, q], None, Some(2000), true).await;
+    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    assert_eq!(
+        (mx.cells[0].tier, mx.cells[0].reason, mx.cells[0].eta_s),
+        (r.tier, r.reason, r.eta_s)
+    );
+    assert_eq!(mx.snapshot, Some(("quellhaven".into(), gen)));
+    for (k, (x, y)) in [(1, (a, q)), (2, (p, b)), (3, (p, q))] {
+        let c = mx.cells[k];
+        assert_eq!(
+            (c.tier, c.reason),
+            (Tier::Heuristic, Some(R::OutsideRegions))
+        );
+        let (m, secs) = by_hand(x, y, 1.3, 30.0);
+        assert!(close(c.meters, m) && close(c.eta_s, secs), "{c:?}");
+    }
+
     // A table of one speed (20 km/h) for next week's hour: historical, and
     // the time is petgraph's Dijkstra on length ÷ 20 km/h.
     let hour = crate::serving::speeds::hour_of_week(later, region.tz);
@@ -476,4 +497,70 @@ async fn unreachable_pairs_fall_back_per_trip_and_per_cell() {
         "{:?} vs petgraph {want}",
         mx.cells[1]
     );
+}
+
+/// Two regions side by side on one city (west and east of its middle
+/// meridian): in one matrix each region answers the cells whose two ends
+/// it holds, each equal to the trip between the same points, and a cell
+/// joining the two halves is an `outside_regions` estimate.
+#[tokio::test]
+async fn matrix_cells_belong_to_the_region_holding_both_ends() {
+    let c = city();
+    let g = &c.graph;
+    let state = tempfile::tempdir().unwrap();
+    let (lo, hi) = g.bbox();
+    let mid = (lo.lon + hi.lon) / 2.0;
+    let half = |name: &str, w: f64, e: f64| RegionConfig {
+        name: name.into(),
+        artifact: c.artifact.clone(),
+        time_zone: "UTC".into(),
+        coverage: Coverage::Bbox([lo.lat - 0.05, w, hi.lat + 0.05, e]),
+        historical: None,
+        live_dir: None,
+        state_dir: state.path().join(name),
+    };
+    let s = settings();
+    let up = UpdateSettings::from_settings(&s);
+    let west = RegionHandle::open(half("west", lo.lon - 0.05, mid), up.clone()).await;
+    let east = RegionHandle::open(half("east", mid, hi.lon + 0.05), up).await;
+    let cat = Catalog::new(s, vec![west, east]);
+    // Two nodes in each half, away from the middle.
+    let pick = |west: bool| {
+        let mut v = (0..g.num_nodes() as u32).filter(move |&n| {
+            let x = g.node_pos(n).lon;
+            if west {
+                x < mid - 0.01
+            } else {
+                x > mid + 0.01
+            }
+        });
+        (v.next().unwrap(), v.nth(50).unwrap())
+    };
+    let ((w1, w2), (e1, e2)) = (pick(true), pick(false));
+    let pts: Vec<LatLon> = [w1, w2, e1, e2].iter().map(|&n| g.node_pos(n)).collect();
+    let mx = matrix_trip(&cat, pts.clone(), pts.clone(), None, Some(2000), true).await;
+    for (i, &x) in pts.iter().enumerate() {
+        for (j, &y) in pts.iter().enumerate() {
+            let cell = mx.cells[i * 4 + j];
+            if (i < 2) == (j < 2) {
+                let r = trip(&cat, x, y, None, Some(2000), false, true).await;
+                assert_eq!(
+                    (cell.tier, cell.reason, cell.eta_s),
+                    (r.tier, r.reason, r.eta_s),
+                    "{i}->{j}"
+                );
+                assert_ne!(cell.tier, Tier::Heuristic, "{i}->{j}: {r:?}");
+            } else {
+                assert_eq!(
+                    (cell.tier, cell.reason),
+                    (Tier::Heuristic, Some(R::OutsideRegions)),
+                    "{i}->{j}"
+                );
+                let (m, secs) = by_hand(x, y, 1.3, 30.0); // haversine × 1.3 ÷ 30 km/h
+                assert!(close(cell.meters, m) && close(cell.eta_s, secs), "{cell:?}");
+            }
+        }
+    }
+    // Both regions answer 4 cells; the first one named wins the tie.
+    assert_eq!(mx.snapshot.map(|(name, _)| name), Some("west".into()));
 }
