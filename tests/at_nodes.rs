@@ -15,6 +15,7 @@ use common::{dimacs_ny, fixture, petgraph_of, random_speeds, reference_dists, Sp
 use hodos::engine::build::{build_from_graph, Quiet, Source};
 use hodos::engine::cch::matrix::ManyToMany;
 use hodos::engine::cch::CchQuery;
+use hodos::engine::geo::haversine_m;
 use hodos::engine::import::dimacs;
 use hodos::engine::region::matrix::{matrix, Cell, MatrixLimits, PointMatrix};
 use hodos::engine::region::{EtaError, Metric, Region};
@@ -38,7 +39,9 @@ fn distinct_nodes(region: &Region) -> Vec<u32> {
 }
 
 /// `sources × targets` random node pairs: `Region::eta` between the nodes'
-/// coordinates against petgraph's Dijkstra between the nodes. Panics with
+/// coordinates against petgraph's Dijkstra between the nodes; `Region::route`
+/// gives the same ETA and its geometry starts and ends (within 1 cm, by the
+/// haversine formula) at the two nodes. Panics with
 /// the number of mismatches (and the first few) if any.
 fn check_eta(
     region: &Region,
@@ -66,6 +69,19 @@ fn check_eta(
                 (Err(EtaError::Unreachable), None) => true,
                 _ => false,
             };
+            if let (true, Ok(e)) = (ok, eta) {
+                // The route reports the same ETA and runs from node to node.
+                let r = region
+                    .route(metric, &mut q, g.node_pos(s), g.node_pos(t), 1.0)
+                    .expect("route");
+                let (first, last) = (r.geometry[0], r.geometry[r.geometry.len() - 1]);
+                if r.eta != e
+                    || haversine_m(first, g.node_pos(s)) > 0.01
+                    || haversine_m(last, g.node_pos(t)) > 0.01
+                {
+                    bad.push(format!("{s} -> {t}: route {:?} vs ETA {e:?}", r.eta));
+                }
+            }
             if !ok {
                 bad.push(format!(
                     "{s} -> {t}: hodos {:?} ms, Dijkstra {want:?} ms",
