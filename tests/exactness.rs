@@ -52,8 +52,8 @@ fn check_snapped(region: &Region, metric: &hodos::engine::region::Metric, label:
             continue;
         };
         // Ways out of the origin: (node, cost to reach it).
-        let outs = ways(g, metric, eta.from.edge, eta.from.offset_m, true);
-        let ins = ways(g, metric, eta.to.edge, eta.to.offset_m, false);
+        let outs = ways(g, metric, eta.from.edge, eta.from.fraction, true);
+        let ins = ways(g, metric, eta.to.edge, eta.to.fraction, false);
         let mut best = f64::INFINITY;
         for &(s, cs) in &outs {
             let d = reference_dists(&pg, s);
@@ -84,15 +84,16 @@ fn check_snapped(region: &Region, metric: &hodos::engine::region::Metric, label:
     }
 }
 
+/// Ways out of (origin) or into (destination) the road at share `t` of edge
+/// `e`: (node, partial cost in ms). A point exactly at the node a one-way
+/// road leaves (origin) or enters (destination) is that node, at no cost.
 fn ways(
     g: &hodos::engine::graph::RoadGraph,
     m: &hodos::engine::region::Metric,
     e: u32,
-    off: f64,
+    t: f64,
     origin: bool,
 ) -> Vec<(u32, f64)> {
-    let len = g.edge_len_m[e as usize];
-    let t = off / len;
     let w = m.weights[e as usize] as f64;
     let mut v = vec![if origin {
         (g.edge_head[e as usize], (w * (1.0 - t)).round())
@@ -100,6 +101,12 @@ fn ways(
         (g.edge_tail[e as usize], (w * t).round())
     }];
     let tw = g.edge_twin[e as usize];
+    if tw == NONE && origin && t == 0.0 {
+        v.push((g.edge_tail[e as usize], 0.0));
+    }
+    if tw == NONE && !origin && t == 1.0 {
+        v.push((g.edge_head[e as usize], 0.0));
+    }
     if tw != NONE {
         let w2 = m.weights[tw as usize] as f64;
         v.push(if origin {

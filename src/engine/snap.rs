@@ -4,7 +4,8 @@
 //! polyline, in a local equirectangular projection (metres). A two-way road
 //! is indexed once, under the lower id of its twin pair; the query side
 //! leaves through both directions. The answer names the edge, the offset
-//! along it (metres from its tail), the snapped point and the snap distance.
+//! along it (metres from its tail), the share of the edge's polyline before
+//! the point, the snapped point and the snap distance.
 
 use crate::engine::geo::{haversine_m, lerp, LatLon, LocalProjection};
 use crate::engine::graph::{RoadGraph, NONE};
@@ -18,6 +19,12 @@ pub struct Snap {
     pub edge: u32,
     /// Metres from the edge's tail along its polyline.
     pub offset_m: f64,
+    /// `offset_m` as a share of the polyline's own (haversine) length, in
+    /// `0.0..=1.0`: the share of the edge's time and length before the
+    /// point. Measured against the polyline and not the edge's stored
+    /// length, which may differ (DIMACS lengths come from the file), so
+    /// that a point at the tail or head node is exactly 0.0 or 1.0.
+    pub fraction: f64,
     /// The point on the road.
     pub point: LatLon,
     /// Great-circle metres from the query coordinate to `point`.
@@ -31,6 +38,9 @@ struct SegInfo {
     start_m: f64,
     /// Haversine length of this segment.
     len_m: f64,
+    /// Haversine length of the edge's whole polyline (the sum of its
+    /// segments', in order, so the last segment ends at exactly this).
+    edge_m: f64,
 }
 
 type Seg = GeomWithData<Line<[f64; 2]>, SegInfo>;
@@ -66,6 +76,7 @@ impl SnapIndex {
             }
             poly.clear();
             g.edge_polyline_into(e, &mut poly);
+            let first = segs.len();
             let mut start = 0.0;
             for w in poly.windows(2) {
                 let len = haversine_m(w[0], w[1]);
@@ -75,9 +86,13 @@ impl SnapIndex {
                         edge: e,
                         start_m: start,
                         len_m: len,
+                        edge_m: 0.0,
                     },
                 ));
                 start += len;
+            }
+            for s in &mut segs[first..] {
+                s.data.edge_m = start;
             }
         }
         Self {
@@ -91,7 +106,7 @@ impl SnapIndex {
     }
 
     /// The nearest road point to `p`, if the graph has any segment.
-    pub fn snap(&self, g: &RoadGraph, p: LatLon) -> Option<Snap> {
+    pub fn snap(&self, _g: &RoadGraph, p: LatLon) -> Option<Snap> {
         let q = self.proj.project(p);
         let seg = self.tree.nearest_neighbor(&q)?;
         let (a, b) = (seg.geom().from, seg.geom().to);
@@ -103,11 +118,19 @@ impl SnapIndex {
             0.0
         };
         let info = seg.data;
-        let edge_len = g.edge_len_m[info.edge as usize];
+        let offset_m = (info.start_m + t * info.len_m).clamp(0.0, info.edge_m);
+        // At the tail t and start_m are 0; at the head the last segment's
+        // start + length is edge_m, so the share is exactly 0 or 1 there.
+        let fraction = if info.edge_m > 0.0 {
+            (offset_m / info.edge_m).clamp(0.0, 1.0)
+        } else {
+            0.0
+        };
         let point = lerp(self.proj.unproject(a), self.proj.unproject(b), t);
         Some(Snap {
             edge: info.edge,
-            offset_m: (info.start_m + t * info.len_m).clamp(0.0, edge_len),
+            offset_m,
+            fraction,
             point,
             distance_m: haversine_m(p, point),
         })

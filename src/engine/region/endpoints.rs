@@ -12,8 +12,13 @@ use crate::engine::graph::{RoadGraph, NONE};
 use crate::engine::snap::Snap;
 
 /// Search starts (origin) or ends (destination) for a snapped point:
-/// endpoint 0 runs along the snapped edge, endpoint 1 along its twin.
-/// Shared with the matrix so its cells equal ETAs.
+/// endpoint 0 runs along the snapped edge, endpoint 1 along its twin. On a
+/// one-way road a point exactly at the node it leaves (origin) or enters
+/// (destination) gets that node itself, at no cost, as endpoint 1 (with a
+/// twin, the twin's endpoint is already that node at no cost), so a point
+/// at an intersection starts or ends there whichever road it snapped to.
+/// Partial costs are the snap's share of the edge's time and of its stored
+/// length. Shared with the matrix so its cells equal ETAs.
 pub(crate) fn snap_endpoints(
     g: &RoadGraph,
     weights: &[u32],
@@ -21,68 +26,84 @@ pub(crate) fn snap_endpoints(
     origin: bool,
 ) -> ([Endpoint; 2], usize) {
     let e = s.edge as usize;
-    let len = g.edge_len_m[e].max(1e-9);
-    let t = (s.offset_m / len).clamp(0.0, 1.0);
+    let len = g.edge_len_m[e];
+    let t = s.fraction;
     let mut out = [Endpoint::at(0); 2];
-    let part = |w: u32, frac: f64, meters: f64| {
+    let part = |w: u32, frac: f64| {
         (
             (f64::from(w) * frac).round() as u32,
-            (meters * 100.0).round() as u32,
+            (len * frac * 100.0).round() as u32,
         )
     };
     // Along the edge itself: origin leaves through its head, destination
     // is entered from its tail.
-    let (node, frac, meters) = if origin {
-        (g.edge_head[e], 1.0 - t, len - s.offset_m)
+    let (node, frac) = if origin {
+        (g.edge_head[e], 1.0 - t)
     } else {
-        (g.edge_tail[e], t, s.offset_m)
+        (g.edge_tail[e], t)
     };
-    let (time, len_cm) = part(weights[e], frac, meters);
+    let (time, len_cm) = part(weights[e], frac);
     out[0] = Endpoint { node, time, len_cm };
     let twin = g.edge_twin[e];
     if twin == NONE {
+        // At the node the search would otherwise have to leave or enter
+        // through this road: that node itself.
+        if origin && t == 0.0 {
+            return (with_node(out, g.edge_tail[e]), 2);
+        }
+        if !origin && t == 1.0 {
+            return (with_node(out, g.edge_head[e]), 2);
+        }
         return (out, 1);
     }
-    // Along the twin (reverse direction): offset from its tail is len−off.
+    // Along the twin (reverse direction): its share before the point is 1−t.
     let tw = twin as usize;
-    let (node, frac, meters) = if origin {
-        (g.edge_head[tw], t, s.offset_m)
+    let (node, frac) = if origin {
+        (g.edge_head[tw], t)
     } else {
-        (g.edge_tail[tw], 1.0 - t, len - s.offset_m)
+        (g.edge_tail[tw], 1.0 - t)
     };
-    let (time, len_cm) = part(weights[tw], frac, meters);
+    let (time, len_cm) = part(weights[tw], frac);
     out[1] = Endpoint { node, time, len_cm };
     (out, 2)
 }
 
-/// A trip that stays on one road between the two snapped points.
+/// `out` with endpoint 1 the node `v` itself, at no cost.
+#[inline]
+fn with_node(mut out: [Endpoint; 2], v: u32) -> [Endpoint; 2] {
+    out[1] = Endpoint::at(v);
+    out
+}
+
+/// A trip that stays on one road between the two snapped points: the share
+/// of the edge's time and stored length between their fractions.
 pub(crate) fn direct_stretch(g: &RoadGraph, weights: &[u32], a: Snap, b: Snap) -> Option<Direct> {
     if a.edge != b.edge {
         return None;
     }
     let e = a.edge as usize;
-    let len = g.edge_len_m[e].max(1e-9);
-    if a.offset_m <= b.offset_m {
-        let d = b.offset_m - a.offset_m;
+    let len = g.edge_len_m[e];
+    if a.fraction <= b.fraction {
+        let d = b.fraction - a.fraction;
         return Some(Direct {
             edge: a.edge,
-            from_m: a.offset_m,
-            to_m: b.offset_m,
-            time_ms: (f64::from(weights[e]) * d / len).round(),
-            len_m: d,
+            from_frac: a.fraction,
+            to_frac: b.fraction,
+            time_ms: (f64::from(weights[e]) * d).round(),
+            len_m: len * d,
         });
     }
     let tw = g.edge_twin[e];
     if tw == NONE {
         return None;
     }
-    let d = a.offset_m - b.offset_m;
+    let d = a.fraction - b.fraction;
     Some(Direct {
         edge: tw,
-        from_m: len - a.offset_m,
-        to_m: len - b.offset_m,
-        time_ms: (f64::from(weights[tw as usize]) * d / len).round(),
-        len_m: d,
+        from_frac: 1.0 - a.fraction,
+        to_frac: 1.0 - b.fraction,
+        time_ms: (f64::from(weights[tw as usize]) * d).round(),
+        len_m: len * d,
     })
 }
 
@@ -90,8 +111,10 @@ pub(crate) fn direct_stretch(g: &RoadGraph, weights: &[u32], a: Snap, b: Snap) -
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub(crate) struct Direct {
     pub(crate) edge: u32,
-    pub(crate) from_m: f64,
-    pub(crate) to_m: f64,
+    /// Where the trip starts on `edge`, as a share of it from its tail.
+    pub(crate) from_frac: f64,
+    /// Where it ends, likewise.
+    pub(crate) to_frac: f64,
     pub(crate) time_ms: f64,
     pub(crate) len_m: f64,
 }
@@ -126,8 +149,8 @@ mod tests {
     fn direct(time_ms: f64) -> Direct {
         Direct {
             edge: 0,
-            from_m: 0.0,
-            to_m: 1.0,
+            from_frac: 0.0,
+            to_frac: 1.0,
             time_ms,
             len_m: 1.0,
         }

@@ -197,19 +197,17 @@ impl Region {
         let g = &self.graph;
         let mut geometry = Vec::new();
         match via {
-            Via::Direct(d) => push_sub_polyline(g, d.edge, d.from_m, d.to_m, &mut geometry),
+            Via::Direct(d) => push_sub_polyline(g, d.edge, d.from_frac, d.to_frac, &mut geometry),
             Via::Graph { source, target } => {
-                // Endpoint 0 runs along the snapped edge, endpoint 1 along
-                // its twin (see `endpoints`).
-                let (e0, t0) = self.side(a, source);
-                push_sub_polyline(g, e0, t0, g.edge_len_m[e0 as usize], &mut geometry);
+                let (e0, from0, to0) = self.leg(a, source, true);
+                push_sub_polyline(g, e0, from0, to0, &mut geometry);
                 let mut edges = Vec::new();
                 q.unpack_edges(&self.cch, &metric.customized, &mut edges);
                 for &e in &edges {
                     g.edge_polyline_into(e, &mut geometry);
                 }
-                let (e1, t1) = self.side(b, target);
-                push_sub_polyline(g, e1, 0.0, t1, &mut geometry);
+                let (e1, from1, to1) = self.leg(b, target, false);
+                push_sub_polyline(g, e1, from1, to1, &mut geometry);
             }
         }
         geometry.dedup();
@@ -219,15 +217,22 @@ impl Region {
         Ok(Route { eta, geometry })
     }
 
-    /// The edge and offset (from its tail) of a snapped point seen from
-    /// endpoint `side` (0: the snapped edge, 1: its twin).
-    fn side(&self, s: Snap, side: usize) -> (u32, f64) {
-        let g = &self.graph;
-        let tw = g.edge_twin[s.edge as usize];
-        if side == 1 && tw != NONE {
-            (tw, g.edge_len_m[s.edge as usize] - s.offset_m)
+    /// The stretch of road between a snapped point and the search endpoint
+    /// `side` of it (see `endpoints::snap_endpoints`): the edge and the
+    /// shares of it (from its tail) where the stretch starts and ends.
+    /// Endpoint 0 runs along the snapped edge, endpoint 1 along its twin or,
+    /// on a one-way road, is the node the point lies at (an empty stretch).
+    fn leg(&self, s: Snap, side: usize, origin: bool) -> (u32, f64, f64) {
+        let tw = self.graph.edge_twin[s.edge as usize];
+        let (e, t) = match (side, tw) {
+            (1, NONE) => return (s.edge, s.fraction, s.fraction),
+            (1, tw) => (tw, 1.0 - s.fraction),
+            _ => (s.edge, s.fraction),
+        };
+        if origin {
+            (e, t, 1.0)
         } else {
-            (s.edge, s.offset_m)
+            (e, 0.0, t)
         }
     }
 }
@@ -241,24 +246,29 @@ enum Via {
     Direct(Direct),
 }
 
-/// Appends the part of edge `e`'s polyline between offsets `from_m..to_m`.
-fn push_sub_polyline(g: &RoadGraph, e: u32, from_m: f64, to_m: f64, out: &mut Vec<LatLon>) {
+/// Appends the part of edge `e`'s polyline between the shares `from..to`
+/// of its (haversine) length, measured from its tail.
+fn push_sub_polyline(g: &RoadGraph, e: u32, from: f64, to: f64, out: &mut Vec<LatLon>) {
+    use crate::engine::geo::{haversine_m, lerp};
     let poly = g.edge_polyline(e);
+    let total: f64 = poly.windows(2).map(|w| haversine_m(w[0], w[1])).sum();
+    let from_m = from.clamp(0.0, 1.0) * total;
+    let to_m = to.clamp(0.0, 1.0) * total;
+    let to_m = to_m.max(from_m);
     let mut acc = 0.0;
-    let (from_m, to_m) = (from_m.max(0.0), to_m.max(from_m));
     let mut started = false;
     for w in poly.windows(2) {
-        let l = crate::engine::geo::haversine_m(w[0], w[1]);
+        let l = haversine_m(w[0], w[1]);
         let (s0, s1) = (acc, acc + l);
         if !started && from_m <= s1 {
             let t = if l > 0.0 { (from_m - s0) / l } else { 0.0 };
-            out.push(crate::engine::geo::lerp(w[0], w[1], t.clamp(0.0, 1.0)));
+            out.push(lerp(w[0], w[1], t.clamp(0.0, 1.0)));
             started = true;
         }
         if started {
             if to_m <= s1 {
                 let t = if l > 0.0 { (to_m - s0) / l } else { 0.0 };
-                out.push(crate::engine::geo::lerp(w[0], w[1], t.clamp(0.0, 1.0)));
+                out.push(lerp(w[0], w[1], t.clamp(0.0, 1.0)));
                 return;
             }
             out.push(w[1]);
