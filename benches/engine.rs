@@ -140,7 +140,7 @@ fn bench_queries(c: &mut Criterion) {
     group.bench_function("snap", |b| {
         b.iter(|| {
             k += 1;
-            black_box(region.snap.snap(&region.graph, pts[k % pts.len()]))
+            black_box(region.snap.snap(pts[k % pts.len()]))
         })
     });
     let mut l = 0;

@@ -9,8 +9,9 @@
 //! `testing` (test-only fixtures).
 //!
 //! Lines that are comments are skipped, and so is everything from the
-//! first `#[cfg(test)]` of a file on, and files named `tests.rs` (unit
-//! tests kept in a file of their own): unit tests may reach anywhere.
+//! first `#[cfg(test)]` of a file on, and files named `tests.rs` or
+//! `testing.rs` (unit tests and their fixtures kept in a file of their
+//! own): unit tests may reach anywhere.
 
 use std::path::{Path, PathBuf};
 
@@ -113,9 +114,14 @@ fn violations(src: &Path) -> Vec<String> {
         if rel == Path::new("main.rs") || rel == Path::new("lib.rs") {
             continue;
         }
-        if rel.file_name().is_some_and(|f| f == "tests.rs") {
-            // A `#[cfg(test)] mod tests;` file; the declaration is checked
-            // where it stands.
+        if rel
+            .file_name()
+            .is_some_and(|f| f == "tests.rs" || f == "testing.rs")
+        {
+            // A `#[cfg(test)] mod tests;` / `mod testing;` file (unit tests
+            // and their fixtures); the declaration is checked where it
+            // stands, and the engine rank of `testing` keeps other engine
+            // code from using it.
             continue;
         }
         let (layer, module) = place(rel);

@@ -113,7 +113,7 @@ pub fn calibrate(
                 let d_m = rng.random_range(lo.max(0.05)..hi_aim) * 1000.0;
                 let bearing: f64 = rng.random_range(0.0..std::f64::consts::TAU);
                 let tp = destination(sp, bearing, d_m);
-                let t = match snap.snap(g, tp) {
+                let t = match snap.snap(tp) {
                     Some(sn) if sn.distance_m < d_m * 0.5 => g.edge_tail[sn.edge as usize],
                     _ => rng.random_range(0..n) as u32,
                 };

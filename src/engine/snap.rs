@@ -106,7 +106,7 @@ impl SnapIndex {
     }
 
     /// The nearest road point to `p`, if the graph has any segment.
-    pub fn snap(&self, _g: &RoadGraph, p: LatLon) -> Option<Snap> {
+    pub fn snap(&self, p: LatLon) -> Option<Snap> {
         let q = self.proj.project(p);
         let seg = self.tree.nearest_neighbor(&q)?;
         let (a, b) = (seg.geom().from, seg.geom().to);

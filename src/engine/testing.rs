@@ -1,7 +1,7 @@
 //! Fixtures for the engine's unit tests: a small synthetic city built by
 //! the real pipeline, the reference shortest-path distances of petgraph's
 //! Dijkstra (`petgraph::algo::dijkstra`, crates.io petgraph 0.8) on the same
-//! graph and weights, and a deterministic pair sampler.
+//! graph and weights, and a deterministic pair sampler (`testkit`'s).
 
 use crate::engine::artifact::Artifact;
 use crate::engine::build::{build_from_graph, Quiet};
@@ -34,25 +34,7 @@ pub(crate) fn reference_dists(g: &RoadGraph, weights: &[u32], s: u32) -> Vec<Opt
     out
 }
 
-/// Deterministic pseudo-random numbers (SplitMix64), so sampled pairs are
-/// the same on every run.
-pub(crate) struct Rng(u64);
-
-impl Rng {
-    pub(crate) fn new(seed: u64) -> Self {
-        Self(seed)
-    }
-
-    pub(crate) fn next_u64(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^ (z >> 31)
-    }
-
-    /// Uniform below `n`.
-    pub(crate) fn below(&mut self, n: usize) -> u32 {
-        (self.next_u64() % n as u64) as u32
-    }
-}
+/// Deterministic pseudo-random numbers (SplitMix64, shared with the
+/// integration tests and benches), so sampled pairs are the same on every
+/// run.
+pub(crate) use crate::testkit::SplitMix64 as Rng;

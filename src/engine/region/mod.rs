@@ -122,7 +122,7 @@ impl Region {
 
     /// Snaps a coordinate, enforcing the maximum snap distance.
     pub fn snap_within(&self, p: LatLon, which: End, max_snap_m: f64) -> Result<Snap, EtaError> {
-        match self.snap.snap(&self.graph, p) {
+        match self.snap.snap(p) {
             Some(s) if s.distance_m <= max_snap_m => Ok(s),
             Some(s) => Err(EtaError::OffNetwork {
                 which,

@@ -10,7 +10,7 @@
 //! - heuristic answers: the haversine formula (great-circle distance on a
 //!   sphere, mean Earth radius 6 371 008.8 m, IUGG) × circuity ÷ speed,
 //!   written out here;
-//! - unreachable pairs: `petgraph::algo::has_path_connecting`.
+//! - unreachable pairs: petgraph's Dijkstra reaches no distance.
 
 use super::{matrix_trip, trip, Catalog};
 use crate::engine::build::{assemble, build_from_graph, Quiet};
@@ -21,7 +21,6 @@ use crate::serving::settings::{Coverage, CustomizePriority, RegionConfig, Servin
 use crate::serving::snapshot::{RegionHandle, UpdateError, UpdateSettings};
 use crate::serving::tier::{FallbackReason as R, Tier};
 use chrono::{Duration as Days, Utc};
-use petgraph::graph::{DiGraph, NodeIndex};
 use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
 
@@ -108,24 +107,7 @@ fn region_estimate(cal: &Calibration, a: LatLon, b: LatLon) -> (f64, f64) {
 
 /// petgraph Dijkstra travel time (ms) from node `s` to `t` over `w`.
 fn dijkstra_ms(g: &RoadGraph, w: &[u32], s: u32, t: u32) -> Option<u64> {
-    let mut pg = DiGraph::<(), u64>::new();
-    for _ in 0..g.num_nodes() {
-        pg.add_node(());
-    }
-    for (e, &we) in w.iter().enumerate() {
-        pg.add_edge(
-            NodeIndex::new(g.edge_tail[e] as usize),
-            NodeIndex::new(g.edge_head[e] as usize),
-            u64::from(we),
-        );
-    }
-    let d = petgraph::algo::dijkstra(
-        &pg,
-        NodeIndex::new(s as usize),
-        Some(NodeIndex::new(t as usize)),
-        |e| *e.weight(),
-    );
-    d.get(&NodeIndex::new(t as usize)).copied()
+    crate::engine::testing::reference_dists(g, w, s)[t as usize]
 }
 
 /// Free-flow weights in ms, by hand: length ÷ speed.
@@ -453,24 +435,9 @@ async fn unreachable_pairs_fall_back_per_trip_and_per_cell() {
     let (artifact, g) = islands(dir.path());
     let cat = catalog(&artifact, &g, &dir.path().join("state")).await;
     let (s, t, u) = (0u32, 16u32, 5u32);
-    // petgraph agrees there is no path from island one to island two.
-    let mut pg = DiGraph::<(), ()>::new();
-    for _ in 0..g.num_nodes() {
-        pg.add_node(());
-    }
-    for e in 0..g.num_edges() {
-        pg.add_edge(
-            NodeIndex::new(g.edge_tail[e] as usize),
-            NodeIndex::new(g.edge_head[e] as usize),
-            (),
-        );
-    }
-    assert!(!petgraph::algo::has_path_connecting(
-        &pg,
-        NodeIndex::new(s as usize),
-        NodeIndex::new(t as usize),
-        None
-    ));
+    // petgraph's Dijkstra agrees there is no path from island one to two.
+    let ones = vec![1; g.num_edges()];
+    assert_eq!(dijkstra_ms(&g, &ones, s, t), None);
     let (a, b, c) = (g.node_pos(s), g.node_pos(t), g.node_pos(u));
     let r = trip(&cat, a, b, None, Some(2000), false, true).await;
     assert_eq!(
