@@ -701,6 +701,51 @@ async fn metrics_geojson_and_openapi_parse_with_outside_tools() {
         routes.iter().all(|r| !r.contains('?')),
         "routes are templates, never raw URIs"
     );
+    // Per region: answers, fallbacks and latency carry the configured region
+    // name (or `none` outside every region), nothing else; the ETA answered
+    // above in "testcity" is counted there.
+    for metric in [
+        "hodos_answers_total",
+        "hodos_fallbacks_total",
+        "hodos_request_duration_seconds_count",
+    ] {
+        let regions: std::collections::BTreeSet<String> = scrape
+            .samples
+            .iter()
+            .filter(|s| s.metric == metric)
+            .map(|s| s.labels.get("region").unwrap_or("<missing>").to_string())
+            .collect();
+        let allowed: std::collections::BTreeSet<String> =
+            ["testcity".to_string(), "none".to_string()].into();
+        assert!(
+            regions.is_subset(&allowed) && regions.contains("testcity"),
+            "{metric}: region labels {regions:?}"
+        );
+    }
+    let eta_here: f64 = scrape
+        .samples
+        .iter()
+        .filter(|s| {
+            s.metric == "hodos_answers_total"
+                && s.labels.get("route") == Some("/v1/eta")
+                && s.labels.get("region") == Some("testcity")
+        })
+        .map(|s| match s.value {
+            prometheus_parse::Value::Counter(v) => v,
+            _ => 0.0,
+        })
+        .sum();
+    assert!(eta_here >= 1.0, "ETA counted in its region: {eta_here}");
+    // Build info: one series, value 1, labelled with this crate's version.
+    let info: Vec<_> = scrape
+        .samples
+        .iter()
+        .filter(|s| s.metric == "hodos_build_info")
+        .collect();
+    assert_eq!(info.len(), 1, "one build info series");
+    assert_eq!(info[0].labels.get("version"), Some(env!("CARGO_PKG_VERSION")));
+    assert!(info[0].labels.get("commit").is_some_and(|c| !c.is_empty()));
+    assert!(matches!(info[0].value, prometheus_parse::Value::Gauge(v) if v == 1.0));
 
     // OpenAPI 3.1: every served path is documented, and an external
     // validator (openapi-spec-validator from PyPI) accepts the document.

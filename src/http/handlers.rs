@@ -7,7 +7,8 @@ use super::dto::{
 };
 use super::problem::ApiError;
 use super::routes;
-use super::{AppState, TierLabel};
+use super::{AnswerLabels, AppState};
+use metrics::SharedString;
 use crate::serving::answer::{self, CellAnswer};
 use crate::serving::tier::{FallbackReason, Tier};
 use axum::body::Bytes;
@@ -35,8 +36,8 @@ async fn body_bytes(state: &AppState, req: Request) -> Result<Bytes, ApiError> {
         .map_err(|_| ApiError::TooLarge { limit })
 }
 
-fn with_tier(mut resp: Response, tier: &'static str) -> Response {
-    resp.extensions_mut().insert(TierLabel(tier));
+fn with_labels(mut resp: Response, tier: &'static str, region: SharedString) -> Response {
+    resp.extensions_mut().insert(AnswerLabels { tier, region });
     resp
 }
 
@@ -66,13 +67,16 @@ async fn answer_trip(
         admitted,
     )
     .await;
-    crate::serving::metrics::answer(route, a.tier, a.reason, 1);
+    let region = state
+        .catalog
+        .region_label_of(a.snapshot.as_ref().map(|(r, _)| r.as_str()));
+    crate::serving::metrics::answer(route, region.clone(), a.tier, a.reason, 1);
     let resp = if geometry {
         Json(RouteResponse::new(&a, trip.from, trip.to)).into_response()
     } else {
         Json(EtaResponse::from(&a)).into_response()
     };
-    with_tier(resp, a.tier.as_str())
+    with_labels(resp, a.tier.as_str(), region)
 }
 
 pub async fn eta_get(
@@ -99,20 +103,20 @@ pub async fn route(State(state): State<AppState>, req: Request) -> Result<Respon
     Ok(answer_trip(&state, trip, routes::ROUTE, true, ok).await)
 }
 
-/// Counts a matrix's cells per (tier, reason), recording each count once (a
-/// 20×20 matrix would otherwise do 400 labelled-counter lookups), and
-/// returns the latency tier label: the cells' common tier, `heuristic` when
-/// they mix, `none` for no cells.
-fn count_cells(cells: &[CellAnswer]) -> &'static str {
+/// Counts a matrix's cells per (region, tier, reason), recording each count
+/// once (a 20×20 matrix would otherwise do 400 labelled-counter lookups),
+/// and returns the latency tier label: the cells' common tier, `heuristic`
+/// when they mix, `none` for no cells.
+fn count_cells(state: &AppState, cells: &[CellAnswer]) -> &'static str {
     let mut best: Option<Tier> = None;
-    let mut counts: Vec<(Tier, Option<FallbackReason>, u64)> = Vec::new();
+    let mut counts: Vec<(Option<u16>, Tier, Option<FallbackReason>, u64)> = Vec::new();
     for c in cells {
         match counts
             .iter_mut()
-            .find(|(t, r, _)| *t == c.tier && *r == c.reason)
+            .find(|(g, t, r, _)| *g == c.region && *t == c.tier && *r == c.reason)
         {
-            Some(k) => k.2 += 1,
-            None => counts.push((c.tier, c.reason, 1)),
+            Some(k) => k.3 += 1,
+            None => counts.push((c.region, c.tier, c.reason, 1)),
         }
         best = Some(match best {
             None => c.tier,
@@ -120,8 +124,9 @@ fn count_cells(cells: &[CellAnswer]) -> &'static str {
             Some(_) => Tier::Heuristic,
         });
     }
-    for (t, r, n) in counts {
-        crate::serving::metrics::answer(routes::MATRIX, t, r, n);
+    for (g, t, r, n) in counts {
+        let region = state.catalog.region_label(g);
+        crate::serving::metrics::answer(routes::MATRIX, region, t, r, n);
     }
     best.map(|t| t.as_str()).unwrap_or("none")
 }
@@ -132,10 +137,15 @@ pub async fn matrix(State(state): State<AppState>, req: Request) -> Result<Respo
     let m =
         parse_json::<MatrixRequest>(&body)?.validate(state.catalog.cfg.query.max_matrix_cells)?;
     let a = answer::matrix_trip(&state.catalog, m.from, m.to, m.depart_at, m.budget_ms, ok).await;
-    let label = count_cells(&a.cells[..a.rows * a.cols]);
-    Ok(with_tier(
+    let tier = count_cells(&state, &a.cells[..a.rows * a.cols]);
+    // Latency is labelled with the region that answered the most cells.
+    let region = state
+        .catalog
+        .region_label_of(a.snapshot.as_ref().map(|(r, _)| r.as_str()));
+    Ok(with_labels(
         Json(MatrixResponse::from(&a)).into_response(),
-        label,
+        tier,
+        region,
     ))
 }
 

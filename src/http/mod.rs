@@ -86,11 +86,16 @@ impl AppState {
     }
 }
 
-/// Tier label a handler leaves on its response for the latency histogram.
-#[derive(Debug, Clone, Copy)]
-pub struct TierLabel(pub &'static str);
+/// Labels an answer handler leaves on its response for the latency
+/// histogram: the answering tier and region (closed sets).
+#[derive(Debug, Clone)]
+pub struct AnswerLabels {
+    pub tier: &'static str,
+    pub region: ::metrics::SharedString,
+}
 
-/// Records latency by matched route (never the raw URI) and tier.
+/// Records latency by matched route (never the raw URI), tier and region
+/// (`none` for routes that give no answer).
 async fn track(matched: Option<MatchedPath>, req: Request, next: Next) -> Response {
     // The templates are a closed set: label with a static string (no
     // allocation per request).
@@ -100,12 +105,12 @@ async fn track(matched: Option<MatchedPath>, req: Request, next: Next) -> Respon
     };
     let start = Instant::now();
     let resp = next.run(req).await;
-    let tier = resp
-        .extensions()
-        .get::<TierLabel>()
-        .map(|t| t.0)
-        .unwrap_or("none");
-    ::metrics::histogram!(crate::serving::metrics::REQUEST_DURATION, "route" => route, "tier" => tier)
+    let none = ::metrics::SharedString::const_str(crate::serving::metrics::NO_REGION);
+    let (tier, region) = match resp.extensions().get::<AnswerLabels>() {
+        Some(l) => (l.tier, l.region.clone()),
+        None => ("none", none),
+    };
+    ::metrics::histogram!(crate::serving::metrics::REQUEST_DURATION, "route" => route, "tier" => tier, "region" => region)
         .record(start.elapsed().as_secs_f64());
     resp
 }

@@ -10,6 +10,7 @@
 //! (its `exporter` module).
 
 use crate::serving::tier::{FallbackReason, Tier};
+use metrics::SharedString;
 
 pub const REQUEST_DURATION: &str = "hodos_request_duration_seconds";
 pub const ANSWERS: &str = "hodos_answers_total";
@@ -21,6 +22,10 @@ pub const RELOADS: &str = "hodos_reloads_total";
 pub const REJECTED_ROWS: &str = "hodos_rejected_rows_total";
 pub const GRAPH_IN_FLIGHT: &str = "hodos_graph_work_in_flight";
 pub const REGION_READY: &str = "hodos_region_ready";
+pub const BUILD_INFO: &str = "hodos_build_info";
+
+/// The `region` label of answers outside every region.
+pub const NO_REGION: &str = "none";
 
 /// Describes every series (units and help text) to the installed recorder.
 pub fn describe() {
@@ -59,29 +64,70 @@ pub fn describe() {
     );
     describe_gauge!(GRAPH_IN_FLIGHT, "Requests doing graph work right now.");
     describe_gauge!(
+        BUILD_INFO,
+        "Always 1; the labels name the running build (version, commit, profile)."
+    );
+    describe_gauge!(
         REGION_READY,
         "1 when the region serves from a graph, 0 when degraded."
     );
 }
 
-pub fn answer(route: &'static str, tier: Tier, reason: Option<FallbackReason>, n: u64) {
-    metrics::counter!(ANSWERS, "route" => route, "tier" => tier.as_str()).increment(n);
+/// Counts `n` answers of one route, region, tier and reason. `region` is a
+/// configured region name or `none` (see `Catalog::region_label`).
+pub fn answer(
+    route: &'static str,
+    region: SharedString,
+    tier: Tier,
+    reason: Option<FallbackReason>,
+    n: u64,
+) {
     if let Some(r) = reason {
-        metrics::counter!(FALLBACKS, "route" => route, "reason" => r.as_str()).increment(n);
+        metrics::counter!(FALLBACKS, "route" => route, "region" => region.clone(), "reason" => r.as_str())
+            .increment(n);
     }
+    metrics::counter!(ANSWERS, "route" => route, "region" => region, "tier" => tier.as_str())
+        .increment(n);
+}
+
+/// What identifies this build: crate version, git commit (set by the
+/// build script, `unknown` outside a checkout) and profile.
+pub fn build_labels() -> [(&'static str, &'static str); 3] {
+    [
+        ("version", env!("CARGO_PKG_VERSION")),
+        ("commit", env!("HODOS_GIT_COMMIT")),
+        (
+            "profile",
+            if cfg!(debug_assertions) {
+                "debug"
+            } else {
+                "release"
+            },
+        ),
+    ]
 }
 
 /// Pre-registers every labelled series at zero so dashboards see them from
 /// the first scrape.
 pub fn register_zero(routes: &[&'static str], regions: &[String]) {
-    for &route in routes {
-        for t in Tier::ALL {
-            metrics::counter!(ANSWERS, "route" => route, "tier" => t.as_str()).increment(0);
-        }
-        for r in FallbackReason::ALL {
-            metrics::counter!(FALLBACKS, "route" => route, "reason" => r.as_str()).increment(0);
+    let labels = regions
+        .iter()
+        .map(|r| SharedString::from_owned(r.clone()))
+        .chain([SharedString::const_str(NO_REGION)]);
+    for region in labels {
+        for &route in routes {
+            for t in Tier::ALL {
+                metrics::counter!(ANSWERS, "route" => route, "region" => region.clone(), "tier" => t.as_str())
+                    .increment(0);
+            }
+            for r in FallbackReason::ALL {
+                metrics::counter!(FALLBACKS, "route" => route, "region" => region.clone(), "reason" => r.as_str())
+                    .increment(0);
+            }
         }
     }
+    let [v, c, p] = build_labels();
+    metrics::gauge!(BUILD_INFO, v.0 => v.1, c.0 => c.1, p.0 => p.1).set(1.0);
     for region in regions {
         for table in ["historical", "live", "artifact"] {
             for outcome in ["accepted", "rejected", "failed"] {

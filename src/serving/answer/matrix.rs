@@ -32,6 +32,7 @@ fn heuristic_cell(cal: &Calibration, a: LatLon, b: LatLon, reason: FallbackReaso
         meters,
         tier: Tier::Heuristic,
         reason: Some(reason),
+        region: None,
     }
 }
 
@@ -145,6 +146,25 @@ async fn region_matrix(
     deadline: Instant,
     admitted: bool,
 ) -> MatrixAnswer {
+    let mut m = region_matrix_inner(cat, handle, from, to, depart, deadline, admitted).await;
+    if let Some(idx) = handle.and_then(|h| cat.index_of(h)) {
+        for c in &mut m.cells {
+            c.region = Some(idx);
+        }
+    }
+    m
+}
+
+/// [`region_matrix`] before its cells are marked with the region.
+async fn region_matrix_inner(
+    cat: &Catalog,
+    handle: Option<&Arc<RegionHandle>>,
+    from: &[LatLon],
+    to: &[LatLon],
+    depart: Option<DateTime<Utc>>,
+    deadline: Instant,
+    admitted: bool,
+) -> MatrixAnswer {
     let (rows, cols) = (from.len(), to.len());
     let all_heuristic = |cal: &Calibration, reason, snapshot| MatrixAnswer {
         rows,
@@ -234,6 +254,7 @@ fn answers(
                 meters,
                 tier: chosen.tier,
                 reason: chosen.reason,
+                region: None,
             },
             Cell::Unreachable => heuristic_cell(cal, a, b, FallbackReason::Unreachable),
             Cell::Unavailable => heuristic_cell(cal, a, b, FallbackReason::OffNetwork),

@@ -58,6 +58,9 @@ pub struct Catalog {
     pub admission: Arc<Admission>,
     /// Calibration used outside every region (configured defaults).
     pub outside: Calibration,
+    /// Metric label of each region, in `regions` order: built once so
+    /// recording an answer clones an `Arc`, not a name.
+    labels: Vec<metrics::SharedString>,
 }
 
 impl Catalog {
@@ -70,10 +73,37 @@ impl Catalog {
                 Duration::from_millis(cfg.query.max_queue_ms),
                 cfg.query.max_cpu_wait,
             ),
+            labels: regions
+                .iter()
+                .map(|r| metrics::SharedString::from_shared(Arc::<str>::from(r.name.as_str())))
+                .collect(),
             regions,
             cfg,
             outside,
         }
+    }
+
+    /// The `region` metric label of a region index (`none` outside every
+    /// region): a closed set, the configured names plus `none`.
+    pub fn region_label(&self, region: Option<u16>) -> metrics::SharedString {
+        region
+            .and_then(|i| self.labels.get(usize::from(i)))
+            .cloned()
+            .unwrap_or(metrics::SharedString::const_str(crate::serving::metrics::NO_REGION))
+    }
+
+    /// The `region` metric label of a region named in an answer's tag.
+    pub fn region_label_of(&self, name: Option<&str>) -> metrics::SharedString {
+        let idx = name.and_then(|n| self.regions.iter().position(|r| r.name == n));
+        self.region_label(idx.map(|i| i as u16))
+    }
+
+    /// Index of a region handle in [`Catalog::regions`].
+    fn index_of(&self, handle: &Arc<RegionHandle>) -> Option<u16> {
+        self.regions
+            .iter()
+            .position(|r| Arc::ptr_eq(r, handle))
+            .map(|i| i as u16)
     }
 
     /// The first region whose coverage holds both points.
@@ -116,6 +146,10 @@ pub struct CellAnswer {
     pub meters: f64,
     pub tier: Tier,
     pub reason: Option<FallbackReason>,
+    /// Index in [`Catalog::regions`] of the region that answered (graph or
+    /// its calibration), `None` outside every region: the cell's metric
+    /// label ([`Catalog::region_label`]).
+    pub region: Option<u16>,
 }
 
 /// A matrix answer, row-major.
