@@ -169,19 +169,19 @@ async fn node_pairs_through_http_equal_dijkstra_before_and_after_an_upload() {
     let mut speed_of: HashMap<(u64, u64), f32> = HashMap::new();
     let mut rng = SplitMix64::new(17);
     let mut csv = HistoricalCsv::with_header();
-    let mut speeds = vec![0f32; g.num_edges()];
-    for e in 0..g.num_edges() {
-        let ends = (
-            g.node_ext[g.edge_tail[e] as usize],
-            g.node_ext[g.edge_head[e] as usize],
-        );
-        let s = *speed_of.entry(ends).or_insert_with(|| {
-            let s = 5.0 + (rng.next_u64() % 1000) as f32 / 10.0;
-            csv.row(ends.0, ends.1, HOUR, s);
-            s
-        });
-        speeds[e] = s;
-    }
+    let speeds: Vec<f32> = (0..g.num_edges())
+        .map(|e| {
+            let ends = (
+                g.node_ext[g.edge_tail[e] as usize],
+                g.node_ext[g.edge_head[e] as usize],
+            );
+            *speed_of.entry(ends).or_insert_with(|| {
+                let s = 5.0 + (rng.next_u64() % 1000) as f32 / 10.0;
+                csv.row(ends.0, ends.1, HOUR, s);
+                s
+            })
+        })
+        .collect();
     let table = write(dir.path(), "random.csv", csv.into_string());
     let r = send(
         &admin,
