@@ -258,7 +258,7 @@ pub fn curl_lines(
     );
     let _ = writeln!(
         out,
-        "curl -s '{p}/v1/eta?from={:.6},{:.6}&to={:.6},{:.6}&depart_at=2026-12-07T08:15:00Z&budget_ms=1500'",
+        "curl -s '{p}/v1/eta?from={:.6},{:.6}&to={:.6},{:.6}&leaving=2026-12-07T08:15:00Z&budget_ms=1500'",
         s.lat, s.lon, n.lat, n.lon
     );
     let _ = writeln!(out, "# a 2x3 matrix");

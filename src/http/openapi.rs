@@ -70,7 +70,7 @@ pub fn eta_get() -> Value {
         "parameters": [
             {"name": "from", "in": "query", "required": true, "schema": {"type": "string", "pattern": "^-?[0-9.]+,-?[0-9.]+$"}, "description": "Origin as LAT,LON (WGS84 degrees)"},
             {"name": "to", "in": "query", "required": true, "schema": {"type": "string"}, "description": "Destination as LAT,LON"},
-            {"name": "depart_at", "in": "query", "required": false, "schema": {"type": "string", "format": "date-time"}},
+            {"name": "leaving", "in": "query", "required": false, "schema": {"type": "string", "format": "date-time"}, "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"},
             {"name": "budget_ms", "in": "query", "required": false, "schema": {"type": "integer", "minimum": 1}}
         ],
         "responses": merge(json!({"200": json_response("An ETA", "EtaResponse")}), errors(&[]))
@@ -197,11 +197,11 @@ fn schemas() -> Value {
             "properties": {"lat": {"type": "number", "minimum": -90, "maximum": 90}, "lon": {"type": "number", "minimum": -180, "maximum": 180}}},
         "EtaRequest": {"type": "object", "required": ["from", "to"], "additionalProperties": false,
             "properties": {"from": {"$ref": "#/components/schemas/Coord"}, "to": {"$ref": "#/components/schemas/Coord"},
-                           "depart_at": {"type": "string", "format": "date-time"}, "budget_ms": {"type": "integer", "minimum": 1}}},
+                           "leaving": {"type": "string", "format": "date-time", "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"}, "budget_ms": {"type": "integer", "minimum": 1}}},
         "MatrixRequest": {"type": "object", "required": ["from", "to"], "additionalProperties": false,
             "properties": {"from": {"type": "array", "minItems": 1, "items": {"$ref": "#/components/schemas/Coord"}},
                            "to": {"type": "array", "minItems": 1, "items": {"$ref": "#/components/schemas/Coord"}},
-                           "depart_at": {"type": "string", "format": "date-time"}, "budget_ms": {"type": "integer", "minimum": 1}}},
+                           "leaving": {"type": "string", "format": "date-time", "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"}, "budget_ms": {"type": "integer", "minimum": 1}}},
         "Tier": {"type": "string", "enum": ["live", "historical", "heuristic"]},
         "FallbackReason": {"type": ["string", "null"], "enum": ["no_live_data", "live_stale", "off_network", "unreachable", "budget_exceeded", "overloaded", "outside_regions", "region_unavailable", null]},
         "SnapshotRef": {"type": ["object", "null"], "properties": {"region": {"type": "string"}, "generation": {"type": "integer"}}},
