@@ -232,7 +232,7 @@ fn schemas() -> Value {
                            "status": {"const": "ready"}}},
         "RowError": {"type": "object", "required": ["kind", "message"],
             "properties": {"index": {"type": "integer", "description": "JSON batch: 0-based element index"},
-                           "kind": {"type": "string", "enum": ["unknown_edge", "nonpositive_speed", "not_a_number", "over_max_speed", "bad_hour", "bad_timestamp", "future_timestamp", "bad_samples", "malformed_row"]},
+                           "kind": {"type": "string", "enum": ["unknown_edge", "segment_mismatch", "nonpositive_speed", "not_a_number", "over_max_speed", "bad_hour", "bad_timestamp", "future_timestamp", "bad_samples", "malformed_row"]},
                            "line": {"type": "integer", "description": "CSV: 1-based line of the file"}, "message": {"type": "string"}}},
         "TableReport": {"type": "object", "required": ["accepted", "bad", "bad_by_kind", "first_errors", "rejected", "rows", "superseded"],
             "properties": {"accepted": {"type": "integer"}, "bad": {"type": "integer"},
