@@ -399,7 +399,7 @@ fn historical_header_rules() {
     for bad in [
         "tail,head,hour_of_week,kmh,comment\n1001,1002,0,40,x\n", // extra
         "tail,head,kmh\n1001,1002,40\n",                          // missing
-        "tail,head,hour_of_week,kmh,kmh\n",                        // repeated
+        "tail,head,hour_of_week,kmh,kmh\n",                       // repeated
         "tail,hour_of_week,kmh\n1001,0,40\n",                     // half a key
         "way,hour_of_week,kmh\n1,0,40\n",                         // no key
         "",                                                       // nothing
@@ -589,12 +589,7 @@ x,1003,35,2026-03-29T08:00:00Z,1
     assert_eq!(live.len(), 2);
     // Header rule as for the historical table.
     let e = live
-        .apply_csv(
-            &idx,
-            b"tail,head,kmh,observed_at\n",
-            t(NOW),
-            &lenient(),
-        )
+        .apply_csv(&idx, b"tail,head,kmh,observed_at\n", t(NOW), &lenient())
         .unwrap_err();
     assert!(matches!(e, SpeedsError::Header(_)));
 }

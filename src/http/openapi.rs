@@ -130,7 +130,7 @@ pub fn admin_status() -> Value {
 }
 
 pub fn admin_put_historical() -> Value {
-    json!({"operationId": "adminPutHistorical", "summary": "Upload a historical profile (CSV: from_node,to_node,hour_of_week,speed_kmh)", "security": admin_auth(),
+    json!({"operationId": "adminPutHistorical", "summary": "Upload a historical profile (CSV: hour_of_week,kmh and segment and/or tail,head, optional way)", "security": admin_auth(),
         "parameters": region_param(),
         "requestBody": {"required": true, "content": {"text/csv": {"schema": {"type": "string"}}}},
         "responses": {"200": json_response("Accepted, with the validation report", "HistoricalAccepted"),
@@ -219,8 +219,12 @@ fn schemas() -> Value {
                            "tier": {"type": "array", "items": {"type": "array", "items": {"$ref": "#/components/schemas/Tier"}}},
                            "fallback_reason": {"type": "array", "items": {"type": "array", "items": {"$ref": "#/components/schemas/FallbackReason"}}},
                            "snapshot": {"$ref": "#/components/schemas/SnapshotRef"}}},
-        "Observation": {"type": "object", "required": ["from_node", "to_node", "speed_kmh", "observed_at", "samples"],
-            "properties": {"from_node": {"type": "integer"}, "to_node": {"type": "integer"}, "speed_kmh": {"type": "number", "exclusiveMinimum": 0},
+        "Observation": {"type": "object", "required": ["kmh", "observed_at", "samples"], "additionalProperties": false,
+            "description": "Names its segments by `segment`, or by `tail` and `head` (every segment with those ends, only those on `way` when given); `segment` given with `way`, `tail` or `head` must agree with them",
+            "anyOf": [{"required": ["segment"]}, {"required": ["tail", "head"]}],
+            "properties": {"segment": {"type": ["integer", "null"], "minimum": 0}, "way": {"type": ["integer", "null"], "minimum": 0},
+                           "tail": {"type": ["integer", "null"], "minimum": 0}, "head": {"type": ["integer", "null"], "minimum": 0},
+                           "kmh": {"type": "number", "exclusiveMinimum": 0},
                            "observed_at": {"type": "string", "format": "date-time"}, "samples": {"type": "integer", "minimum": 1}}},
         "HealthResponse": {"type": "object", "required": ["status"], "properties": {"status": {"const": "alive"}}},
         "RegionReadiness": {"type": "object", "required": ["generation", "reason", "region", "state"],

@@ -56,10 +56,7 @@ impl HistoricalCsv {
         hour_of_week: impl Display,
         kmh: impl Display,
     ) -> &mut Self {
-        let _ = writeln!(
-            self.0,
-            "{segment},{way},{tail},{head},{hour_of_week},{kmh}"
-        );
+        let _ = writeln!(self.0, "{segment},{way},{tail},{head},{hour_of_week},{kmh}");
         self
     }
 

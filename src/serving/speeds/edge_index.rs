@@ -314,11 +314,19 @@ impl EdgeIndex {
         named.edges = self.edges(tail, head);
         if let Some(w) = key.way {
             let w = self.ways.binary_search(&w).map_err(|_| none)? as u32;
-            if !named.edges.iter().any(|&e| self.way_of_edge[e as usize] == w) {
+            if !named
+                .edges
+                .iter()
+                .any(|&e| self.way_of_edge[e as usize] == w)
+            {
                 return Err(none);
             }
             // All edges on this way: no filter needed.
-            if named.edges.iter().any(|&e| self.way_of_edge[e as usize] != w) {
+            if named
+                .edges
+                .iter()
+                .any(|&e| self.way_of_edge[e as usize] != w)
+            {
                 named.way = Some(w);
             }
         }
