@@ -18,7 +18,8 @@
 //! applies these rules for both tables.
 //!
 //! Built once per graph and held for the life of a region, so it is laid out
-//! for size (about 20 bytes per edge and 12 per node; a hash map of pairs
+//! for size (about 24 bytes per edge, 4 of them the way check, 12 per node and
+//! 8 per distinct way; a hash map of pairs
 //! was twice that): the distinct external node ids, sorted, are the
 //! *groups*; edges are stored grouped by their tail's group and, within it,
 //! sorted by their head's group (a CSR over external ids). An
