@@ -41,7 +41,7 @@ pub struct DemoFiles {
     pub historical: PathBuf,
     pub config: Config,
     /// The bridge the live feed slows down: its name and directed edges as
-    /// (from_node, to_node) external ids.
+    /// (tail, head) external node ids.
     pub bridge: (String, Vec<(u64, u64)>),
     /// Sample coordinates on either bank.
     pub south: crate::engine::geo::LatLon,
@@ -74,20 +74,19 @@ fn is_arterial(c: RoadClass) -> bool {
     )
 }
 
-/// The demo's historical profile as CSV.
+/// The demo's historical profile as CSV, one row per arterial segment and
+/// rush hour, naming the segment by its id in `g` (the artifact's graph)
+/// with its way id beside it as a check.
 pub fn historical_csv(g: &RoadGraph) -> String {
-    let mut out = String::from("from_node,to_node,hour_of_week,speed_kmh\n");
+    let mut out = String::from("segment,way,hour_of_week,kmh\n");
     for e in 0..g.num_edges() {
         if !is_arterial(g.edge_class[e]) {
             continue;
         }
-        let (a, b) = (
-            g.node_ext[g.edge_tail[e] as usize],
-            g.node_ext[g.edge_head[e] as usize],
-        );
+        let way = g.edge_way[e];
         for h in 0..168 {
             if let Some(f) = rush_factor(h) {
-                let _ = writeln!(out, "{a},{b},{h},{:.1}", g.edge_speed_kmh[e] * f);
+                let _ = writeln!(out, "{e},{way},{h},{:.1}", g.edge_speed_kmh[e] * f);
             }
         }
     }
@@ -212,7 +211,7 @@ pub async fn live_feed(
         let now = Utc::now().to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
         let batch: Vec<serde_json::Value> = bridge
             .iter()
-            .map(|(a, b)| serde_json::json!({"from_node": a, "to_node": b, "speed_kmh": speed, "observed_at": now, "samples": 5}))
+            .map(|(a, b)| serde_json::json!({"tail": a, "head": b, "kmh": speed, "observed_at": now, "samples": 5}))
             .collect();
         if let Ok(body) = serde_json::to_vec(&batch) {
             if let Err(e) = region.put_live(&body, false).await {
@@ -258,7 +257,7 @@ pub fn curl_lines(
     );
     let _ = writeln!(
         out,
-        "curl -s '{p}/v1/eta?from={:.6},{:.6}&to={:.6},{:.6}&depart_at=2026-12-07T08:15:00Z&budget_ms=1500'",
+        "curl -s '{p}/v1/eta?from={:.6},{:.6}&to={:.6},{:.6}&leaving=2026-12-07T08:15:00Z&budget_ms=1500'",
         s.lat, s.lon, n.lat, n.lon
     );
     let _ = writeln!(out, "# a 2x3 matrix");
@@ -300,7 +299,7 @@ pub fn curl_lines(
     let (fa, fb) = files.bridge.1.first().copied().unwrap_or((1, 2));
     let _ = writeln!(
         out,
-        r#"curl -s -X POST {a}/admin/regions/{region}/live -H 'authorization: Bearer {token}' -H 'content-type: application/json' -d '[{{"from_node":{fa},"to_node":{fb},"speed_kmh":12,"observed_at":"'$(date -u +%Y-%m-%dT%H:%M:%SZ)'","samples":3}}]'"#
+        r#"curl -s -X POST {a}/admin/regions/{region}/live -H 'authorization: Bearer {token}' -H 'content-type: application/json' -d '[{{"tail":{fa},"head":{fb},"kmh":12,"observed_at":"'$(date -u +%Y-%m-%dT%H:%M:%SZ)'","samples":3}}]'"#
     );
     let _ = writeln!(
         out,

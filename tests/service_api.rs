@@ -193,22 +193,22 @@ async fn bad_inputs_get_problem_details() {
             "mode is not a known parameter",
         ),
         (
-            "unparseable depart_at",
+            "unparseable leaving",
             "POST",
             "/v1/eta".into(),
             Some("application/json"),
-            serde_json::to_vec(&json!({"from": a, "to": b, "depart_at": "tomorrow at 8"})).unwrap(),
+            serde_json::to_vec(&json!({"from": a, "to": b, "leaving": "tomorrow at 8"})).unwrap(),
             422,
-            "depart_at must be an RFC 3339 date-time",
+            "leaving must be an RFC 3339 date-time",
         ),
         (
-            "unparseable depart_at (GET)",
+            "unparseable leaving (GET)",
             "GET",
-            "/v1/eta?from=1,1&to=2,2&depart_at=08:00".into(),
+            "/v1/eta?from=1,1&to=2,2&leaving=08:00".into(),
             None,
             vec![],
             422,
-            "depart_at",
+            "leaving",
         ),
         (
             "zero budget",
@@ -273,6 +273,74 @@ async fn bad_inputs_get_problem_details() {
     }
 }
 
+/// The departure time is `leaving`; the former name `depart_at` is refused
+/// like any unknown field (422, `urn:hodos:problem:invalid-field`), in every
+/// request shape, with a problem naming the old field and the new one.
+/// Source: the API rename documented in `http::dto::request` (the issue
+/// "Names of our own"); RFC 9457 §3.1 for the members.
+#[tokio::test]
+async fn the_former_departure_field_is_refused_naming_leaving() {
+    let (st, _d) = state("").await;
+    let app = app(st);
+    let (a, b) = (coord(at(0.3, 0.3)), coord(at(0.7, 0.6)));
+    let when = "2026-12-07T08:15:00+01:00";
+    let bodies = [
+        ("/v1/eta", json!({"from": a, "to": b, "depart_at": when})),
+        ("/v1/route", json!({"from": a, "to": b, "depart_at": when})),
+        (
+            "/v1/eta/matrix",
+            json!({"from": [a], "to": [b], "depart_at": when}),
+        ),
+    ];
+    for (uri, body) in &bodies {
+        let r = post_json(&app, uri, body).await;
+        assert_eq!(r.status.as_u16(), 422, "{uri}: {}", r.text);
+        assert_eq!(r.content_type, "application/problem+json", "{uri}");
+        let p = r.json();
+        assert_eq!(p["field"], "depart_at", "{uri}: {p}");
+        assert_eq!(
+            p["detail"], "depart_at is an unknown field; the departure time is `leaving`",
+            "{uri}: {p}"
+        );
+    }
+    let r = send(
+        &app,
+        "GET",
+        &format!("/v1/eta?from=1,1&to=2,2&depart_at={when}"),
+        None,
+        vec![],
+        None,
+    )
+    .await;
+    assert_eq!(r.status.as_u16(), 422, "{}", r.text);
+    let p = r.json();
+    assert_eq!(p["field"], "depart_at", "{p}");
+    assert!(p["detail"].as_str().unwrap().contains("`leaving`"), "{p}");
+    // The new name is taken in the same places (an answer, not a problem).
+    let ok = json!({"from": a, "to": b, "leaving": when});
+    for uri in ["/v1/eta", "/v1/route"] {
+        let r = post_json(&app, uri, &ok).await;
+        assert_eq!(r.status.as_u16(), 200, "{uri}: {}", r.text);
+    }
+    let r = post_json(
+        &app,
+        "/v1/eta/matrix",
+        &json!({"from": [a], "to": [b], "leaving": when}),
+    )
+    .await;
+    assert_eq!(r.status.as_u16(), 200, "{}", r.text);
+    let r = send(
+        &app,
+        "GET",
+        "/v1/eta?from=1,1&to=2,2&leaving=2026-12-07T08:15:00Z",
+        None,
+        vec![],
+        None,
+    )
+    .await;
+    assert_eq!(r.status.as_u16(), 200, "{}", r.text);
+}
+
 #[tokio::test]
 async fn every_tier_and_reason() {
     let (st, _d) = state("").await;
@@ -330,7 +398,7 @@ async fn every_tier_and_reason() {
     let r = post_json(
         &pub_app,
         "/v1/eta",
-        &json!({"from": coord(a), "to": coord(b), "depart_at": later, "budget_ms": 2000}),
+        &json!({"from": coord(a), "to": coord(b), "leaving": later, "budget_ms": 2000}),
     )
     .await
     .json();

@@ -69,7 +69,7 @@ fn trip_body(hour_offset_days: i64) -> Value {
     let depart = (chrono::Utc::now() + chrono::Duration::days(hour_offset_days))
         .format("%Y-%m-%dT10:00:00Z")
         .to_string();
-    json!({"from": {"lat": a.lat, "lon": a.lon}, "to": {"lat": b.lat, "lon": b.lon}, "depart_at": depart, "budget_ms": 2000})
+    json!({"from": {"lat": a.lat, "lon": a.lon}, "to": {"lat": b.lat, "lon": b.lon}, "leaving": depart, "budget_ms": 2000})
 }
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]

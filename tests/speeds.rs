@@ -7,8 +7,12 @@ use chrono_tz::Tz;
 use hodos::engine::geo::LatLon;
 use hodos::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
 use hodos::serving::speeds::*;
-use hodos::testkit::{HistoricalCsv, HISTORICAL_HEADER as HIST_HEADER};
+use hodos::testkit::HistoricalCsv;
 use std::time::Duration;
+
+/// A historical header naming segments by their ends only (a valid shape:
+/// `tail` and `head` without `segment`), so hand-written rows stay short.
+const HIST_HEADER: &str = "tail,head,hour_of_week,kmh\n";
 
 const A: u64 = 1001;
 const B: u64 = 1002;
@@ -389,14 +393,16 @@ fn historical_header_rules() {
     let (_, idx, ff) = setup();
     let cfg = ValidationConfig::default();
     // Any column order, whitespace trimmed.
-    let csv = "speed_kmh, hour_of_week ,to_node,from_node\n 45 ,2,1003,1002\n";
+    let csv = "kmh, hour_of_week ,head,tail\n 45 ,2,1003,1002\n";
     let (p, _) = HistoricalProfile::parse(csv.as_bytes(), &idx, &cfg).unwrap();
     assert_eq!(p.speeds_for_hour(&ff, 2)[2], 45.0);
     for bad in [
-        "from_node,to_node,hour_of_week,speed_kmh,comment\n1001,1002,0,40,x\n", // extra
-        "from_node,to_node,speed_kmh\n1001,1002,40\n",                          // missing
-        "from_node,to_node,hour_of_week,speed_kmh,speed_kmh\n",                 // repeated
-        "",                                                                     // nothing
+        "tail,head,hour_of_week,kmh,comment\n1001,1002,0,40,x\n", // extra
+        "tail,head,kmh\n1001,1002,40\n",                          // missing
+        "tail,head,hour_of_week,kmh,kmh\n",                       // repeated
+        "tail,hour_of_week,kmh\n1001,0,40\n",                     // half a key
+        "way,hour_of_week,kmh\n1,0,40\n",                         // no key
+        "",                                                       // nothing
     ] {
         let e = HistoricalProfile::parse(bad.as_bytes(), &idx, &cfg).unwrap_err();
         assert!(matches!(e, SpeedsError::Header(_)), "{bad:?}: {e}");
@@ -456,9 +462,11 @@ const NOW: &str = "2026-03-29T08:05:00Z";
 
 fn obs(from: u64, to: u64, speed: f64, at: &str, samples: u32) -> Observation {
     Observation {
-        from_node: from,
-        to_node: to,
-        speed_kmh: speed,
+        segment: None,
+        way: None,
+        tail: Some(from),
+        head: Some(to),
+        kmh: speed,
         observed_at: at.to_string(),
         samples,
     }
@@ -468,19 +476,19 @@ fn obs(from: u64, to: u64, speed: f64, at: &str, samples: u32) -> Observation {
 fn live_json_detects_each_bad_kind_by_index() {
     let (_, idx, _) = setup();
     let json = r#"[
-      {"from_node":1001,"to_node":1002,"speed_kmh":35.5,"observed_at":"2026-03-29T08:00:00Z","samples":3},
-      {"from_node":1003,"to_node":1001,"speed_kmh":30,"observed_at":"2026-03-29T08:00:00Z","samples":1},
-      {"from_node":1002,"to_node":1003,"speed_kmh":0,"observed_at":"2026-03-29T08:00:00Z","samples":1},
-      {"from_node":1002,"to_node":1003,"speed_kmh":500,"observed_at":"2026-03-29T08:00:00Z","samples":1},
-      {"from_node":1002,"to_node":1003,"speed_kmh":30,"observed_at":"yesterday","samples":1},
-      {"from_node":1002,"to_node":1003,"speed_kmh":30,"observed_at":"2026-03-29T08:08:00Z","samples":1},
-      {"from_node":1002,"to_node":1003,"speed_kmh":30,"observed_at":"2026-03-29T08:00:00Z","samples":0},
-      {"from_node":1002,"to_node":1003,"speed_kmh":30,"observed_at":"2026-03-29T08:00:00Z","samples":1,"lane":2},
-      {"from_node":1002,"to_node":1003,"speed_kmh":30,"observed_at":"2026-03-29T08:00:00Z"},
-      {"from_node":1002,"to_node":1003,"speed_kmh":"fast","observed_at":"2026-03-29T08:00:00Z","samples":1},
+      {"tail":1001,"head":1002,"kmh":35.5,"observed_at":"2026-03-29T08:00:00Z","samples":3},
+      {"tail":1003,"head":1001,"kmh":30,"observed_at":"2026-03-29T08:00:00Z","samples":1},
+      {"tail":1002,"head":1003,"kmh":0,"observed_at":"2026-03-29T08:00:00Z","samples":1},
+      {"tail":1002,"head":1003,"kmh":500,"observed_at":"2026-03-29T08:00:00Z","samples":1},
+      {"tail":1002,"head":1003,"kmh":30,"observed_at":"yesterday","samples":1},
+      {"tail":1002,"head":1003,"kmh":30,"observed_at":"2026-03-29T08:08:00Z","samples":1},
+      {"tail":1002,"head":1003,"kmh":30,"observed_at":"2026-03-29T08:00:00Z","samples":0},
+      {"tail":1002,"head":1003,"kmh":30,"observed_at":"2026-03-29T08:00:00Z","samples":1,"lane":2},
+      {"tail":1002,"head":1003,"kmh":30,"observed_at":"2026-03-29T08:00:00Z"},
+      {"tail":1002,"head":1003,"kmh":"fast","observed_at":"2026-03-29T08:00:00Z","samples":1},
       17,
-      {"from_node":1002,"to_node":1003,"speed_kmh":-3,"observed_at":"2026-03-29T10:06:30+02:00","samples":1},
-      {"from_node":1003,"to_node":1004,"speed_kmh":70,"observed_at":"2026-03-29T10:06:30+02:00","samples":2}
+      {"tail":1002,"head":1003,"kmh":-3,"observed_at":"2026-03-29T10:06:30+02:00","samples":1},
+      {"tail":1003,"head":1004,"kmh":70,"observed_at":"2026-03-29T10:06:30+02:00","samples":2}
     ]"#;
     let mut live = LiveLayer::new(idx.num_edges());
     let r = live
@@ -541,7 +549,7 @@ fn live_typed_batch_catches_non_finite_speeds() {
 fn live_csv_detects_each_bad_kind_by_line() {
     let (_, idx, _) = setup();
     let csv = "\
-from_node,to_node,speed_kmh,observed_at,samples
+tail,head,kmh,observed_at,samples
 1001,1002,35,2026-03-29T08:00:00Z,3
 1003,1001,35,2026-03-29T08:00:00Z,3
 1002,1003,-1,2026-03-29T08:00:00Z,3
@@ -581,12 +589,7 @@ x,1003,35,2026-03-29T08:00:00Z,1
     assert_eq!(live.len(), 2);
     // Header rule as for the historical table.
     let e = live
-        .apply_csv(
-            &idx,
-            b"from_node,to_node,speed_kmh,observed_at\n",
-            t(NOW),
-            &lenient(),
-        )
+        .apply_csv(&idx, b"tail,head,kmh,observed_at\n", t(NOW), &lenient())
         .unwrap_err();
     assert!(matches!(e, SpeedsError::Header(_)));
 }

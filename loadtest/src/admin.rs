@@ -62,9 +62,8 @@ fn observations(feed: &Feed, rng: &mut ChaCha8Rng) -> Bytes {
         }
         let _ = write!(
             s,
-            r#"{{"from_node":{},"to_node":{},"speed_kmh":{:.1},"observed_at":"{at}","samples":{}}}"#,
-            e.from_node,
-            e.to_node,
+            r#"{{"segment":{},"kmh":{:.1},"observed_at":"{at}","samples":{}}}"#,
+            e.segment,
             (e.free_kmh as f64 * f).max(1.0),
             1 + rng.random_range(0..5)
         );
@@ -90,7 +89,7 @@ pub fn historical_table(
         let e = &edges[rng.random_range(0..edges.len())];
         let speed = (e.free_kmh as f64 * factor).max(1.0);
         for hr in hours {
-            table.row(e.from_node, e.to_node, hr, format_args!("{speed:.1}"));
+            table.row(e.tail, e.head, hr, format_args!("{speed:.1}"));
         }
     }
     Bytes::from(table.into_string())

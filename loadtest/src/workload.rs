@@ -285,12 +285,15 @@ pub fn matrix_json(from: &[LatLon], to: &[LatLon]) -> String {
     format!("{{\"from\":[{}],\"to\":[{}]}}", list(from), list(to))
 }
 
-/// Edges named by their external end nodes, with free-flow speeds, for
-/// live observations and historical tables.
+/// Segments of the served artifact, by id and by their external end nodes,
+/// with free-flow speeds, for live observations and historical tables.
 #[derive(Debug, Clone)]
 pub struct EdgeRef {
-    pub from_node: u64,
-    pub to_node: u64,
+    /// Segment (edge) id in the artifact.
+    pub segment: u32,
+    /// External ids of the end nodes.
+    pub tail: u64,
+    pub head: u64,
     pub free_kmh: f32,
 }
 
@@ -298,8 +301,9 @@ pub struct EdgeRef {
 pub fn edges_of(g: &RoadGraph) -> Vec<EdgeRef> {
     (0..g.num_edges())
         .map(|e| EdgeRef {
-            from_node: g.node_ext[g.edge_tail[e] as usize],
-            to_node: g.node_ext[g.edge_head[e] as usize],
+            segment: e as u32,
+            tail: g.node_ext[g.edge_tail[e] as usize],
+            head: g.node_ext[g.edge_head[e] as usize],
             free_kmh: g.edge_speed_kmh[e],
         })
         .collect()

@@ -70,7 +70,7 @@ pub fn eta_get() -> Value {
         "parameters": [
             {"name": "from", "in": "query", "required": true, "schema": {"type": "string", "pattern": "^-?[0-9.]+,-?[0-9.]+$"}, "description": "Origin as LAT,LON (WGS84 degrees)"},
             {"name": "to", "in": "query", "required": true, "schema": {"type": "string"}, "description": "Destination as LAT,LON"},
-            {"name": "depart_at", "in": "query", "required": false, "schema": {"type": "string", "format": "date-time"}},
+            {"name": "leaving", "in": "query", "required": false, "schema": {"type": "string", "format": "date-time"}, "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"},
             {"name": "budget_ms", "in": "query", "required": false, "schema": {"type": "integer", "minimum": 1}}
         ],
         "responses": merge(json!({"200": json_response("An ETA", "EtaResponse")}), errors(&[]))
@@ -130,7 +130,7 @@ pub fn admin_status() -> Value {
 }
 
 pub fn admin_put_historical() -> Value {
-    json!({"operationId": "adminPutHistorical", "summary": "Upload a historical profile (CSV: from_node,to_node,hour_of_week,speed_kmh)", "security": admin_auth(),
+    json!({"operationId": "adminPutHistorical", "summary": "Upload a historical profile (CSV: hour_of_week,kmh and segment and/or tail,head, optional way)", "security": admin_auth(),
         "parameters": region_param(),
         "requestBody": {"required": true, "content": {"text/csv": {"schema": {"type": "string"}}}},
         "responses": {"200": json_response("Accepted, with the validation report", "HistoricalAccepted"),
@@ -197,11 +197,11 @@ fn schemas() -> Value {
             "properties": {"lat": {"type": "number", "minimum": -90, "maximum": 90}, "lon": {"type": "number", "minimum": -180, "maximum": 180}}},
         "EtaRequest": {"type": "object", "required": ["from", "to"], "additionalProperties": false,
             "properties": {"from": {"$ref": "#/components/schemas/Coord"}, "to": {"$ref": "#/components/schemas/Coord"},
-                           "depart_at": {"type": "string", "format": "date-time"}, "budget_ms": {"type": "integer", "minimum": 1}}},
+                           "leaving": {"type": "string", "format": "date-time", "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"}, "budget_ms": {"type": "integer", "minimum": 1}}},
         "MatrixRequest": {"type": "object", "required": ["from", "to"], "additionalProperties": false,
             "properties": {"from": {"type": "array", "minItems": 1, "items": {"$ref": "#/components/schemas/Coord"}},
                            "to": {"type": "array", "minItems": 1, "items": {"$ref": "#/components/schemas/Coord"}},
-                           "depart_at": {"type": "string", "format": "date-time"}, "budget_ms": {"type": "integer", "minimum": 1}}},
+                           "leaving": {"type": "string", "format": "date-time", "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"}, "budget_ms": {"type": "integer", "minimum": 1}}},
         "Tier": {"type": "string", "enum": ["live", "historical", "heuristic"]},
         "FallbackReason": {"type": ["string", "null"], "enum": ["no_live_data", "live_stale", "off_network", "unreachable", "budget_exceeded", "overloaded", "outside_regions", "region_unavailable", null]},
         "SnapshotRef": {"type": ["object", "null"], "properties": {"region": {"type": "string"}, "generation": {"type": "integer"}}},
@@ -219,8 +219,12 @@ fn schemas() -> Value {
                            "tier": {"type": "array", "items": {"type": "array", "items": {"$ref": "#/components/schemas/Tier"}}},
                            "fallback_reason": {"type": "array", "items": {"type": "array", "items": {"$ref": "#/components/schemas/FallbackReason"}}},
                            "snapshot": {"$ref": "#/components/schemas/SnapshotRef"}}},
-        "Observation": {"type": "object", "required": ["from_node", "to_node", "speed_kmh", "observed_at", "samples"],
-            "properties": {"from_node": {"type": "integer"}, "to_node": {"type": "integer"}, "speed_kmh": {"type": "number", "exclusiveMinimum": 0},
+        "Observation": {"type": "object", "required": ["kmh", "observed_at", "samples"], "additionalProperties": false,
+            "description": "Names its segments by `segment`, or by `tail` and `head` (every segment with those ends, only those on `way` when given); `segment` given with `way`, `tail` or `head` must agree with them",
+            "anyOf": [{"required": ["segment"]}, {"required": ["tail", "head"]}],
+            "properties": {"segment": {"type": ["integer", "null"], "minimum": 0}, "way": {"type": ["integer", "null"], "minimum": 0},
+                           "tail": {"type": ["integer", "null"], "minimum": 0}, "head": {"type": ["integer", "null"], "minimum": 0},
+                           "kmh": {"type": "number", "exclusiveMinimum": 0},
                            "observed_at": {"type": "string", "format": "date-time"}, "samples": {"type": "integer", "minimum": 1}}},
         "HealthResponse": {"type": "object", "required": ["status"], "properties": {"status": {"const": "alive"}}},
         "RegionReadiness": {"type": "object", "required": ["generation", "reason", "region", "state"],
@@ -232,7 +236,7 @@ fn schemas() -> Value {
                            "status": {"const": "ready"}}},
         "RowError": {"type": "object", "required": ["kind", "message"],
             "properties": {"index": {"type": "integer", "description": "JSON batch: 0-based element index"},
-                           "kind": {"type": "string", "enum": ["unknown_edge", "nonpositive_speed", "not_a_number", "over_max_speed", "bad_hour", "bad_timestamp", "future_timestamp", "bad_samples", "malformed_row"]},
+                           "kind": {"type": "string", "enum": ["unknown_edge", "segment_mismatch", "nonpositive_speed", "not_a_number", "over_max_speed", "bad_hour", "bad_timestamp", "future_timestamp", "bad_samples", "malformed_row"]},
                            "line": {"type": "integer", "description": "CSV: 1-based line of the file"}, "message": {"type": "string"}}},
         "TableReport": {"type": "object", "required": ["accepted", "bad", "bad_by_kind", "first_errors", "rejected", "rows", "superseded"],
             "properties": {"accepted": {"type": "integer"}, "bad": {"type": "integer"},

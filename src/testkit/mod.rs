@@ -22,4 +22,6 @@ pub mod tables;
 pub use config_text::region_table;
 pub use data::{data_dir, skipped, DimacsNy, DATA_DIR_ENV};
 pub use splitmix::{node_pairs, nodes, SplitMix64};
-pub use tables::{observation, HistoricalCsv, LiveCsv, HISTORICAL_HEADER, LIVE_HEADER};
+pub use tables::{
+    observation, segment_observation, HistoricalCsv, LiveCsv, HISTORICAL_HEADER, LIVE_HEADER,
+};

@@ -15,7 +15,7 @@ pub struct City {
     pub artifact: PathBuf,
     pub lo: LatLon,
     pub hi: LatLon,
-    /// (from_node, to_node) of a few edges, for tables.
+    /// (tail, head) external node ids of a few segments, for tables.
     pub edges: Vec<(u64, u64)>,
 }
 

@@ -30,7 +30,8 @@ pub fn corrupt() -> String {
     csv.into_string()
 }
 
-/// One live observation per edge of the first `count` edges.
+/// One live observation (by `tail`, `head`) per edge of the first `count`
+/// edges.
 pub fn observations(count: usize, speed_kmh: f64, observed_at: &str, samples: u32) -> Vec<Value> {
     city()
         .edges

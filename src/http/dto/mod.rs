@@ -23,6 +23,5 @@ pub use admin::{
 pub use probe::{HealthResponse, ReadyResponse, RegionReadiness};
 pub use public::{round3, EtaResponse, LineString, MatrixResponse, RouteResponse, SnapshotRef};
 pub use request::{
-    parse_depart_at, parse_eta_query, parse_json, Coord, EtaRequest, MatrixRequest, MatrixTrip,
-    Trip,
+    parse_eta_query, parse_json, parse_leaving, Coord, EtaRequest, MatrixRequest, MatrixTrip, Trip,
 };

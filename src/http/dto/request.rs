@@ -5,6 +5,12 @@
 //! parsing, `validate` checks every rule and returns the first broken one
 //! as a problem naming field and rule, yielding a [`Trip`] or [`MatrixTrip`]
 //! the handlers pass to the serving layer.
+//!
+//! The departure time is `leaving`: an RFC 3339 timestamp with offset, the
+//! time the vehicle sets off (absent: now). It is the same name in JSON
+//! bodies and in the `GET /v1/eta` query string. An earlier name of this
+//! field is refused like any unknown field, with a rule that names
+//! `leaving` ([`RENAMED`]).
 
 use crate::engine::geo::LatLon;
 use crate::http::problem::ApiError;
@@ -52,8 +58,9 @@ impl From<LatLon> for Coord {
 pub struct EtaRequest {
     pub from: Coord,
     pub to: Coord,
+    /// When the vehicle sets off (RFC 3339 with offset); absent = now.
     #[serde(default)]
-    pub depart_at: Option<String>,
+    pub leaving: Option<String>,
     #[serde(default)]
     pub budget_ms: Option<u64>,
 }
@@ -63,8 +70,9 @@ pub struct EtaRequest {
 pub struct MatrixRequest {
     pub from: Vec<Coord>,
     pub to: Vec<Coord>,
+    /// When the vehicle sets off (RFC 3339 with offset); absent = now.
     #[serde(default)]
-    pub depart_at: Option<String>,
+    pub leaving: Option<String>,
     #[serde(default)]
     pub budget_ms: Option<u64>,
 }
@@ -125,15 +133,33 @@ pub fn parse_json<T: DeserializeOwned>(body: &[u8]) -> Result<T, ApiError> {
                         };
                         return Err(ApiError::invalid(field, "is required"));
                     }
-                    let field = if base.is_empty() {
-                        "body".to_string()
-                    } else {
-                        base
-                    };
+                    // A former field name: say what it is called now.
+                    if let Some((name, rule)) = msg
+                        .strip_prefix("unknown field `")
+                        .and_then(|r| r.split_once('`'))
+                        .and_then(|(name, _)| Some((name, renamed_rule(name)?)))
+                    {
+                        // The path already ends at the unknown key.
+                        let field = if base.is_empty() {
+                            name.to_string()
+                        } else {
+                            base
+                        };
+                        return Err(ApiError::invalid(field, rule));
+                    }
+                    let field = base_or_body(base);
                     Err(ApiError::invalid(field, format!("is not valid: {msg}")))
                 }
             }
         }
+    }
+}
+
+fn base_or_body(base: String) -> String {
+    if base.is_empty() {
+        "body".to_string()
+    } else {
+        base
     }
 }
 
@@ -144,14 +170,28 @@ fn strip_position(s: &str) -> String {
     }
 }
 
-pub fn parse_depart_at(v: &Option<String>) -> Result<Option<DateTime<Utc>>, ApiError> {
+/// Former names of request fields and the name that replaced each: an
+/// unknown field with one of these names is refused with a rule pointing
+/// at the new name, so a caller holding an old client sees what to change.
+pub const RENAMED: [(&str, &str); 1] = [("depart_at", "leaving")];
+
+/// The rule for an unknown field `name`, when it is a former name.
+fn renamed_rule(name: &str) -> Option<String> {
+    RENAMED
+        .iter()
+        .find(|(old, _)| *old == name)
+        .map(|(_, new)| format!("is an unknown field; the departure time is `{new}`"))
+}
+
+/// Parses the `leaving` field: an RFC 3339 timestamp with offset.
+pub fn parse_leaving(v: &Option<String>) -> Result<Option<DateTime<Utc>>, ApiError> {
     match v {
         None => Ok(None),
         Some(s) => DateTime::parse_from_rfc3339(s)
             .map(|d| Some(d.with_timezone(&Utc)))
             .map_err(|_| {
                 ApiError::invalid(
-                    "depart_at",
+                    "leaving",
                     "must be an RFC 3339 date-time such as 2026-12-02T08:30:00Z",
                 )
             }),
@@ -170,7 +210,7 @@ impl EtaRequest {
         Ok(Trip {
             from: self.from.check("from")?,
             to: self.to.check("to")?,
-            depart_at: parse_depart_at(&self.depart_at)?,
+            depart_at: parse_leaving(&self.leaving)?,
             budget_ms: check_budget(self.budget_ms)?,
         })
     }
@@ -209,29 +249,29 @@ impl MatrixRequest {
         Ok(MatrixTrip {
             from,
             to,
-            depart_at: parse_depart_at(&self.depart_at)?,
+            depart_at: parse_leaving(&self.leaving)?,
             budget_ms: check_budget(self.budget_ms)?,
         })
     }
 }
 
-/// Parses `GET /v1/eta?from=LAT,LON&to=LAT,LON[&depart_at=..][&budget_ms=..]`.
+/// Parses `GET /v1/eta?from=LAT,LON&to=LAT,LON[&leaving=..][&budget_ms=..]`.
 pub fn parse_eta_query(query: Option<&str>) -> Result<Trip, ApiError> {
     let mut from = None;
     let mut to = None;
-    let mut depart_at = None;
+    let mut leaving = None;
     let mut budget = None;
     for (k, v) in form_pairs(query.unwrap_or("")) {
         let slot = match k.as_str() {
             "from" => &mut from,
             "to" => &mut to,
-            "depart_at" => &mut depart_at,
+            "leaving" => &mut leaving,
             "budget_ms" => &mut budget,
             other => {
-                return Err(ApiError::invalid(
-                    other.to_string(),
-                    "is not a known parameter (from, to, depart_at, budget_ms)",
-                ))
+                let rule = renamed_rule(other).unwrap_or_else(|| {
+                    "is not a known parameter (from, to, leaving, budget_ms)".to_string()
+                });
+                return Err(ApiError::invalid(other.to_string(), rule));
             }
         };
         if slot.is_some() {
@@ -264,7 +304,7 @@ pub fn parse_eta_query(query: Option<&str>) -> Result<Trip, ApiError> {
     Ok(Trip {
         from: coord("from", from)?,
         to: coord("to", to)?,
-        depart_at: parse_depart_at(&depart_at)?,
+        depart_at: parse_leaving(&leaving)?,
         budget_ms: check_budget(budget_ms)?,
     })
 }

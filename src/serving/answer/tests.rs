@@ -313,8 +313,11 @@ async fn gate_fallbacks_and_graph_tiers() {
     let now = Utc::now().to_rfc3339();
     let batch: Vec<serde_json::Value> = (0..g.num_edges())
         .map(|e| {
-            let (u, v) = (g.node_ext[g.edge_tail[e] as usize], g.node_ext[g.edge_head[e] as usize]);
-            serde_json::json!({"from_node": u, "to_node": v, "speed_kmh": 12.0, "observed_at": now, "samples": 3})
+            let (u, v) = (
+                g.node_ext[g.edge_tail[e] as usize],
+                g.node_ext[g.edge_head[e] as usize],
+            );
+            serde_json::json!({"tail": u, "head": v, "kmh": 12.0, "observed_at": now, "samples": 3})
         })
         .collect();
     region
@@ -346,8 +349,11 @@ async fn stale_live_data_falls_back_to_historical() {
     let old = (Utc::now() - Days::seconds(3600)).to_rfc3339();
     let batch: Vec<serde_json::Value> = (0..50)
         .map(|e| {
-            let (u, v) = (g.node_ext[g.edge_tail[e] as usize], g.node_ext[g.edge_head[e] as usize]);
-            serde_json::json!({"from_node": u, "to_node": v, "speed_kmh": 20.0, "observed_at": old, "samples": 1})
+            let (u, v) = (
+                g.node_ext[g.edge_tail[e] as usize],
+                g.node_ext[g.edge_head[e] as usize],
+            );
+            serde_json::json!({"tail": u, "head": v, "kmh": 20.0, "observed_at": old, "samples": 1})
         })
         .collect();
     region

@@ -1,13 +1,20 @@
-//! CSV plumbing shared by both tables: the reader settings, the header rule
-//! and allocation-free field parsers.
+//! CSV plumbing shared by both tables: the reader settings, the header rule,
+//! the segment key columns and allocation-free field parsers.
 //!
-//! Header rule: the header row names exactly the expected columns, each
-//! once, in any order. A missing, unknown or repeated column is an error for
-//! the whole file: a column we do not read is most likely a misunderstanding
-//! of the format (a `speed_mph`, a second speed), and silently ignoring it
+//! Header rule: the header row names the table's own columns (each
+//! required) and the key columns `segment`, `way`, `tail`, `head` (each
+//! optional: at least `segment`, or both `tail` and `head`), each once, in
+//! any order. A missing, unknown or repeated column is an error for the
+//! whole file: a column we do not read is most likely a misunderstanding of
+//! the format (a `speed_mph`, a second speed), and silently ignoring it
 //! would hide that. Whitespace around fields is trimmed; a UTF-8 byte-order
 //! mark before the header is ignored (spreadsheet exports write one).
+//!
+//! In a row, an empty key cell means "not given", so one file can mix rows
+//! naming segments by id with rows naming them by ends
+//! ([`SegmentKey`], rules in [`edge_index`](super::edge_index)).
 
+use super::edge_index::{SegmentKey, INCOMPLETE_KEY};
 use super::error::SpeedsError;
 use csv::{ByteRecord, Reader, ReaderBuilder};
 
@@ -27,51 +34,151 @@ pub(crate) fn field(rec: &ByteRecord, i: usize) -> &[u8] {
     rec[i].trim_ascii()
 }
 
-/// Reads the header and returns, for each expected column, its position.
-pub(crate) fn map_header<const N: usize>(
+/// The optional columns naming a row's segments, in canonical order.
+pub(crate) const KEY_COLUMNS: [&str; 4] = ["segment", "way", "tail", "head"];
+
+/// Column names of an earlier table shape and what replaced each, named in
+/// the header error so an old file is easy to convert.
+const FORMER: [(&str, &str); 3] = [
+    ("from_node", "tail"),
+    ("to_node", "head"),
+    ("speed_kmh", "kmh"),
+];
+
+/// Positions of the key columns present in the header.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct KeyColumns {
+    segment: Option<usize>,
+    way: Option<usize>,
+    tail: Option<usize>,
+    head: Option<usize>,
+}
+
+/// Why a row's key cells could not be read.
+#[derive(Debug)]
+pub(crate) enum KeyError<'r> {
+    /// A non-empty cell that is not an unsigned integer: column, cell.
+    NotANumber(&'static str, &'r [u8]),
+    /// Neither `segment` nor both `tail` and `head`.
+    Incomplete,
+}
+
+impl KeyError<'_> {
+    pub(crate) fn message(&self) -> String {
+        match self {
+            KeyError::NotANumber(col, b) => {
+                format!("{col} `{}`: expected an unsigned integer", show(b))
+            }
+            KeyError::Incomplete => INCOMPLETE_KEY.to_string(),
+        }
+    }
+}
+
+impl KeyColumns {
+    /// The key of one row: empty cells are absent.
+    #[inline]
+    pub(crate) fn read<'r>(&self, rec: &'r ByteRecord) -> Result<SegmentKey, KeyError<'r>> {
+        let cell = |col: Option<usize>, name: &'static str| -> Result<Option<u64>, KeyError<'r>> {
+            let Some(i) = col else { return Ok(None) };
+            let b = field(rec, i);
+            if b.is_empty() {
+                return Ok(None);
+            }
+            parse_u64(b).map(Some).ok_or(KeyError::NotANumber(name, b))
+        };
+        let key = SegmentKey {
+            segment: cell(self.segment, "segment")?,
+            way: cell(self.way, "way")?,
+            tail: cell(self.tail, "tail")?,
+            head: cell(self.head, "head")?,
+        };
+        if key.is_complete() {
+            Ok(key)
+        } else {
+            Err(KeyError::Incomplete)
+        }
+    }
+}
+
+/// What a header must name, in words.
+fn expected_columns(required: &[&str]) -> String {
+    format!(
+        "`segment` and/or `tail`,`head` (optional `way`), and `{}` (any order)",
+        required.join("`,`")
+    )
+}
+
+/// Reads a header of required columns plus key columns and returns the
+/// required columns' positions and the key columns found.
+pub(crate) fn map_columns<const N: usize>(
     rdr: &mut Reader<&[u8]>,
-    expected: [&str; N],
-) -> Result<[usize; N], SpeedsError> {
+    required: [&str; N],
+) -> Result<([usize; N], KeyColumns), SpeedsError> {
     let header = rdr
         .byte_headers()
         .map_err(|e| SpeedsError::Csv(e.to_string()))?
         .clone();
+    let expected = expected_columns(&required);
     if header.is_empty() || (header.len() == 1 && header[0].trim_ascii().is_empty()) {
         return Err(SpeedsError::Header(format!(
-            "empty input: expected a header row `{}`",
-            expected.join(",")
+            "empty input: expected a header row naming {expected}"
         )));
     }
     let mut pos = [usize::MAX; N];
+    let mut key = [usize::MAX; KEY_COLUMNS.len()];
     for (i, raw) in header.iter().enumerate() {
         let name = raw
             .strip_prefix(b"\xEF\xBB\xBF")
             .unwrap_or(raw)
             .trim_ascii();
         let shown = String::from_utf8_lossy(name);
-        match expected.iter().position(|&x| x.as_bytes() == name) {
-            Some(j) if pos[j] != usize::MAX => {
-                return Err(SpeedsError::Header(format!(
-                    "column `{shown}` appears twice"
-                )));
-            }
-            Some(j) => pos[j] = i,
-            None => {
-                return Err(SpeedsError::Header(format!(
-                    "unknown column `{shown}`; expected exactly `{}` (any order)",
-                    expected.join(",")
-                )));
-            }
+        let slot = if let Some(j) = required.iter().position(|&x| x.as_bytes() == name) {
+            &mut pos[j]
+        } else if let Some(j) = KEY_COLUMNS.iter().position(|&x| x.as_bytes() == name) {
+            &mut key[j]
+        } else {
+            let hint = FORMER
+                .iter()
+                .find(|(old, _)| old.as_bytes() == name)
+                .map(|(_, new)| format!(" (that column is now `{new}`)"))
+                .unwrap_or_default();
+            return Err(SpeedsError::Header(format!(
+                "unknown column `{shown}`{hint}; expected {expected}"
+            )));
+        };
+        if *slot != usize::MAX {
+            return Err(SpeedsError::Header(format!(
+                "column `{shown}` appears twice"
+            )));
         }
+        *slot = i;
     }
     if let Some(j) = pos.iter().position(|&p| p == usize::MAX) {
         return Err(SpeedsError::Header(format!(
-            "missing column `{}`; expected exactly `{}` (any order)",
-            expected[j],
-            expected.join(",")
+            "missing column `{}`; expected {expected}",
+            required[j]
         )));
     }
-    Ok(pos)
+    let [segment, way, tail, head] = key.map(|p| (p != usize::MAX).then_some(p));
+    if segment.is_none() && (tail.is_none() || head.is_none()) {
+        let missing = match (tail, head) {
+            (Some(_), None) => "`head` (beside `tail`) or `segment`",
+            (None, Some(_)) => "`tail` (beside `head`) or `segment`",
+            _ => "`segment`, or `tail` and `head`",
+        };
+        return Err(SpeedsError::Header(format!(
+            "missing column {missing}; expected {expected}"
+        )));
+    }
+    Ok((
+        pos,
+        KeyColumns {
+            segment,
+            way,
+            tail,
+            head,
+        },
+    ))
 }
 
 /// 1-based line where a record starts. The reader places a record's
@@ -149,7 +256,7 @@ mod tests {
             b"h1,h2\r\n1,2\r\n\r\n\r\n3,4\r\n\"a\r\nb\",5\r\n6,7",
         ] {
             let mut r = reader(input);
-            map_header(&mut r, ["h1", "h2"]).unwrap();
+            r.byte_headers().unwrap();
             let mut rec = ByteRecord::new();
             let mut lines = Vec::new();
             while r.read_byte_record(&mut rec).unwrap() {
@@ -167,16 +274,61 @@ mod tests {
     #[test]
     fn header_rule() {
         let cols = ["a", "b"];
-        let mut r = reader(b"b, a\n1,2\n");
-        assert_eq!(map_header(&mut r, cols).unwrap(), [1, 0]);
-        let mut r = reader(b"\xEF\xBB\xBFa,b\n");
-        assert_eq!(map_header(&mut r, cols).unwrap(), [0, 1]);
-        for bad in [&b"a,b,c\n"[..], b"a\n", b"a,a\n", b"", b"\n"] {
-            let mut r = reader(bad);
-            assert!(
-                matches!(map_header(&mut r, cols), Err(SpeedsError::Header(_))),
-                "{bad:?}"
-            );
+        let pos = |input: &[u8]| {
+            let mut r = reader(input);
+            map_columns(&mut r, cols).map(|(p, k)| (p, [k.segment, k.way, k.tail, k.head]))
+        };
+        assert_eq!(
+            pos(b"b, segment, a\n1,2\n").unwrap(),
+            ([2, 0], [Some(1), None, None, None])
+        );
+        assert_eq!(
+            pos(b"\xEF\xBB\xBFhead,a,way,b,tail\n").unwrap(),
+            ([1, 3], [None, Some(2), Some(4), Some(0)])
+        );
+        assert_eq!(
+            pos(b"segment,tail,a,b\n").unwrap(),
+            ([2, 3], [Some(0), None, Some(1), None])
+        );
+        for bad in [
+            &b"a,b,segment,c\n"[..],
+            b"a,segment\n",
+            b"a,a,b,segment\n",
+            b"segment,segment,a,b\n",
+            b"a,b\n",
+            b"a,b,tail\n",
+            b"a,b,way,head\n",
+            b"",
+            b"\n",
+        ] {
+            assert!(matches!(pos(bad), Err(SpeedsError::Header(_))), "{bad:?}");
         }
+    }
+
+    /// An empty key cell is "not given"; a row must name `segment` or both
+    /// ends (the rule in the module docs).
+    #[test]
+    fn key_cells() {
+        let input = b"segment,way,tail,head,a\n7,,,,x\n,3,1,2,x\n,,1,,x\n,,q,2,x\n";
+        let mut r = reader(input);
+        let (_, k) = map_columns(&mut r, ["a"]).unwrap();
+        let mut rec = ByteRecord::new();
+        let mut got = Vec::new();
+        while r.read_byte_record(&mut rec).unwrap() {
+            got.push(k.read(&rec).map_err(|e| e.message()));
+        }
+        assert_eq!(got[0], Ok(SegmentKey::segment(7)));
+        assert_eq!(
+            got[1],
+            Ok(SegmentKey {
+                way: Some(3),
+                ..SegmentKey::ends(1, 2)
+            })
+        );
+        assert_eq!(got[2], Err(INCOMPLETE_KEY.to_string()));
+        assert_eq!(
+            got[3],
+            Err("tail `q`: expected an unsigned integer".to_string())
+        );
     }
 }

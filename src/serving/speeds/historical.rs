@@ -3,25 +3,42 @@
 //!
 //! # Format
 //!
-//! A header row naming exactly `from_node,to_node,hour_of_week,speed_kmh`
-//! (any order; see the header rule in the CSV helpers: a missing, unknown or
-//! repeated column rejects the file), then one row per (edge, hour):
+//! A header row, then one row per (segment, hour). Columns, any order (see
+//! the header rule in the CSV helpers: an unknown or repeated column, or a
+//! missing required one, rejects the file):
 //!
-//! - `from_node`, `to_node`: external node ids ([`EdgeIndex`]); a row applies
-//!   to every edge with those ends.
-//! - `hour_of_week`: integer `0..=167`, hour 0 = Monday 00:00 local time
-//!   ([`hour_of_week`](super::clock::hour_of_week)).
-//! - `speed_kmh`: `0 < speed ≤ max_speed_kmh`.
+//! - `hour_of_week` (required): integer `0..=167`, hour 0 = Monday 00:00
+//!   local time ([`hour_of_week`](super::clock::hour_of_week)).
+//! - `kmh` (required): the typical speed, `0 < kmh ≤ max_speed_kmh`.
+//! - `segment`: the segment (directed edge) id in the artifact.
+//! - `way`: the OSM way id (or the synthetic city's way id) of the segment.
+//! - `tail`, `head`: external ids of the segment's end nodes.
+//!
+//! The header has `segment`, or both `tail` and `head`, or all of them; an
+//! empty cell is "not given". Each row names its segments by the rules of
+//! [`edge_index`](super::edge_index): `segment` alone is that segment;
+//! `tail` + `head` is every segment with those ends (only those on `way`
+//! when given); `segment` with `way`, `tail` or `head` must agree with them.
+//!
+//! ```text
+//! segment,way,tail,head,hour_of_week,kmh
+//! 1042,,,,8,31.5
+//! ,77,5001,5002,8,24
+//! 1043,77,5002,5003,8,26
+//! ```
 //!
 //! # Validation
 //!
 //! Each row gets at most one [`ErrorKind`], checked in this order: wrong field
-//! count → `malformed_row`; node id not an unsigned integer →
-//! `malformed_row`; hour not an integer in `0..=167` (including `2.5`, `-1`,
-//! text) → `bad_hour`; speed unparsable → `malformed_row`; NaN/±inf →
-//! `not_a_number`; ≤ 0 (or rounding to 0 as `f32`) → `nonpositive_speed`;
-//! above the maximum → `over_max_speed`; no edge with these ends → `unknown_edge`. A later row for
-//! the same edge and hour replaces an earlier one (counted as `superseded`).
+//! count → `malformed_row`; a non-empty key cell not an unsigned integer, or
+//! neither `segment` nor both `tail` and `head` → `malformed_row`; hour not
+//! an integer in `0..=167` (including `2.5`, `-1`, text) → `bad_hour`; speed
+//! unparsable → `malformed_row`; NaN/±inf → `not_a_number`; ≤ 0 (or
+//! rounding to 0 as `f32`) → `nonpositive_speed`; above the maximum →
+//! `over_max_speed`; no such segment, or no segment with these ends (on
+//! this way) → `unknown_edge`; `segment` disagreeing with `way`, `tail` or
+//! `head` → `segment_mismatch`. A later row for the same segment and hour
+//! replaces an earlier one (counted as `superseded`).
 //!
 //! A table with more than `max_bad_share` bad rows is rejected whole, and so
 //! is a table with a header but no data rows: replacing a profile by an
@@ -37,14 +54,15 @@
 
 use super::clock::HOURS_PER_WEEK;
 use super::config::ValidationConfig;
-use super::csv_input::{field, line_of, map_header, parse_f64, parse_u64, reader, show};
+use super::csv_input::{field, line_of, map_columns, parse_f64, parse_u64, reader, show};
 use super::edge_index::EdgeIndex;
 use super::error::SpeedsError;
 use super::report::{ErrorKind, Loc, ReportBuilder, TableReport};
 use csv::ByteRecord;
 
-/// The CSV columns, in their canonical order.
-pub const COLUMNS: [&str; 4] = ["from_node", "to_node", "hour_of_week", "speed_kmh"];
+/// The CSV columns every table has, in their canonical order; the key
+/// columns (`segment`, `way`, `tail`, `head`) come before them.
+pub const COLUMNS: [&str; 2] = ["hour_of_week", "kmh"];
 
 /// An accepted historical profile.
 #[derive(Debug, Clone, PartialEq)]
@@ -71,7 +89,7 @@ impl HistoricalProfile {
         cfg: &ValidationConfig,
     ) -> Result<(HistoricalProfile, TableReport), SpeedsError> {
         let mut rdr = reader(csv);
-        let [c_from, c_to, c_hour, c_speed] = map_header(&mut rdr, COLUMNS)?;
+        let ([c_hour, c_speed], keys) = map_columns(&mut rdr, COLUMNS)?;
         let want_fields = rdr
             .byte_headers()
             .map_err(|e| SpeedsError::Csv(e.to_string()))?
@@ -93,16 +111,12 @@ impl HistoricalProfile {
                 });
                 continue;
             }
-            let (from_b, to_b) = (field(&rec, c_from), field(&rec, c_to));
-            let (Some(from), Some(to)) = (parse_u64(from_b), parse_u64(to_b)) else {
-                rb.bad(line, ErrorKind::MalformedRow, || {
-                    format!(
-                        "node ids `{}`, `{}`: expected unsigned integers",
-                        show(from_b),
-                        show(to_b)
-                    )
-                });
-                continue;
+            let key = match keys.read(&rec) {
+                Ok(k) => k,
+                Err(e) => {
+                    rb.bad(line, ErrorKind::MalformedRow, || e.message());
+                    continue;
+                }
             };
             let hour_b = field(&rec, c_hour);
             let hour = match parse_u64(hour_b) {
@@ -125,15 +139,15 @@ impl HistoricalProfile {
                     continue;
                 }
             };
-            let edges = index.edges(from, to);
-            if edges.is_empty() {
-                rb.bad(line, ErrorKind::UnknownEdge, || {
-                    format!("no edge from node {from} to node {to}")
-                });
-                continue;
-            }
+            let named = match index.resolve(&key) {
+                Ok(n) => n,
+                Err(refusal) => {
+                    rb.bad(line, refusal.kind(), || refusal.message());
+                    continue;
+                }
+            };
             rb.good();
-            per_hour[hour].extend(edges.iter().map(|&e| (e, speed as f32)));
+            per_hour[hour].extend(named.iter().map(|e| (e, speed as f32)));
         }
         let mut report = rb.finish(cfg, true);
         if report.rejected {
@@ -214,7 +228,7 @@ impl HistoricalProfile {
         self.rows
     }
 
-    /// Stored (edge, hour) values; parallel edges count once each.
+    /// Stored (segment, hour) values; parallel segments count once each.
     pub fn entries(&self) -> usize {
         self.entries.len()
     }
@@ -243,11 +257,11 @@ pub(crate) fn check_speed_value(s: f64, cfg: &ValidationConfig) -> Result<f64, E
 /// The message for a speed refused with `kind`.
 pub(crate) fn speed_message(kind: ErrorKind, field: &str, cfg: &ValidationConfig) -> String {
     match kind {
-        ErrorKind::MalformedRow => format!("speed_kmh `{field}`: not a number"),
-        ErrorKind::NotANumber => format!("speed_kmh `{field}`: not a finite number"),
-        ErrorKind::NonpositiveSpeed => format!("speed_kmh `{field}`: must be > 0"),
+        ErrorKind::MalformedRow => format!("kmh `{field}`: not a number"),
+        ErrorKind::NotANumber => format!("kmh `{field}`: not a finite number"),
+        ErrorKind::NonpositiveSpeed => format!("kmh `{field}`: must be > 0"),
         _ => format!(
-            "speed_kmh `{field}`: above the maximum {} km/h",
+            "kmh `{field}`: above the maximum {} km/h",
             cfg.max_speed_kmh
         ),
     }

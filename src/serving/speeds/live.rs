@@ -2,24 +2,39 @@
 //!
 //! # Input
 //!
-//! An observation names an edge by its end nodes and carries a speed, when
-//! it was observed (RFC 3339) and how many samples it summarises:
+//! An observation names its segments like a historical row (`segment`,
+//! and/or `tail` + `head`, optional `way`; rules in
+//! [`edge_index`](super::edge_index)) and carries a speed `kmh`, when it was
+//! observed (`observed_at`, RFC 3339 with offset) and how many measurements
+//! it summarises (`samples`):
 //!
-//! - JSON: a top-level array of [`Observation`] objects. Unknown fields are
-//!   refused; an element that is not such an object (wrong type, missing or
-//!   unknown field, negative `samples`) is one `malformed_row`, reported by
-//!   its 0-based index.
-//! - CSV: header naming exactly `from_node,to_node,speed_kmh,observed_at,samples`
-//!   (any order), errors reported by 1-based line.
+//! - JSON: a top-level array of [`Observation`] objects with those field
+//!   names (key fields optional, absent or `null` = not given). Unknown
+//!   fields are refused; an element that is not such an object (wrong type,
+//!   missing or unknown field, negative `samples`) is one `malformed_row`,
+//!   reported by its 0-based index.
+//! - CSV: a header naming `kmh`, `observed_at`, `samples` and the key
+//!   columns (`segment`, or `tail` and `head`, or all; optional `way`), any
+//!   order; an empty key cell is "not given"; errors reported by 1-based
+//!   line.
+//!
+//! ```text
+//! segment,tail,head,kmh,observed_at,samples
+//! 1042,,,18.5,2026-12-02T08:15:00+01:00,4
+//! ,5001,5002,22,2026-12-02T08:15:00+01:00,2
+//! ```
 //!
 //! # Validation
 //!
 //! One [`ErrorKind`] per observation, checked in this order: (CSV) wrong
-//! field count, unparsable node id or speed → `malformed_row`; NaN/±inf →
-//! `not_a_number`; ≤ 0 → `nonpositive_speed`; above the maximum →
-//! `over_max_speed`; `observed_at` not RFC 3339 → `bad_timestamp`; more than
-//! `max_future_skew_s` ahead of `now` → `future_timestamp`; `samples` not an
-//! integer ≥ 1 → `bad_samples`; no edge with these ends → `unknown_edge`.
+//! field count, a non-empty key cell not an unsigned integer, unparsable
+//! speed → `malformed_row`; neither `segment` nor both `tail` and `head` →
+//! `malformed_row`; NaN/±inf → `not_a_number`; ≤ 0 → `nonpositive_speed`;
+//! above the maximum → `over_max_speed`; `observed_at` not RFC 3339 →
+//! `bad_timestamp`; more than `max_future_skew_s` ahead of `now` →
+//! `future_timestamp`; `samples` not an integer ≥ 1 → `bad_samples`; no
+//! such segment, or none with these ends (on this way) → `unknown_edge`;
+//! `segment` disagreeing with `way`, `tail` or `head` → `segment_mismatch`.
 //! A batch whose bad share exceeds `max_bad_share` is rejected whole and
 //! changes nothing. An empty batch is accepted and changes nothing (unlike an
 //! empty historical table it cannot wipe anything out).
@@ -28,7 +43,8 @@
 //!
 //! Newest observation per edge wins: an observation older than the one held
 //! is ignored and counted as `superseded`; an equal timestamp replaces (the
-//! later arrival wins). An observation naming parallel edges applies to all.
+//! later arrival wins). An observation naming several segments (by ends)
+//! applies to all.
 //!
 //! # Storage
 //!
@@ -37,8 +53,8 @@
 //! over all edges and an update is O(1) per edge.
 
 use super::config::ValidationConfig;
-use super::csv_input::{field, line_of, map_header, parse_u64, reader, show};
-use super::edge_index::EdgeIndex;
+use super::csv_input::{field, line_of, map_columns, parse_u64, reader, show};
+use super::edge_index::{EdgeIndex, Named, SegmentKey, INCOMPLETE_KEY};
 use super::error::SpeedsError;
 use super::historical::{check_speed, check_speed_value, speed_message};
 use super::report::{ErrorKind, Loc, ReportBuilder, TableReport};
@@ -46,14 +62,9 @@ use chrono::{DateTime, SecondsFormat, Utc};
 use csv::ByteRecord;
 use serde::{Deserialize, Serialize};
 
-/// The live CSV columns, in their canonical order.
-pub const COLUMNS: [&str; 5] = [
-    "from_node",
-    "to_node",
-    "speed_kmh",
-    "observed_at",
-    "samples",
-];
+/// The live CSV columns every batch has, in their canonical order; the key
+/// columns (`segment`, `way`, `tail`, `head`) come before them.
+pub const COLUMNS: [&str; 3] = ["kmh", "observed_at", "samples"];
 
 /// Marks "no observation held" in the time array.
 pub(crate) const NO_OBS: i64 = i64::MIN;
@@ -62,15 +73,36 @@ pub(crate) const NO_OBS: i64 = i64::MIN;
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct Observation {
-    /// External id of the edge's tail node.
-    pub from_node: u64,
-    /// External id of the edge's head node.
-    pub to_node: u64,
-    pub speed_kmh: f64,
+    /// Segment (edge) id in the artifact.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub segment: Option<u64>,
+    /// Way id of the segment(s).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub way: Option<u64>,
+    /// External id of the segment's tail node.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub tail: Option<u64>,
+    /// External id of the segment's head node.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub head: Option<u64>,
+    /// Observed speed in km/h.
+    pub kmh: f64,
     /// RFC 3339 timestamp, e.g. `2026-03-29T08:15:00Z`.
     pub observed_at: String,
-    /// Number of measurements averaged into `speed_kmh` (≥ 1).
+    /// Number of measurements averaged into `kmh` (≥ 1).
     pub samples: u32,
+}
+
+impl Observation {
+    /// How this observation names its segments.
+    pub fn key(&self) -> SegmentKey {
+        SegmentKey {
+            segment: self.segment,
+            way: self.way,
+            tail: self.tail,
+            head: self.head,
+        }
+    }
 }
 
 /// What the layer holds for one edge.
@@ -99,7 +131,7 @@ pub struct LiveLayer {
 
 /// A validated observation, before it is applied.
 struct Valid<'a> {
-    edges: &'a [u32],
+    edges: Named<'a>,
     speed: f32,
     observed_ms: i64,
     samples: u32,
@@ -185,10 +217,9 @@ impl LiveLayer {
         for (i, o) in batch.iter().enumerate() {
             let checked = check_obs(
                 index,
-                o.from_node,
-                o.to_node,
-                check_speed_value(o.speed_kmh, cfg)
-                    .map_err(|k| (k, speed_message(k, &o.speed_kmh.to_string(), cfg))),
+                &o.key(),
+                check_speed_value(o.kmh, cfg)
+                    .map_err(|k| (k, speed_message(k, &o.kmh.to_string(), cfg))),
                 &o.observed_at,
                 Some(u64::from(o.samples)),
                 now_ms,
@@ -227,10 +258,9 @@ impl LiveLayer {
             };
             let checked = check_obs(
                 index,
-                o.from_node,
-                o.to_node,
-                check_speed_value(o.speed_kmh, cfg)
-                    .map_err(|k| (k, speed_message(k, &o.speed_kmh.to_string(), cfg))),
+                &o.key(),
+                check_speed_value(o.kmh, cfg)
+                    .map_err(|k| (k, speed_message(k, &o.kmh.to_string(), cfg))),
                 &o.observed_at,
                 Some(u64::from(o.samples)),
                 now_ms,
@@ -252,8 +282,11 @@ impl LiveLayer {
     ) -> Result<TableReport, SpeedsError> {
         self.check_index(index)?;
         let mut rdr = reader(csv);
-        let [c_from, c_to, c_speed, c_at, c_samples] = map_header(&mut rdr, COLUMNS)?;
-        let want_fields = COLUMNS.len();
+        let ([c_speed, c_at, c_samples], keys) = map_columns(&mut rdr, COLUMNS)?;
+        let want_fields = rdr
+            .byte_headers()
+            .map_err(|e| SpeedsError::Csv(e.to_string()))?
+            .len();
         let now_ms = now.timestamp_millis();
         let mut rb = ReportBuilder::new(cfg);
         let mut valid = Vec::new();
@@ -272,24 +305,19 @@ impl LiveLayer {
                 });
                 continue;
             }
-            let (from_b, to_b) = (field(&rec, c_from), field(&rec, c_to));
-            let (Some(from), Some(to)) = (parse_u64(from_b), parse_u64(to_b)) else {
-                rb.bad(loc, ErrorKind::MalformedRow, || {
-                    format!(
-                        "node ids `{}`, `{}`: expected unsigned integers",
-                        show(from_b),
-                        show(to_b)
-                    )
-                });
-                continue;
+            let key = match keys.read(&rec) {
+                Ok(k) => k,
+                Err(e) => {
+                    rb.bad(loc, ErrorKind::MalformedRow, || e.message());
+                    continue;
+                }
             };
             let at = String::from_utf8_lossy(field(&rec, c_at));
             let samples_b = field(&rec, c_samples);
             let samples = parse_u64(samples_b);
             let checked = check_obs(
                 index,
-                from,
-                to,
+                &key,
                 check_speed(field(&rec, c_speed), cfg)
                     .map_err(|k| (k, speed_message(k, &show(field(&rec, c_speed)), cfg))),
                 &at,
@@ -343,9 +371,11 @@ impl LiveLayer {
         dropped
     }
 
-    /// The held observations named by their ends, one per distinct end pair
-    /// (parallel edges share theirs), ascending by `(from_node, to_node)`.
-    /// Applying them to an empty layer gives this layer back.
+    /// The held observations named by their ends (`tail`, `head`; no
+    /// segment id, so they survive a rebuild that renumbers segments), one
+    /// per distinct end pair (parallel segments share theirs), ascending by
+    /// `(tail, head)`. Applying them to an empty layer gives this layer back
+    /// when no two parallel segments hold different observations.
     pub fn to_observations(&self, index: &EdgeIndex) -> Vec<Observation> {
         let mut out = Vec::new();
         for ((from, to), edges) in index.groups() {
@@ -355,9 +385,11 @@ impl LiveLayer {
                 .max_by_key(|x| x.observed_at);
             if let Some(x) = best {
                 out.push(Observation {
-                    from_node: from,
-                    to_node: to,
-                    speed_kmh: f64::from(x.speed_kmh),
+                    segment: None,
+                    way: None,
+                    tail: Some(from),
+                    head: Some(to),
+                    kmh: f64::from(x.speed_kmh),
                     observed_at: x.observed_at.to_rfc3339_opts(SecondsFormat::Millis, true),
                     samples: x.samples,
                 });
@@ -389,7 +421,7 @@ impl LiveLayer {
         let mut changed = false;
         for v in valid {
             let mut took = false;
-            for &e in v.edges {
+            for e in v.edges.iter() {
                 let i = e as usize;
                 let held = self.observed_ms[i];
                 if held == NO_OBS || v.observed_ms >= held {
@@ -440,14 +472,16 @@ fn record<'a>(
 #[allow(clippy::too_many_arguments)]
 fn check_obs<'a>(
     index: &'a EdgeIndex,
-    from: u64,
-    to: u64,
+    key: &SegmentKey,
     speed: Result<f64, (ErrorKind, String)>,
     observed_at: &str,
     samples: Option<u64>,
     now_ms: i64,
     cfg: &ValidationConfig,
 ) -> Result<Valid<'a>, (ErrorKind, String)> {
+    if !key.is_complete() {
+        return Err((ErrorKind::MalformedRow, INCOMPLETE_KEY.to_string()));
+    }
     let speed = speed?;
     let at = DateTime::parse_from_rfc3339(observed_at).map_err(|e| {
         (
@@ -485,13 +519,9 @@ fn check_obs<'a>(
             ))
         }
     };
-    let edges = index.edges(from, to);
-    if edges.is_empty() {
-        return Err((
-            ErrorKind::UnknownEdge,
-            format!("no edge from node {from} to node {to}"),
-        ));
-    }
+    let edges = index
+        .resolve(key)
+        .map_err(|refusal| (refusal.kind(), refusal.message()))?;
     Ok(Valid {
         edges,
         speed: speed as f32,

@@ -7,7 +7,8 @@
 //!
 //! # Pieces
 //!
-//! - [`edge_index`]: `(from_node, to_node)` external node ids → edge ids.
+//! - [`edge_index`]: how a row names segments (`segment` id, or `tail` and
+//!   `head` external node ids, optional `way`) → segment (edge) ids.
 //! - [`clock`]: an instant → hour of the week in the region's time zone.
 //! - [`historical`]: the 168-hour profile parsed from CSV; missing rows fall
 //!   back to free-flow.
@@ -42,7 +43,7 @@ pub mod report;
 pub use blend::{blend, blend_into, live_weight, BlendStats};
 pub use clock::{hour_of_week, HOURS_PER_WEEK};
 pub use config::ValidationConfig;
-pub use edge_index::EdgeIndex;
+pub use edge_index::{EdgeIndex, Named, Refusal, SegmentKey};
 pub use error::{PersistError, SpeedsError};
 pub use historical::HistoricalProfile;
 pub use live::{LiveEntry, LiveLayer, Observation};

@@ -12,8 +12,8 @@
 //!
 //! `kind` is `historical` (payload: the accepted CSV table, byte for byte)
 //! or `live` (payload: a JSON array of [`Observation`](super::Observation)s,
-//! edges named by their end nodes so a saved layer survives a map rebuild
-//! that renumbers edges). The length and checksum make a truncated or
+//! segments named by `tail` and `head`, never by segment id, so a saved
+//! layer survives a map rebuild that renumbers segments). The length and checksum make a truncated or
 //! damaged file a clear [`PersistError::Corrupt`] instead of a table that
 //! silently lost its tail. Loading re-validates the payload against the
 //! current graph exactly like an upload.

@@ -12,8 +12,12 @@ use std::collections::BTreeMap;
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum ErrorKind {
-    /// No edge of the graph has these end nodes.
+    /// No segment of the graph has this id, or these end nodes (on this
+    /// way, when the row gives one).
     UnknownEdge,
+    /// The row gives `segment` and also `way`, `tail` or `head`, and one of
+    /// them is not that segment's.
+    SegmentMismatch,
     /// Speed ≤ 0.
     NonpositiveSpeed,
     /// Speed is NaN or ±infinity.
@@ -28,15 +32,17 @@ pub enum ErrorKind {
     FutureTimestamp,
     /// `samples` is not an integer ≥ 1.
     BadSamples,
-    /// Wrong field count, unparsable node id or speed, or (JSON) an element
-    /// that is not an observation object.
+    /// Wrong field count, unparsable id or speed, a row naming neither
+    /// `segment` nor both `tail` and `head`, or (JSON) an element that is
+    /// not an observation object.
     MalformedRow,
 }
 
 impl ErrorKind {
     /// Every kind, in declaration order.
-    pub const ALL: [ErrorKind; 9] = [
+    pub const ALL: [ErrorKind; 10] = [
         ErrorKind::UnknownEdge,
+        ErrorKind::SegmentMismatch,
         ErrorKind::NonpositiveSpeed,
         ErrorKind::NotANumber,
         ErrorKind::OverMaxSpeed,
@@ -51,6 +57,7 @@ impl ErrorKind {
     pub fn name(self) -> &'static str {
         match self {
             ErrorKind::UnknownEdge => "unknown_edge",
+            ErrorKind::SegmentMismatch => "segment_mismatch",
             ErrorKind::NonpositiveSpeed => "nonpositive_speed",
             ErrorKind::NotANumber => "not_a_number",
             ErrorKind::OverMaxSpeed => "over_max_speed",
