@@ -87,7 +87,7 @@ async fn ask_all(
     let with_depart = |mut v: Value| {
         v["budget_ms"] = json!(60_000);
         if let Some(d) = depart {
-            v["depart_at"] = json!(d);
+            v["leaving"] = json!(d);
         }
         serde_json::to_vec(&v).unwrap()
     };
