@@ -328,3 +328,169 @@ fn kmeans(points: &[Vec<f64>], k: usize) -> ([u8; HOURS], Vec<u8>) {
         .collect();
     (hour_profile, reps)
 }
+
+#[cfg(test)]
+mod tests {
+    //! Checks against tables whose hour patterns are known by construction
+    //! (the ground truth is the pattern each hour was written from), and a
+    //! hand computation of the length-weighted factor.
+
+    use super::*;
+    use crate::engine::graph::RoadGraph;
+    use crate::serving::speeds::{EdgeIndex, ValidationConfig};
+    use crate::testkit::{HistoricalCsv, SplitMix64};
+
+    fn graph() -> RoadGraph {
+        crate::engine::import::synthetic::generate(400, 7)
+    }
+
+    /// A table over every edge: `speed(edge, hour)`, skipping `None`.
+    fn table(g: &RoadGraph, speed: impl Fn(usize, u8) -> Option<f64>) -> HistoricalProfile {
+        let mut csv = HistoricalCsv::with_header();
+        for h in 0..HOURS as u8 {
+            for e in 0..g.num_edges() {
+                if let Some(s) = speed(e, h) {
+                    let (u, v) = (g.edge_tail[e] as usize, g.edge_head[e] as usize);
+                    csv.row(g.node_ext[u], g.node_ext[v], h, format!("{s:.3}"));
+                }
+            }
+        }
+        let idx = EdgeIndex::new(g);
+        HistoricalProfile::parse(
+            csv.into_string().as_bytes(),
+            &idx,
+            &ValidationConfig::default(),
+        )
+        .unwrap()
+        .0
+    }
+
+    /// Whether two labelings of the hours are the same partition.
+    fn same_partition(a: &[usize], b: &[usize]) -> bool {
+        (0..HOURS).all(|i| (0..HOURS).all(|j| (a[i] == a[j]) == (b[i] == b[j])))
+    }
+
+    /// Pattern of an hour: 0 night/evening, 1 weekday peak (7–9, 16–18),
+    /// 2 weekday midday (10–15), 3 weekend daytime (8–19).
+    fn pattern(h: u8) -> usize {
+        let (day, hod) = (h / 24, h % 24);
+        match (day < 5, hod) {
+            (true, 7..=9 | 16..=18) => 1,
+            (true, 10..=15) => 2,
+            (false, 8..=19) => 3,
+            _ => 0,
+        }
+    }
+
+    /// Share of free-flow speed of each pattern (night is free-flow).
+    const SHARE: [f64; 4] = [1.0, 0.45, 0.75, 0.85];
+
+    /// Speed of an edge in the pattern, with the edge's own free-flow speed
+    /// (rows equal to free-flow are written too: the table names every
+    /// edge in every hour).
+    fn pattern_speed(g: &RoadGraph, e: usize, p: usize) -> f64 {
+        (f64::from(g.edge_speed_kmh[e]) * SHARE[p]).max(1.0)
+    }
+
+    #[test]
+    fn identical_hours_group_exactly() {
+        let g = graph();
+        let t = table(&g, |e, h| Some(pattern_speed(&g, e, pattern(h))));
+        let ff = g.edge_speed_kmh.clone();
+        let gr = HourGrouping::new(&t, &ff, &g.edge_len_m, 8);
+        // Four patterns written → four profiles, every hour with its own
+        // speeds, no deviation.
+        assert!(gr.exact);
+        assert_eq!(gr.len(), 4);
+        let labels: Vec<usize> = (0..HOURS as u8).map(pattern).collect();
+        let got: Vec<usize> = gr.hour_profile.iter().map(|&p| p as usize).collect();
+        assert!(same_partition(&labels, &got));
+        assert_eq!(gr.deviation_summary(), (0.0, 0.0));
+        // The representative of each profile is its first hour.
+        for (p, &rep) in gr.representatives.iter().enumerate() {
+            let first = (0..HOURS).find(|&h| gr.hour_profile[h] as usize == p).unwrap();
+            assert_eq!(rep as usize, first);
+        }
+        // Fewer profiles allowed than patterns → k-means, not exact.
+        let gr3 = HourGrouping::new(&t, &ff, &g.edge_len_m, 3);
+        assert!(!gr3.exact);
+        assert_eq!(gr3.len(), 3);
+        assert!(gr3.deviation_summary().1 > 0.0);
+    }
+
+    #[test]
+    fn kmeans_recovers_noisy_daily_patterns() {
+        let g = graph();
+        // ±2 % noise per (edge, hour) from SplitMix64: every hour distinct.
+        let noise: Vec<f64> = {
+            let mut r = SplitMix64::new(42);
+            (0..HOURS * g.num_edges())
+                .map(|_| 0.98 + 0.04 * (r.next_u64() as f64 / u64::MAX as f64))
+                .collect()
+        };
+        let t = table(&g, |e, h| {
+            Some(pattern_speed(&g, e, pattern(h)) * noise[h as usize * g.num_edges() + e])
+        });
+        let ff = g.edge_speed_kmh.clone();
+        let gr = HourGrouping::new(&t, &ff, &g.edge_len_m, 4);
+        assert!(!gr.exact);
+        let labels: Vec<usize> = (0..HOURS as u8).map(pattern).collect();
+        let got: Vec<usize> = gr.hour_profile.iter().map(|&p| p as usize).collect();
+        assert!(
+            same_partition(&labels, &got),
+            "k-means with k = 4 finds the four written patterns: {got:?}"
+        );
+        // Each hour's travel times differ from its representative's by the
+        // noise only: at most 0.98⁻¹·1.02 − 1 ≈ 4.1 % per edge (speeds are
+        // written to 3 decimals, and a floor of 1 km/h changes nothing here).
+        let (median, max) = gr.deviation_summary();
+        assert!(max <= 1.02 / 0.98 - 1.0 + 1e-3, "max {max}");
+        assert!(median > 0.0 && median < max);
+        // With more profiles than patterns, no profile mixes two patterns.
+        let gr8 = HourGrouping::new(&t, &ff, &g.edge_len_m, 8);
+        assert_eq!(gr8.len(), 8);
+        for p in 0..8u8 {
+            let pats: Vec<usize> = (0..HOURS as u8)
+                .filter(|&h| gr8.profile_of(h) == p)
+                .map(pattern)
+                .collect();
+            assert!(pats.windows(2).all(|w| w[0] == w[1]), "profile {p}: {pats:?}");
+        }
+        // Deterministic: the same table groups the same way.
+        assert_eq!(gr8, HourGrouping::new(&t, &ff, &g.edge_len_m, 8));
+    }
+
+    #[test]
+    fn hour_factor_is_length_weighted_time_over_free_flow() {
+        let g = graph();
+        // Hour 30: every third edge at 10 km/h; no other rows.
+        let t = table(&g, |e, h| (h == 30 && e % 3 == 0).then_some(10.0));
+        let ff = g.edge_speed_kmh.clone();
+        let gr = HourGrouping::new(&t, &ff, &g.edge_len_m, 8);
+        // By hand: Σ len / v over all edges, v = 10 on the written edges
+        // (parallel edges with the same ends take the row too) and
+        // free-flow elsewhere, over Σ len / free-flow.
+        let written: std::collections::HashSet<(u32, u32)> = (0..g.num_edges())
+            .filter(|e| e % 3 == 0)
+            .map(|e| (g.edge_tail[e], g.edge_head[e]))
+            .collect();
+        let (mut num, mut den) = (0.0, 0.0);
+        for e in 0..g.num_edges() {
+            let l = g.edge_len_m[e];
+            let v = f64::from(g.edge_speed_kmh[e]);
+            den += l / v;
+            num += if written.contains(&(g.edge_tail[e], g.edge_head[e])) {
+                l / 10.0
+            } else {
+                l / v
+            };
+        }
+        assert!((gr.factor(30) - num / den).abs() < 1e-9 * (num / den));
+        assert_eq!(gr.factor(31), 1.0);
+        // Two distinct hour vectors → two exact profiles.
+        assert!(gr.exact);
+        assert_eq!(gr.len(), 2);
+        assert_eq!(gr.representatives, vec![0, 30]);
+        assert_eq!(HourGrouping::free_flow().factor(30), 1.0);
+    }
+}
