@@ -26,23 +26,9 @@ use hodos::serving::answer::{trip, Catalog};
 use hodos::serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
 use hodos::serving::snapshot::{RegionHandle, UpdateSettings};
 use hodos::serving::tier::Tier;
-use hodos::testkit::HistoricalCsv;
-use std::collections::{BTreeMap, HashMap};
+use hodos::testkit::{weekly_table, WeeklyTable};
+use std::collections::BTreeMap;
 use std::time::Instant;
-
-/// Share of free-flow speed by pattern: 0 night/evening, 1 weekday peaks
-/// (7–9, 16–18), 2 weekday midday (10–15), 3 weekend daytime (8–19).
-const SHARE: [f64; 4] = [1.0, 0.45, 0.75, 0.85];
-
-fn pattern(h: u8) -> usize {
-    let (day, hod) = (h / 24, h % 24);
-    match (day < 5, hod) {
-        (true, 7..=9 | 16..=18) => 1,
-        (true, 10..=15) => 2,
-        (false, 8..=19) => 3,
-        _ => 0,
-    }
-}
 
 const DEPARTURES: usize = 1000;
 const SOURCES: usize = 8;
@@ -63,41 +49,12 @@ fn ny_every_departure_hour_answers_from_its_profile() {
     art.save(&artifact).unwrap();
     let g = &art.graph;
 
-    // The table: one row per chosen (tail, head) pair and hour; `speed`
-    // keeps what was written (as the f32 the parser stores).
-    let mut pairs: Vec<(u64, u64)> = (0..g.num_edges())
-        .map(|e| {
-            (
-                g.node_ext[g.edge_tail[e] as usize],
-                g.node_ext[g.edge_head[e] as usize],
-            )
-        })
-        .collect();
-    pairs.sort_unstable();
-    pairs.dedup();
-    let ff_by_pair: HashMap<(u64, u64), f32> = (0..g.num_edges())
-        .map(|e| {
-            let k = (
-                g.node_ext[g.edge_tail[e] as usize],
-                g.node_ext[g.edge_head[e] as usize],
-            );
-            (k, g.edge_speed_kmh[e])
-        })
-        .collect();
+    // The table (testkit's weekly patterns with noise); `speed` keeps each
+    // written value as the f32 the parser stores.
+    let WeeklyTable { csv, speed } = weekly_table(g, EDGE_STEP, 2026);
     let mut rng = SplitMix64::new(2026);
-    let mut csv = HistoricalCsv::with_header();
-    let mut speed: HashMap<(u64, u64, u8), f32> = HashMap::new();
-    for k in pairs.iter().step_by(EDGE_STEP) {
-        for h in 0..168u8 {
-            let noise = 0.97 + 0.06 * (rng.next_u64() as f64 / u64::MAX as f64);
-            let v = f64::from(ff_by_pair[k]) * SHARE[pattern(h)] * noise;
-            let text = format!("{:.2}", v.clamp(1.0, 199.0));
-            csv.row(k.0, k.1, h, &text);
-            speed.insert((k.0, k.1, h), text.parse::<f32>().unwrap());
-        }
-    }
     let table = dir.path().join("historical.csv");
-    std::fs::write(&table, csv.into_string()).unwrap();
+    std::fs::write(&table, csv).unwrap();
 
     let (lo, hi) = g.bbox();
     let cfg = RegionConfig {
