@@ -105,8 +105,8 @@ fn main() {
         for _ in 0..2000 {
             let a = positions[rng.below(positions.len()) as usize];
             let b = positions[rng.below(positions.len()) as usize];
-            let depart = random_departure
-                .then(|| week + Duration::seconds(rng.below(7 * 24 * 3600) as i64));
+            let depart =
+                random_departure.then(|| week + Duration::seconds(rng.below(7 * 24 * 3600) as i64));
             let t = Instant::now();
             let ans = rt.block_on(trip(&cat, a, b, depart, None, false, true));
             lat.push(t.elapsed().as_secs_f64() * 1e6);

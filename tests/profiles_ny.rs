@@ -30,6 +30,9 @@ use hodos::testkit::{weekly_table, WeeklyTable};
 use std::collections::BTreeMap;
 use std::time::Instant;
 
+/// One answered departure: target node, ETA in ms, hour of week.
+type Asked = (u32, u64, u8);
+
 const DEPARTURES: usize = 1000;
 const SOURCES: usize = 8;
 /// Every `EDGE_STEP`-th (tail, head) pair gets table rows.
@@ -107,7 +110,7 @@ fn ny_every_departure_hour_answers_from_its_profile() {
     let week = Utc.with_ymd_and_hms(2027, 1, 4, 0, 0, 0).unwrap(); // a Monday
     assert_eq!(week.weekday(), chrono::Weekday::Mon);
     let t2 = Instant::now();
-    let mut asked: BTreeMap<(u8, u32), Vec<(u32, u64, u8)>> = BTreeMap::new();
+    let mut asked: BTreeMap<(u8, u32), Vec<Asked>> = BTreeMap::new();
     let mut estimates = Vec::new();
     for i in 0..DEPARTURES {
         let s_node = sources[i % SOURCES];
@@ -131,7 +134,10 @@ fn ny_every_departure_hour_answers_from_its_profile() {
         }
         let p = a.profile.expect("a historical answer names its profile");
         assert_eq!(p.index, prof.hour_profile[hour as usize]);
-        assert_eq!(p.representative_hour, prof.representatives[p.index as usize]);
+        assert_eq!(
+            p.representative_hour,
+            prof.representatives[p.index as usize]
+        );
         asked
             .entry((p.representative_hour, s_node))
             .or_default()
@@ -152,7 +158,7 @@ fn ny_every_departure_hour_answers_from_its_profile() {
     // speed in ms, rounded, at least 1 (the metric's documented rounding),
     // with the speed written for the representative hour or free-flow.
     let mut checked = 0;
-    let mut by_rep: BTreeMap<u8, Vec<(u32, &Vec<(u32, u64, u8)>)>> = BTreeMap::new();
+    let mut by_rep: BTreeMap<u8, Vec<(u32, &Vec<Asked>)>> = BTreeMap::new();
     for ((rep, s_node), list) in &asked {
         by_rep.entry(*rep).or_default().push((*s_node, list));
     }

@@ -24,5 +24,5 @@ pub mod weekly;
 pub use config_text::region_table;
 pub use data::{data_dir, skipped, DimacsNy, DATA_DIR_ENV};
 pub use splitmix::{node_pairs, nodes, SplitMix64};
-pub use weekly::{weekly_table, WeeklyTable};
 pub use tables::{observation, HistoricalCsv, LiveCsv, HISTORICAL_HEADER, LIVE_HEADER};
+pub use weekly::{weekly_table, WeeklyTable};

@@ -119,7 +119,12 @@ fn weights_at(g: &RoadGraph, kmh: impl Fn(usize) -> f64) -> Vec<u32> {
 
 /// Profile index serving `hour` in the region's current snapshot.
 fn hour_profile(region: &RegionHandle, hour: u8) -> u8 {
-    region.snapshot().unwrap().profiles.grouping.profile_of(hour)
+    region
+        .snapshot()
+        .unwrap()
+        .profiles
+        .grouping
+        .profile_of(hour)
 }
 
 /// Two nodes far apart whose every road is two-way.
@@ -310,8 +315,15 @@ async fn gate_fallbacks_and_graph_tiers() {
     let cold = later + Days::hours(5);
     let r = trip(&cat, a, b, Some(cold), Some(0), false, true).await;
     assert_eq!((r.tier, r.reason), (Tier::Historical, None), "{r:?}");
-    assert!((r.eta_s - want).abs() < 1e-6, "{} vs petgraph {want}", r.eta_s);
-    assert_ne!(r.profile.map(|p| p.index), Some(hour_profile(&region, hour)));
+    assert!(
+        (r.eta_s - want).abs() < 1e-6,
+        "{} vs petgraph {want}",
+        r.eta_s
+    );
+    assert_ne!(
+        r.profile.map(|p| p.index),
+        Some(hour_profile(&region, hour))
+    );
 
     // An estimate knows the hour: a shed request departing in the 20 km/h
     // hour is the calibration's estimate × that hour's factor, worked by

@@ -50,6 +50,6 @@ pub use edge_index::EdgeIndex;
 pub use error::{PersistError, SpeedsError};
 pub use historical::HistoricalProfile;
 pub use live::{LiveEntry, LiveLayer, Observation};
-pub use profiles::HourGrouping;
 pub use persist::{load_historical, load_live, save_historical, save_live, write_atomic};
+pub use profiles::HourGrouping;
 pub use report::{ErrorKind, RowError, TableReport};

@@ -151,7 +151,11 @@ fn exact_groups(table: &HistoricalProfile) -> Vec<Vec<u8>> {
     let mut by_rows: HashMap<Vec<(u32, u32)>, usize> = HashMap::new();
     let mut groups: Vec<Vec<u8>> = Vec::new();
     for h in 0..HOURS as u8 {
-        let key: Vec<(u32, u32)> = table.hour(h).iter().map(|&(e, s)| (e, s.to_bits())).collect();
+        let key: Vec<(u32, u32)> = table
+            .hour(h)
+            .iter()
+            .map(|&(e, s)| (e, s.to_bits()))
+            .collect();
         let next = groups.len();
         let g = *by_rows.entry(key).or_insert(next);
         if g == next {
@@ -173,7 +177,9 @@ fn sample_edges(table: &HistoricalProfile, num_edges: usize) -> Vec<u32> {
             }
         }
     }
-    let all: Vec<u32> = (0..num_edges as u32).filter(|&e| named[e as usize]).collect();
+    let all: Vec<u32> = (0..num_edges as u32)
+        .filter(|&e| named[e as usize])
+        .collect();
     if all.len() <= SAMPLE_EDGES {
         return all;
     }
@@ -408,7 +414,9 @@ mod tests {
         assert_eq!(gr.deviation_summary(), (0.0, 0.0));
         // The representative of each profile is its first hour.
         for (p, &rep) in gr.representatives.iter().enumerate() {
-            let first = (0..HOURS).find(|&h| gr.hour_profile[h] as usize == p).unwrap();
+            let first = (0..HOURS)
+                .find(|&h| gr.hour_profile[h] as usize == p)
+                .unwrap();
             assert_eq!(rep as usize, first);
         }
         // Fewer profiles allowed than patterns → k-means, not exact.
@@ -454,7 +462,10 @@ mod tests {
                 .filter(|&h| gr8.profile_of(h) == p)
                 .map(pattern)
                 .collect();
-            assert!(pats.windows(2).all(|w| w[0] == w[1]), "profile {p}: {pats:?}");
+            assert!(
+                pats.windows(2).all(|w| w[0] == w[1]),
+                "profile {p}: {pats:?}"
+            );
         }
         // Deterministic: the same table groups the same way.
         assert_eq!(gr8, HourGrouping::new(&t, &ff, &g.edge_len_m, 8));
