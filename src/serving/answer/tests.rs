@@ -578,3 +578,39 @@ async fn matrix_cells_belong_to_the_region_holding_both_ends() {
     // Both regions answer 4 cells; the first one named wins the tie.
     assert_eq!(mx.snapshot.map(|(name, _)| name), Some("west".into()));
 }
+
+/// A superseded snapshot stays in the retire bin while a request holds one
+/// of its profile metrics without the snapshot (as a matrix job does), and
+/// is freed by a sweep once that holder lets go.
+#[tokio::test]
+async fn a_held_profile_metric_keeps_its_snapshot_retired() {
+    let c = city();
+    let state = tempfile::tempdir().unwrap();
+    let cat = catalog(&c.artifact, &c.graph, state.path()).await;
+    let region = cat.regions[0].clone();
+    let held = region.snapshot().unwrap().profiles.metrics[0].clone();
+    let g = &c.graph;
+    let mut csv = crate::testkit::HistoricalCsv::with_header();
+    for e in 0..g.num_edges() {
+        let (u, v) = (
+            g.node_ext[g.edge_tail[e] as usize],
+            g.node_ext[g.edge_head[e] as usize],
+        );
+        csv.row(u, v, 3, 15);
+    }
+    region
+        .put_historical(csv.into_string().into_bytes())
+        .await
+        .unwrap();
+    let settle = || async {
+        for _ in 0..40 {
+            region.sweep_retired();
+            tokio::time::sleep(std::time::Duration::from_millis(25)).await;
+        }
+    };
+    settle().await;
+    assert!(region.retired().0 >= 1, "freed while a metric was held");
+    drop(held);
+    settle().await;
+    assert_eq!(region.retired().0, 0, "not freed after the holder let go");
+}

@@ -74,24 +74,9 @@ pub struct Snapshot {
     pub profiles: Arc<Profiles>,
     /// The blended live metric, once observations have arrived.
     pub live: Option<Arc<LiveMetric>>,
-    /// Identifies the artifact load (bucket cache keys include it).
+    /// Identifies the artifact load (increases with every reload).
     pub artifact_load: u64,
     pub artifact_at: DateTime<Utc>,
-}
-
-impl Snapshot {
-    /// Cache key of the historical data: its version, or "free-flow".
-    pub fn historical_key(&self) -> String {
-        historical_key(self.artifact_load, self.historical.as_deref())
-    }
-}
-
-/// Bucket cache key of a historical table (or free-flow) on an artifact load.
-fn historical_key(artifact_load: u64, h: Option<&HistoricalProfile>) -> String {
-    match h {
-        Some(h) => format!("{artifact_load}:{}", h.version()),
-        None => format!("{artifact_load}:free-flow"),
-    }
 }
 
 /// A customized live blend.
