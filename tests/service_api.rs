@@ -596,6 +596,11 @@ async fn admin_requires_the_token() {
         .iter()
         .all(|f| f == 1.0));
     assert!(p["metric_bytes"].as_u64().unwrap() > 0);
+    assert!(p["hour_deviation_max"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .all(|d| d == 0.0));
 }
 
 #[tokio::test]

@@ -128,6 +128,11 @@ pub struct ProfilesDto {
     pub deviation_median: f64,
     /// Every hour answered with exactly its own speeds.
     pub exact: bool,
+    /// Per hour of week: the largest relative edge travel-time difference
+    /// from its profile's representative (sampled edges).
+    pub hour_deviation_max: Vec<f64>,
+    /// Per hour of week: the median such difference.
+    pub hour_deviation_median: Vec<f64>,
     /// Per hour of week: the heuristic tier's travel-time factor.
     pub hour_factor: Vec<f64>,
     /// Per hour of week: its profile index.
@@ -146,6 +151,8 @@ impl From<&ProfilesStatus> for ProfilesDto {
             deviation_max: p.deviation_max,
             deviation_median: p.deviation_median,
             exact: p.exact,
+            hour_deviation_max: p.hour_deviation_max.clone(),
+            hour_deviation_median: p.hour_deviation_median.clone(),
             hour_factor: p.hour_factor.clone(),
             hour_profile: p.hour_profile.clone(),
             metric_bytes: p.metric_bytes,

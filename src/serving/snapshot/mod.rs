@@ -123,6 +123,11 @@ pub struct ProfilesStatus {
     pub deviation_median: f64,
     /// Largest such difference of any sampled edge in any hour.
     pub deviation_max: f64,
+    /// Per hour: median relative edge travel-time difference from its
+    /// representative (168 values).
+    pub hour_deviation_median: Vec<f64>,
+    /// Per hour: the largest such difference (168 values).
+    pub hour_deviation_max: Vec<f64>,
     /// Per-hour heuristic factor (168 values).
     pub hour_factor: Vec<f64>,
     /// Heap bytes of all profile metrics.
@@ -142,6 +147,8 @@ impl ProfilesStatus {
             representatives: g.representatives.clone(),
             deviation_median,
             deviation_max,
+            hour_deviation_median: g.deviation.iter().map(|d| d.0).collect(),
+            hour_deviation_max: g.deviation.iter().map(|d| d.1).collect(),
             hour_factor: g.hour_factor.to_vec(),
             metric_bytes: p.heap_bytes() as u64,
             build_s: p.build_s,
