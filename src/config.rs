@@ -126,6 +126,9 @@ impl Config {
         if q.max_matrix_cells == 0 {
             return bad("query.max_matrix_cells", "must be positive");
         }
+        if !(1..=168).contains(&q.profiles) {
+            return bad("query.profiles", "must be 1 to 168 hour-of-week profiles");
+        }
         if !(q.max_cpu_wait.is_finite() && q.max_cpu_wait >= 0.0) {
             return bad(
                 "query.max_cpu_wait",

@@ -10,7 +10,7 @@
 
 mod common;
 
-use common::graphs::region_of;
+use common::graphs::{distinct_nodes, region_of};
 use common::{dimacs_ny, fixture, petgraph_of, random_speeds, reference_dists, SplitMix64};
 use hodos::engine::build::{build_from_graph, Quiet, Source};
 use hodos::engine::cch::matrix::ManyToMany;
@@ -19,24 +19,6 @@ use hodos::engine::geo::haversine_m;
 use hodos::engine::import::dimacs;
 use hodos::engine::region::matrix::{matrix, Cell, MatrixLimits, PointMatrix};
 use hodos::engine::region::{EtaError, Metric, Region};
-use std::collections::HashMap;
-
-/// Nodes whose position no other node shares (a coordinate shared by two
-/// nodes names neither of them).
-fn distinct_nodes(region: &Region) -> Vec<u32> {
-    let g = &region.graph;
-    let mut count: HashMap<(u64, u64), u32> = HashMap::new();
-    for v in 0..g.num_nodes() as u32 {
-        let p = g.node_pos(v);
-        *count.entry((p.lat.to_bits(), p.lon.to_bits())).or_default() += 1;
-    }
-    (0..g.num_nodes() as u32)
-        .filter(|&v| {
-            let p = g.node_pos(v);
-            count[&(p.lat.to_bits(), p.lon.to_bits())] == 1
-        })
-        .collect()
-}
 
 /// `sources × targets` random node pairs: `Region::eta` between the nodes'
 /// coordinates against petgraph's Dijkstra between the nodes; `Region::route`

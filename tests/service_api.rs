@@ -394,7 +394,8 @@ async fn every_tier_and_reason() {
     assert_eq!(r["tier"], "live", "right after a reload: {r}");
 
     // A departure next week is not "now": historical, and no fallback reason.
-    let later = (chrono::Utc::now() + chrono::Duration::days(7)).to_rfc3339();
+    let later_t = chrono::Utc::now() + chrono::Duration::days(7);
+    let later = later_t.to_rfc3339();
     let r = post_json(
         &pub_app,
         "/v1/eta",
@@ -404,6 +405,13 @@ async fn every_tier_and_reason() {
     .json();
     assert_eq!(r["tier"], "historical", "{r}");
     assert!(r["fallback_reason"].is_null(), "{r}");
+    // It names its hour of week (chrono: days since Monday × 24 + hour, in
+    // the region's UTC) and the profile that answered; without a table that
+    // is the one free-flow profile.
+    use chrono::{Datelike, Timelike};
+    let hour = later_t.weekday().num_days_from_monday() * 24 + later_t.hour();
+    assert_eq!(r["hour_of_week"].as_u64(), Some(u64::from(hour)), "{r}");
+    assert_eq!(r["profile"]["index"], 0, "{r}");
 
     // Observations older than the TTL (600 s) → historical, live_stale.
     let old = (chrono::Utc::now() - chrono::Duration::seconds(3600)).to_rfc3339();
@@ -645,6 +653,22 @@ async fn admin_requires_the_token() {
     let s = r.json();
     assert_eq!(s["regions"][0]["region"], "testcity");
     assert!(s["regions"][0]["generation"].as_u64().unwrap() >= 1);
+    // No table: one free-flow profile for all 168 hours, factor 1.
+    let p = &s["regions"][0]["profiles"];
+    assert_eq!(p["count"], 1, "{p}");
+    assert_eq!(p["exact"], true);
+    assert_eq!(p["hour_profile"].as_array().unwrap().len(), 168);
+    assert!(p["hour_factor"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .all(|f| f == 1.0));
+    assert!(p["metric_bytes"].as_u64().unwrap() > 0);
+    assert!(p["hour_deviation_max"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .all(|d| d == 0.0));
 }
 
 #[tokio::test]

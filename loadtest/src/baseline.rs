@@ -16,8 +16,8 @@ use axum::response::{IntoResponse, Response};
 use axum::routing::post;
 use axum::{Json, Router};
 use hodos::http::dto::{
-    parse_json, EtaRequest, EtaResponse, LineString, MatrixRequest, MatrixResponse, RouteResponse,
-    SnapshotRef,
+    parse_json, EtaRequest, EtaResponse, LineString, MatrixRequest, MatrixResponse, ProfileRef,
+    RouteResponse, SnapshotRef,
 };
 use hodos::http::problem::ApiError;
 use std::net::SocketAddr;
@@ -36,6 +36,11 @@ fn fixed_eta() -> EtaResponse {
         }),
         from_snap_m: Some(3.0),
         to_snap_m: Some(4.0),
+        hour_of_week: Some(0),
+        profile: Some(ProfileRef {
+            index: 0,
+            representative_hour: 0,
+        }),
     }
 }
 

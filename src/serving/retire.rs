@@ -1,6 +1,6 @@
 //! Freeing superseded data off the request path.
 //!
-//! A snapshot or bucket metric that has just been replaced is usually still
+//! A snapshot (with its profile metrics) that has just been replaced is usually still
 //! held by a request or two, and whoever drops the last `Arc` frees it. For
 //! a customized metric that is tens of megabytes returned to the kernel
 //! (`munmap`, page by page), several milliseconds of work; if a request

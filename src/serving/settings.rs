@@ -65,8 +65,13 @@ pub struct QueryConfig {
     /// while the backlog sits in the callers' connection pools. Linux
     /// only; 0 disables this signal.
     pub max_cpu_wait: f64,
-    /// Historical bucket metrics kept customized (besides the warm ones).
+    /// Accepted for old configuration files and ignored: every profile of
+    /// the serving table is kept customized (see `profiles`).
     pub bucket_cache: usize,
+    /// Representative hour-of-week profiles the historical table is grouped
+    /// into (1..=168); one customized metric each, all kept in memory, so
+    /// every departure hour has a graph answer at once.
+    pub profiles: usize,
 }
 
 impl Default for QueryConfig {
@@ -81,6 +86,7 @@ impl Default for QueryConfig {
             max_queue_ms: 5,
             max_cpu_wait: 0.4,
             bucket_cache: 2,
+            profiles: 8,
         }
     }
 }

@@ -13,11 +13,13 @@
 //! - [`tables`]: historical and live speed tables as CSV text, and live
 //!   observations as JSON values.
 //! - [`config_text`]: the `[[region]]` table of a configuration file.
+//! - [`weekly`]: a 168-hour historical table with daily patterns and noise.
 
 pub mod config_text;
 pub mod data;
 pub mod splitmix;
 pub mod tables;
+pub mod weekly;
 
 pub use config_text::region_table;
 pub use data::{data_dir, skipped, DimacsNy, DATA_DIR_ENV};
@@ -25,3 +27,4 @@ pub use splitmix::{node_pairs, nodes, SplitMix64};
 pub use tables::{
     observation, segment_observation, HistoricalCsv, LiveCsv, HISTORICAL_HEADER, LIVE_HEADER,
 };
+pub use weekly::{weekly_table, WeeklyTable};

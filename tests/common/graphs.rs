@@ -175,3 +175,20 @@ pub fn assert_same_graph(a: &RoadGraph, b: &RoadGraph) {
     assert_eq!(a.shape, b.shape);
     assert_eq!(a.edge_twin, b.edge_twin);
 }
+
+/// Nodes whose position no other node shares (a coordinate shared by two
+/// nodes names neither of them).
+pub fn distinct_nodes(region: &Region) -> Vec<u32> {
+    let g = &region.graph;
+    let mut count: std::collections::HashMap<(u64, u64), u32> = Default::default();
+    for v in 0..g.num_nodes() as u32 {
+        let p = g.node_pos(v);
+        *count.entry((p.lat.to_bits(), p.lon.to_bits())).or_default() += 1;
+    }
+    (0..g.num_nodes() as u32)
+        .filter(|&v| {
+            let p = g.node_pos(v);
+            count[&(p.lat.to_bits(), p.lon.to_bits())] == 1
+        })
+        .collect()
+}

@@ -7,7 +7,7 @@
 //! alphabetical order: the answers were first built as `serde_json::Value`s,
 //! whose keys serialize sorted, and keeping that order keeps the bytes.
 
-use crate::serving::snapshot::{RegionStatus, ReloadOutcome};
+use crate::serving::snapshot::{ProfilesStatus, RegionStatus, ReloadOutcome};
 use crate::serving::speeds::{RowError, TableReport};
 use chrono::{DateTime, Utc};
 use serde::Serialize;
@@ -109,8 +109,56 @@ pub struct RegionStatusDto {
     pub last_reload: Option<ReloadOutcomeDto>,
     pub live_edges: u64,
     pub live_newest_age_s: Option<f64>,
+    pub profiles: Option<ProfilesDto>,
     pub ready: bool,
     pub region: String,
+}
+
+/// The serving hour-of-week profiles of a region.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct ProfilesDto {
+    /// Seconds the grouping and all customizations took at load.
+    pub build_s: f64,
+    /// Number of profiles (customized metrics held).
+    pub count: usize,
+    /// Largest relative edge travel-time difference between an hour and
+    /// its profile's representative (sampled edges).
+    pub deviation_max: f64,
+    /// Median over hours of each hour's median difference.
+    pub deviation_median: f64,
+    /// Every hour answered with exactly its own speeds.
+    pub exact: bool,
+    /// Per hour of week: the largest relative edge travel-time difference
+    /// from its profile's representative (sampled edges).
+    pub hour_deviation_max: Vec<f64>,
+    /// Per hour of week: the median such difference.
+    pub hour_deviation_median: Vec<f64>,
+    /// Per hour of week: the heuristic tier's travel-time factor.
+    pub hour_factor: Vec<f64>,
+    /// Per hour of week: its profile index.
+    pub hour_profile: Vec<u8>,
+    /// Heap bytes of all profile metrics.
+    pub metric_bytes: u64,
+    /// Per profile: its representative hour of week.
+    pub representatives: Vec<u8>,
+}
+
+impl From<&ProfilesStatus> for ProfilesDto {
+    fn from(p: &ProfilesStatus) -> Self {
+        ProfilesDto {
+            build_s: p.build_s,
+            count: p.count,
+            deviation_max: p.deviation_max,
+            deviation_median: p.deviation_median,
+            exact: p.exact,
+            hour_deviation_max: p.hour_deviation_max.clone(),
+            hour_deviation_median: p.hour_deviation_median.clone(),
+            hour_factor: p.hour_factor.clone(),
+            hour_profile: p.hour_profile.clone(),
+            metric_bytes: p.metric_bytes,
+            representatives: p.representatives.clone(),
+        }
+    }
 }
 
 impl RegionStatusDto {
@@ -126,6 +174,7 @@ impl RegionStatusDto {
             last_reload: s.last_reload.as_ref().map(ReloadOutcomeDto::from),
             live_edges: s.live_edges,
             live_newest_age_s: s.live_newest_age_s,
+            profiles: s.profiles.as_ref().map(ProfilesDto::from),
             ready: s.ready,
             region: region.to_string(),
         }
@@ -227,9 +276,10 @@ mod tests {
                 report: Some(report),
             }),
             last_live_batch: None,
+            profiles: None,
         };
         let want = format!(
-            r#"{{"degraded_reason":null,"generation":4,"historical_age_s":1.5,"historical_rows":10,"historical_version":"v1","last_live_batch":null,"last_reload":{{"at":"2026-12-02T08:30:00.123Z","error":"bad","outcome":"rejected","report":{report_json},"table":"historical"}},"live_edges":2,"live_newest_age_s":null,"ready":true,"region":"quellhaven"}}"#
+            r#"{{"degraded_reason":null,"generation":4,"historical_age_s":1.5,"historical_rows":10,"historical_version":"v1","last_live_batch":null,"last_reload":{{"at":"2026-12-02T08:30:00.123Z","error":"bad","outcome":"rejected","report":{report_json},"table":"historical"}},"live_edges":2,"live_newest_age_s":null,"profiles":null,"ready":true,"region":"quellhaven"}}"#
         );
         assert_eq!(
             serde_json::to_string(&RegionStatusDto::new("quellhaven", &status)).unwrap(),

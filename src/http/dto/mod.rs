@@ -17,11 +17,13 @@ pub mod public;
 pub mod request;
 
 pub use admin::{
-    HistoricalAccepted, LiveAccepted, RegionStatusDto, ReloadOutcomeDto, ReloadResponse,
-    RowErrorDto, StatusResponse, TableReportDto,
+    HistoricalAccepted, LiveAccepted, ProfilesDto, RegionStatusDto, ReloadOutcomeDto,
+    ReloadResponse, RowErrorDto, StatusResponse, TableReportDto,
 };
 pub use probe::{HealthResponse, ReadyResponse, RegionReadiness};
-pub use public::{round3, EtaResponse, LineString, MatrixResponse, RouteResponse, SnapshotRef};
+pub use public::{
+    round3, EtaResponse, LineString, MatrixResponse, ProfileRef, RouteResponse, SnapshotRef,
+};
 pub use request::{
     parse_eta_query, parse_json, parse_leaving, Coord, EtaRequest, MatrixRequest, MatrixTrip, Trip,
 };

@@ -30,6 +30,14 @@ impl SnapshotRef {
     }
 }
 
+/// The hour-of-week profile whose metric answered.
+#[derive(Debug, Clone, Copy, Serialize, PartialEq)]
+pub struct ProfileRef {
+    pub index: u8,
+    /// The hour of week whose speeds the profile's metric holds.
+    pub representative_hour: u8,
+}
+
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct EtaResponse {
     pub eta_s: f64,
@@ -40,6 +48,11 @@ pub struct EtaResponse {
     pub snapshot: Option<SnapshotRef>,
     pub from_snap_m: Option<f64>,
     pub to_snap_m: Option<f64>,
+    /// Hour of week of the departure in the region's time zone (0 = Monday
+    /// 00:00), when a region covers the trip.
+    pub hour_of_week: Option<u8>,
+    /// The profile whose metric answered (historical tier only).
+    pub profile: Option<ProfileRef>,
 }
 
 impl From<&Answer> for EtaResponse {
@@ -53,6 +66,11 @@ impl From<&Answer> for EtaResponse {
             snapshot: SnapshotRef::from_pair(&a.snapshot),
             from_snap_m: a.from_snap_m.map(round3),
             to_snap_m: a.to_snap_m.map(round3),
+            hour_of_week: a.hour_of_week,
+            profile: a.profile.map(|p| ProfileRef {
+                index: p.index,
+                representative_hour: p.representative_hour,
+            }),
         }
     }
 }

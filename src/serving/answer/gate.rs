@@ -1,15 +1,15 @@
 //! The gate every answer passes before graph work, in this order: a region
 //! covers the request → it has a snapshot → the request was admitted → a
-//! graph permit is free → a metric is ready within the budget (live if
-//! "now" and fresh, else the departure hour's historical bucket). The first
+//! graph permit is free → the metric (live if "now" and fresh, else the
+//! metric of the departure hour's profile, always customized). The first
 //! check that fails names the fallback reason; passing them all yields the
-//! snapshot, the chosen metric and the permit.
+//! snapshot, the chosen metric and the permit. A fallback carries the
+//! departure hour, so its estimate is scaled by that hour's factor.
 
-use super::Catalog;
-use crate::engine::calibration::Calibration;
+use super::{Catalog, Estimator};
 use crate::engine::region::Metric;
 use crate::serving::metrics as m;
-use crate::serving::snapshot::{LiveMetric, RegionHandle, Snapshot};
+use crate::serving::snapshot::{LiveMetric, ProfileUsed, RegionHandle, Snapshot};
 use crate::serving::tier::{FallbackReason, Tier};
 use chrono::{DateTime, Utc};
 use std::sync::Arc;
@@ -25,6 +25,10 @@ pub(super) struct Chosen {
     pub tier: Tier,
     pub reason: Option<FallbackReason>,
     pub age_s: Option<f64>,
+    /// Hour of week of the departure (region time zone).
+    pub hour: u8,
+    /// The profile whose metric answers (historical tier only).
+    pub profile: Option<ProfileUsed>,
 }
 
 /// A metric owned by a snapshot: either its live blend or a bucket.
@@ -74,27 +78,34 @@ pub(super) struct Fallback {
     /// Whose calibration estimates: the snapshot's region, or the
     /// configured defaults when there is none.
     snap: Option<Arc<Snapshot>>,
+    /// Hour of week of the departure, when a region covers the request.
+    hour: Option<u8>,
     pub reason: FallbackReason,
     pub tag: Tag,
 }
 
 impl Fallback {
     /// The heuristic answer `estimate` builds from this fallback's
-    /// calibration, reason and tag.
+    /// estimator, reason and tag.
     pub fn answer<T>(
         mut self,
         cat: &Catalog,
-        estimate: impl FnOnce(&Calibration, FallbackReason, Tag) -> T,
+        estimate: impl FnOnce(Estimator<'_>, FallbackReason, Tag) -> T,
     ) -> T {
         let tag = self.tag.take();
-        estimate(self.calibration(cat), self.reason, tag)
+        estimate(self.estimator(cat), self.reason, tag)
     }
 
-    /// The calibration the heuristic answer uses.
-    pub fn calibration<'a>(&'a self, cat: &'a Catalog) -> &'a Calibration {
-        match &self.snap {
-            Some(s) => &s.region.calibration,
-            None => &cat.outside,
+    /// The estimator the heuristic answer uses: the region's calibration
+    /// scaled by the departure hour's factor, or the configured defaults.
+    pub fn estimator<'a>(&'a self, cat: &'a Catalog) -> Estimator<'a> {
+        match (&self.snap, self.hour) {
+            (Some(s), Some(h)) => Estimator::for_hour(s, h),
+            (Some(s), None) => Estimator::free_flow(&s.region.calibration),
+            (None, _) => Estimator {
+                hour: self.hour,
+                ..Estimator::free_flow(&cat.outside)
+            },
         }
     }
 }
@@ -110,13 +121,16 @@ pub(super) async fn gate(
     let Some(handle) = handle else {
         return Err(Fallback {
             snap: None,
+            hour: None,
             reason: FallbackReason::OutsideRegions,
             tag: None,
         });
     };
+    let hour = crate::serving::speeds::hour_of_week(depart.unwrap_or_else(Utc::now), handle.tz);
     let Some(snap) = handle.snapshot() else {
         return Err(Fallback {
             snap: None,
+            hour: Some(hour),
             reason: FallbackReason::RegionUnavailable,
             tag: Some((handle.name.clone(), 0)),
         });
@@ -125,6 +139,7 @@ pub(super) async fn gate(
     let stop = |snap: Arc<Snapshot>, reason, tag| {
         Err(Fallback {
             snap: Some(snap),
+            hour: Some(hour),
             reason,
             tag,
         })
@@ -136,9 +151,10 @@ pub(super) async fn gate(
         return stop(snap, FallbackReason::Overloaded, tag);
     };
     let in_flight = InFlight::start();
-    let Some(chosen) = choose(cat, handle, &snap, depart, deadline).await else {
-        return stop(snap, FallbackReason::BudgetExceeded, tag);
-    };
+    // Every profile is customized before its snapshot is published, so the
+    // metric is always there: no departure hour waits out the budget.
+    let _ = deadline;
+    let chosen = choose(cat, &snap, depart, hour);
     Ok(Granted {
         snap,
         chosen,
@@ -149,15 +165,9 @@ pub(super) async fn gate(
 }
 
 /// Picks the metric: live if the departure is "now" (within the TTL) and
-/// the region holds fresh live data, else the departure hour's bucket
-/// (`None` if it is not customized by `deadline`).
-async fn choose(
-    cat: &Catalog,
-    handle: &RegionHandle,
-    snap: &Snapshot,
-    depart: Option<DateTime<Utc>>,
-    deadline: Instant,
-) -> Option<Chosen> {
+/// the region holds fresh live data, else the metric of the profile of the
+/// departure hour `hour`.
+fn choose(cat: &Catalog, snap: &Snapshot, depart: Option<DateTime<Utc>>, hour: u8) -> Chosen {
     let now = Utc::now();
     let ttl = cat.cfg.live.ttl_s;
     let t = depart.unwrap_or(now);
@@ -170,26 +180,29 @@ async fn choose(
                     .newest_observed_at
                     .map(|o| (now - o).num_milliseconds() as f64 / 1000.0);
                 if l.stats.any_fresh && age.map(|a| a <= ttl).unwrap_or(false) {
-                    return Some(Chosen {
+                    return Chosen {
                         metric: Arc::new(MetricRef::Live(l.clone())),
                         tier: Tier::Live,
                         reason: None,
                         age_s: age.map(|a| a.max(0.0)),
-                    });
+                        hour,
+                        profile: None,
+                    };
                 }
                 reason = Some(FallbackReason::LiveStale);
             }
             None => reason = Some(FallbackReason::NoLiveData),
         }
     }
-    let hour = crate::serving::speeds::hour_of_week(t, handle.tz);
-    let bucket = handle.bucket(snap, hour, deadline).await?;
-    Some(Chosen {
-        metric: Arc::new(MetricRef::Bucket(bucket)),
+    let (profile, bucket) = snap.profiles.for_hour(hour);
+    Chosen {
+        metric: Arc::new(MetricRef::Bucket(bucket.clone())),
         tier: Tier::Historical,
         reason,
         age_s: snap
             .historical_at
             .map(|a| ((now - a).num_milliseconds() as f64 / 1000.0).max(0.0)),
-    })
+        hour,
+        profile: Some(profile),
+    }
 }

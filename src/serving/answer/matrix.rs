@@ -5,8 +5,7 @@
 
 use super::gate::{gate, Chosen, Granted, MetricRef};
 use super::scratch::{with_scratch, ScratchCache};
-use super::{Catalog, CellAnswer, MatrixAnswer};
-use crate::engine::calibration::Calibration;
+use super::{Catalog, CellAnswer, Estimator, MatrixAnswer};
 use crate::engine::cch::matrix::ManyToMany;
 use crate::engine::geo::LatLon;
 use crate::engine::region::matrix::{matrix, Cell, MatrixLimits, PointMatrix};
@@ -25,8 +24,8 @@ thread_local! {
 }
 
 /// A heuristic-tier cell for `reason`.
-fn heuristic_cell(cal: &Calibration, a: LatLon, b: LatLon, reason: FallbackReason) -> CellAnswer {
-    let (meters, secs) = cal.estimate(a, b);
+fn heuristic_cell(est: Estimator<'_>, a: LatLon, b: LatLon, reason: FallbackReason) -> CellAnswer {
+    let (meters, secs) = est.estimate(a, b);
     CellAnswer {
         eta_s: secs,
         meters,
@@ -37,7 +36,7 @@ fn heuristic_cell(cal: &Calibration, a: LatLon, b: LatLon, reason: FallbackReaso
 }
 
 fn heuristic_cells(
-    cal: &Calibration,
+    est: Estimator<'_>,
     from: &[LatLon],
     to: &[LatLon],
     reason: FallbackReason,
@@ -45,7 +44,7 @@ fn heuristic_cells(
     let mut cells = Vec::with_capacity(from.len() * to.len());
     for &a in from {
         for &b in to {
-            cells.push(heuristic_cell(cal, a, b, reason));
+            cells.push(heuristic_cell(est, a, b, reason));
         }
     }
     cells
@@ -123,7 +122,12 @@ pub async fn matrix_trip(
         .map(|(k, c)| {
             c.unwrap_or_else(|| {
                 let (a, b) = (from[k / cols], to[k % cols]);
-                heuristic_cell(&cat.outside, a, b, FallbackReason::OutsideRegions)
+                heuristic_cell(
+                    Estimator::free_flow(&cat.outside),
+                    a,
+                    b,
+                    FallbackReason::OutsideRegions,
+                )
             })
         })
         .collect();
@@ -166,10 +170,10 @@ async fn region_matrix_inner(
     admitted: bool,
 ) -> MatrixAnswer {
     let (rows, cols) = (from.len(), to.len());
-    let all_heuristic = |cal: &Calibration, reason, snapshot| MatrixAnswer {
+    let all_heuristic = |est: Estimator<'_>, reason, snapshot| MatrixAnswer {
         rows,
         cols,
-        cells: heuristic_cells(cal, from, to, reason),
+        cells: heuristic_cells(est, from, to, reason),
         snapshot,
     };
     let g = match gate(cat, handle, depart, deadline, admitted).await {
@@ -190,7 +194,7 @@ async fn region_matrix_inner(
     };
     let computed = compute(&snap, chosen.metric.clone(), from, to, limits).await;
     drop(permit);
-    let cal = &snap.region.calibration;
+    let cal = Estimator::for_hour(&snap, chosen.hour);
     let Some(cells) = computed else {
         return all_heuristic(cal, FallbackReason::BudgetExceeded, tag);
     };
@@ -242,7 +246,7 @@ fn answers(
     from: &[LatLon],
     to: &[LatLon],
     chosen: &Chosen,
-    cal: &Calibration,
+    cal: Estimator<'_>,
 ) -> Vec<CellAnswer> {
     let cols = to.len();
     let mut out = Vec::with_capacity(cells.len());

@@ -10,12 +10,16 @@
 //!    [`crate::serving::admission`]) or no graph permit is free → heuristic (region
 //!    calibration), `overloaded`;
 //! 4. pick the metric: live if the departure is "now" (within the TTL) and
-//!    the region holds fresh live data; otherwise the historical bucket of
-//!    the departure hour (reason `no_live_data` / `live_stale` when live was
-//!    wanted); a bucket not customized within the budget →
-//!    heuristic, `budget_exceeded`;
+//!    the region holds fresh live data; otherwise the metric of the
+//!    departure hour's profile (reason `no_live_data` / `live_stale` when
+//!    live was wanted), customized before its snapshot was published;
 //! 5. snap and search: off-road → `off_network`, no path → `unreachable`,
-//!    both from the region's calibration.
+//!    both from the region's calibration; a matrix's cells not done within
+//!    the budget → `budget_exceeded`.
+//!
+//! Every estimate from a region's calibration is scaled by the departure
+//! hour's factor ([`Estimator`]): the calibration was fitted on free-flow
+//! paths, and a rush-hour estimate should not be a free-flow one.
 //!
 //! # Layout
 //!
@@ -42,7 +46,7 @@ use crate::engine::calibration::Calibration;
 use crate::engine::geo::LatLon;
 use crate::serving::admission::Admission;
 use crate::serving::settings::ServingSettings;
-use crate::serving::snapshot::RegionHandle;
+use crate::serving::snapshot::{ProfileUsed, RegionHandle, Snapshot};
 use crate::serving::tier::{FallbackReason, Tier};
 use std::sync::Arc;
 use std::time::Duration;
@@ -123,6 +127,44 @@ impl Catalog {
     }
 }
 
+/// The heuristic tier for one departure: a calibration (fitted on
+/// free-flow paths) and the departure hour's time factor.
+#[derive(Debug, Clone, Copy)]
+pub struct Estimator<'a> {
+    pub cal: &'a Calibration,
+    /// Travel-time factor of the departure hour against free-flow (1 with
+    /// no historical table or outside every region).
+    pub factor: f64,
+    /// Hour of week of the departure, when a region covers the request.
+    pub hour: Option<u8>,
+}
+
+impl<'a> Estimator<'a> {
+    /// `cal` unscaled.
+    pub fn free_flow(cal: &'a Calibration) -> Self {
+        Estimator {
+            cal,
+            factor: 1.0,
+            hour: None,
+        }
+    }
+
+    /// `snap`'s calibration scaled for an hour of week.
+    pub fn for_hour(snap: &'a Snapshot, hour: u8) -> Self {
+        Estimator {
+            cal: &snap.region.calibration,
+            factor: snap.profiles.grouping.factor(hour),
+            hour: Some(hour),
+        }
+    }
+
+    /// `(metres, seconds)`: the calibration's estimate, its time × factor.
+    pub fn estimate(&self, from: LatLon, to: LatLon) -> (f64, f64) {
+        let (m, s) = self.cal.estimate(from, to);
+        (m, s * self.factor)
+    }
+}
+
 /// One trip's answer.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Answer {
@@ -137,6 +179,11 @@ pub struct Answer {
     pub to_snap_m: Option<f64>,
     /// Route geometry (only for route requests answered from the graph).
     pub geometry: Option<Vec<LatLon>>,
+    /// Hour of week of the departure in the region's time zone (0 = Monday
+    /// 00:00), when a region covers the trip.
+    pub hour_of_week: Option<u8>,
+    /// The hour-of-week profile whose metric answered (historical tier).
+    pub profile: Option<ProfileUsed>,
 }
 
 /// One matrix cell's answer.

@@ -117,6 +117,16 @@ fn weights_at(g: &RoadGraph, kmh: impl Fn(usize) -> f64) -> Vec<u32> {
         .collect()
 }
 
+/// Profile index serving `hour` in the region's current snapshot.
+fn hour_profile(region: &RegionHandle, hour: u8) -> u8 {
+    region
+        .snapshot()
+        .unwrap()
+        .profiles
+        .grouping
+        .profile_of(hour)
+}
+
 /// Two nodes far apart whose every road is two-way.
 fn two_way_pair(g: &RoadGraph) -> (u32, u32) {
     let ok = |v: u32| {
@@ -292,15 +302,52 @@ async fn gate_fallbacks_and_graph_tiers() {
         r.eta_s
     );
 
-    // A cold bucket (an hour nobody warmed) and no time to customize it →
-    // budget_exceeded, for trips and whole matrices.
+    // The answer names the departure hour and the profile: the table's
+    // hour is a profile of its own (its representative is itself).
+    assert_eq!(r.hour_of_week, Some(hour));
+    assert_eq!(r.profile.map(|p| p.representative_hour), Some(hour));
+
+    // Any other hour, even with no budget at all, is answered from the
+    // graph at once: every profile was customized before the table was
+    // published (the old lazy bucket answered `budget_exceeded` here). The
+    // table names no edge in that hour, so the time is petgraph's
+    // free-flow Dijkstra.
     let cold = later + Days::hours(5);
     let r = trip(&cat, a, b, Some(cold), Some(0), false, true).await;
-    assert_eq!(
-        (r.tier, r.reason),
-        (Tier::Heuristic, Some(R::BudgetExceeded)),
-        "{r:?}"
+    assert_eq!((r.tier, r.reason), (Tier::Historical, None), "{r:?}");
+    assert!(
+        (r.eta_s - want).abs() < 1e-6,
+        "{} vs petgraph {want}",
+        r.eta_s
     );
+    assert_ne!(
+        r.profile.map(|p| p.index),
+        Some(hour_profile(&region, hour))
+    );
+
+    // An estimate knows the hour: a shed request departing in the 20 km/h
+    // hour is the calibration's estimate × that hour's factor, worked by
+    // hand as Σ length ÷ 20 km/h over Σ length ÷ free-flow speed; in the
+    // other hours the factor is 1.
+    let num: f64 = g.edge_len_m.iter().map(|l| l / 20.0).sum();
+    let den: f64 = (0..g.num_edges())
+        .map(|e| g.edge_len_m[e] / f64::from(g.edge_speed_kmh[e]))
+        .sum();
+    let (_, ff_secs) = region_estimate(&cal, a, b);
+    let r = trip(&cat, a, b, Some(later), None, false, false).await;
+    assert_eq!((r.tier, r.reason), (Tier::Heuristic, Some(R::Overloaded)));
+    assert!(
+        close(r.eta_s, ff_secs * num / den),
+        "{} vs by hand {}",
+        r.eta_s,
+        ff_secs * num / den
+    );
+    assert!(num / den > 1.0, "20 km/h is slower than the city's roads");
+    assert_eq!(r.hour_of_week, Some(hour));
+    let r = trip(&cat, a, b, Some(cold), None, false, false).await;
+    assert!(close(r.eta_s, ff_secs), "{} vs {ff_secs}", r.eta_s);
+
+    // A matrix with no budget still stops before its many-to-many.
     let cold2 = later + Days::hours(9);
     let mx = matrix_trip(&cat, vec![a], vec![b], Some(cold2), Some(0), true).await;
     assert_eq!(
@@ -536,4 +583,40 @@ async fn matrix_cells_belong_to_the_region_holding_both_ends() {
     }
     // Both regions answer 4 cells; the first one named wins the tie.
     assert_eq!(mx.snapshot.map(|(name, _)| name), Some("west".into()));
+}
+
+/// A superseded snapshot stays in the retire bin while a request holds one
+/// of its profile metrics without the snapshot (as a matrix job does), and
+/// is freed by a sweep once that holder lets go.
+#[tokio::test]
+async fn a_held_profile_metric_keeps_its_snapshot_retired() {
+    let c = city();
+    let state = tempfile::tempdir().unwrap();
+    let cat = catalog(&c.artifact, &c.graph, state.path()).await;
+    let region = cat.regions[0].clone();
+    let held = region.snapshot().unwrap().profiles.metrics[0].clone();
+    let g = &c.graph;
+    let mut csv = crate::testkit::HistoricalCsv::with_header();
+    for e in 0..g.num_edges() {
+        let (u, v) = (
+            g.node_ext[g.edge_tail[e] as usize],
+            g.node_ext[g.edge_head[e] as usize],
+        );
+        csv.row(u, v, 3, 15);
+    }
+    region
+        .put_historical(csv.into_string().into_bytes())
+        .await
+        .unwrap();
+    let settle = || async {
+        for _ in 0..40 {
+            region.sweep_retired();
+            tokio::time::sleep(std::time::Duration::from_millis(25)).await;
+        }
+    };
+    settle().await;
+    assert!(region.retired().0 >= 1, "freed while a metric was held");
+    drop(held);
+    settle().await;
+    assert_eq!(region.retired().0, 0, "not freed after the holder let go");
 }

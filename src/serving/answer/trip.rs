@@ -4,8 +4,7 @@
 
 use super::gate::{gate, Granted, Tag};
 use super::scratch::{with_scratch, ScratchCache};
-use super::{Answer, Catalog};
-use crate::engine::calibration::Calibration;
+use super::{Answer, Catalog, Estimator};
 use crate::engine::cch::CchQuery;
 use crate::engine::geo::LatLon;
 use crate::engine::region::{End, EtaError};
@@ -22,13 +21,13 @@ thread_local! {
 
 /// A heuristic-tier answer for `reason`.
 fn heuristic(
-    cal: &Calibration,
+    est: Estimator<'_>,
     a: LatLon,
     b: LatLon,
     reason: FallbackReason,
     snapshot: Tag,
 ) -> Answer {
-    let (meters, secs) = cal.estimate(a, b);
+    let (meters, secs) = est.estimate(a, b);
     Answer {
         eta_s: secs,
         meters,
@@ -39,6 +38,8 @@ fn heuristic(
         from_snap_m: None,
         to_snap_m: None,
         geometry: None,
+        hour_of_week: est.hour,
+        profile: None,
     }
 }
 
@@ -58,8 +59,8 @@ pub async fn trip(
     let g = match gate(cat, handle, depart, deadline, admitted).await {
         Ok(g) => g,
         Err(f) => {
-            return f.answer(cat, |cal, reason, tag| {
-                heuristic(cal, from, to, reason, tag)
+            return f.answer(cat, |est, reason, tag| {
+                heuristic(est, from, to, reason, tag)
             })
         }
     };
@@ -91,7 +92,7 @@ pub async fn trip(
         },
     );
     drop(permit);
-    let cal = &region.calibration;
+    let cal = Estimator::for_hour(&snap, chosen.hour);
     match result {
         Ok((eta, geometry)) => Answer {
             eta_s: eta.time_s,
@@ -103,6 +104,8 @@ pub async fn trip(
             from_snap_m: Some(eta.from.distance_m),
             to_snap_m: Some(eta.to.distance_m),
             geometry,
+            hour_of_week: Some(chosen.hour),
+            profile: chosen.profile,
         },
         Err(EtaError::OffNetwork { .. }) => {
             heuristic(cal, from, to, FallbackReason::OffNetwork, tag)

@@ -1,127 +1,157 @@
-//! The request path's historical bucket metrics: one customized metric per
-//! (table version, hour of week), made on the customizer thread on first
-//! use (or by the warm-up), kept in a small copy-on-write list; evicted ones
-//! are freed on the `updates` thread once no request holds them.
+//! The historical tier's metrics: the hours of the week grouped into at most
+//! `query.profiles` representative profiles
+//! ([`HourGrouping`](crate::serving::speeds::HourGrouping)), one customized
+//! metric per profile, all made on the customizer thread before the
+//! snapshot that holds them is published. A request maps its departure
+//! hour to a profile and finds the metric ready: no departure time waits
+//! for a customization, and none is evicted while its table serves.
+//! Superseded profile metrics leave with their snapshot through `retire`.
 
+use super::error::{UpdateError, UpdateFailure};
 use super::{RegionHandle, Snapshot};
-use crate::engine::region::Metric;
+use crate::engine::region::{Metric, Region};
 use crate::serving::metrics as m;
 use crate::serving::retire::Retiree;
-use crate::serving::speeds::HistoricalProfile;
-use chrono::Utc;
-use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::{Arc, OnceLock};
+use crate::serving::speeds::{HistoricalProfile, HourGrouping};
+use std::sync::Arc;
 use std::time::Instant;
-use tokio::sync::Notify;
 
-/// A bucket metric being (or done being) customized.
-#[derive(Debug, Default)]
-pub(super) struct Slot {
-    cell: OnceLock<Arc<Metric>>,
-    /// Set by whoever queues the customization, so it is queued once.
-    pub(super) started: AtomicBool,
-    notify: Notify,
+/// Every profile metric of one (artifact load, historical table).
+#[derive(Debug)]
+pub struct Profiles {
+    /// Hour → profile, representatives, deviations, heuristic factors.
+    pub grouping: HourGrouping,
+    /// One customized metric per profile, in profile order.
+    pub metrics: Vec<Arc<Metric>>,
+    /// Seconds the grouping and all customizations took (load-time cost).
+    pub build_s: f64,
 }
 
-/// The bucket list: (historical key, hour, slot), newest last.
-pub(super) type Buckets = Vec<(String, u8, Arc<Slot>)>;
+/// The profile an answer used: its index and representative hour.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct ProfileUsed {
+    pub index: u8,
+    /// The hour of week whose speeds the profile's metric holds.
+    pub representative_hour: u8,
+}
 
-/// Slots dropped from the bucket list; in use while a request or a bucket
-/// job holds a slot or its metric.
-struct EvictedSlots(Vec<Arc<Slot>>);
+impl Profiles {
+    /// The profile and metric serving an hour of the week.
+    pub fn for_hour(&self, hour: u8) -> (ProfileUsed, &Arc<Metric>) {
+        let p = self.grouping.profile_of(hour);
+        let used = ProfileUsed {
+            index: p,
+            representative_hour: self.grouping.representatives[p as usize],
+        };
+        (used, &self.metrics[p as usize])
+    }
 
-impl Retiree for EvictedSlots {
+    /// Heap bytes of all profile metrics (weights and customized arcs).
+    pub fn heap_bytes(&self) -> usize {
+        self.metrics.iter().map(|m| metric_bytes(m)).sum()
+    }
+
+    /// Whether a request still holds one of the metrics.
+    fn metrics_in_use(&self) -> bool {
+        self.metrics.iter().any(|m| Arc::strong_count(m) > 1)
+    }
+}
+
+/// Heap bytes of one metric.
+pub fn metric_bytes(m: &Metric) -> usize {
+    m.weights.capacity() * std::mem::size_of::<u32>() + m.customized.heap_bytes()
+}
+
+/// The metric of one profile: `hist`'s speeds for `hour` (free-flow where
+/// the table has no row, or everywhere without a table), customized.
+pub(super) fn profile_metric(
+    region: &Region,
+    free_flow: &[f32],
+    hist: Option<&HistoricalProfile>,
+    hour: u8,
+) -> Metric {
+    let speeds = match hist {
+        Some(h) => h.speeds_for_hour(free_flow, hour),
+        None => free_flow.to_vec(),
+    };
+    region.metric(crate::engine::metric::from_speeds(&region.graph, &speeds))
+}
+
+/// A superseded snapshot: in use while a request holds it or any of its
+/// profile metrics (a matrix job holds a metric without the snapshot).
+pub(super) struct RetiredSnapshot(pub Arc<Snapshot>);
+
+impl Retiree for RetiredSnapshot {
     fn in_use(&self) -> bool {
-        self.0.iter().any(|s| {
-            Arc::strong_count(s) > 1
-                || s.cell
-                    .get()
-                    .map(|m| Arc::strong_count(m) > 1)
-                    .unwrap_or(false)
-        })
+        Arc::strong_count(&self.0) > 1 || self.0.profiles.metrics_in_use()
     }
 }
 
 impl RegionHandle {
-    /// The historical metric for an hour of the week, customizing it on a
-    /// blocking thread if needed; waits at most until `deadline`.
-    pub async fn bucket(
+    /// Groups the hours of `hist` (or one free-flow profile without a
+    /// table) and customizes every profile, each as its own job on the
+    /// customizer thread (live blends can run between them). Returns once
+    /// all are ready; the caller publishes only then.
+    pub(super) async fn customize_profiles(
         &self,
-        snap: &Snapshot,
-        hour: u8,
-        deadline: Instant,
-    ) -> Option<Arc<Metric>> {
-        let key = snap.historical_key();
-        // Without a table every hour is free-flow: one shared slot.
-        let hour = if snap.historical.is_some() {
-            hour
-        } else {
-            u8::MAX
+        region: &Arc<Region>,
+        free_flow: &Arc<Vec<f32>>,
+        hist: Option<&Arc<HistoricalProfile>>,
+    ) -> Result<Arc<Profiles>, UpdateError> {
+        let t = Instant::now();
+        let failed = || UpdateError::Failed(UpdateFailure::CustomizeTask);
+        let k = self.settings.profiles;
+        let grouping = match hist {
+            Some(h) => {
+                let (h, ff, r) = (h.clone(), free_flow.clone(), region.clone());
+                self.settings
+                    .customizer
+                    .run(move || HourGrouping::new(&h, &ff, &r.graph.edge_len_m, k))
+                    .await
+                    .ok_or_else(failed)?
+            }
+            None => HourGrouping::free_flow(),
         };
-        let slot = self.slot(&key, hour);
-        if let Some(mtr) = slot.cell.get() {
-            return Some(mtr.clone());
+        let mut metrics = Vec::with_capacity(grouping.len());
+        for &hour in &grouping.representatives {
+            let (h, ff, r, name) = (
+                hist.cloned(),
+                free_flow.clone(),
+                region.clone(),
+                self.name.clone(),
+            );
+            let metric = self
+                .settings
+                .customizer
+                .run(move || {
+                    let t = Instant::now();
+                    let mtr = profile_metric(&r, &ff, h.as_deref(), hour);
+                    metrics::histogram!(m::CUSTOMIZATION, "region" => name, "kind" => "historical")
+                        .record(t.elapsed().as_secs_f64());
+                    mtr
+                })
+                .await
+                .ok_or_else(failed)?;
+            metrics.push(Arc::new(metric));
         }
-        if !slot.started.swap(true, Ordering::SeqCst) {
-            self.spawn_bucket(snap, hour, slot.clone());
-        }
-        loop {
-            let notified = slot.notify.notified();
-            tokio::pin!(notified);
-            notified.as_mut().enable();
-            if let Some(mtr) = slot.cell.get() {
-                return Some(mtr.clone());
-            }
-            let left = deadline.checked_duration_since(Instant::now())?;
-            if tokio::time::timeout(left, notified).await.is_err() {
-                return slot.cell.get().cloned();
-            }
-        }
-    }
-
-    /// The slot of (`key`, `hour`), added to the list if missing (evicting
-    /// the oldest beyond the cache size, and every slot of a superseded
-    /// table).
-    pub(super) fn slot(&self, key: &str, hour: u8) -> Arc<Slot> {
-        let list = self.buckets.load();
-        if let Some((_, _, s)) = list.iter().find(|(k, h, _)| k == key && *h == hour) {
-            return s.clone();
-        }
-        let cap = self.settings.bucket_cache + 2;
-        // Buckets of superseded tables leave the list as soon as a new one
-        // is made, and are freed once the requests holding them finish.
-        let current = self.snapshot().map(|s| s.historical_key());
-        loop {
-            let cur = self.buckets.load_full();
-            if let Some((_, _, s)) = cur.iter().find(|(k, h, _)| k == key && *h == hour) {
-                return s.clone();
-            }
-            let s = Arc::new(Slot::default());
-            let mut v: Vec<_> = cur
-                .iter()
-                .filter(|(k, _, _)| k == key || Some(k) == current.as_ref())
-                .cloned()
-                .collect();
-            v.push((key.to_string(), hour, s.clone()));
-            while v.len() > cap {
-                v.remove(0);
-            }
-            let evicted: Vec<Arc<Slot>> = cur
-                .iter()
-                .filter(|(_, _, o)| !v.iter().any(|(_, _, n)| Arc::ptr_eq(o, n)))
-                .map(|(_, _, o)| o.clone())
-                .collect();
-            let prev = self.buckets.compare_and_swap(&cur, Arc::new(v));
-            if Arc::ptr_eq(&prev, &cur) {
-                // Evicted buckets may be the only holders of a metric of
-                // tens of MB: this request must not be the one to free it.
-                if !evicted.is_empty() {
-                    self.retired.retire(EvictedSlots(evicted));
-                    self.sweep_retired();
-                }
-                return s;
-            }
-        }
+        let profiles = Profiles {
+            grouping,
+            metrics,
+            build_s: t.elapsed().as_secs_f64(),
+        };
+        let (dev_median, dev_max) = profiles.grouping.deviation_summary();
+        tracing::info!(
+            region = %self.name,
+            table = hist.map(|h| h.version()).unwrap_or("free-flow"),
+            profiles = profiles.grouping.len(),
+            exact = profiles.grouping.exact,
+            deviation_median = dev_median,
+            deviation_max = dev_max,
+            metric_mb = profiles.heap_bytes() as f64 / 1e6,
+            seconds = profiles.build_s,
+            "hour-of-week profiles customized"
+        );
+        Ok(Arc::new(profiles))
     }
 
     /// Frees, on the `updates` thread, whatever retired data no request
@@ -137,54 +167,5 @@ impl RegionHandle {
     /// Retired items not yet freed, and retired since start.
     pub fn retired(&self) -> (usize, u64) {
         (self.retired.len(), self.retired.total())
-    }
-
-    fn spawn_bucket(&self, snap: &Snapshot, hour: u8, slot: Arc<Slot>) {
-        let job = self.bucket_job(snap, snap.historical.clone(), hour, slot);
-        self.settings.customizer.spawn(job);
-    }
-
-    /// The customizer job that fills `slot` with the metric of `hist` (or
-    /// free-flow) for `hour` on `snap`'s graph and wakes its waiters.
-    pub(super) fn bucket_job(
-        &self,
-        snap: &Snapshot,
-        hist: Option<Arc<HistoricalProfile>>,
-        hour: u8,
-        slot: Arc<Slot>,
-    ) -> impl FnOnce() + Send + 'static {
-        let region = snap.region.clone();
-        let ff = snap.free_flow_kmh.clone();
-        let name = self.name.clone();
-        move || {
-            let t = Instant::now();
-            let speeds = match &hist {
-                Some(h) => h.speeds_for_hour(&ff, hour),
-                None => ff.to_vec(),
-            };
-            let metric = region.metric(crate::engine::metric::from_speeds(&region.graph, &speeds));
-            metrics::histogram!(m::CUSTOMIZATION, "region" => name, "kind" => "historical")
-                .record(t.elapsed().as_secs_f64());
-            let _ = slot.cell.set(Arc::new(metric));
-            slot.notify.notify_waiters();
-        }
-    }
-
-    /// Starts customizing the current and the next hour in the background.
-    pub fn warm(&self) {
-        if let Some(snap) = self.snapshot() {
-            let h = crate::serving::speeds::hour_of_week(Utc::now(), self.tz);
-            for hour in [h, (h + 1) % 168] {
-                let hour = if snap.historical.is_some() {
-                    hour
-                } else {
-                    u8::MAX
-                };
-                let slot = self.slot(&snap.historical_key(), hour);
-                if !slot.started.swap(true, Ordering::SeqCst) {
-                    self.spawn_bucket(&snap, hour, slot);
-                }
-            }
-        }
     }
 }

@@ -65,6 +65,9 @@ pub enum UpdateFailure {
     /// The job parsing a historical table panicked.
     #[error("parse task failed")]
     ParseTask,
+    /// A profile grouping or customization job panicked.
+    #[error("profile customization task failed")]
+    CustomizeTask,
     /// The job applying a live batch panicked.
     #[error("live batch task failed")]
     LiveTask,

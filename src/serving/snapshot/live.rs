@@ -253,6 +253,7 @@ impl RegionHandle {
             free_flow_kmh: cur.free_flow_kmh.clone(),
             historical: cur.historical.clone(),
             historical_at: cur.historical_at,
+            profiles: cur.profiles.clone(),
             live: Some(live),
             artifact_load: cur.artifact_load,
             artifact_at: cur.artifact_at,
@@ -271,7 +272,6 @@ impl RegionHandle {
         let interval = Duration::from_millis(self.settings.live.recustomize_ms);
         let watch_every = Duration::from_secs_f64(self.settings.live.watch_interval_s);
         let mut last_scan = Instant::now() - watch_every;
-        let mut last_warm = Instant::now();
         loop {
             tokio::select! {
                 _ = &mut shutdown => break,
@@ -285,10 +285,6 @@ impl RegionHandle {
             if self.cfg.live_dir.is_some() && last_scan.elapsed() >= watch_every {
                 last_scan = Instant::now();
                 self.scan_live_dir().await;
-            }
-            if last_warm.elapsed() > Duration::from_secs(60) {
-                last_warm = Instant::now();
-                self.warm();
             }
             // At most one re-customization per interval.
             let spent = started.elapsed();

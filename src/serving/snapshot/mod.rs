@@ -1,5 +1,5 @@
 //! Per-region serving state: immutable snapshots behind `arc-swap`, the
-//! lazily customized historical buckets, and every update path (historical
+//! historical tier's hour-of-week profile metrics, and every update path (historical
 //! table, live observations, artifact reload).
 //!
 //! Readers call [`RegionHandle::snapshot`] and get an `Arc<Snapshot>`: a
@@ -18,8 +18,9 @@
 //!   [`ReloadOutcome`], [`UpdateSettings`], the [`RegionHandle`] itself,
 //!   opening a region, reading and publishing snapshots, recording
 //!   outcomes;
-//! - `buckets`: the request path's historical bucket metrics (lazy
-//!   customization, the bounded cache, eviction and the warm-up);
+//! - `buckets`: the historical tier's metrics, one per hour-of-week
+//!   profile, all customized before their snapshot is published
+//!   ([`Profiles`]), and the retirement of superseded snapshots;
 //! - `update`: the three update paths ([`RegionHandle::reload`],
 //!   [`RegionHandle::put_historical`], [`RegionHandle::put_live`]);
 //! - `live`: blending and publishing the live tier, the live loop and the
@@ -37,6 +38,7 @@ mod live;
 mod load;
 mod update;
 
+pub use buckets::{metric_bytes, ProfileUsed, Profiles};
 pub use error::{Degraded, HistoricalNote, LoadError, TableReadError, UpdateError, UpdateFailure};
 
 use crate::engine::region::{Metric, Region};
@@ -48,11 +50,10 @@ use crate::serving::speeds::{
     BlendStats, EdgeIndex, HistoricalProfile, LiveLayer, TableReport, ValidationConfig,
 };
 use arc_swap::{ArcSwap, ArcSwapOption};
-use buckets::Buckets;
 use chrono::{DateTime, Utc};
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::Arc;
-use std::time::{Duration, Instant};
+use std::time::Instant;
 use tokio::sync::Notify;
 
 /// Everything a request needs, frozen.
@@ -67,26 +68,15 @@ pub struct Snapshot {
     pub historical: Option<Arc<HistoricalProfile>>,
     /// When the serving historical table was accepted.
     pub historical_at: Option<DateTime<Utc>>,
+    /// The historical tier: one customized metric per hour-of-week profile
+    /// of `historical` (one free-flow profile without a table), all ready
+    /// before this snapshot was published.
+    pub profiles: Arc<Profiles>,
     /// The blended live metric, once observations have arrived.
     pub live: Option<Arc<LiveMetric>>,
-    /// Identifies the artifact load (bucket cache keys include it).
+    /// Identifies the artifact load (increases with every reload).
     pub artifact_load: u64,
     pub artifact_at: DateTime<Utc>,
-}
-
-impl Snapshot {
-    /// Cache key of the historical data: its version, or "free-flow".
-    pub fn historical_key(&self) -> String {
-        historical_key(self.artifact_load, self.historical.as_deref())
-    }
-}
-
-/// Bucket cache key of a historical table (or free-flow) on an artifact load.
-fn historical_key(artifact_load: u64, h: Option<&HistoricalProfile>) -> String {
-    match h {
-        Some(h) => format!("{artifact_load}:{}", h.version()),
-        None => format!("{artifact_load}:free-flow"),
-    }
 }
 
 /// A customized live blend.
@@ -113,6 +103,57 @@ pub struct RegionStatus {
     pub live_newest_age_s: Option<f64>,
     pub last_reload: Option<ReloadOutcome>,
     pub last_live_batch: Option<ReloadOutcome>,
+    /// The serving hour-of-week profiles.
+    pub profiles: Option<ProfilesStatus>,
+}
+
+/// The serving profiles, for `/admin/status`.
+#[derive(Debug, Clone, Default)]
+pub struct ProfilesStatus {
+    /// Number of profiles (customized metrics held).
+    pub count: usize,
+    /// Every hour answered with its own speeds.
+    pub exact: bool,
+    /// Profile index of each hour of the week (168 values).
+    pub hour_profile: Vec<u8>,
+    /// Representative hour of each profile.
+    pub representatives: Vec<u8>,
+    /// Median over hours of each hour's median relative edge travel-time
+    /// difference from its representative (sampled edges).
+    pub deviation_median: f64,
+    /// Largest such difference of any sampled edge in any hour.
+    pub deviation_max: f64,
+    /// Per hour: median relative edge travel-time difference from its
+    /// representative (168 values).
+    pub hour_deviation_median: Vec<f64>,
+    /// Per hour: the largest such difference (168 values).
+    pub hour_deviation_max: Vec<f64>,
+    /// Per-hour heuristic factor (168 values).
+    pub hour_factor: Vec<f64>,
+    /// Heap bytes of all profile metrics.
+    pub metric_bytes: u64,
+    /// Seconds the grouping and the customizations took.
+    pub build_s: f64,
+}
+
+impl ProfilesStatus {
+    fn of(p: &Profiles) -> Self {
+        let g = &p.grouping;
+        let (deviation_median, deviation_max) = g.deviation_summary();
+        ProfilesStatus {
+            count: g.len(),
+            exact: g.exact,
+            hour_profile: g.hour_profile.to_vec(),
+            representatives: g.representatives.clone(),
+            deviation_median,
+            deviation_max,
+            hour_deviation_median: g.deviation.iter().map(|d| d.0).collect(),
+            hour_deviation_max: g.deviation.iter().map(|d| d.1).collect(),
+            hour_factor: g.hour_factor.to_vec(),
+            metric_bytes: p.heap_bytes() as u64,
+            build_s: p.build_s,
+        }
+    }
 }
 
 /// One update's outcome.
@@ -133,7 +174,8 @@ pub struct ReloadOutcome {
 pub struct UpdateSettings {
     pub validation: ValidationConfig,
     pub live: LiveConfig,
-    pub bucket_cache: usize,
+    /// Hour-of-week profiles per table (`query.profiles`, 1..=168).
+    pub profiles: usize,
     /// Where every customization runs (one thread, low CPU priority,
     /// shared by all regions).
     pub customizer: Customizer,
@@ -154,7 +196,7 @@ impl UpdateSettings {
                 ..ValidationConfig::default()
             },
             live: cfg.live.clone(),
-            bucket_cache: cfg.query.bucket_cache.max(2),
+            profiles: cfg.query.profiles.clamp(1, 168),
             customizer: Customizer::start(cfg.customize_priority),
             updates: Customizer::start_named("hodos-update", cfg.customize_priority),
         }
@@ -176,12 +218,10 @@ pub struct RegionHandle {
     settings: UpdateSettings,
     current: ArcSwapOption<Snapshot>,
     status: ArcSwap<RegionStatus>,
-    /// Copy-on-write list of bucket slots, newest last, bounded.
-    buckets: ArcSwap<Buckets>,
     writer: tokio::sync::Mutex<Writer>,
     /// Why the region serves no graph (typed; the status shows its text).
     degraded: ArcSwapOption<LoadError>,
-    /// Superseded snapshots and evicted buckets, freed on the `updates`
+    /// Superseded snapshots (with their profile metrics), freed on the `updates`
     /// thread once no request holds them (see [`crate::serving::retire`]).
     retired: Arc<RetireBin>,
     live_dirty: AtomicBool,
@@ -211,7 +251,6 @@ impl RegionHandle {
             settings,
             current: ArcSwapOption::empty(),
             status: ArcSwap::from_pointee(RegionStatus::default()),
-            buckets: ArcSwap::from_pointee(Vec::new()),
             writer: tokio::sync::Mutex::new(Writer {
                 live: None,
                 live_saved_at: None,
@@ -224,18 +263,11 @@ impl RegionHandle {
             generation: AtomicU64::new(0),
             loads: AtomicU64::new(0),
         });
+        // Ready means ready to answer from the graph for any departure:
+        // `reload` publishes the first snapshot only once every profile is
+        // customized (a bounded amount of work: `query.profiles` metrics).
         if let Err(e) = h.reload().await {
             tracing::warn!(region = %h.name, error = %e, "region starts degraded");
-        }
-        // Ready means ready to answer from the graph: wait (bounded) for the
-        // current hour's metric that `reload` started warming, so the first
-        // requests after start-up are not heuristic fallbacks.
-        if let Some(snap) = h.snapshot() {
-            let hour = crate::serving::speeds::hour_of_week(Utc::now(), h.tz);
-            let deadline = Instant::now() + Duration::from_secs(60);
-            if h.bucket(&snap, hour, deadline).await.is_none() {
-                tracing::warn!(region = %h.name, "current hour's metric not ready after 60 s; serving anyway");
-            }
         }
         h
     }
@@ -258,6 +290,7 @@ impl RegionHandle {
                 s.live_edges = l.stats.fresh_edges;
                 s.live_newest_age_s = l.newest_observed_at.map(|t| age_s(now, t));
             }
+            s.profiles = Some(ProfilesStatus::of(&snap.profiles));
         }
         s
     }
@@ -291,7 +324,7 @@ impl RegionHandle {
         let g = self.generation.fetch_add(1, Ordering::SeqCst) + 1;
         let snap = Arc::new(build(g));
         if let Some(old) = self.current.swap(Some(snap.clone())) {
-            self.retired.retire(old);
+            self.retired.retire(buckets::RetiredSnapshot(old));
             self.sweep_retired();
         }
         metrics::gauge!(m::SNAPSHOT_GENERATION, "region" => self.name.clone()).set(g as f64);

@@ -6,7 +6,7 @@
 
 use super::error::{Degraded, LoadError, UpdateError, UpdateFailure};
 use super::load::{historical_state_path, load_region, Loaded};
-use super::{historical_key, LiveMetric, RegionHandle, ReloadOutcome, Snapshot, Writer};
+use super::{LiveMetric, RegionHandle, ReloadOutcome, Snapshot, Writer};
 use crate::serving::metrics as m;
 use crate::serving::speeds::{
     save_historical, HistoricalProfile, LiveLayer, SpeedsError, TableReport,
@@ -39,14 +39,22 @@ impl RegionHandle {
         if let Some(restored) = restored_live {
             w.live = restored;
         }
-        let free_flow: Vec<f32> = region.graph.edge_speed_kmh.clone();
+        let free_flow = Arc::new(region.graph.edge_speed_kmh.clone());
+        let region = Arc::new(region);
+        let historical = historical.map(Arc::new);
+        // Every profile is customized before the first swap: no departure
+        // hour of the new snapshot meets a cold metric.
+        let profiles = self
+            .customize_profiles(&region, &free_flow, historical.as_ref())
+            .await?;
         let mut fresh = Snapshot {
             generation: 0,
-            region: Arc::new(region),
+            region,
             index: Arc::new(index),
-            free_flow_kmh: Arc::new(free_flow),
+            free_flow_kmh: free_flow,
             historical_at: historical.as_ref().map(|_| now),
-            historical: historical.map(Arc::new),
+            historical,
+            profiles,
             live: None,
             artifact_load: load_no,
             artifact_at: now,
@@ -69,7 +77,6 @@ impl RegionHandle {
             self.mark_live_dirty();
         }
         drop(w);
-        self.warm();
         Ok(())
     }
 
@@ -163,12 +170,11 @@ impl RegionHandle {
         };
         let now = Utc::now();
         let profile = Arc::new(profile);
-        self.customize_current_hour(&snap, &profile, now).await;
-        let live_fresh = snap
-            .live
-            .as_ref()
-            .map(|l| l.stats.any_fresh)
-            .unwrap_or(false);
+        // The old table's profiles keep answering until all of the new
+        // table's are customized; only then does the swap happen.
+        let profiles = self
+            .customize_profiles(&snap.region, &snap.free_flow_kmh, Some(&profile))
+            .await?;
         self.publish(|g| Snapshot {
             generation: g,
             region: snap.region.clone(),
@@ -176,6 +182,7 @@ impl RegionHandle {
             free_flow_kmh: snap.free_flow_kmh.clone(),
             historical: Some(profile),
             historical_at: Some(now),
+            profiles,
             live: snap.live.clone(),
             artifact_load: snap.artifact_load,
             artifact_at: snap.artifact_at,
@@ -191,12 +198,6 @@ impl RegionHandle {
             self.mark_live_dirty();
         }
         drop(w);
-        // While fresh live data answers "now", warming the next hour
-        // can wait for the live loop's periodic warm-up: the
-        // customizer's time goes to the live blend first.
-        if !live_fresh {
-            self.warm();
-        }
         Ok(report)
     }
 
@@ -229,25 +230,6 @@ impl RegionHandle {
             .await
             .ok_or(UpdateError::Failed(UpdateFailure::ParseTask))?
             .map_err(UpdateError::Failed)
-    }
-
-    /// Customizes the current hour of a new table before the swap so "now"
-    /// queries without fresh live data keep graph answers instead of
-    /// waiting for a cold bucket (the next hours are customized by the
-    /// warm-up or on first use).
-    async fn customize_current_hour(
-        &self,
-        snap: &Snapshot,
-        profile: &Arc<HistoricalProfile>,
-        now: DateTime<Utc>,
-    ) {
-        let key = historical_key(snap.artifact_load, Some(profile));
-        let hour = crate::serving::speeds::hour_of_week(now, self.tz);
-        let slot = self.slot(&key, hour);
-        if !slot.started.swap(true, Ordering::SeqCst) {
-            let job = self.bucket_job(snap, Some(profile.clone()), hour, slot);
-            self.settings.customizer.run(job).await;
-        }
     }
 
     /// Applies a batch of live observations (JSON array or CSV).

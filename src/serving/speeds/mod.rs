@@ -15,6 +15,9 @@
 //! - [`live`]: recent observations (JSON batch or CSV), newest per edge wins.
 //! - [`blend`](mod@blend): historical bucket + live layer → one speed vector, with
 //!   exponential decay of the live weight.
+//! - [`profiles`]: the 168 hours grouped into a bounded set of
+//!   representative profiles (exact or k-means), their deviation, and the
+//!   per-hour factors of the heuristic tier.
 //! - [`persist`]: atomic file writes and save/load of both tables.
 //! - [`report`]: the per-upload validation report (serde, returned as JSON).
 //! - [`config`]: validation limits (maximum speed, bad-row share, ...).
@@ -38,6 +41,7 @@ pub mod error;
 pub mod historical;
 pub mod live;
 pub mod persist;
+pub mod profiles;
 pub mod report;
 
 pub use blend::{blend, blend_into, live_weight, BlendStats};
@@ -48,4 +52,5 @@ pub use error::{PersistError, SpeedsError};
 pub use historical::HistoricalProfile;
 pub use live::{LiveEntry, LiveLayer, Observation};
 pub use persist::{load_historical, load_live, save_historical, save_live, write_atomic};
+pub use profiles::HourGrouping;
 pub use report::{ErrorKind, RowError, TableReport};
