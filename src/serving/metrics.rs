@@ -21,6 +21,7 @@ pub const RELOADS: &str = "hodos_reloads_total";
 pub const REJECTED_ROWS: &str = "hodos_rejected_rows_total";
 pub const GRAPH_IN_FLIGHT: &str = "hodos_graph_work_in_flight";
 pub const REGION_READY: &str = "hodos_region_ready";
+pub const STATE_FILES_REFUSED: &str = "hodos_state_files_refused_total";
 
 /// Describes every series (units and help text) to the installed recorder.
 pub fn describe() {
@@ -62,6 +63,10 @@ pub fn describe() {
         REGION_READY,
         "1 when the region serves from a graph, 0 when degraded."
     );
+    describe_counter!(
+        STATE_FILES_REFUSED,
+        "Saved state files refused at load (damaged, wrong kind, no longer valid) or torn write-ahead log tails, by region and file (historical, live, wal)."
+    );
 }
 
 pub fn answer(route: &'static str, tier: Tier, reason: Option<FallbackReason>, n: u64) {
@@ -84,10 +89,16 @@ pub fn register_zero(routes: &[&'static str], regions: &[String]) {
     }
     for region in regions {
         for table in ["historical", "live", "artifact"] {
-            for outcome in ["accepted", "rejected", "failed"] {
+            for outcome in ["accepted", "unchanged", "rejected", "failed"] {
                 metrics::counter!(RELOADS, "region" => region.clone(), "table" => table, "outcome" => outcome)
                     .increment(0);
             }
+        }
+    }
+    for region in regions {
+        for file in ["historical", "live", "wal"] {
+            metrics::counter!(STATE_FILES_REFUSED, "region" => region.clone(), "file" => file)
+                .increment(0);
         }
     }
     metrics::gauge!(GRAPH_IN_FLIGHT).set(0.0);

@@ -102,13 +102,25 @@ pub struct RegionStatusDto {
     /// Why the region serves no graph, when it does not.
     pub degraded_reason: Option<String>,
     pub generation: u64,
+    /// Seconds since the serving table was written (the configured file's
+    /// modification or the upload); a reload that changes nothing keeps it.
     pub historical_age_s: Option<f64>,
+    /// The configured file, or where the upload is saved.
+    pub historical_path: Option<String>,
+    /// Why a candidate table was passed over at the last load (a damaged
+    /// saved table, an unreadable configured file); empty when none was.
+    pub historical_problems: Vec<String>,
     pub historical_rows: Option<u64>,
+    /// `configured` or `upload`: which table serves (the newer of the two).
+    pub historical_source: Option<&'static str>,
     pub historical_version: Option<String>,
     pub last_live_batch: Option<ReloadOutcomeDto>,
     pub last_reload: Option<ReloadOutcomeDto>,
     pub live_edges: u64,
     pub live_newest_age_s: Option<f64>,
+    /// Why the saved live layer or its write-ahead log was refused at the
+    /// last load; empty when nothing was.
+    pub live_problems: Vec<String>,
     pub ready: bool,
     pub region: String,
 }
@@ -120,12 +132,16 @@ impl RegionStatusDto {
             degraded_reason: s.degraded_reason.clone(),
             generation: s.generation,
             historical_age_s: s.historical_age_s,
+            historical_path: s.historical_path.clone(),
+            historical_problems: s.historical_problems.clone(),
             historical_rows: s.historical_rows,
+            historical_source: s.historical_source,
             historical_version: s.historical_version.clone(),
             last_live_batch: s.last_live_batch.as_ref().map(ReloadOutcomeDto::from),
             last_reload: s.last_reload.as_ref().map(ReloadOutcomeDto::from),
             live_edges: s.live_edges,
             live_newest_age_s: s.live_newest_age_s,
+            live_problems: s.live_problems.clone(),
             ready: s.ready,
             region: region.to_string(),
         }

@@ -37,6 +37,7 @@ mod live;
 mod load;
 mod update;
 
+pub use load::FileStamp;
 pub use error::{Degraded, HistoricalNote, LoadError, TableReadError, UpdateError, UpdateFailure};
 
 use crate::engine::region::{Metric, Region};
@@ -65,13 +66,54 @@ pub struct Snapshot {
     /// Free-flow speed per edge (the base under the historical profile).
     pub free_flow_kmh: Arc<Vec<f32>>,
     pub historical: Option<Arc<HistoricalProfile>>,
-    /// When the serving historical table was accepted.
+    /// When the serving historical table was written: the configured
+    /// file's modification time or the upload's save time.
     pub historical_at: Option<DateTime<Utc>>,
+    /// Where the serving historical table came from.
+    pub historical_source: Option<TableSource>,
     /// The blended live metric, once observations have arrived.
     pub live: Option<Arc<LiveMetric>>,
     /// Identifies the artifact load (bucket cache keys include it).
     pub artifact_load: u64,
     pub artifact_at: DateTime<Utc>,
+    /// Length and modification time of the artifact file when it was
+    /// loaded: a reload that finds the same stamp re-reads only the tables.
+    pub artifact_stamp: Option<FileStamp>,
+}
+
+/// Where a historical table came from.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum TableSource {
+    /// The region's configured `historical` file.
+    Configured(std::path::PathBuf),
+    /// An upload, saved in the state directory at this path.
+    Upload(std::path::PathBuf),
+}
+
+impl TableSource {
+    /// `configured` or `upload`.
+    pub fn kind(&self) -> &'static str {
+        match self {
+            TableSource::Configured(_) => "configured",
+            TableSource::Upload(_) => "upload",
+        }
+    }
+
+    pub fn path(&self) -> &std::path::Path {
+        match self {
+            TableSource::Configured(p) | TableSource::Upload(p) => p,
+        }
+    }
+}
+
+/// What a reload did.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Reloaded {
+    /// Something changed and a new snapshot serves.
+    Accepted,
+    /// The artifact and the chosen table are the ones already serving:
+    /// nothing was published and the table's age is unchanged.
+    Unchanged,
 }
 
 impl Snapshot {
@@ -109,6 +151,16 @@ pub struct RegionStatus {
     pub historical_version: Option<String>,
     pub historical_rows: Option<u64>,
     pub historical_age_s: Option<f64>,
+    /// `configured` or `upload`.
+    pub historical_source: Option<&'static str>,
+    /// The configured file, or the saved upload in the state directory.
+    pub historical_path: Option<String>,
+    /// Why a candidate historical table was passed over at the last load
+    /// (a damaged saved table, an unreadable configured file).
+    pub historical_problems: Vec<String>,
+    /// Why the saved live layer or its write-ahead log was refused at the
+    /// last load (cleared once the layer is saved again).
+    pub live_problems: Vec<String>,
     pub live_edges: u64,
     pub live_newest_age_s: Option<f64>,
     pub last_reload: Option<ReloadOutcome>,
@@ -120,7 +172,7 @@ pub struct RegionStatus {
 pub struct ReloadOutcome {
     /// `historical`, `live` or `artifact`.
     pub table: &'static str,
-    /// `accepted`, `rejected` or `failed`.
+    /// `accepted`, `unchanged` (reload only), `rejected` or `failed`.
     pub outcome: &'static str,
     pub at: DateTime<Utc>,
     /// Error text for rejected/failed updates.
@@ -254,6 +306,11 @@ impl RegionHandle {
             s.historical_version = snap.historical.as_ref().map(|h| h.version().to_string());
             s.historical_rows = snap.historical.as_ref().map(|h| h.rows());
             s.historical_age_s = snap.historical_at.map(|t| age_s(now, t));
+            s.historical_source = snap.historical_source.as_ref().map(|x| x.kind());
+            s.historical_path = snap
+                .historical_source
+                .as_ref()
+                .map(|x| x.path().display().to_string());
             if let Some(l) = &snap.live {
                 s.live_edges = l.stats.fresh_edges;
                 s.live_newest_age_s = l.newest_observed_at.map(|t| age_s(now, t));
