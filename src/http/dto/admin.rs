@@ -179,7 +179,9 @@ pub struct LiveAccepted {
 pub struct ReloadResponse {
     /// Why the reload failed (`null` when accepted).
     pub error: Option<String>,
-    /// `accepted` or `failed`; a failed reload leaves serving data as it was.
+    /// `accepted`, `unchanged` (the artifact and the chosen historical
+    /// table are the ones serving: nothing published, age kept) or
+    /// `failed`; a failed reload leaves serving data as it was.
     pub outcome: &'static str,
     pub ready: bool,
     pub serving_generation: u64,
@@ -193,7 +195,9 @@ mod tests {
     /// The wire form is byte for byte the one the service sent before the
     /// DTOs existed (then the serving types' own serde form put through a
     /// `serde_json::Value`, keys sorted; captured from `/admin/status` and a
-    /// rejected upload), with the timestamp in chrono's RFC 3339 form.
+    /// rejected upload), with the timestamp in chrono's RFC 3339 form; the
+    /// status gained `historical_path`, `historical_problems`,
+    /// `historical_source` and `live_problems` (issue "Honest answers").
     #[test]
     fn dtos_keep_the_wire_form() {
         let report = TableReport {
@@ -233,6 +237,10 @@ mod tests {
             historical_age_s: Some(1.5),
             live_edges: 2,
             live_newest_age_s: None,
+            historical_source: Some("upload"),
+            historical_path: Some("/state/historical.table".into()),
+            historical_problems: vec![],
+            live_problems: vec!["x".into()],
             last_reload: Some(ReloadOutcome {
                 table: "historical",
                 outcome: "rejected",
@@ -245,7 +253,7 @@ mod tests {
             last_live_batch: None,
         };
         let want = format!(
-            r#"{{"degraded_reason":null,"generation":4,"historical_age_s":1.5,"historical_rows":10,"historical_version":"v1","last_live_batch":null,"last_reload":{{"at":"2026-12-02T08:30:00.123Z","error":"bad","outcome":"rejected","report":{report_json},"table":"historical"}},"live_edges":2,"live_newest_age_s":null,"ready":true,"region":"quellhaven"}}"#
+            r#"{{"degraded_reason":null,"generation":4,"historical_age_s":1.5,"historical_path":"/state/historical.table","historical_problems":[],"historical_rows":10,"historical_source":"upload","historical_version":"v1","last_live_batch":null,"last_reload":{{"at":"2026-12-02T08:30:00.123Z","error":"bad","outcome":"rejected","report":{report_json},"table":"historical"}},"live_edges":2,"live_newest_age_s":null,"live_problems":["x"],"ready":true,"region":"quellhaven"}}"#
         );
         assert_eq!(
             serde_json::to_string(&RegionStatusDto::new("quellhaven", &status)).unwrap(),
