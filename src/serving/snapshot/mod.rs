@@ -37,8 +37,8 @@ mod live;
 mod load;
 mod update;
 
-pub use load::FileStamp;
 pub use error::{Degraded, HistoricalNote, LoadError, TableReadError, UpdateError, UpdateFailure};
+pub use load::FileStamp;
 
 use crate::engine::region::{Metric, Region};
 use crate::serving::customizer::Customizer;

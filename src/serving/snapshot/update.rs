@@ -17,7 +17,7 @@ use super::load::{
     Loaded, TableChoice,
 };
 use super::{
-    historical_key, LiveMetric, RegionHandle, Reloaded, ReloadOutcome, Snapshot, TableSource,
+    historical_key, LiveMetric, RegionHandle, ReloadOutcome, Reloaded, Snapshot, TableSource,
     Writer,
 };
 use crate::serving::metrics as m;

@@ -286,6 +286,9 @@ mod tests {
         assert!(replay(&p).unwrap().records.is_empty());
         std::fs::write(&p, b"not a log at all, no").unwrap();
         assert!(matches!(replay(&p), Err(WalError::Corrupt { .. })));
-        assert!(replay(&dir.path().join("missing")).unwrap().records.is_empty());
+        assert!(replay(&dir.path().join("missing"))
+            .unwrap()
+            .records
+            .is_empty());
     }
 }
