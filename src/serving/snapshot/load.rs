@@ -210,10 +210,15 @@ pub(super) fn choose_historical(
             }
         }
     };
-    if upload_first {
-        let _ = try_upload(&mut out) || try_configured(&mut out);
+    let order: [&dyn Fn(&mut TableChoice) -> bool; 2] = if upload_first {
+        [&try_upload, &try_configured]
     } else {
-        let _ = try_configured(&mut out) || try_upload(&mut out);
+        [&try_configured, &try_upload]
+    };
+    for candidate in order {
+        if candidate(&mut out) {
+            break;
+        }
     }
     out
 }
