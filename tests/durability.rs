@@ -75,7 +75,7 @@ fn write_config(dir: &Path, state: &Path, historical: Option<&Path>) -> PathBuf 
 }
 
 /// Starts the binary and waits (at most 120 s) for its "serving" line.
-fn start(config: &Path) -> Proc {
+async fn start(config: &Path) -> Proc {
     let mut child = Command::new(env!("CARGO_BIN_EXE_hodos"))
         .args(["serve", "--config", config.to_str().unwrap()])
         .env("HODOS_LOG", "info")
@@ -102,13 +102,17 @@ fn start(config: &Path) -> Proc {
             sink.lock().unwrap().push(line);
         }
     });
-    match rx.recv_timeout(Duration::from_secs(120)) {
-        Ok((public, admin)) => Proc {
-            child,
-            public,
-            admin,
-            logs,
-        },
+    match tokio::task::block_in_place(|| rx.recv_timeout(Duration::from_secs(120))) {
+        Ok((public, admin)) => {
+            let p = Proc {
+                child,
+                public,
+                admin,
+                logs,
+            };
+            p.wait_loaded().await;
+            p
+        }
         Err(_) => {
             let _ = child.kill();
             let _ = child.wait();
@@ -118,6 +122,25 @@ fn start(config: &Path) -> Proc {
 }
 
 impl Proc {
+    /// The listeners open before the regions load: waits (at most 120 s)
+    /// until `/readyz` no longer reports a region `loading`.
+    async fn wait_loaded(&self) {
+        let deadline = Instant::now() + Duration::from_secs(120);
+        loop {
+            let (_, v) = self.ready().await;
+            let loading = v["regions"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .any(|r| r["state"] == "loading");
+            if !loading {
+                return;
+            }
+            assert!(Instant::now() < deadline, "regions still loading: {v}");
+            tokio::time::sleep(Duration::from_millis(50)).await;
+        }
+    }
+
     fn pid(&self) -> i32 {
         self.child.id() as i32
     }
@@ -289,13 +312,13 @@ async fn live_batch_survives(stop: impl FnOnce(Proc)) {
     let state = dir.path().join("state");
     let cfg = write_config(dir.path(), &state, None);
     let (a, b) = two_batches(40);
-    let p = start(&cfg);
+    let p = start(&cfg).await;
     p.post_live(&a).await;
     let n_a = live_edges_at_least(&p, a.len() as u64).await;
     assert!(n_a >= a.len() as u64, "batch A blended: {n_a}");
     p.post_live(&b).await;
     stop(p);
-    let p = start(&cfg);
+    let p = start(&cfg).await;
     let n = live_edges_at_least(&p, n_a + b.len() as u64).await;
     assert!(
         n >= n_a + b.len() as u64,
@@ -328,7 +351,7 @@ async fn torn_log_tail_is_ignored_with_a_log_line() {
     let state = dir.path().join("state");
     let cfg = write_config(dir.path(), &state, None);
     let (a, b) = two_batches(30);
-    let p = start(&cfg);
+    let p = start(&cfg).await;
     p.post_live(&a).await;
     let n_a = live_edges_at_least(&p, a.len() as u64).await;
     p.post_live(&b).await;
@@ -338,7 +361,7 @@ async fn torn_log_tail_is_ignored_with_a_log_line() {
     let mut bytes = std::fs::read(&log).expect("the log holds batch B");
     bytes.extend_from_slice(&[200, 0, 0]);
     std::fs::write(&log, bytes).unwrap();
-    let p = start(&cfg);
+    let p = start(&cfg).await;
     let n = live_edges_at_least(&p, n_a + b.len() as u64).await;
     assert!(n >= n_a + b.len() as u64, "{n}");
     assert!(
@@ -358,11 +381,11 @@ async fn table_upload_survives_kill_9() {
     let state = dir.path().join("state");
     let cfg = write_config(dir.path(), &state, None);
     let t = every_edge_at_ten(23.0);
-    let p = start(&cfg);
+    let p = start(&cfg).await;
     let v = p.upload(&t).await;
     assert_eq!(v["version"], version_of(t.as_bytes()));
     p.kill9();
-    let p = start(&cfg);
+    let p = start(&cfg).await;
     let s = p.status().await;
     assert_eq!(s["historical_version"], version_of(t.as_bytes()));
     assert_eq!(s["historical_source"], "upload");
@@ -385,7 +408,7 @@ async fn newer_of_configured_file_and_upload_serves() {
     );
     std::fs::write(&configured, &ta).unwrap();
     let cfg = write_config(dir.path(), &state, Some(&configured));
-    let p = start(&cfg);
+    let p = start(&cfg).await;
     let s = p.status().await;
     assert_eq!(s["historical_version"], version_of(ta.as_bytes()));
     p.upload(&tb).await;
@@ -417,14 +440,14 @@ async fn newer_of_configured_file_and_upload_serves() {
     assert_eq!(s["generation"].as_u64().unwrap(), gen1, "nothing published");
     // Across a restart the same rule: the edited file is newer.
     p.sigterm();
-    let p = start(&cfg);
+    let p = start(&cfg).await;
     let s = p.status().await;
     assert_eq!(s["historical_version"], version_of(tc.as_bytes()), "{s}");
     assert_eq!(s["historical_source"], "configured");
     // A later upload is newer than the file, also after a crash.
     p.upload(&td).await;
     p.kill9();
-    let p = start(&cfg);
+    let p = start(&cfg).await;
     let s = p.status().await;
     assert_eq!(s["historical_version"], version_of(td.as_bytes()), "{s}");
     assert_eq!(s["historical_source"], "upload");
@@ -470,7 +493,7 @@ async fn damaged_saved_table_is_refused_loudly() {
         std::thread::sleep(Duration::from_millis(20));
         std::fs::write(state.join("historical.table"), &bytes).unwrap();
         let cfg = write_config(dir.path(), &state, Some(&configured));
-        let p = start(&cfg);
+        let p = start(&cfg).await;
         let s = p.status().await;
         assert_eq!(
             s["historical_version"],
@@ -516,4 +539,24 @@ async fn damaged_saved_table_is_refused_loudly() {
         }
         p.kill9();
     }
+}
+
+/// Readiness while regions load: the state exists before any region is
+/// loaded (what `hodos serve` listens with), and `/readyz` says `loading`
+/// with 503 until the load finishes, then `serving` with 200.
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn readiness_reports_loading_until_loaded() {
+    let dir = tempfile::tempdir().unwrap();
+    let st = hodos::http::AppState::unloaded(common::service::config(dir.path(), ""));
+    let a = hodos::http::app(st.clone());
+    let r = common::http::send(&a, "GET", "/readyz", None, vec![], None).await;
+    assert_eq!(r.status, 503, "{}", r.text);
+    assert_eq!(r.json()["regions"][0]["state"], "loading");
+    let h = common::http::send(&a, "GET", "/healthz", None, vec![], None).await;
+    assert_eq!(h.status, 200);
+    st.load_regions().await;
+    let r = common::http::send(&a, "GET", "/readyz", None, vec![], None).await;
+    assert_eq!(r.status, 200, "{}", r.text);
+    assert_eq!(r.json()["regions"][0]["state"], "serving");
+    assert_eq!(r.json()["status"], "ready");
 }

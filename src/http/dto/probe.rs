@@ -43,14 +43,15 @@ impl RegionReadiness {
             .chain(&s.live_problems)
             .map(String::as_str)
             .collect();
-        let (state, reason) = if s.ready && problems.is_empty() {
+        let (state, reason) = if s.loading {
+            ("loading", None)
+        } else if s.ready && problems.is_empty() {
             ("serving", None)
         } else if s.ready {
             ("degraded", Some(problems.join("; ")))
-        } else if let Some(r) = &s.degraded_reason {
-            ("estimates_only", Some(r.clone()))
         } else {
-            ("loading", None)
+            let r = s.degraded_reason.as_deref().unwrap_or("no graph loaded");
+            ("estimates_only", Some(r.to_string()))
         };
         RegionReadiness {
             generation: s.generation,
@@ -144,7 +145,10 @@ mod tests {
             degraded_reason: Some("no artifact".into()),
             ..RegionStatus::default()
         };
-        let loading = RegionStatus::default();
+        let loading = RegionStatus {
+            loading: true,
+            ..RegionStatus::default()
+        };
         for (other, state) in [
             (&degraded, "degraded"),
             (&estimates, "estimates_only"),

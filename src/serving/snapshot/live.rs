@@ -337,6 +337,10 @@ impl RegionHandle {
         let Some(dir) = self.cfg.live_dir.clone() else {
             return;
         };
+        if !self.loaded() {
+            // Files wait for the first load rather than be refused.
+            return;
+        }
         let Ok(Some(files)) = tokio::task::spawn_blocking(move || list_csv(&dir)).await else {
             return;
         };

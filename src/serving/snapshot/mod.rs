@@ -145,6 +145,9 @@ pub struct LiveMetric {
 #[derive(Debug, Clone, Default)]
 pub struct RegionStatus {
     pub ready: bool,
+    /// The first load (artifact, tables, the current hour's metric) has
+    /// not finished yet.
+    pub loading: bool,
     /// Why the region serves no graph, when it does not.
     pub degraded_reason: Option<String>,
     pub generation: u64,
@@ -240,6 +243,8 @@ pub struct RegionHandle {
     wake: Notify,
     generation: AtomicU64,
     loads: AtomicU64,
+    /// Set once the first load finished (served or degraded).
+    loaded: AtomicBool,
 }
 
 impl std::fmt::Debug for RegionHandle {
@@ -251,12 +256,19 @@ impl std::fmt::Debug for RegionHandle {
 }
 
 impl RegionHandle {
-    /// Creates the handle and loads the region (artifact, then the saved or
-    /// configured historical table, then the saved live layer). A failed
-    /// artifact leaves the region degraded; the error is in its status.
+    /// Creates the handle and loads the region (see [`Self::load_first`]).
     pub async fn open(cfg: RegionConfig, settings: UpdateSettings) -> Arc<RegionHandle> {
+        let h = Self::new(cfg, settings);
+        h.load_first().await;
+        h
+    }
+
+    /// Creates the handle without loading anything: it reports itself
+    /// loading (and answers come from the heuristic tier) until
+    /// [`Self::load_first`] finishes.
+    pub fn new(cfg: RegionConfig, settings: UpdateSettings) -> Arc<RegionHandle> {
         let tz = cfg.time_zone.parse().unwrap_or(chrono_tz::UTC);
-        let h = Arc::new(RegionHandle {
+        Arc::new(RegionHandle {
             name: cfg.name.clone(),
             cfg,
             tz,
@@ -275,7 +287,16 @@ impl RegionHandle {
             wake: Notify::new(),
             generation: AtomicU64::new(0),
             loads: AtomicU64::new(0),
-        });
+            loaded: AtomicBool::new(false),
+        })
+    }
+
+    /// The first load: the artifact, then the historical table (by the
+    /// rule in `load`), then the saved live layer with its write-ahead log
+    /// replayed. A failed artifact leaves the region degraded; the error
+    /// is in its status.
+    pub async fn load_first(self: &Arc<Self>) {
+        let h = self;
         if let Err(e) = h.reload().await {
             tracing::warn!(region = %h.name, error = %e, "region starts degraded");
         }
@@ -289,7 +310,12 @@ impl RegionHandle {
                 tracing::warn!(region = %h.name, "current hour's metric not ready after 60 s; serving anyway");
             }
         }
-        h
+        h.loaded.store(true, Ordering::SeqCst);
+    }
+
+    /// Whether the first load has finished.
+    pub fn loaded(&self) -> bool {
+        self.loaded.load(Ordering::SeqCst)
     }
 
     /// The serving snapshot, or `None` while degraded.
@@ -299,6 +325,7 @@ impl RegionHandle {
 
     pub fn status(&self) -> RegionStatus {
         let mut s = (**self.status.load()).clone();
+        s.loading = !self.loaded();
         let now = Utc::now();
         if let Some(snap) = self.snapshot() {
             s.ready = true;
