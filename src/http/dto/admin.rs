@@ -230,6 +230,7 @@ mod tests {
         );
         let status = RegionStatus {
             ready: true,
+            loading: false,
             degraded_reason: None,
             generation: 4,
             historical_version: Some("v1".into()),

@@ -24,8 +24,9 @@
 //!   [`RegionHandle::put_historical`], [`RegionHandle::put_live`]);
 //! - `live`: blending and publishing the live tier, the live loop and the
 //!   watched folder;
-//! - `load`: the file work of a load (artifact, historical table, saved
-//!   live layer), run on tokio's blocking pool;
+//! - `load`: the file work of a load (artifact, the rule choosing the
+//!   historical table, refusing damaged saved files, the saved live layer
+//!   with its write-ahead log replayed), run on tokio's blocking pool;
 //! - `error`: the typed errors ([`UpdateError`], [`LoadError`], ...).
 //!
 //! **Architecture Invariant:** nothing here knows about HTTP; the service
