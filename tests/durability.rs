@@ -444,8 +444,23 @@ async fn newer_of_configured_file_and_upload_serves() {
     let s = p.status().await;
     assert_eq!(s["historical_version"], version_of(tc.as_bytes()), "{s}");
     assert_eq!(s["historical_source"], "configured");
+    // A bad edit of the configured file: refused, the other candidate (the
+    // earlier upload) serves and the region reports itself degraded.
+    std::thread::sleep(Duration::from_millis(20));
+    std::fs::write(&configured, common::tables::corrupt()).unwrap();
+    p.reload().await;
+    let s = p.status().await;
+    assert_eq!(s["historical_version"], version_of(tb.as_bytes()), "{s}");
+    assert_eq!(s["historical_source"], "upload");
+    assert_eq!(s["historical_problems"].as_array().unwrap().len(), 1, "{s}");
+    let (code, ready) = p.ready().await;
+    assert_eq!(
+        (code, ready["regions"][0]["state"].as_str()),
+        (503, Some("degraded"))
+    );
     // A later upload is newer than the file, also after a crash.
     p.upload(&td).await;
+    assert_eq!(p.ready().await.0, 200);
     p.kill9();
     let p = start(&cfg).await;
     let s = p.status().await;

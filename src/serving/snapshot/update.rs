@@ -135,6 +135,19 @@ impl RegionHandle {
             (None, None) => true,
             _ => false,
         };
+        if table.is_none() && cur.historical.is_some() && !problems.is_empty() {
+            // Every candidate failed (say, a bad edit of the configured
+            // file and no upload): keep serving the table that serves, and
+            // report the rejection (status, readiness, metrics).
+            self.record(ReloadOutcome {
+                table: "historical",
+                outcome: "rejected",
+                at: now,
+                error: note,
+                report: None,
+            });
+            return Ok(Reloaded::Unchanged);
+        }
         if same {
             self.record(ReloadOutcome {
                 table: "historical",
