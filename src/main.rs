@@ -391,18 +391,28 @@ fn cmd_serve(config: &std::path::Path, strict: bool) -> anyhow::Result<()> {
     }
     runtime()?.block_on(async move {
         let (listen, admin) = (cfg.server.listen, cfg.admin.listen);
-        let state = hodos::http::AppState::open(cfg).await;
-        let degraded = state.degraded();
-        for (name, why) in &degraded {
-            tracing::warn!(region = %name, reason = %why, "region degraded: answering from the heuristic tier");
-        }
-        if strict && !degraded.is_empty() {
-            anyhow::bail!("--strict: {} region(s) failed to load: {}", degraded.len(),
-                degraded.iter().map(|(n, w)| format!("{n} ({w})")).collect::<Vec<_>>().join("; "));
+        // Without --strict the listeners open first and regions load
+        // behind them: /healthz answers and /readyz says `loading`.
+        let state = hodos::http::AppState::unloaded(cfg);
+        if strict {
+            state.load_regions().await;
+            let degraded = state.degraded();
+            if !degraded.is_empty() {
+                anyhow::bail!("--strict: {} region(s) failed to load: {}", degraded.len(),
+                    degraded.iter().map(|(n, w)| format!("{n} ({w})")).collect::<Vec<_>>().join("; "));
+            }
         }
         let public = hodos::http::bind(listen).await.with_context(|| format!("binding {listen}"))?;
         let admin_l = hodos::http::bind(admin).await.with_context(|| format!("binding {admin}"))?;
         tracing::info!(public = %public.local_addr()?, admin = %admin_l.local_addr()?, "serving");
+        let loading = state.clone();
+        tokio::spawn(async move {
+            loading.load_regions().await;
+            for (name, why) in loading.degraded() {
+                tracing::warn!(region = %name, reason = %why, "region degraded: answering from the heuristic tier");
+            }
+            tracing::info!("regions loaded");
+        });
         hodos::http::serve(state, public, admin_l, shutdown_signal()).await?;
         Ok(())
     })

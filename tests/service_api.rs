@@ -386,7 +386,14 @@ async fn every_tier_and_reason() {
     assert!(r["speeds_age_s"].as_f64().unwrap() < 60.0);
 
     // An artifact reload keeps serving the live tier: the blend for the new
-    // graph is customized before the swap.
+    // graph is customized before the swap. (A reload over an unchanged
+    // artifact file keeps the loaded graph, so the file is touched first.)
+    std::fs::File::options()
+        .write(true)
+        .open(&common::service::city().artifact)
+        .unwrap()
+        .set_modified(std::time::SystemTime::now())
+        .unwrap();
     let gen_before = region.status().generation;
     region.reload().await.unwrap();
     assert!(region.status().generation > gen_before);
@@ -620,9 +627,17 @@ async fn unreachable_pair_and_degraded_region() {
         (Some("heuristic"), Some("region_unavailable")),
         "{r}"
     );
-    let ready = send(&a, "GET", "/readyz", None, vec![], None).await.json();
+    let ready = send(&a, "GET", "/readyz", None, vec![], None).await;
+    assert_eq!(
+        ready.status, 503,
+        "a readiness probe acts on the status code"
+    );
+    let ready = ready.json();
     assert_eq!(ready["degraded_regions"], 1);
-    assert_eq!(ready["regions"][0]["state"], "degraded");
+    // No graph: every answer is an estimate (was `degraded` before the
+    // readiness states were split), and the instance is not ready.
+    assert_eq!(ready["regions"][0]["state"], "estimates_only");
+    assert_eq!(ready["status"], "not_ready");
     assert!(
         ready["regions"][0]["reason"]
             .as_str()

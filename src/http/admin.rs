@@ -9,7 +9,7 @@ use super::dto::{
 };
 use super::problem::ApiError;
 use super::{routes, AppState};
-use crate::serving::snapshot::{RegionHandle, UpdateError};
+use crate::serving::snapshot::{RegionHandle, Reloaded, UpdateError};
 use axum::extract::{Path, Request, State};
 use axum::http::{header, HeaderMap};
 use axum::middleware::Next;
@@ -149,7 +149,8 @@ pub(super) async fn reload(
     let result = r.reload().await;
     let st = r.status();
     let (outcome, error) = match result {
-        Ok(()) => ("accepted", None),
+        Ok(Reloaded::Accepted) => ("accepted", None),
+        Ok(Reloaded::Unchanged) => ("unchanged", None),
         Err(e) => ("failed", Some(e.to_string())),
     };
     Ok(Json(ReloadResponse {

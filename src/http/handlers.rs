@@ -13,7 +13,7 @@ use crate::serving::answer::{self, CellAnswer};
 use crate::serving::tier::{FallbackReason, Tier};
 use axum::body::Bytes;
 use axum::extract::{RawQuery, Request, State};
-use axum::http::header;
+use axum::http::{header, StatusCode};
 use axum::response::{IntoResponse, Response};
 use axum::Json;
 
@@ -153,8 +153,8 @@ pub async fn healthz() -> impl IntoResponse {
     Json(HealthResponse::ALIVE)
 }
 
-/// Ready once every region has a snapshot or is marked degraded (which is
-/// every region after start-up: `open` waits for each), saying which.
+/// Each region's state; 200 when the regions `server.ready_when` asks for
+/// are serving, else 503 (what a readiness probe acts on).
 pub async fn readyz(State(state): State<AppState>) -> impl IntoResponse {
     let regions: Vec<RegionReadiness> = state
         .catalog
@@ -162,7 +162,13 @@ pub async fn readyz(State(state): State<AppState>) -> impl IntoResponse {
         .iter()
         .map(|r| RegionReadiness::new(&r.name, &r.status()))
         .collect();
-    Json(ReadyResponse::from(regions))
+    let r = ReadyResponse::new(regions, state.settings.server.ready_when);
+    let code = if r.is_ready() {
+        StatusCode::OK
+    } else {
+        StatusCode::SERVICE_UNAVAILABLE
+    };
+    (code, Json(r))
 }
 
 pub async fn metrics_text(State(state): State<AppState>) -> impl IntoResponse {

@@ -53,14 +53,24 @@ pub struct AppState {
 impl AppState {
     /// Opens every configured region (degraded ones included).
     pub async fn open(settings: impl Into<settings::Settings>) -> AppState {
+        let state = Self::unloaded(settings);
+        state.load_regions().await;
+        state
+    }
+
+    /// The state with every region created but not loaded: each reports
+    /// `loading` on `/readyz` until [`Self::load_regions`] has loaded it,
+    /// so a server can listen (and answer its probes) while regions load.
+    pub fn unloaded(settings: impl Into<settings::Settings>) -> AppState {
         let settings: settings::Settings = settings.into();
         // The recorder first: loading a region already records series.
         let prometheus = exporter::handle();
         let update = UpdateSettings::from_settings(&settings.serving);
-        let mut regions = Vec::new();
-        for r in &settings.regions {
-            regions.push(RegionHandle::open(r.clone(), update.clone()).await);
-        }
+        let regions: Vec<_> = settings
+            .regions
+            .iter()
+            .map(|r| RegionHandle::new(r.clone(), update.clone()))
+            .collect();
         let names: Vec<String> = regions.iter().map(|r| r.name.clone()).collect();
         crate::serving::metrics::register_zero(&routes::answer_paths(), &names);
         AppState {
@@ -70,12 +80,21 @@ impl AppState {
         }
     }
 
+    /// Loads every region that has not been loaded, one after another.
+    pub async fn load_regions(&self) {
+        for r in &self.catalog.regions {
+            if !r.loaded() {
+                r.load_first().await;
+            }
+        }
+    }
+
     /// Regions that are configured but serve no graph.
     pub fn degraded(&self) -> Vec<(String, String)> {
         self.catalog
             .regions
             .iter()
-            .filter(|r| r.snapshot().is_none())
+            .filter(|r| r.loaded() && r.snapshot().is_none())
             .map(|r| {
                 (
                     r.name.clone(),

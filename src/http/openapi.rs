@@ -110,8 +110,9 @@ pub fn healthz() -> Value {
 }
 
 pub fn readyz() -> Value {
-    json!({"operationId": "readyz", "summary": "Readiness: every region serving or marked degraded, saying which",
-        "responses": {"200": json_response("Per-region state", "ReadyResponse")}})
+    json!({"operationId": "readyz", "summary": "Readiness: each region's state; 200 when the regions server.ready_when asks for are serving, else 503",
+        "responses": {"200": json_response("Ready: per-region state", "ReadyResponse"),
+                      "503": json_response("Not ready: per-region state, with reasons", "ReadyResponse")}})
 }
 
 pub fn metrics() -> Value {
@@ -152,7 +153,7 @@ pub fn admin_post_live() -> Value {
 pub fn admin_reload() -> Value {
     json!({"operationId": "adminReload", "summary": "Reload the region's artifact and historical table", "security": admin_auth(),
         "parameters": region_param(),
-        "responses": {"200": json_response("Outcome (accepted or failed, with the error text); a failed reload leaves the serving snapshot as it was", "ReloadResponse"),
+        "responses": {"200": json_response("Outcome (accepted, unchanged when the artifact and the chosen historical table are the ones serving, or failed with the error text); a failed reload leaves the serving snapshot as it was", "ReloadResponse"),
                       "401": problem_response("Missing or wrong token"), "404": problem_response("Unknown region")}})
 }
 
@@ -233,11 +234,12 @@ fn schemas() -> Value {
         "HealthResponse": {"type": "object", "required": ["status"], "properties": {"status": {"const": "alive"}}},
         "RegionReadiness": {"type": "object", "required": ["generation", "reason", "region", "state"],
             "properties": {"generation": {"type": "integer"}, "reason": {"type": ["string", "null"]}, "region": {"type": "string"},
-                           "state": {"type": "string", "enum": ["serving", "degraded"]}}},
-        "ReadyResponse": {"type": "object", "required": ["degraded_regions", "regions", "status"],
+                           "state": {"type": "string", "enum": ["serving", "degraded", "estimates_only", "loading"]}}},
+        "ReadyResponse": {"type": "object", "required": ["degraded_regions", "ready_when", "regions", "status"],
             "properties": {"degraded_regions": {"type": "integer", "minimum": 0},
+                           "ready_when": {"type": "string", "enum": ["all_regions", "any_region"]},
                            "regions": {"type": "array", "items": {"$ref": "#/components/schemas/RegionReadiness"}},
-                           "status": {"const": "ready"}}},
+                           "status": {"type": "string", "enum": ["ready", "not_ready"]}}},
         "RowError": {"type": "object", "required": ["kind", "message"],
             "properties": {"index": {"type": "integer", "description": "JSON batch: 0-based element index"},
                            "kind": {"type": "string", "enum": ["unknown_edge", "segment_mismatch", "nonpositive_speed", "not_a_number", "over_max_speed", "bad_hour", "bad_timestamp", "future_timestamp", "bad_samples", "malformed_row"]},
@@ -250,14 +252,18 @@ fn schemas() -> Value {
                            "rows": {"type": "integer"}, "superseded": {"type": "integer"}}},
         "ReloadOutcome": {"type": ["object", "null"], "required": ["at", "error", "outcome", "report", "table"],
             "properties": {"at": {"type": "string", "format": "date-time"}, "error": {"type": ["string", "null"]},
-                           "outcome": {"type": "string", "enum": ["accepted", "rejected", "failed"]},
+                           "outcome": {"type": "string", "enum": ["accepted", "unchanged", "rejected", "failed"]},
                            "report": {"anyOf": [{"$ref": "#/components/schemas/TableReport"}, {"type": "null"}]},
                            "table": {"type": "string", "enum": ["historical", "live", "artifact"]}}},
         "RegionStatus": {"type": "object",
-            "required": ["degraded_reason", "generation", "historical_age_s", "historical_rows", "historical_version", "last_live_batch", "last_reload", "live_edges", "live_newest_age_s", "profiles", "ready", "region"],
+            "required": ["degraded_reason", "generation", "historical_age_s", "historical_path", "historical_problems", "historical_rows", "historical_source", "historical_version", "last_live_batch", "last_reload", "live_edges", "live_newest_age_s", "live_problems", "profiles", "ready", "region"],
             "properties": {"degraded_reason": {"type": ["string", "null"]}, "generation": {"type": "integer"},
                            "historical_age_s": {"type": ["number", "null"]}, "historical_rows": {"type": ["integer", "null"]},
                            "historical_version": {"type": ["string", "null"]},
+                           "historical_source": {"type": ["string", "null"], "enum": ["configured", "upload", null]},
+                           "historical_path": {"type": ["string", "null"]},
+                           "historical_problems": {"type": "array", "items": {"type": "string"}},
+                           "live_problems": {"type": "array", "items": {"type": "string"}},
                            "last_live_batch": {"$ref": "#/components/schemas/ReloadOutcome"}, "last_reload": {"$ref": "#/components/schemas/ReloadOutcome"},
                            "live_edges": {"type": "integer"}, "live_newest_age_s": {"type": ["number", "null"]},
                            "profiles": {"$ref": "#/components/schemas/Profiles"},
@@ -282,7 +288,7 @@ fn schemas() -> Value {
         "LiveAccepted": {"type": "object", "required": ["outcome", "report"],
             "properties": {"outcome": {"const": "accepted"}, "report": {"$ref": "#/components/schemas/TableReport"}}},
         "ReloadResponse": {"type": "object", "required": ["error", "outcome", "ready", "serving_generation"],
-            "properties": {"error": {"type": ["string", "null"]}, "outcome": {"type": "string", "enum": ["accepted", "failed"]},
+            "properties": {"error": {"type": ["string", "null"]}, "outcome": {"type": "string", "enum": ["accepted", "unchanged", "failed"]},
                            "ready": {"type": "boolean"}, "serving_generation": {"type": "integer"}}},
         "Problem": {"type": "object", "description": "RFC 9457 problem details", "required": ["type", "title", "status", "detail"],
             "properties": {"type": {"type": "string"}, "title": {"type": "string"}, "status": {"type": "integer"}, "detail": {"type": "string"},

@@ -30,6 +30,34 @@ pub struct ServerConfig {
     /// a busy feed; below the request workers' priority it takes only the
     /// CPU they leave, so queries keep their latency during reloads.
     pub customize_priority: CustomizePriority,
+    /// When `/readyz` answers 200 (else 503, so a readiness probe takes the
+    /// instance out of rotation): every region serving normally, or at
+    /// least one.
+    pub ready_when: ReadyWhen,
+}
+
+/// `server.ready_when`: which regions must be `serving` for `/readyz` to
+/// answer 200. A region that is loading, degraded (a refused saved file or
+/// table) or answering only estimates (no graph) is not serving.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum ReadyWhen {
+    /// Every configured region serves: the strict choice, for a fleet
+    /// where each instance is expected to answer for every region.
+    #[default]
+    AllRegions,
+    /// At least one region serves: for instances whose regions fail
+    /// independently and partial service beats none.
+    AnyRegion,
+}
+
+impl ReadyWhen {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            ReadyWhen::AllRegions => "all_regions",
+            ReadyWhen::AnyRegion => "any_region",
+        }
+    }
 }
 
 impl Default for ServerConfig {
@@ -39,6 +67,7 @@ impl Default for ServerConfig {
             max_body_bytes: 256 * 1024,
             drain_seconds: 10,
             customize_priority: CustomizePriority::Idle,
+            ready_when: ReadyWhen::AllRegions,
         }
     }
 }

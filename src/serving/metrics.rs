@@ -26,6 +26,7 @@ pub const BUILD_INFO: &str = "hodos_build_info";
 
 /// The `region` label of answers outside every region.
 pub const NO_REGION: &str = "none";
+pub const STATE_FILES_REFUSED: &str = "hodos_state_files_refused_total";
 
 /// Describes every series (units and help text) to the installed recorder.
 pub fn describe() {
@@ -70,6 +71,10 @@ pub fn describe() {
     describe_gauge!(
         REGION_READY,
         "1 when the region serves from a graph, 0 when degraded."
+    );
+    describe_counter!(
+        STATE_FILES_REFUSED,
+        "Saved state files refused at load (damaged, wrong kind, no longer valid) or torn write-ahead log tails, by region and file (historical, live, wal)."
     );
 }
 
@@ -130,10 +135,16 @@ pub fn register_zero(routes: &[&'static str], regions: &[String]) {
     metrics::gauge!(BUILD_INFO, v.0 => v.1, c.0 => c.1, p.0 => p.1).set(1.0);
     for region in regions {
         for table in ["historical", "live", "artifact"] {
-            for outcome in ["accepted", "rejected", "failed"] {
+            for outcome in ["accepted", "unchanged", "rejected", "failed"] {
                 metrics::counter!(RELOADS, "region" => region.clone(), "table" => table, "outcome" => outcome)
                     .increment(0);
             }
+        }
+    }
+    for region in regions {
+        for file in ["historical", "live", "wal"] {
+            metrics::counter!(STATE_FILES_REFUSED, "region" => region.clone(), "file" => file)
+                .increment(0);
         }
     }
     metrics::gauge!(GRAPH_IN_FLIGHT).set(0.0);

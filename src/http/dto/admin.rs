@@ -102,13 +102,25 @@ pub struct RegionStatusDto {
     /// Why the region serves no graph, when it does not.
     pub degraded_reason: Option<String>,
     pub generation: u64,
+    /// Seconds since the serving table was written (the configured file's
+    /// modification or the upload); a reload that changes nothing keeps it.
     pub historical_age_s: Option<f64>,
+    /// The configured file, or where the upload is saved.
+    pub historical_path: Option<String>,
+    /// Why a candidate table was passed over at the last load (a damaged
+    /// saved table, an unreadable configured file); empty when none was.
+    pub historical_problems: Vec<String>,
     pub historical_rows: Option<u64>,
+    /// `configured` or `upload`: which table serves (the newer of the two).
+    pub historical_source: Option<&'static str>,
     pub historical_version: Option<String>,
     pub last_live_batch: Option<ReloadOutcomeDto>,
     pub last_reload: Option<ReloadOutcomeDto>,
     pub live_edges: u64,
     pub live_newest_age_s: Option<f64>,
+    /// Why the saved live layer or its write-ahead log was refused at the
+    /// last load; empty when nothing was.
+    pub live_problems: Vec<String>,
     pub profiles: Option<ProfilesDto>,
     pub ready: bool,
     pub region: String,
@@ -168,12 +180,16 @@ impl RegionStatusDto {
             degraded_reason: s.degraded_reason.clone(),
             generation: s.generation,
             historical_age_s: s.historical_age_s,
+            historical_path: s.historical_path.clone(),
+            historical_problems: s.historical_problems.clone(),
             historical_rows: s.historical_rows,
+            historical_source: s.historical_source,
             historical_version: s.historical_version.clone(),
             last_live_batch: s.last_live_batch.as_ref().map(ReloadOutcomeDto::from),
             last_reload: s.last_reload.as_ref().map(ReloadOutcomeDto::from),
             live_edges: s.live_edges,
             live_newest_age_s: s.live_newest_age_s,
+            live_problems: s.live_problems.clone(),
             profiles: s.profiles.as_ref().map(ProfilesDto::from),
             ready: s.ready,
             region: region.to_string(),
@@ -212,7 +228,9 @@ pub struct LiveAccepted {
 pub struct ReloadResponse {
     /// Why the reload failed (`null` when accepted).
     pub error: Option<String>,
-    /// `accepted` or `failed`; a failed reload leaves serving data as it was.
+    /// `accepted`, `unchanged` (the artifact and the chosen historical
+    /// table are the ones serving: nothing published, age kept) or
+    /// `failed`; a failed reload leaves serving data as it was.
     pub outcome: &'static str,
     pub ready: bool,
     pub serving_generation: u64,
@@ -226,7 +244,9 @@ mod tests {
     /// The wire form is byte for byte the one the service sent before the
     /// DTOs existed (then the serving types' own serde form put through a
     /// `serde_json::Value`, keys sorted; captured from `/admin/status` and a
-    /// rejected upload), with the timestamp in chrono's RFC 3339 form.
+    /// rejected upload), with the timestamp in chrono's RFC 3339 form; the
+    /// status gained `historical_path`, `historical_problems`,
+    /// `historical_source` and `live_problems` (issue "Honest answers").
     #[test]
     fn dtos_keep_the_wire_form() {
         let report = TableReport {
@@ -259,6 +279,7 @@ mod tests {
         );
         let status = RegionStatus {
             ready: true,
+            loading: false,
             degraded_reason: None,
             generation: 4,
             historical_version: Some("v1".into()),
@@ -266,6 +287,10 @@ mod tests {
             historical_age_s: Some(1.5),
             live_edges: 2,
             live_newest_age_s: None,
+            historical_source: Some("upload"),
+            historical_path: Some("/state/historical.table".into()),
+            historical_problems: vec![],
+            live_problems: vec!["x".into()],
             last_reload: Some(ReloadOutcome {
                 table: "historical",
                 outcome: "rejected",
@@ -279,7 +304,7 @@ mod tests {
             profiles: None,
         };
         let want = format!(
-            r#"{{"degraded_reason":null,"generation":4,"historical_age_s":1.5,"historical_rows":10,"historical_version":"v1","last_live_batch":null,"last_reload":{{"at":"2026-12-02T08:30:00.123Z","error":"bad","outcome":"rejected","report":{report_json},"table":"historical"}},"live_edges":2,"live_newest_age_s":null,"profiles":null,"ready":true,"region":"quellhaven"}}"#
+            r#"{{"degraded_reason":null,"generation":4,"historical_age_s":1.5,"historical_path":"/state/historical.table","historical_problems":[],"historical_rows":10,"historical_source":"upload","historical_version":"v1","last_live_batch":null,"last_reload":{{"at":"2026-12-02T08:30:00.123Z","error":"bad","outcome":"rejected","report":{report_json},"table":"historical"}},"live_edges":2,"live_newest_age_s":null,"live_problems":["x"],"profiles":null,"ready":true,"region":"quellhaven"}}"#
         );
         assert_eq!(
             serde_json::to_string(&RegionStatusDto::new("quellhaven", &status)).unwrap(),

@@ -5,6 +5,7 @@
 //! as `serde_json::Value`s, whose keys serialize sorted, and keeping that
 //! order keeps the bytes.
 
+use crate::http::settings::ReadyWhen;
 use crate::serving::snapshot::RegionStatus;
 use serde::Serialize;
 
@@ -23,44 +24,79 @@ impl HealthResponse {
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct RegionReadiness {
     pub generation: u64,
-    /// Why the region is degraded (`null` while serving).
+    /// Why the region is not `serving` (`null` while it is, and while it
+    /// is still loading).
     pub reason: Option<String>,
     pub region: String,
-    /// `serving` or `degraded`.
+    /// `serving`: graph answers from the tables the rules choose;
+    /// `degraded`: graph answers, but a saved file or a table was refused
+    /// (the reason names it); `estimates_only`: no graph, every answer
+    /// comes from the heuristic tier; `loading`: no load has finished.
     pub state: &'static str,
 }
 
 impl RegionReadiness {
     pub fn new(region: &str, s: &RegionStatus) -> Self {
+        let problems: Vec<&str> = s
+            .historical_problems
+            .iter()
+            .chain(&s.live_problems)
+            .map(String::as_str)
+            .collect();
+        let (state, reason) = if s.loading {
+            ("loading", None)
+        } else if s.ready && problems.is_empty() {
+            ("serving", None)
+        } else if s.ready {
+            ("degraded", Some(problems.join("; ")))
+        } else {
+            let r = s.degraded_reason.as_deref().unwrap_or("no graph loaded");
+            ("estimates_only", Some(r.to_string()))
+        };
         RegionReadiness {
             generation: s.generation,
-            reason: s.degraded_reason.clone(),
+            reason,
             region: region.to_string(),
-            state: if s.ready { "serving" } else { "degraded" },
+            state,
         }
     }
 
+    /// Whether the region is anything but `serving`.
     pub fn degraded(&self) -> bool {
         !matches!(self.state, "serving")
     }
 }
 
-/// `GET /readyz`: ready once every region serves or is marked degraded.
+/// `GET /readyz`: whether the instance should take traffic under
+/// `server.ready_when`, and each region's state. Answered with 200 when
+/// `status` is `ready`, else 503.
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct ReadyResponse {
+    /// Regions that are not `serving`.
     pub degraded_regions: usize,
+    pub ready_when: &'static str,
     pub regions: Vec<RegionReadiness>,
-    /// Always `ready` (start-up waits for every region).
+    /// `ready` or `not_ready`.
     pub status: &'static str,
 }
 
-impl From<Vec<RegionReadiness>> for ReadyResponse {
-    fn from(regions: Vec<RegionReadiness>) -> Self {
+impl ReadyResponse {
+    pub fn new(regions: Vec<RegionReadiness>, when: ReadyWhen) -> Self {
+        let serving = regions.iter().filter(|r| !r.degraded()).count();
+        let ready = match when {
+            ReadyWhen::AllRegions => serving == regions.len(),
+            ReadyWhen::AnyRegion => serving > 0,
+        };
         ReadyResponse {
-            degraded_regions: regions.iter().filter(|r| r.degraded()).count(),
+            degraded_regions: regions.len() - serving,
+            ready_when: when.as_str(),
             regions,
-            status: "ready",
+            status: if ready { "ready" } else { "not_ready" },
         }
+    }
+
+    pub fn is_ready(&self) -> bool {
+        self.status == "ready"
     }
 }
 
@@ -68,22 +104,74 @@ impl From<Vec<RegionReadiness>> for ReadyResponse {
 mod tests {
     use super::*;
 
-    /// Byte for byte the form `/readyz` sent before the DTOs existed (a
-    /// `serde_json::Value`, keys sorted; captured from a degraded region).
+    /// The wire form (keys sorted, as when the answers were
+    /// `serde_json::Value`s), captured from a region without a graph; since
+    /// the readiness states were split, such a region is `estimates_only`
+    /// and the instance is `not_ready` under `all_regions`.
     #[test]
     fn readiness_keeps_its_wire_form() {
         let s = RegionStatus {
             degraded_reason: Some("no artifact".into()),
             ..RegionStatus::default()
         };
-        let r = ReadyResponse::from(vec![RegionReadiness::new("quellhaven", &s)]);
+        let r = ReadyResponse::new(
+            vec![RegionReadiness::new("quellhaven", &s)],
+            ReadyWhen::AllRegions,
+        );
         assert_eq!(
             serde_json::to_string(&r).unwrap(),
-            r#"{"degraded_regions":1,"regions":[{"generation":0,"reason":"no artifact","region":"quellhaven","state":"degraded"}],"status":"ready"}"#
+            r#"{"degraded_regions":1,"ready_when":"all_regions","regions":[{"generation":0,"reason":"no artifact","region":"quellhaven","state":"estimates_only"}],"status":"not_ready"}"#
         );
         assert_eq!(
             serde_json::to_string(&HealthResponse::ALIVE).unwrap(),
             r#"{"status":"alive"}"#
         );
+    }
+
+    /// Every state, and both `ready_when` choices, over two regions
+    /// (hand-enumerated: serving + each other state).
+    #[test]
+    fn states_and_ready_when() {
+        let serving = RegionStatus {
+            ready: true,
+            ..RegionStatus::default()
+        };
+        let degraded = RegionStatus {
+            ready: true,
+            historical_problems: vec!["saved historical table not restored: x".into()],
+            ..RegionStatus::default()
+        };
+        let estimates = RegionStatus {
+            degraded_reason: Some("no artifact".into()),
+            ..RegionStatus::default()
+        };
+        let loading = RegionStatus {
+            loading: true,
+            ..RegionStatus::default()
+        };
+        for (other, state) in [
+            (&degraded, "degraded"),
+            (&estimates, "estimates_only"),
+            (&loading, "loading"),
+        ] {
+            let regions = || {
+                vec![
+                    RegionReadiness::new("a", &serving),
+                    RegionReadiness::new("b", other),
+                ]
+            };
+            assert_eq!(regions()[0].state, "serving");
+            assert_eq!(regions()[1].state, state);
+            assert_eq!(regions()[1].reason.is_some(), state != "loading");
+            let all = ReadyResponse::new(regions(), ReadyWhen::AllRegions);
+            assert!(!all.is_ready(), "{state}");
+            assert_eq!(all.degraded_regions, 1);
+            assert!(ReadyResponse::new(regions(), ReadyWhen::AnyRegion).is_ready());
+        }
+        assert!(!ReadyResponse::new(
+            vec![RegionReadiness::new("b", &estimates)],
+            ReadyWhen::AnyRegion
+        )
+        .is_ready());
     }
 }

@@ -42,9 +42,9 @@ pub enum TableReadError {
     Parse { path: PathBuf, source: SpeedsError },
 }
 
-/// Why a load went ahead without a historical table (the region then
-/// serves free-flow for the historical tier; the artifact outcome's
-/// `error` carries this text).
+/// Why a candidate historical table was passed over at a load (the other
+/// candidate or free-flow then serves; the region's status and readiness
+/// name it).
 #[derive(Debug, thiserror::Error)]
 pub enum HistoricalNote {
     #[error("historical table not loaded: {0}")]
@@ -80,6 +80,10 @@ pub enum UpdateFailure {
     /// An accepted table could not be saved to the state directory.
     #[error("{0}")]
     Save(PersistError),
+    /// An accepted live batch could not be logged durably: it is applied
+    /// but not acknowledged (the caller sees a failure and may resend).
+    #[error("{0}")]
+    Wal(crate::serving::speeds::wal::WalError),
 }
 
 /// Why an update did not take effect.

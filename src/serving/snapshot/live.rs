@@ -7,7 +7,7 @@
 //! and saves on the `updates` thread, customizations on the customizer
 //! thread, the watched folder's `std::fs` calls on tokio's blocking pool.
 
-use super::load::live_state_path;
+use super::load::{live_state_path, live_wal_path};
 use super::{age_s, LiveMetric, RegionHandle, Snapshot};
 use crate::engine::region::{Metric, Region};
 use crate::serving::metrics as m;
@@ -60,13 +60,23 @@ fn blend_layer(
         .map(|stats| (blended, stats, newest))
 }
 
-/// Saves `layer` to `path` (creating its folder); whether it worked.
-fn save_layer(path: &Path, layer: &LiveLayer, index: &EdgeIndex, name: &str) -> bool {
+/// Saves `layer` to `path` (creating its folder), then empties the
+/// write-ahead log at `log`: every batch in it is in the saved layer (the
+/// caller holds the writer lock, so no batch is logged meanwhile). Whether
+/// the save worked.
+fn save_layer(path: &Path, log: &Path, layer: &LiveLayer, index: &EdgeIndex, name: &str) -> bool {
     if let Some(dir) = path.parent() {
         let _ = std::fs::create_dir_all(dir);
     }
     match save_live(path, layer, index) {
-        Ok(()) => true,
+        Ok(()) => {
+            if let Err(e) = crate::serving::speeds::wal::clear(log) {
+                // Harmless: the logged batches are replayed over the saved
+                // layer again, and newest per edge wins.
+                tracing::warn!(region = %name, error = %e, "live write-ahead log not emptied");
+            }
+            true
+        }
         Err(e) => {
             tracing::warn!(region = %name, error = %e, "live layer not saved");
             false
@@ -120,12 +130,13 @@ impl RegionHandle {
         };
         let (params, name) = (self.blend_params(), self.name.clone());
         let path = live_state_path(&self.cfg);
+        let log = live_wal_path(&self.cfg);
         let back = self
             .settings
             .updates
             .run(move || {
                 let mut layer = layer;
-                let saved = save.then(|| save_layer(&path, &layer, &base.index, &name));
+                let saved = save.then(|| save_layer(&path, &log, &layer, &base.index, &name));
                 let blended = match blend_layer(&base, &mut layer, now, params) {
                     Ok(b) => Some(b),
                     Err(e) => {
@@ -229,6 +240,10 @@ impl RegionHandle {
         if saved == Some(true) {
             guard.live_saved_at = Some(Instant::now());
             guard.live_changed = false;
+            // The saved layer replaced whatever the last load refused.
+            if !self.status.load().live_problems.is_empty() {
+                self.set_status(|s| s.live_problems.clear());
+            }
         }
         blended.map(|b| (b, now))
     }
@@ -254,9 +269,11 @@ impl RegionHandle {
             historical: cur.historical.clone(),
             historical_at: cur.historical_at,
             profiles: cur.profiles.clone(),
+            historical_source: cur.historical_source.clone(),
             live: Some(live),
             artifact_load: cur.artifact_load,
             artifact_at: cur.artifact_at,
+            artifact_stamp: cur.artifact_stamp,
         });
         if let Some(n) = newest {
             metrics::gauge!(m::LIVE_AGE, "region" => self.name.clone()).set(age_s(Utc::now(), n));
@@ -316,6 +333,10 @@ impl RegionHandle {
         let Some(dir) = self.cfg.live_dir.clone() else {
             return;
         };
+        if !self.loaded() {
+            // Files wait for the first load rather than be refused.
+            return;
+        }
         let Ok(Some(files)) = tokio::task::spawn_blocking(move || list_csv(&dir)).await else {
             return;
         };

@@ -25,8 +25,9 @@
 //!   [`RegionHandle::put_historical`], [`RegionHandle::put_live`]);
 //! - `live`: blending and publishing the live tier, the live loop and the
 //!   watched folder;
-//! - `load`: the file work of a load (artifact, historical table, saved
-//!   live layer), run on tokio's blocking pool;
+//! - `load`: the file work of a load (artifact, the rule choosing the
+//!   historical table, refusing damaged saved files, the saved live layer
+//!   with its write-ahead log replayed), run on tokio's blocking pool;
 //! - `error`: the typed errors ([`UpdateError`], [`LoadError`], ...).
 //!
 //! **Architecture Invariant:** nothing here knows about HTTP; the service
@@ -40,6 +41,7 @@ mod update;
 
 pub use buckets::{metric_bytes, ProfileUsed, Profiles};
 pub use error::{Degraded, HistoricalNote, LoadError, TableReadError, UpdateError, UpdateFailure};
+pub use load::FileStamp;
 
 use crate::engine::region::{Metric, Region};
 use crate::serving::customizer::Customizer;
@@ -66,17 +68,58 @@ pub struct Snapshot {
     /// Free-flow speed per edge (the base under the historical profile).
     pub free_flow_kmh: Arc<Vec<f32>>,
     pub historical: Option<Arc<HistoricalProfile>>,
-    /// When the serving historical table was accepted.
+    /// When the serving historical table was written: the configured
+    /// file's modification time or the upload's save time.
     pub historical_at: Option<DateTime<Utc>>,
     /// The historical tier: one customized metric per hour-of-week profile
     /// of `historical` (one free-flow profile without a table), all ready
     /// before this snapshot was published.
     pub profiles: Arc<Profiles>,
+    /// Where the serving historical table came from.
+    pub historical_source: Option<TableSource>,
     /// The blended live metric, once observations have arrived.
     pub live: Option<Arc<LiveMetric>>,
     /// Identifies the artifact load (increases with every reload).
     pub artifact_load: u64,
     pub artifact_at: DateTime<Utc>,
+    /// Length and modification time of the artifact file when it was
+    /// loaded: a reload that finds the same stamp re-reads only the tables.
+    pub artifact_stamp: Option<FileStamp>,
+}
+
+/// Where a historical table came from.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum TableSource {
+    /// The region's configured `historical` file.
+    Configured(std::path::PathBuf),
+    /// An upload, saved in the state directory at this path.
+    Upload(std::path::PathBuf),
+}
+
+impl TableSource {
+    /// `configured` or `upload`.
+    pub fn kind(&self) -> &'static str {
+        match self {
+            TableSource::Configured(_) => "configured",
+            TableSource::Upload(_) => "upload",
+        }
+    }
+
+    pub fn path(&self) -> &std::path::Path {
+        match self {
+            TableSource::Configured(p) | TableSource::Upload(p) => p,
+        }
+    }
+}
+
+/// What a reload did.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Reloaded {
+    /// Something changed and a new snapshot serves.
+    Accepted,
+    /// The artifact and the chosen table are the ones already serving:
+    /// nothing was published and the table's age is unchanged.
+    Unchanged,
 }
 
 /// A customized live blend.
@@ -93,12 +136,25 @@ pub struct LiveMetric {
 #[derive(Debug, Clone, Default)]
 pub struct RegionStatus {
     pub ready: bool,
+    /// The first load (artifact, tables, the current hour's metric) has
+    /// not finished yet.
+    pub loading: bool,
     /// Why the region serves no graph, when it does not.
     pub degraded_reason: Option<String>,
     pub generation: u64,
     pub historical_version: Option<String>,
     pub historical_rows: Option<u64>,
     pub historical_age_s: Option<f64>,
+    /// `configured` or `upload`.
+    pub historical_source: Option<&'static str>,
+    /// The configured file, or the saved upload in the state directory.
+    pub historical_path: Option<String>,
+    /// Why a candidate historical table was passed over at the last load
+    /// (a damaged saved table, an unreadable configured file).
+    pub historical_problems: Vec<String>,
+    /// Why the saved live layer or its write-ahead log was refused at the
+    /// last load (cleared once the layer is saved again).
+    pub live_problems: Vec<String>,
     pub live_edges: u64,
     pub live_newest_age_s: Option<f64>,
     pub last_reload: Option<ReloadOutcome>,
@@ -161,7 +217,7 @@ impl ProfilesStatus {
 pub struct ReloadOutcome {
     /// `historical`, `live` or `artifact`.
     pub table: &'static str,
-    /// `accepted`, `rejected` or `failed`.
+    /// `accepted`, `unchanged` (reload only), `rejected` or `failed`.
     pub outcome: &'static str,
     pub at: DateTime<Utc>,
     /// Error text for rejected/failed updates.
@@ -228,6 +284,8 @@ pub struct RegionHandle {
     wake: Notify,
     generation: AtomicU64,
     loads: AtomicU64,
+    /// Set once the first load finished (served or degraded).
+    loaded: AtomicBool,
 }
 
 impl std::fmt::Debug for RegionHandle {
@@ -239,12 +297,19 @@ impl std::fmt::Debug for RegionHandle {
 }
 
 impl RegionHandle {
-    /// Creates the handle and loads the region (artifact, then the saved or
-    /// configured historical table, then the saved live layer). A failed
-    /// artifact leaves the region degraded; the error is in its status.
+    /// Creates the handle and loads the region (see [`Self::load_first`]).
     pub async fn open(cfg: RegionConfig, settings: UpdateSettings) -> Arc<RegionHandle> {
+        let h = Self::new(cfg, settings);
+        h.load_first().await;
+        h
+    }
+
+    /// Creates the handle without loading anything: it reports itself
+    /// loading (and answers come from the heuristic tier) until
+    /// [`Self::load_first`] finishes.
+    pub fn new(cfg: RegionConfig, settings: UpdateSettings) -> Arc<RegionHandle> {
         let tz = cfg.time_zone.parse().unwrap_or(chrono_tz::UTC);
-        let h = Arc::new(RegionHandle {
+        Arc::new(RegionHandle {
             name: cfg.name.clone(),
             cfg,
             tz,
@@ -262,14 +327,28 @@ impl RegionHandle {
             wake: Notify::new(),
             generation: AtomicU64::new(0),
             loads: AtomicU64::new(0),
-        });
-        // Ready means ready to answer from the graph for any departure:
-        // `reload` publishes the first snapshot only once every profile is
-        // customized (a bounded amount of work: `query.profiles` metrics).
+            loaded: AtomicBool::new(false),
+        })
+    }
+
+    /// The first load: the artifact, then the historical table (by the
+    /// rule in `load`), then the saved live layer with its write-ahead log
+    /// replayed. A failed artifact leaves the region degraded; the error
+    /// is in its status.
+    pub async fn load_first(self: &Arc<Self>) {
+        let h = self;
         if let Err(e) = h.reload().await {
             tracing::warn!(region = %h.name, error = %e, "region starts degraded");
         }
-        h
+        // Ready means ready to answer from the graph for any departure:
+        // `reload` publishes the first snapshot only once every profile is
+        // customized (a bounded amount of work: `query.profiles` metrics).
+        h.loaded.store(true, Ordering::SeqCst);
+    }
+
+    /// Whether the first load has finished.
+    pub fn loaded(&self) -> bool {
+        self.loaded.load(Ordering::SeqCst)
     }
 
     /// The serving snapshot, or `None` while degraded.
@@ -279,6 +358,7 @@ impl RegionHandle {
 
     pub fn status(&self) -> RegionStatus {
         let mut s = (**self.status.load()).clone();
+        s.loading = !self.loaded();
         let now = Utc::now();
         if let Some(snap) = self.snapshot() {
             s.ready = true;
@@ -286,6 +366,11 @@ impl RegionHandle {
             s.historical_version = snap.historical.as_ref().map(|h| h.version().to_string());
             s.historical_rows = snap.historical.as_ref().map(|h| h.rows());
             s.historical_age_s = snap.historical_at.map(|t| age_s(now, t));
+            s.historical_source = snap.historical_source.as_ref().map(|x| x.kind());
+            s.historical_path = snap
+                .historical_source
+                .as_ref()
+                .map(|x| x.path().display().to_string());
             if let Some(l) = &snap.live {
                 s.live_edges = l.stats.fresh_edges;
                 s.live_newest_age_s = l.newest_observed_at.map(|t| age_s(now, t));

@@ -3,11 +3,24 @@
 //! heavy work off the request workers (the load on tokio's blocking pool,
 //! parsing/applying/saving on the `updates` thread, customization on the
 //! customizer thread), then publishes a new snapshot or records why not.
+//!
+//! A reload applies the table rule of [`super::load`] afresh; when the
+//! artifact file is unchanged (same length and modification time) it keeps
+//! the loaded graph and re-reads only the tables, and when the chosen
+//! table is the one serving it publishes nothing and reports
+//! [`Reloaded::Unchanged`]. An accepted live batch is appended to the
+//! write-ahead log and synced before it is acknowledged.
 
-use super::error::{Degraded, LoadError, UpdateError, UpdateFailure};
-use super::load::{historical_state_path, load_region, Loaded};
-use super::{LiveMetric, RegionHandle, ReloadOutcome, Snapshot, Writer};
+use super::error::{Degraded, HistoricalNote, LoadError, UpdateError, UpdateFailure};
+use super::load::{
+    choose_historical, file_stamp, historical_state_path, live_wal_path, load_region, Chosen,
+    Loaded, TableChoice,
+};
+use super::{
+    LiveMetric, RegionHandle, ReloadOutcome, Reloaded, Snapshot, TableSource, Writer,
+};
 use crate::serving::metrics as m;
+use crate::serving::speeds::wal::{self, BatchKind};
 use crate::serving::speeds::{
     save_historical, HistoricalProfile, LiveLayer, SpeedsError, TableReport,
 };
@@ -16,11 +29,21 @@ use std::sync::atomic::Ordering;
 use std::sync::Arc;
 
 impl RegionHandle {
-    /// Reloads the artifact and the historical table (saved state first,
-    /// else the configured file). On failure the serving snapshot, if any,
-    /// stays as it was.
-    pub async fn reload(self: &Arc<Self>) -> Result<(), UpdateError> {
+    /// Reloads the artifact (unless its file is unchanged) and chooses the
+    /// historical table afresh (the newer of the configured file and the
+    /// last upload). On failure the serving snapshot, if any, stays as it
+    /// was.
+    pub async fn reload(self: &Arc<Self>) -> Result<Reloaded, UpdateError> {
         let mut w = self.writer.lock().await;
+        if let Some(cur) = self.snapshot() {
+            let path = self.cfg.artifact.clone();
+            let stamp = tokio::task::spawn_blocking(move || file_stamp(&path))
+                .await
+                .map_err(|e| UpdateError::Failed(UpdateFailure::LoadTask(e)))?;
+            if stamp.is_some() && stamp == cur.artifact_stamp {
+                return self.reload_tables(&w, cur).await;
+            }
+        }
         let loaded = match self.load_off_worker(&w).await? {
             Ok(x) => x,
             Err(e) => return Err(self.load_failed(Arc::new(e))),
@@ -30,18 +53,26 @@ impl RegionHandle {
             region,
             index,
             historical,
-            note,
             restored_live,
+            live_problems,
+            artifact_stamp,
             at: now,
         } = loaded;
+        let TableChoice { table, problems } = historical;
+        let note = self.note_problems(&problems, Some(live_problems));
         // Live layer: keep the one held if the graph is the same size, else
         // bring back the saved one (read by the load).
         if let Some(restored) = restored_live {
+            if restored.is_some() {
+                // Replayed batches are saved with the layer at the next
+                // round, which then empties the log.
+                w.live_changed = true;
+            }
             w.live = restored;
         }
         let free_flow = Arc::new(region.graph.edge_speed_kmh.clone());
         let region = Arc::new(region);
-        let historical = historical.map(Arc::new);
+        let (historical, historical_source, historical_at) = split(table);
         // Every profile is customized before the first swap: no departure
         // hour of the new snapshot meets a cold metric.
         let profiles = self
@@ -52,12 +83,14 @@ impl RegionHandle {
             region,
             index: Arc::new(index),
             free_flow_kmh: free_flow,
-            historical_at: historical.as_ref().map(|_| now),
             historical,
+            historical_at,
+            historical_source,
             profiles,
             live: None,
             artifact_load: load_no,
             artifact_at: now,
+            artifact_stamp,
         };
         fresh.live = self.live_for_new_graph(&mut w, &fresh, now).await;
         self.publish(|g| Snapshot {
@@ -70,14 +103,116 @@ impl RegionHandle {
             table: "artifact",
             outcome: "accepted",
             at: now,
-            error: note.map(|n| n.to_string()),
+            error: note,
             report: None,
         });
         if w.live.is_some() {
             self.mark_live_dirty();
         }
         drop(w);
-        Ok(())
+        Ok(Reloaded::Accepted)
+    }
+
+    /// A reload over the same artifact: chooses the historical table again
+    /// and publishes only if it differs from the serving one.
+    async fn reload_tables(
+        self: &Arc<Self>,
+        w: &Writer,
+        cur: Arc<Snapshot>,
+    ) -> Result<Reloaded, UpdateError> {
+        let (cfg, index, v, name) = (
+            self.cfg.clone(),
+            cur.index.clone(),
+            self.settings.validation.clone(),
+            self.name.clone(),
+        );
+        let TableChoice { table, problems } =
+            tokio::task::spawn_blocking(move || choose_historical(&cfg, &index, &v, &name))
+                .await
+                .map_err(|e| UpdateError::Failed(UpdateFailure::LoadTask(e)))?;
+        let note = self.note_problems(&problems, None);
+        let now = Utc::now();
+        let same = match (&table, &cur.historical) {
+            (Some(c), Some(h)) => {
+                c.profile.version() == h.version()
+                    && Some(&c.source) == cur.historical_source.as_ref()
+            }
+            (None, None) => true,
+            _ => false,
+        };
+        if table.is_none() && cur.historical.is_some() && !problems.is_empty() {
+            // Every candidate failed (say, a bad edit of the configured
+            // file and no upload): keep serving the table that serves, and
+            // report the rejection (status, readiness, metrics).
+            self.record(ReloadOutcome {
+                table: "historical",
+                outcome: "rejected",
+                at: now,
+                error: note,
+                report: None,
+            });
+            return Ok(Reloaded::Unchanged);
+        }
+        if same {
+            self.record(ReloadOutcome {
+                table: "historical",
+                outcome: "unchanged",
+                at: now,
+                error: note,
+                report: None,
+            });
+            return Ok(Reloaded::Unchanged);
+        }
+        let (historical, historical_source, historical_at) = split(table);
+        // The serving profiles keep answering until all of the chosen
+        // table's are customized; only then does the swap happen.
+        let profiles = self
+            .customize_profiles(&cur.region, &cur.free_flow_kmh, historical.as_ref())
+            .await?;
+        self.publish(|g| Snapshot {
+            generation: g,
+            region: cur.region.clone(),
+            index: cur.index.clone(),
+            free_flow_kmh: cur.free_flow_kmh.clone(),
+            historical,
+            historical_at,
+            historical_source,
+            profiles,
+            live: cur.live.clone(),
+            artifact_load: cur.artifact_load,
+            artifact_at: cur.artifact_at,
+            artifact_stamp: cur.artifact_stamp,
+        });
+        self.record(ReloadOutcome {
+            table: "historical",
+            outcome: "accepted",
+            at: now,
+            error: note,
+            report: None,
+        });
+        if w.live.is_some() {
+            self.mark_live_dirty();
+        }
+        Ok(Reloaded::Accepted)
+    }
+
+    /// Puts a load's problems into the region's status (the historical
+    /// ones always, the live ones when the load read the live state) and
+    /// returns their text for the outcome's `error`.
+    fn note_problems(
+        &self,
+        historical: &[HistoricalNote],
+        live: Option<Vec<String>>,
+    ) -> Option<String> {
+        let texts: Vec<String> = historical.iter().map(|n| n.to_string()).collect();
+        let note = (!texts.is_empty()).then(|| texts.join("; "));
+        self.set_status(|s| {
+            s.historical_problems = texts;
+            if let Some(l) = live {
+                s.live_problems = l;
+            }
+        });
+        note
     }
 
     /// Runs the file work of a reload on tokio's blocking pool.
@@ -182,11 +317,15 @@ impl RegionHandle {
             free_flow_kmh: snap.free_flow_kmh.clone(),
             historical: Some(profile),
             historical_at: Some(now),
+            historical_source: Some(TableSource::Upload(historical_state_path(&self.cfg))),
             profiles,
             live: snap.live.clone(),
             artifact_load: snap.artifact_load,
             artifact_at: snap.artifact_at,
+            artifact_stamp: snap.artifact_stamp,
         });
+        // The upload replaced whatever the last load passed over.
+        self.set_status(|s| s.historical_problems.clear());
         self.record(ReloadOutcome {
             table: "historical",
             outcome: "accepted",
@@ -246,7 +385,20 @@ impl RegionHandle {
         };
         w.live = Some(layer);
         match r {
-            Ok(report) => {
+            Ok(Err(e)) => {
+                w.live_changed = true;
+                drop(w);
+                self.mark_live_dirty();
+                self.record(ReloadOutcome {
+                    table: "live",
+                    outcome: "failed",
+                    at: now,
+                    error: Some(e.to_string()),
+                    report: None,
+                });
+                Err(UpdateError::Failed(UpdateFailure::Wal(e)))
+            }
+            Ok(Ok(report)) => {
                 w.live_changed = true;
                 drop(w);
                 self.mark_live_dirty();
@@ -264,8 +416,10 @@ impl RegionHandle {
     }
 
     /// Parses and applies a batch on the `updates` thread: a large batch is
-    /// milliseconds of CPU that request workers should not spend. The
-    /// layer moves there and back; `None` if the job panicked.
+    /// milliseconds of CPU that request workers should not spend. An
+    /// accepted batch is then appended to the write-ahead log and synced
+    /// there, before the caller answers (the inner error: it could not be).
+    /// The layer moves there and back; `None` if the job panicked.
     async fn apply_batch(
         &self,
         snap: &Snapshot,
@@ -273,12 +427,13 @@ impl RegionHandle {
         body: &[u8],
         csv: bool,
         now: DateTime<Utc>,
-    ) -> Option<(LiveLayer, Result<TableReport, SpeedsError>)> {
+    ) -> Option<(LiveLayer, BatchResult)> {
         let (index, validation, body) = (
             snap.index.clone(),
             self.settings.validation.clone(),
             body.to_vec(),
         );
+        let (log, dir) = (live_wal_path(&self.cfg), self.cfg.state_dir.clone());
         self.settings
             .updates
             .run(move || {
@@ -287,8 +442,31 @@ impl RegionHandle {
                 } else {
                     layer.apply_json(&index, &body, now, &validation)
                 };
+                let r = r.map(|report| {
+                    let kind = if csv { BatchKind::Csv } else { BatchKind::Json };
+                    let _ = std::fs::create_dir_all(&dir);
+                    wal::append(&log, kind, &body, true).map(|()| report)
+                });
                 (layer, r)
             })
             .await
+    }
+}
+
+/// An applied batch: rejected (outer error), accepted but not logged
+/// (inner error), or accepted and durable.
+type BatchResult = Result<Result<TableReport, wal::WalError>, SpeedsError>;
+
+/// A chosen table as the snapshot's three historical fields.
+fn split(
+    table: Option<Chosen>,
+) -> (
+    Option<Arc<HistoricalProfile>>,
+    Option<TableSource>,
+    Option<DateTime<Utc>>,
+) {
+    match table {
+        Some(c) => (Some(Arc::new(c.profile)), Some(c.source), Some(c.at)),
+        None => (None, None, None),
     }
 }

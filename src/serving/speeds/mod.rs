@@ -19,6 +19,8 @@
 //!   representative profiles (exact or k-means), their deviation, and the
 //!   per-hour factors of the heuristic tier.
 //! - [`persist`]: atomic file writes and save/load of both tables.
+//! - [`wal`]: the write-ahead log of accepted live batches (framed, fsynced
+//!   before the answer, replayed at start).
 //! - [`report`]: the per-upload validation report (serde, returned as JSON).
 //! - [`config`]: validation limits (maximum speed, bad-row share, ...).
 //! - [`error`]: typed errors.
@@ -43,6 +45,7 @@ pub mod live;
 pub mod persist;
 pub mod profiles;
 pub mod report;
+pub mod wal;
 
 pub use blend::{blend, blend_into, live_weight, BlendStats};
 pub use clock::{hour_of_week, HOURS_PER_WEEK};
@@ -51,6 +54,9 @@ pub use edge_index::{EdgeIndex, Named, Refusal, SegmentKey};
 pub use error::{PersistError, SpeedsError};
 pub use historical::HistoricalProfile;
 pub use live::{LiveEntry, LiveLayer, Observation};
-pub use persist::{load_historical, load_live, save_historical, save_live, write_atomic};
+pub use persist::{
+    load_historical, load_live, open_historical, save_historical, save_live, write_atomic,
+    SavedTable,
+};
 pub use profiles::HourGrouping;
 pub use report::{ErrorKind, RowError, TableReport};

@@ -91,6 +91,34 @@ pub fn save_historical(path: &Path, csv: &[u8]) -> Result<(), PersistError> {
     write_atomic(path, &envelope(KIND_HISTORICAL, csv)).map_err(|e| io_err(path, e))
 }
 
+/// The intact payload of a saved historical table and when it was saved.
+#[derive(Debug, Clone)]
+pub struct SavedTable {
+    /// The accepted CSV, byte for byte as uploaded.
+    pub csv: Vec<u8>,
+    /// The file's modification time: when the upload was accepted (the
+    /// file is written once per upload and never touched otherwise). It is
+    /// what the "newer of configured file and last upload" rule compares.
+    pub saved_at: std::time::SystemTime,
+}
+
+/// Reads a saved historical table and checks its envelope (magic, version,
+/// kind, length, CRC-32) without parsing the CSV; `Ok(None)` when the file
+/// does not exist. A truncated, bit-flipped, empty or wrong-kind file is a
+/// [`PersistError::Corrupt`].
+pub fn open_historical(path: &Path) -> Result<Option<SavedTable>, PersistError> {
+    let Some(bytes) = read_if_exists(path)? else {
+        return Ok(None);
+    };
+    let saved_at = fs::metadata(path)
+        .and_then(|m| m.modified())
+        .map_err(|e| io_err(path, e))?;
+    let csv = open_envelope(&bytes, KIND_HISTORICAL)
+        .map_err(|reason| corrupt(path, reason))?
+        .to_vec();
+    Ok(Some(SavedTable { csv, saved_at }))
+}
+
 /// Loads a saved historical table and re-validates it; `Ok(None)` when the
 /// file does not exist. The profile has the same [`version`](HistoricalProfile::version)
 /// as when it was uploaded.
