@@ -737,3 +737,48 @@ fn scan(d: u32, x: u32, bucket: &[u32], row: &mut [u32], meet: &mut [u32]) {
         *m = if better { x } else { *m };
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::engine::cch::CchQuery;
+    use crate::engine::testing::{city, reference_dists, Rng};
+
+    /// Many-to-many with class times on random edge classes: every cell's
+    /// time equals petgraph's Dijkstra (the reference), its class times add
+    /// up to it, and they equal the point query's class times for the same
+    /// pair (itself checked against the unpacked path in `cch::query`).
+    #[test]
+    fn cell_class_times_equal_the_point_query() {
+        let art = city(3_000, 31);
+        let (g, cch) = (&art.graph, &art.cch);
+        let n = g.num_nodes();
+        let mut rng = Rng::new(12);
+        let speeds: Vec<f32> = (0..g.num_edges())
+            .map(|_| 5.0 + rng.below(116) as f32)
+            .collect();
+        let weights = crate::engine::metric::from_speeds(g, &speeds);
+        let classes: Vec<u8> = (0..g.num_edges()).map(|_| rng.below(3) as u8).collect();
+        let mut metric = CustomizedMetric::new(cch, &weights, &g.edge_len_m);
+        metric.set_classes(cch, &weights, &classes);
+        let sources: Vec<u32> = (0..12).map(|_| rng.below(n)).collect();
+        let targets: Vec<u32> = (0..15).map(|_| rng.below(n)).collect();
+        let (mut time, mut len, mut cls) = (Vec::new(), Vec::new(), Vec::new());
+        let mut m2m = ManyToMany::new(cch);
+        let cells = NodeCells::new(&mut time, &mut len).with_classes(&mut cls);
+        m2m.run_nodes(cch, &metric, &sources, &targets, None, cells)
+            .expect("matrix");
+        let mut q = CchQuery::new(cch);
+        for (i, &s) in sources.iter().enumerate() {
+            let reference = reference_dists(g, &weights, s);
+            for (j, &t) in targets.iter().enumerate() {
+                let k = i * targets.len() + j;
+                assert_eq!(Some(u64::from(time[k])), reference[t as usize]);
+                let sum: u64 = cls[k].iter().map(|&c| u64::from(c)).sum();
+                assert_eq!(sum, u64::from(time[k]), "class times add up");
+                let r = q.node_to_node(cch, &metric, s, t).expect("connected");
+                assert_eq!(cls[k], r.classes, "{s} -> {t}");
+            }
+        }
+    }
+}
