@@ -3,14 +3,15 @@
 //! graph permit is free → a metric is ready within the budget (live if
 //! "now" and fresh, else the departure hour's historical bucket). The first
 //! check that fails names the fallback reason; passing them all yields the
-//! snapshot, the chosen metric and the permit.
+//! snapshot, the chosen metric and the permit. The tier is not decided here:
+//! it depends on the sources the route actually used ([`Chosen::label`]).
 
 use super::Catalog;
 use crate::engine::calibration::Calibration;
 use crate::engine::region::Metric;
 use crate::serving::metrics as m;
 use crate::serving::snapshot::{LiveMetric, RegionHandle, Snapshot};
-use crate::serving::tier::{FallbackReason, Tier};
+use crate::serving::tier::{FallbackReason, Sources, Tier};
 use chrono::{DateTime, Utc};
 use std::sync::Arc;
 use std::time::Instant;
@@ -19,12 +20,49 @@ use tokio::sync::OwnedSemaphorePermit;
 /// Region name and snapshot generation an answer came from.
 pub(super) type Tag = Option<(String, u64)>;
 
-/// The metric for a departure, with its tier, reason and data age.
+/// The metric for a departure, and what the region's data said about it.
 pub(super) struct Chosen {
     pub metric: Arc<MetricRef>,
-    pub tier: Tier,
-    pub reason: Option<FallbackReason>,
-    pub age_s: Option<f64>,
+    /// The state of live data for this departure.
+    pub live: LiveState,
+    /// Age (s) of the newest live observation when `live` is fresh.
+    pub live_age_s: Option<f64>,
+    /// Age (s) of the historical table, when the region has one.
+    pub historical_age_s: Option<f64>,
+}
+
+/// Live data as seen by one departure.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(super) enum LiveState {
+    /// The departure is away from now: live data does not apply.
+    NotWanted,
+    /// Leaving now; the region holds no live layer.
+    NoData,
+    /// Leaving now; the region holds live observations, none fresh.
+    Stale,
+    /// Leaving now; the region holds fresh live data (the live metric).
+    Fresh,
+}
+
+impl Chosen {
+    /// Tier, reason and data age of a graph answer that used `sources`
+    /// (the rules in [`crate::serving::tier`]).
+    pub fn label(&self, sources: &Sources) -> (Tier, Option<FallbackReason>, Option<f64>) {
+        let tier = sources.tier();
+        let reason = match (tier, self.live) {
+            (Tier::Live, _) | (_, LiveState::NotWanted) => None,
+            (_, LiveState::NoData) => Some(FallbackReason::NoLiveData),
+            (_, LiveState::Stale) => Some(FallbackReason::LiveStale),
+            (_, LiveState::Fresh) if sources.live > 0.0 => Some(FallbackReason::LiveMinority),
+            (_, LiveState::Fresh) => Some(FallbackReason::NoLiveOnRoute),
+        };
+        let age = match tier {
+            Tier::Live => self.live_age_s,
+            Tier::Historical => self.historical_age_s,
+            Tier::FreeFlow | Tier::Heuristic => None,
+        };
+        (tier, reason, age)
+    }
 }
 
 /// A metric owned by a snapshot: either its live blend or a bucket.
@@ -162,7 +200,12 @@ async fn choose(
     let ttl = cat.cfg.live.ttl_s;
     let t = depart.unwrap_or(now);
     let leaving_now = ((t - now).num_milliseconds() as f64 / 1000.0).abs() <= ttl;
-    let mut reason = None;
+    let historical_age_s = snap
+        .historical
+        .as_ref()
+        .and(snap.historical_at)
+        .map(|a| ((now - a).num_milliseconds() as f64 / 1000.0).max(0.0));
+    let mut live = LiveState::NotWanted;
     if leaving_now {
         match &snap.live {
             Some(l) => {
@@ -172,24 +215,22 @@ async fn choose(
                 if l.stats.any_fresh && age.map(|a| a <= ttl).unwrap_or(false) {
                     return Some(Chosen {
                         metric: Arc::new(MetricRef::Live(l.clone())),
-                        tier: Tier::Live,
-                        reason: None,
-                        age_s: age.map(|a| a.max(0.0)),
+                        live: LiveState::Fresh,
+                        live_age_s: age.map(|a| a.max(0.0)),
+                        historical_age_s,
                     });
                 }
-                reason = Some(FallbackReason::LiveStale);
+                live = LiveState::Stale;
             }
-            None => reason = Some(FallbackReason::NoLiveData),
+            None => live = LiveState::NoData,
         }
     }
     let hour = crate::serving::speeds::hour_of_week(t, handle.tz);
     let bucket = handle.bucket(snap, hour, deadline).await?;
     Some(Chosen {
         metric: Arc::new(MetricRef::Bucket(bucket)),
-        tier: Tier::Historical,
-        reason,
-        age_s: snap
-            .historical_at
-            .map(|a| ((now - a).num_milliseconds() as f64 / 1000.0).max(0.0)),
+        live,
+        live_age_s: None,
+        historical_age_s,
     })
 }

@@ -11,11 +11,14 @@
 //!    calibration), `overloaded`;
 //! 4. pick the metric: live if the departure is "now" (within the TTL) and
 //!    the region holds fresh live data; otherwise the historical bucket of
-//!    the departure hour (reason `no_live_data` / `live_stale` when live was
-//!    wanted); a bucket not customized within the budget →
+//!    the departure hour; a bucket not customized within the budget →
 //!    heuristic, `budget_exceeded`;
 //! 5. snap and search: off-road → `off_network`, no path → `unreachable`,
-//!    both from the region's calibration.
+//!    both from the region's calibration;
+//! 6. label: the route's sources (time shares on live, historical and
+//!    free-flow edges) give its tier, and with the live state of step 4
+//!    its reason (`no_live_data`, `live_stale`, `no_live_on_route`,
+//!    `live_minority`; see [`crate::serving::tier`]).
 //!
 //! # Layout
 //!
@@ -43,7 +46,7 @@ use crate::engine::geo::LatLon;
 use crate::serving::admission::Admission;
 use crate::serving::settings::ServingSettings;
 use crate::serving::snapshot::RegionHandle;
-use crate::serving::tier::{FallbackReason, Tier};
+use crate::serving::tier::{FallbackReason, Sources, Tier};
 use std::sync::Arc;
 use std::time::Duration;
 use tokio::sync::Semaphore;
@@ -100,7 +103,11 @@ pub struct Answer {
     pub meters: f64,
     pub tier: Tier,
     pub reason: Option<FallbackReason>,
+    /// Age (s) of the data behind the tier: the newest live observation
+    /// (`live`), the historical table (`historical`); none otherwise.
     pub speeds_age_s: Option<f64>,
+    /// Shares of the travel time per speed source (graph answers only).
+    pub sources: Option<Sources>,
     /// Region name and snapshot generation, when a region answered.
     pub snapshot: Option<(String, u64)>,
     pub from_snap_m: Option<f64>,
@@ -116,6 +123,8 @@ pub struct CellAnswer {
     pub meters: f64,
     pub tier: Tier,
     pub reason: Option<FallbackReason>,
+    /// Shares of the travel time per speed source (graph cells only).
+    pub sources: Option<Sources>,
 }
 
 /// A matrix answer, row-major.

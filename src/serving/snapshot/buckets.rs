@@ -1,13 +1,16 @@
 //! The request path's historical bucket metrics: one customized metric per
 //! (table version, hour of week), made on the customizer thread on first
 //! use (or by the warm-up), kept in a small copy-on-write list; evicted ones
-//! are freed on the `updates` thread once no request holds them.
+//! are freed on the `updates` thread once no request holds them. Each
+//! bucket metric labels its edges historical or free-flow
+//! ([`crate::serving::speeds::sources::hour_classes`]) so answers report
+//! their sources.
 
 use super::{RegionHandle, Snapshot};
 use crate::engine::region::Metric;
 use crate::serving::metrics as m;
 use crate::serving::retire::Retiree;
-use crate::serving::speeds::HistoricalProfile;
+use crate::serving::speeds::{sources, HistoricalProfile};
 use chrono::Utc;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::{Arc, OnceLock};
@@ -162,7 +165,9 @@ impl RegionHandle {
                 Some(h) => h.speeds_for_hour(&ff, hour),
                 None => ff.to_vec(),
             };
-            let metric = region.metric(crate::engine::metric::from_speeds(&region.graph, &speeds));
+            let classes = sources::hour_classes(hist.as_deref(), speeds.len(), hour);
+            let weights = crate::engine::metric::from_speeds(&region.graph, &speeds);
+            let metric = region.metric_with_classes(weights, classes);
             metrics::histogram!(m::CUSTOMIZATION, "region" => name, "kind" => "historical")
                 .record(t.elapsed().as_secs_f64());
             let _ = slot.cell.set(Arc::new(metric));

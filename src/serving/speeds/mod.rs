@@ -14,6 +14,8 @@
 //! - [`live`]: recent observations (JSON batch or CSV), newest per edge wins.
 //! - [`blend`](mod@blend): historical bucket + live layer → one speed vector, with
 //!   exponential decay of the live weight.
+//! - [`sources`]: the source class of each edge's speed (free-flow,
+//!   historical, live), next to the speed vector it describes.
 //! - [`persist`]: atomic file writes and save/load of both tables.
 //! - [`report`]: the per-upload validation report (serde, returned as JSON).
 //! - [`config`]: validation limits (maximum speed, bad-row share, ...).
@@ -38,6 +40,7 @@ pub mod historical;
 pub mod live;
 pub mod persist;
 pub mod report;
+pub mod sources;
 
 pub use blend::{blend, blend_into, live_weight, BlendStats};
 pub use clock::{hour_of_week, HOURS_PER_WEEK};
