@@ -21,7 +21,9 @@ pub use admin::{
     RowErrorDto, StatusResponse, TableReportDto,
 };
 pub use probe::{HealthResponse, ReadyResponse, RegionReadiness};
-pub use public::{round3, EtaResponse, LineString, MatrixResponse, RouteResponse, SnapshotRef};
+pub use public::{
+    round3, EtaResponse, LineString, MatrixResponse, RouteResponse, SnapshotRef, SourcesDto,
+};
 pub use request::{
     parse_depart_at, parse_eta_query, parse_json, Coord, EtaRequest, MatrixRequest, MatrixTrip,
     Trip,
