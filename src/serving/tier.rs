@@ -43,7 +43,12 @@ pub enum Tier {
 }
 
 impl Tier {
-    pub const ALL: [Tier; 4] = [Tier::Live, Tier::Historical, Tier::FreeFlow, Tier::Heuristic];
+    pub const ALL: [Tier; 4] = [
+        Tier::Live,
+        Tier::Historical,
+        Tier::FreeFlow,
+        Tier::Heuristic,
+    ];
 
     pub fn as_str(self) -> &'static str {
         match self {
@@ -186,7 +191,10 @@ mod tests {
         let x = s(1000, 2000, 1000);
         assert_eq!((x.live, x.historical, x.free_flow), (0.25, 0.5, 0.25));
         // A zero-time trip counts in its road's class.
-        assert_eq!(Sources::from_class_ms(&[0; 3], HISTORICAL).tier(), Tier::Historical);
+        assert_eq!(
+            Sources::from_class_ms(&[0; 3], HISTORICAL).tier(),
+            Tier::Historical
+        );
         let z = Sources::from_class_ms(&[0; 3], FREE_FLOW);
         assert_eq!(z.live + z.historical + z.free_flow, 1.0);
     }

@@ -494,13 +494,18 @@ mod tests {
                 expect[classes[e as usize] as usize] += u64::from(weights[e as usize]);
             }
             assert_eq!(r.classes.map(u64::from), expect);
-            assert_eq!(r.classes.iter().map(|&c| u64::from(c)).sum::<u64>(), u64::from(r.time));
+            assert_eq!(
+                r.classes.iter().map(|&c| u64::from(c)).sum::<u64>(),
+                u64::from(r.time)
+            );
             mixed += usize::from(expect.iter().filter(|&&c| c > 0).count() == 3);
         }
         assert!(mixed > 100, "{mixed} paths touch all three classes");
         // Without classes the result carries none.
         let plain = CustomizedMetric::new(cch, &weights, &g.edge_len_m);
-        let r = q.node_to_node(cch, &plain, 0, (n - 1) as u32).expect("connected");
+        let r = q
+            .node_to_node(cch, &plain, 0, (n - 1) as u32)
+            .expect("connected");
         assert_eq!(r.classes, [0; CLASSES]);
     }
 }

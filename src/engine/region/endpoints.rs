@@ -134,7 +134,10 @@ pub(crate) struct Direct {
 impl Direct {
     /// The trip's time in the class of its edge.
     #[inline]
-    pub(crate) fn classes(&self, metric: &super::Metric) -> crate::engine::cch::classes::ClassTimes {
+    pub(crate) fn classes(
+        &self,
+        metric: &super::Metric,
+    ) -> crate::engine::cch::classes::ClassTimes {
         crate::engine::cch::classes::single(metric.class_of(self.edge), self.time_ms as u32)
     }
 }

@@ -5,10 +5,10 @@
 //! own sources, hence its own tier and reason.
 
 use super::gate::{gate, Chosen, Granted, MetricRef};
-use crate::engine::cch::classes::ClassTimes;
 use super::scratch::{with_scratch, ScratchCache};
 use super::{Catalog, CellAnswer, MatrixAnswer};
 use crate::engine::calibration::Calibration;
+use crate::engine::cch::classes::ClassTimes;
 use crate::engine::cch::matrix::ManyToMany;
 use crate::engine::geo::LatLon;
 use crate::engine::region::matrix::{matrix, Cell, MatrixLimits, PointMatrix};

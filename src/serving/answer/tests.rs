@@ -605,7 +605,10 @@ async fn sources_name_the_speeds_the_route_used() {
     // No table, no live data: all free-flow, 900 m at 36 km/h = 90 s.
     let r = trip(&cat, a, b, None, Some(2000), false, true).await;
     assert_eq!((r.tier, r.reason), (Tier::FreeFlow, Some(R::NoLiveData)));
-    assert_eq!((r.eta_s, shares(&r), r.speeds_age_s), (90.0, (0.0, 0.0, 1.0), None));
+    assert_eq!(
+        (r.eta_s, shares(&r), r.speeds_age_s),
+        (90.0, (0.0, 0.0, 1.0), None)
+    );
     let later = Utc::now() + Days::days(7);
     let r = trip(&cat, a, b, Some(later), Some(2000), false, true).await;
     assert_eq!((r.tier, r.reason), (Tier::FreeFlow, None));
@@ -656,14 +659,20 @@ async fn sources_name_the_speeds_the_route_used() {
     let c = mx.cells[0];
     assert_eq!((c.tier, c.reason, c.eta_s), (r.tier, r.reason, r.eta_s));
     assert!(near(
-        c.sources.map(|s| (s.live, s.historical, s.free_flow)).unwrap(),
+        c.sources
+            .map(|s| (s.live, s.historical, s.free_flow))
+            .unwrap(),
         (0.32, 0.36, 0.32)
     ));
 
     // The whole road on fresh live data: 40 + 60 + 80 = 180 s, all live.
     observe(&region, &[(2, 3), (3, 4)], 18.0).await;
     let r = trip(&cat, a, b, None, Some(2000), false, true).await;
-    assert_eq!((r.tier, r.reason, r.eta_s), (Tier::Live, None, 180.0), "{r:?}");
+    assert_eq!(
+        (r.tier, r.reason, r.eta_s),
+        (Tier::Live, None, 180.0),
+        "{r:?}"
+    );
     assert_eq!(shares(&r), (1.0, 0.0, 0.0));
     assert!(r.speeds_age_s.is_some_and(|s| s < 60.0));
     // The other way (outside ids 4→1) has no live data and no table row

@@ -108,7 +108,7 @@ pub async fn trip(
                 speeds_age_s: age,
                 sources: Some(sources),
                 snapshot: tag,
-            from_snap_m: Some(eta.from.distance_m),
+                from_snap_m: Some(eta.from.distance_m),
                 to_snap_m: Some(eta.to.distance_m),
                 geometry,
             }

@@ -16,7 +16,8 @@ use super::{age_s, LiveMetric, RegionHandle, Snapshot};
 use crate::engine::region::{Metric, Region};
 use crate::serving::metrics as m;
 use crate::serving::speeds::{
-    blend_into, save_live, sources, BlendStats, EdgeIndex, HistoricalProfile, LiveLayer, SpeedsError,
+    blend_into, save_live, sources, BlendStats, EdgeIndex, HistoricalProfile, LiveLayer,
+    SpeedsError,
 };
 use chrono::{DateTime, Utc};
 use std::path::{Path, PathBuf};
