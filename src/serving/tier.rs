@@ -5,7 +5,7 @@
 //!
 //! Every graph answer (ETA, route, matrix cell) reports [`Sources`]: the
 //! share of its travel time on edges whose speed was a fresh live
-//! observation blended in (`live`), the historical table's row for that
+//! observation blended in (`live`; fresh when the live blend was made), the historical table's row for that
 //! edge and hour (`historical`), or the edge's default free-flow speed
 //! (`free_flow`). Shares add up to 1; partial first/last edges count with
 //! their partial time. A trip of zero time counts wholly in the source of
@@ -25,6 +25,12 @@
 //! `fallback_reason` says why an answer is not `live`; `None` when it is
 //! `live`, and for graph answers with a departure time away from now (live
 //! data does not apply). Each reason's exact condition is on its variant.
+//!
+//! # Data age
+//!
+//! `speeds_age_s` is the age of the data behind the tier: the region's
+//! newest live observation for `live`, the historical table's upload for
+//! `historical`, none for `free_flow` and `heuristic`.
 
 use serde::Serialize;
 
@@ -110,8 +116,8 @@ impl Sources {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
 #[serde(rename_all = "snake_case")]
 pub enum FallbackReason {
-    /// Leaving now, and the region has received no live observation (or
-    /// none survived its TTL since the last restart).
+    /// Leaving now, and the region holds no live layer (it has received
+    /// no live observation).
     NoLiveData,
     /// Leaving now, and the region holds live observations, none fresh.
     LiveStale,
