@@ -101,8 +101,9 @@ pub async fn route(State(state): State<AppState>, req: Request) -> Result<Respon
 
 /// Counts a matrix's cells per (tier, reason), recording each count once (a
 /// 20×20 matrix would otherwise do 400 labelled-counter lookups), and
-/// returns the latency tier label: the cells' common tier, `heuristic` when
-/// they mix, `none` for no cells.
+/// returns the latency tier label: the cells' worst tier (best first:
+/// live, historical, free_flow, heuristic; cells of one matrix carry their
+/// own tiers), `none` for no cells.
 fn count_cells(cells: &[CellAnswer]) -> &'static str {
     let mut best: Option<Tier> = None;
     let mut counts: Vec<(Tier, Option<FallbackReason>, u64)> = Vec::new();
@@ -114,11 +115,7 @@ fn count_cells(cells: &[CellAnswer]) -> &'static str {
             Some(k) => k.2 += 1,
             None => counts.push((c.tier, c.reason, 1)),
         }
-        best = Some(match best {
-            None => c.tier,
-            Some(b) if b == c.tier => b,
-            Some(_) => Tier::Heuristic,
-        });
+        best = Some(best.map_or(c.tier, |b| b.max(c.tier)));
     }
     for (t, r, n) in counts {
         crate::serving::metrics::answer(routes::MATRIX, t, r, n);

@@ -34,8 +34,9 @@
 
 use serde::Serialize;
 
-/// Which source carried an answer.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+/// Which source carried an answer; ordered best first (`Ord`: a worse tier
+/// is greater).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Tier {
     /// Most of the route's time lies on edges with fresh live observations.
