@@ -350,12 +350,17 @@ async fn every_tier_and_reason() {
     let (a, b) = (at(0.25, 0.3), at(0.75, 0.7));
     let trip = json!({"from": coord(a), "to": coord(b), "budget_ms": 2000});
 
-    // No live data yet → historical, no_live_data.
+    // No live data yet, no table → free_flow, no_live_data; all of the
+    // time on free-flow speeds.
     let r = post_json(&pub_app, "/v1/eta", &trip).await.json();
     assert_eq!(
         (r["tier"].as_str(), r["fallback_reason"].as_str()),
-        (Some("historical"), Some("no_live_data")),
+        (Some("free_flow"), Some("no_live_data")),
         "{r}"
+    );
+    assert_eq!(
+        r["sources"],
+        json!({"live": 0.0, "historical": 0.0, "free_flow": 1.0})
     );
     let historical_eta = r["eta_s"].as_f64().unwrap();
     assert!(historical_eta > 0.0 && r["meters"].as_f64().unwrap() > 0.0);
@@ -379,6 +384,10 @@ async fn every_tier_and_reason() {
     let r = post_json(&pub_app, "/v1/eta", &trip).await.json();
     assert_eq!(r["tier"], "live", "{r}");
     assert!(r["fallback_reason"].is_null());
+    assert_eq!(
+        r["sources"],
+        json!({"live": 1.0, "historical": 0.0, "free_flow": 0.0})
+    );
     assert!(
         r["eta_s"].as_f64().unwrap() > historical_eta,
         "12 km/h everywhere must be slower: {r} vs {historical_eta}"
@@ -400,7 +409,8 @@ async fn every_tier_and_reason() {
     let r = post_json(&pub_app, "/v1/eta", &trip).await.json();
     assert_eq!(r["tier"], "live", "right after a reload: {r}");
 
-    // A departure next week is not "now": historical, and no fallback reason.
+    // A departure next week is not "now": free_flow (no table), and no
+    // fallback reason.
     let later_t = chrono::Utc::now() + chrono::Duration::days(7);
     let later = later_t.to_rfc3339();
     let r = post_json(
@@ -410,7 +420,7 @@ async fn every_tier_and_reason() {
     )
     .await
     .json();
-    assert_eq!(r["tier"], "historical", "{r}");
+    assert_eq!(r["tier"], "free_flow", "{r}");
     assert!(r["fallback_reason"].is_null(), "{r}");
     // It names its hour of week (chrono: days since Monday × 24 + hour, in
     // the region's UTC) and the profile that answered; without a table that
@@ -420,7 +430,8 @@ async fn every_tier_and_reason() {
     assert_eq!(r["hour_of_week"].as_u64(), Some(u64::from(hour)), "{r}");
     assert_eq!(r["profile"]["index"], 0, "{r}");
 
-    // Observations older than the TTL (600 s) → historical, live_stale.
+    // Observations older than the TTL (600 s) → free_flow (no table),
+    // live_stale.
     let old = (chrono::Utc::now() - chrono::Duration::seconds(3600)).to_rfc3339();
     let (st2, _d2) = state("").await;
     let r2 = st2.catalog.regions[0].clone();
@@ -432,9 +443,27 @@ async fn every_tier_and_reason() {
     let r = post_json(&app(st2.clone()), "/v1/eta", &trip).await.json();
     assert_eq!(
         (r["tier"].as_str(), r["fallback_reason"].as_str()),
-        (Some("historical"), Some("live_stale")),
+        (Some("free_flow"), Some("live_stale")),
         "{r}"
     );
+
+    // One fresh observation on a single road of a region without a table:
+    // the route is (almost) all free-flow, so never live, and the reason
+    // does not claim the region has no live data.
+    let (st3, _d3) = state("").await;
+    let r3 = st3.catalog.regions[0].clone();
+    let one = tables::observations(1, 20.0, &chrono::Utc::now().to_rfc3339(), 1);
+    r3.put_live(&serde_json::to_vec(&one).unwrap(), false)
+        .await
+        .unwrap();
+    assert!(r3.refresh_live(true).await);
+    let r = post_json(&app(st3.clone()), "/v1/eta", &trip).await.json();
+    assert_eq!(r["tier"], "free_flow", "{r}");
+    assert!(
+        r["fallback_reason"] == "no_live_on_route" || r["fallback_reason"] == "live_minority",
+        "{r}"
+    );
+    assert!(r["speeds_age_s"].is_null(), "no live age claimed: {r}");
 
     // Far off-road but inside the coverage → heuristic, off_network.
     let corner = hodos::engine::geo::LatLon::new(c.lo.lat - 0.04, c.lo.lon - 0.04);
@@ -451,6 +480,7 @@ async fn every_tier_and_reason() {
         "{r}"
     );
     assert!(r["eta_s"].as_f64().unwrap() > 0.0);
+    assert!(r["sources"].is_null(), "heuristic answers have no sources");
 
     // Outside every region → heuristic, outside_regions, no snapshot.
     let r = send(

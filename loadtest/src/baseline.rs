@@ -17,10 +17,17 @@ use axum::routing::post;
 use axum::{Json, Router};
 use hodos::http::dto::{
     parse_json, EtaRequest, EtaResponse, LineString, MatrixRequest, MatrixResponse, ProfileRef,
-    RouteResponse, SnapshotRef,
+    RouteResponse, SnapshotRef, SourcesDto,
 };
 use hodos::http::problem::ApiError;
 use std::net::SocketAddr;
+
+/// The fixed answer's sources: all of its time on historical speeds.
+const ALL_HISTORICAL: SourcesDto = SourcesDto {
+    live: 0.0,
+    historical: 1.0,
+    free_flow: 0.0,
+};
 
 /// The fixed answer every trip gets.
 fn fixed_eta() -> EtaResponse {
@@ -30,6 +37,7 @@ fn fixed_eta() -> EtaResponse {
         tier: "historical",
         fallback_reason: Some("no_live_data"),
         speeds_age_s: None,
+        sources: Some(ALL_HISTORICAL),
         snapshot: Some(SnapshotRef {
             region: "baseline".into(),
             generation: 1,
@@ -71,6 +79,7 @@ async fn matrix(State(l): State<Limits>, body: Bytes) -> Result<Response, ApiErr
         meters: vec![vec![5000.0; c]; r],
         tier: vec![vec!["historical"; c]; r],
         fallback_reason: vec![vec![Some("no_live_data"); c]; r],
+        sources: vec![vec![Some(ALL_HISTORICAL); c]; r],
         snapshot: Some(SnapshotRef {
             region: "baseline".into(),
             generation: 1,

@@ -105,8 +105,9 @@ pub async fn route(State(state): State<AppState>, req: Request) -> Result<Respon
 
 /// Counts a matrix's cells per (region, tier, reason), recording each count
 /// once (a 20×20 matrix would otherwise do 400 labelled-counter lookups),
-/// and returns the latency tier label: the cells' common tier, `heuristic`
-/// when they mix, `none` for no cells.
+/// and returns the latency tier label: the cells' worst tier (best first:
+/// live, historical, free_flow, heuristic; cells of one matrix carry their
+/// own tiers), `none` for no cells.
 fn count_cells(state: &AppState, cells: &[CellAnswer]) -> &'static str {
     let mut best: Option<Tier> = None;
     let mut counts: Vec<(Option<u16>, Tier, Option<FallbackReason>, u64)> = Vec::new();
@@ -118,11 +119,7 @@ fn count_cells(state: &AppState, cells: &[CellAnswer]) -> &'static str {
             Some(k) => k.3 += 1,
             None => counts.push((c.region, c.tier, c.reason, 1)),
         }
-        best = Some(match best {
-            None => c.tier,
-            Some(b) if b == c.tier => b,
-            Some(_) => Tier::Heuristic,
-        });
+        best = Some(best.map_or(c.tier, |b| b.max(c.tier)));
     }
     for (g, t, r, n) in counts {
         let region = state.catalog.region_label(g);

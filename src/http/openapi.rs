@@ -178,7 +178,7 @@ pub fn document() -> Value {
         "info": {
             "title": "hodos travel-time API",
             "version": env!("CARGO_PKG_VERSION"),
-            "description": "Travel times (ETAs), matrices and routes over road graphs, with live, historical and heuristic tiers. Every valid request gets an answer that says which tier produced it and why. Estimates only: see the README's cautions.",
+            "description": "Travel times (ETAs), matrices and routes over road graphs, with live, historical, free-flow and heuristic tiers and the share of each answer's time on each speed source. Every valid request gets an answer that says which tier produced it and why. Estimates only: see the README's cautions.",
             "license": {"name": "MIT OR Apache-2.0", "identifier": "MIT OR Apache-2.0"}
         },
         "servers": [{"url": "http://127.0.0.1:8080", "description": "public API (default listener)"},
@@ -191,8 +191,16 @@ pub fn document() -> Value {
     })
 }
 
-/// The component schemas, one per DTO of [`super::dto`].
+/// The component schemas, one per DTO of [`super::dto`]. Tiers and
+/// reasons are the serving layer's closed sets.
 fn schemas() -> Value {
+    use crate::serving::tier::{FallbackReason, Tier};
+    let tiers: Vec<Value> = Tier::ALL.iter().map(|t| json!(t.as_str())).collect();
+    let mut reasons: Vec<Value> = FallbackReason::ALL
+        .iter()
+        .map(|r| json!(r.as_str()))
+        .collect();
+    reasons.push(Value::Null);
     json!({
         "Coord": {"type": "object", "required": ["lat", "lon"], "additionalProperties": false,
             "properties": {"lat": {"type": "number", "minimum": -90, "maximum": 90}, "lon": {"type": "number", "minimum": -180, "maximum": 180}}},
@@ -203,12 +211,18 @@ fn schemas() -> Value {
             "properties": {"from": {"type": "array", "minItems": 1, "items": {"$ref": "#/components/schemas/Coord"}},
                            "to": {"type": "array", "minItems": 1, "items": {"$ref": "#/components/schemas/Coord"}},
                            "leaving": {"type": "string", "format": "date-time", "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"}, "budget_ms": {"type": "integer", "minimum": 1}}},
-        "Tier": {"type": "string", "enum": ["live", "historical", "heuristic"]},
-        "FallbackReason": {"type": ["string", "null"], "enum": ["no_live_data", "live_stale", "off_network", "unreachable", "budget_exceeded", "overloaded", "outside_regions", "region_unavailable", null]},
+        "Tier": {"type": "string", "enum": tiers,
+            "description": "The speed source with the largest share of the travel time (ties to the better: live, historical, free_flow); heuristic when the graph gave no answer"},
+        "FallbackReason": {"type": ["string", "null"], "enum": reasons},
+        "Sources": {"type": ["object", "null"], "required": ["live", "historical", "free_flow"], "additionalProperties": false,
+            "description": "Shares of the travel time on live, historical and free-flow speeds (adding up to 1); null for heuristic answers",
+            "properties": {"live": {"type": "number", "minimum": 0, "maximum": 1}, "historical": {"type": "number", "minimum": 0, "maximum": 1},
+                           "free_flow": {"type": "number", "minimum": 0, "maximum": 1}}},
         "SnapshotRef": {"type": ["object", "null"], "properties": {"region": {"type": "string"}, "generation": {"type": "integer"}}},
-        "EtaResponse": {"type": "object", "required": ["eta_s", "meters", "tier", "fallback_reason", "speeds_age_s", "snapshot"],
+        "EtaResponse": {"type": "object", "required": ["eta_s", "meters", "tier", "fallback_reason", "speeds_age_s", "sources", "snapshot"],
             "properties": {"eta_s": {"type": "number"}, "meters": {"type": "number"}, "tier": {"$ref": "#/components/schemas/Tier"},
                            "fallback_reason": {"$ref": "#/components/schemas/FallbackReason"}, "speeds_age_s": {"type": ["number", "null"]},
+                           "sources": {"$ref": "#/components/schemas/Sources"},
                            "snapshot": {"$ref": "#/components/schemas/SnapshotRef"},
                            "from_snap_m": {"type": ["number", "null"]}, "to_snap_m": {"type": ["number", "null"]},
                            "hour_of_week": {"type": ["integer", "null"], "minimum": 0, "maximum": 167, "description": "departure hour of week in the region's time zone, 0 = Monday 00:00"},
@@ -218,11 +232,12 @@ fn schemas() -> Value {
         "RouteResponse": {"allOf": [{"$ref": "#/components/schemas/EtaResponse"},
             {"type": "object", "required": ["geometry"], "properties": {"geometry": {"type": "object", "description": "GeoJSON LineString, [lon, lat] positions",
                 "properties": {"type": {"const": "LineString"}, "coordinates": {"type": "array", "items": {"type": "array", "items": {"type": "number"}, "minItems": 2, "maxItems": 2}}}}}}]},
-        "MatrixResponse": {"type": "object", "required": ["eta_s", "meters", "tier", "fallback_reason"],
+        "MatrixResponse": {"type": "object", "required": ["eta_s", "meters", "tier", "fallback_reason", "sources"],
             "properties": {"eta_s": {"type": "array", "items": {"type": "array", "items": {"type": "number"}}},
                            "meters": {"type": "array", "items": {"type": "array", "items": {"type": "number"}}},
                            "tier": {"type": "array", "items": {"type": "array", "items": {"$ref": "#/components/schemas/Tier"}}},
                            "fallback_reason": {"type": "array", "items": {"type": "array", "items": {"$ref": "#/components/schemas/FallbackReason"}}},
+                           "sources": {"type": "array", "items": {"type": "array", "items": {"$ref": "#/components/schemas/Sources"}}},
                            "snapshot": {"$ref": "#/components/schemas/SnapshotRef"}}},
         "Observation": {"type": "object", "required": ["kmh", "observed_at", "samples"], "additionalProperties": false,
             "description": "Names its segments by `segment`, or by `tail` and `head` (every segment with those ends, only those on `way` when given); `segment` given with `way`, `tail` or `head` must agree with them",

@@ -103,7 +103,11 @@ impl Ctx {
         };
         let posted = admin::post_once(&feed).await;
         let seen = self
-            .wait_for_tier("historical", Some("live_stale"), Duration::from_secs(20))
+            .wait_for_tier(
+                &["historical", "free_flow"],
+                Some("live_stale"),
+                Duration::from_secs(20),
+            )
             .await;
         let Some(pid) = self.server.pid else { return };
         let Sampled { lo, hi, last } = sample_rss(pid, Duration::from_secs(12)).await;

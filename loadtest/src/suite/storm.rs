@@ -29,9 +29,7 @@ impl Ctx {
         let feed = self.feed(Duration::ZERO, self.s.seed ^ 0x11)?;
         // Start from the state a fed server is in: fresh live data served.
         let primed = admin::post_once(&feed).await;
-        let live_after = self
-            .wait_for_tier("live", None, Duration::from_secs(20))
-            .await;
+        let live_after = self.wait_for_live_metric(Duration::from_secs(20)).await;
         let tables = self.storm_tables();
         let before = self.scrape().await;
         // Wait for calm before the streams start, not after: once they run

@@ -11,8 +11,11 @@
 //!
 //! Each arc also remembers *how* its weight was reached (a road edge or the
 //! middle node of a triangle) so paths can be unpacked, and the length of
-//! that path so an ETA's distance needs no unpacking.
+//! that path so an ETA's distance needs no unpacking. Given per-edge class
+//! labels ([`CustomizedMetric::set_classes`]), each arc also carries the
+//! milliseconds of its path per class (see [`super::classes`]).
 
+use super::classes::{arc_class_times, ClassTimes};
 use super::Cch;
 use crate::engine::graph::NONE;
 
@@ -43,6 +46,12 @@ pub struct CustomizedMetric {
     /// Length in centimetres of the path realising `up[a]` / `down[a]`.
     pub(crate) up_len: Vec<u32>,
     pub(crate) down_len: Vec<u32>,
+    /// Milliseconds per edge class of the path realising `up[a]` /
+    /// `down[a]`, so a query reports which kinds of edge its time lies on
+    /// without unpacking. Empty unless [`set_classes`](Self::set_classes)
+    /// was called (a metric without classes pays nothing).
+    pub(crate) up_cls: Vec<ClassTimes>,
+    pub(crate) down_cls: Vec<ClassTimes>,
     /// Forward search graph: per rank, the upward arcs still needed after
     /// perfect customization (see [`PrunedArcs`]).
     pub forward: PrunedArcs,
@@ -121,6 +130,8 @@ impl CustomizedMetric {
             down_via: vec![VIA_NONE; m],
             up_len: vec![0; m],
             down_len: vec![0; m],
+            up_cls: Vec::new(),
+            down_cls: Vec::new(),
             forward: PrunedArcs::default(),
             backward: PrunedArcs::default(),
         };
@@ -162,6 +173,9 @@ impl CustomizedMetric {
         self.down_via.fill(VIA_NONE);
         self.up_len.fill(0);
         self.down_len.fill(0);
+        // Class times belong to the previous weights.
+        self.up_cls = Vec::new();
+        self.down_cls = Vec::new();
         // Respecting: each arc takes its cheapest road edge per direction.
         for (e, (&ea, &w)) in cch.edge_arc.iter().zip(weights).enumerate() {
             let a = (ea >> 1) as usize;
@@ -218,10 +232,31 @@ impl CustomizedMetric {
         self.prune(cch, parallel);
     }
 
+    /// Labels every road edge with a class (`classes[e] < CLASSES`) and
+    /// computes each arc's milliseconds per class for the `weights` this
+    /// metric was customized with (see [`super::classes`]).
+    pub fn set_classes(&mut self, cch: &Cch, weights: &[u32], classes: &[u8]) {
+        assert_eq!(classes.len(), weights.len(), "one class per road edge");
+        arc_class_times(
+            cch,
+            (&self.up_via, &self.down_via),
+            weights,
+            classes,
+            (&mut self.up_cls, &mut self.down_cls),
+        );
+    }
+
+    /// Whether arcs carry class times.
+    #[inline]
+    pub fn has_classes(&self) -> bool {
+        !self.up_cls.is_empty()
+    }
+
     /// Bytes held by this metric.
     pub fn heap_bytes(&self) -> usize {
         let pruned = |p: &PrunedArcs| 4 * (p.first.len() + 3 * p.arcs.len());
-        4 * (self.up.capacity() + self.down.capacity())
+        std::mem::size_of::<ClassTimes>() * (self.up_cls.capacity() + self.down_cls.capacity())
+            + 4 * (self.up.capacity() + self.down.capacity())
             + 4 * 4 * self.up_via.len()
             + pruned(&self.forward)
             + pruned(&self.backward)

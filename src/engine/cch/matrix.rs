@@ -25,12 +25,19 @@
 //! path that set its time; each cell remembers its meeting node, and its
 //! length is the forward length there plus the bucket's backward length.
 //!
+//! Class times ride along the same way on a metric with classes
+//! ([`super::classes`]), when the caller asks for them
+//! ([`NodeCells::classes`]): each settled node gets its predecessor's class
+//! times plus its arc's, bucket entries keep the backward ones, and a cell's
+//! are the forward ones at its meeting node plus the bucket entry's.
+//!
 //! [`ManyToMany`] owns all scratch; after a warm-up call of the same size a
 //! call allocates nothing. Its endpoints are road nodes with partial costs;
 //! the coordinate front end (snapping, trips along one road) is
 //! [`crate::engine::region::matrix`].
 
 use super::chains::Chains;
+use super::classes::{add, single, ClassTimes, CLASSES};
 use super::customize::{CustomizedMetric, PrunedArc, PrunedArcs, INFINITY};
 use super::query::{Endpoint, MAX_ENDPOINTS};
 use super::Cch;
@@ -100,6 +107,8 @@ pub struct ManyToMany {
     bucket_time: Vec<u32>,
     /// Backward lengths (cm) alongside `bucket_time`.
     bucket_len: Vec<u32>,
+    /// Backward class times alongside `bucket_time` (only when asked for).
+    bucket_cls: Vec<ClassTimes>,
     /// Target index of each slot (targets sorted by preorder).
     slot_target: Vec<u32>,
     /// Best time per slot for the current source row.
@@ -151,12 +160,14 @@ impl ManyToMany {
                 dist: vec![INFINITY; n],
                 pred: vec![NONE; n],
                 len: vec![0; n],
+                cls: Vec::new(),
             },
             preorder,
             bucket: vec![EMPTY; n],
             touched: Vec::new(),
             bucket_time: Vec::new(),
             bucket_len: Vec::new(),
+            bucket_cls: Vec::new(),
             slot_target: Vec::new(),
             row_time: Vec::new(),
             row_meet: Vec::new(),
@@ -222,13 +233,21 @@ impl ManyToMany {
         sources: Points<impl Fn(usize) -> L>,
         targets: Points<impl Fn(usize) -> L>,
         deadline: Option<Instant>,
-        out: NodeCells<'_>,
+        mut out: NodeCells<'_>,
     ) -> Result<MatrixOutcome, MatrixError> {
         let cells = self.check(cch, metric, &sources, &targets)?;
         out.time.clear();
         out.time.resize(cells, INFINITY);
         out.len_cm.clear();
         out.len_cm.resize(cells, u64::MAX);
+        let with_classes = out.classes.is_some() && metric.has_classes();
+        if let Some(c) = out.classes.as_deref_mut() {
+            c.clear();
+            c.resize(cells, [0; CLASSES]);
+        }
+        if with_classes && self.walker.cls.len() != self.walker.dist.len() {
+            self.walker.cls.resize(self.walker.dist.len(), [0; CLASSES]);
+        }
         if targets.count == 0 || sources.count == 0 {
             return Ok(MatrixOutcome {
                 rows_done: sources.count,
@@ -242,20 +261,29 @@ impl ManyToMany {
             });
         }
         self.sort_slots(&cch.rank, &targets);
-        let Some(total) = self.lay_out_buckets(cch, &targets) else {
+        let Some(total) = self.lay_out_buckets(cch, &targets, with_classes) else {
             return Err(MatrixError::TooLarge {
                 sources: sources.count,
                 targets: targets.count,
             });
         };
-        if !self.fill_buckets(cch, metric, &targets, deadline) {
+        let filled = if with_classes {
+            self.fill_buckets::<true, _>(cch, metric, &targets, deadline)
+        } else {
+            self.fill_buckets::<false, _>(cch, metric, &targets, deadline)
+        };
+        if !filled {
             self.clear_buckets();
             return Ok(MatrixOutcome {
                 rows_done: 0,
                 bucket_cells: total,
             });
         }
-        let rows_done = self.source_rows(cch, metric, &sources, deadline, out);
+        let rows_done = if with_classes {
+            self.source_rows::<true, _>(cch, metric, &sources, deadline, out)
+        } else {
+            self.source_rows::<false, _>(cch, metric, &sources, deadline, out)
+        };
         self.clear_buckets();
         Ok(MatrixOutcome {
             rows_done,
@@ -324,6 +352,7 @@ impl ManyToMany {
         &mut self,
         cch: &Cch,
         targets: &Points<impl Fn(usize) -> L>,
+        with_classes: bool,
     ) -> Option<usize> {
         for (k, &j) in self.slot_target.iter().enumerate() {
             let mut walk = chains_of(targets.get(j as usize).as_ref(), &cch.rank);
@@ -351,13 +380,17 @@ impl ManyToMany {
         self.bucket_time.resize(total, INFINITY);
         self.bucket_len.clear();
         self.bucket_len.resize(total, 0);
+        self.bucket_cls.clear();
+        if with_classes {
+            self.bucket_cls.resize(total, [0; CLASSES]);
+        }
         Some(total)
     }
 
     /// Pass 2: backward walks (down arcs) fill the buckets. No row can be
     /// computed without all of them, so a deadline passing here (checked
     /// every few walks) abandons the whole matrix: returns false.
-    fn fill_buckets<L: AsRef<[Endpoint]>>(
+    fn fill_buckets<const C: bool, L: AsRef<[Endpoint]>>(
         &mut self,
         cch: &Cch,
         metric: &CustomizedMetric,
@@ -371,28 +404,35 @@ impl ManyToMany {
             let j = self.slot_target[k];
             let eps = targets.get(j as usize);
             let eps = eps.as_ref();
-            let (bucket, bucket_time, bucket_len) =
-                (&self.bucket, &mut self.bucket_time, &mut self.bucket_len);
-            self.walker
-                .walk(cch, &metric.backward, &metric.down_len, eps, |x, d, l| {
-                    let b = bucket[x as usize];
-                    let at = b.offset as usize + k - b.first as usize;
-                    bucket_time[at] = d;
-                    bucket_len[at] = l;
-                });
+            let (bucket, bucket_time, bucket_len, bucket_cls) = (
+                &self.bucket,
+                &mut self.bucket_time,
+                &mut self.bucket_len,
+                &mut self.bucket_cls,
+            );
+            let arcs = (&metric.backward, &metric.down_len[..], &metric.down_cls[..]);
+            self.walker.walk::<C>(cch, arcs, eps, |x, d, l, c| {
+                let b = bucket[x as usize];
+                let at = b.offset as usize + k - b.first as usize;
+                bucket_time[at] = d;
+                bucket_len[at] = l;
+                if C {
+                    bucket_cls[at] = *c;
+                }
+            });
         }
         true
     }
 
     /// Source rows in order, checking `deadline` before each: forward walks
     /// (up arcs) scan the buckets they pass. Returns the rows computed.
-    fn source_rows<L: AsRef<[Endpoint]>>(
+    fn source_rows<const C: bool, L: AsRef<[Endpoint]>>(
         &mut self,
         cch: &Cch,
         metric: &CustomizedMetric,
         sources: &Points<impl Fn(usize) -> L>,
         deadline: Option<Instant>,
-        out: NodeCells<'_>,
+        mut out: NodeCells<'_>,
     ) -> usize {
         let num_targets = self.slot_target.len();
         self.row_time.clear();
@@ -411,34 +451,41 @@ impl ManyToMany {
                 &mut self.row_time,
                 &mut self.row_meet,
             );
-            self.walker
-                .walk(cch, &metric.forward, &metric.up_len, eps, |x, d, _| {
-                    let b = bucket[x as usize];
-                    if b.first != NONE {
-                        let (lo, cnt, off) =
-                            (b.first as usize, b.count as usize, b.offset as usize);
-                        scan(
-                            d,
-                            x,
-                            &bucket_time[off..off + cnt],
-                            &mut row_time[lo..lo + cnt],
-                            &mut row_meet[lo..lo + cnt],
-                        );
-                    }
-                });
+            let arcs = (&metric.forward, &metric.up_len[..], &metric.up_cls[..]);
+            self.walker.walk::<C>(cch, arcs, eps, |x, d, _, _| {
+                let b = bucket[x as usize];
+                if b.first != NONE {
+                    let (lo, cnt, off) = (b.first as usize, b.count as usize, b.offset as usize);
+                    scan(
+                        d,
+                        x,
+                        &bucket_time[off..off + cnt],
+                        &mut row_time[lo..lo + cnt],
+                        &mut row_meet[lo..lo + cnt],
+                    );
+                }
+            });
             let base = i * num_targets;
-            self.emit_row(
-                &mut out.time[base..base + num_targets],
-                &mut out.len_cm[base..base + num_targets],
-            );
+            let row = base..base + num_targets;
+            let classes = match out.classes.as_deref_mut() {
+                Some(c) if C => Some(&mut c[row.clone()]),
+                _ => None,
+            };
+            self.emit_row(&mut out.time[row.clone()], &mut out.len_cm[row], classes);
         }
         sources.count
     }
 
-    /// The current row, back in target order, with lengths from the meeting
-    /// nodes; clears it for the next source.
+    /// The current row, back in target order, with lengths (and class
+    /// times, when given) from the meeting nodes; clears it for the next
+    /// source.
     #[inline]
-    fn emit_row(&mut self, time: &mut [u32], len_cm: &mut [u64]) {
+    fn emit_row(
+        &mut self,
+        time: &mut [u32],
+        len_cm: &mut [u64],
+        mut classes: Option<&mut [ClassTimes]>,
+    ) {
         for k in 0..self.row_time.len() {
             let t = self.row_time[k];
             if t >= INFINITY {
@@ -448,9 +495,15 @@ impl ManyToMany {
             let j = self.slot_target[k] as usize;
             let meet = self.row_meet[k] as usize;
             let b = self.bucket[meet];
-            let back = self.bucket_len[b.offset as usize + k - b.first as usize];
+            let at = b.offset as usize + k - b.first as usize;
+            let back = self.bucket_len[at];
             time[j] = t;
             len_cm[j] = u64::from(self.walker.len[meet]) + u64::from(back);
+            if let Some(c) = classes.as_deref_mut() {
+                let mut ct = self.walker.cls[meet];
+                add(&mut ct, &self.bucket_cls[at]);
+                c[j] = ct;
+            }
         }
     }
 
@@ -469,6 +522,8 @@ impl ManyToMany {
             + self.walker.len.capacity()
             + self.preorder.capacity())
             + std::mem::size_of::<Bucket>() * self.bucket.capacity()
+            + std::mem::size_of::<ClassTimes>()
+                * (self.walker.cls.capacity() + self.bucket_cls.capacity())
             + 4 * (self.touched.capacity()
                 + self.bucket_time.capacity()
                 + self.bucket_len.capacity()
@@ -491,21 +546,25 @@ struct Walker {
     /// settled (from its predecessor's, already final). Read after a source
     /// walk for the meeting nodes, so never reset.
     len: Vec<u32>,
+    /// Class times of the path to a settled node, like `len` (sized on the
+    /// first call that asks for classes; empty before).
+    cls: Vec<ClassTimes>,
 }
 
 impl Walker {
     /// Walks the ancestor chains of `eps` in increasing rank over one pruned
-    /// search graph (`arcs`, with per-arc lengths `arc_len`), calling
-    /// `settle(rank, time, length)` for every node reached.
+    /// search graph (`arcs`, with per-arc lengths `arc_len` and, when `C`,
+    /// class times `arc_cls`), calling `settle(rank, time, length, class
+    /// times)` for every node reached (class times all zero unless `C`).
     #[inline(always)]
-    fn walk(
+    fn walk<const C: bool>(
         &mut self,
         cch: &Cch,
-        arcs: &PrunedArcs,
-        arc_len: &[u32],
+        (arcs, arc_len, arc_cls): (&PrunedArcs, &[u32], &[ClassTimes]),
         eps: &[Endpoint],
-        mut settle: impl FnMut(u32, u32, u32),
+        mut settle: impl FnMut(u32, u32, u32, &ClassTimes),
     ) {
+        const ZERO: ClassTimes = [0; CLASSES];
         // Seeds: the first of equally cheap endpoints on one rank wins, as
         // in the point query.
         for e in eps {
@@ -514,6 +573,9 @@ impl Walker {
                 self.dist[r] = e.time;
                 self.pred[r] = NONE;
                 self.len[r] = e.len_cm;
+                if C {
+                    self.cls[r] = single(e.class, e.time);
+                }
             }
         }
         let mut chains = chains_of(eps, &cch.rank);
@@ -529,6 +591,11 @@ impl Walker {
                 self.len[xi]
             } else {
                 let p = p as usize;
+                if C {
+                    let mut c = self.cls[cch.tail[p] as usize];
+                    add(&mut c, &arc_cls[p]);
+                    self.cls[xi] = c;
+                }
                 self.len[cch.tail[p] as usize].saturating_add(arc_len[p])
             };
             self.len[xi] = l;
@@ -542,7 +609,7 @@ impl Walker {
                 let op = self.pred[y];
                 self.pred[y] = if better { arc } else { op };
             }
-            settle(x, d, l);
+            settle(x, d, l, if C { &self.cls[xi] } else { &ZERO });
         }
     }
 }
@@ -579,11 +646,24 @@ pub struct NodeCells<'a> {
     pub time: &'a mut Vec<u32>,
     /// Length per cell in cm (`u64::MAX` where the time is INFINITY).
     pub len_cm: &'a mut Vec<u64>,
+    /// Class times per cell (adding up to the time), when asked for and
+    /// the metric has classes; all zero where the time is INFINITY.
+    pub classes: Option<&'a mut Vec<ClassTimes>>,
 }
 
 impl<'a> NodeCells<'a> {
     pub fn new(time: &'a mut Vec<u32>, len_cm: &'a mut Vec<u64>) -> Self {
-        NodeCells { time, len_cm }
+        NodeCells {
+            time,
+            len_cm,
+            classes: None,
+        }
+    }
+
+    /// Also asks for each cell's class times.
+    pub fn with_classes(mut self, classes: &'a mut Vec<ClassTimes>) -> Self {
+        self.classes = Some(classes);
+        self
     }
 }
 
@@ -655,5 +735,50 @@ fn scan(d: u32, x: u32, bucket: &[u32], row: &mut [u32], meet: &mut [u32]) {
         let better = c < *r;
         *r = if better { c } else { *r };
         *m = if better { x } else { *m };
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::engine::cch::CchQuery;
+    use crate::engine::testing::{city, reference_dists, Rng};
+
+    /// Many-to-many with class times on random edge classes: every cell's
+    /// time equals petgraph's Dijkstra (the reference), its class times add
+    /// up to it, and they equal the point query's class times for the same
+    /// pair (itself checked against the unpacked path in `cch::query`).
+    #[test]
+    fn cell_class_times_equal_the_point_query() {
+        let art = city(3_000, 31);
+        let (g, cch) = (&art.graph, &art.cch);
+        let n = g.num_nodes();
+        let mut rng = Rng::new(12);
+        let speeds: Vec<f32> = (0..g.num_edges())
+            .map(|_| 5.0 + rng.below(116) as f32)
+            .collect();
+        let weights = crate::engine::metric::from_speeds(g, &speeds);
+        let classes: Vec<u8> = (0..g.num_edges()).map(|_| rng.below(3) as u8).collect();
+        let mut metric = CustomizedMetric::new(cch, &weights, &g.edge_len_m);
+        metric.set_classes(cch, &weights, &classes);
+        let sources: Vec<u32> = (0..12).map(|_| rng.below(n)).collect();
+        let targets: Vec<u32> = (0..15).map(|_| rng.below(n)).collect();
+        let (mut time, mut len, mut cls) = (Vec::new(), Vec::new(), Vec::new());
+        let mut m2m = ManyToMany::new(cch);
+        let cells = NodeCells::new(&mut time, &mut len).with_classes(&mut cls);
+        m2m.run_nodes(cch, &metric, &sources, &targets, None, cells)
+            .expect("matrix");
+        let mut q = CchQuery::new(cch);
+        for (i, &s) in sources.iter().enumerate() {
+            let reference = reference_dists(g, &weights, s);
+            for (j, &t) in targets.iter().enumerate() {
+                let k = i * targets.len() + j;
+                assert_eq!(Some(u64::from(time[k])), reference[t as usize]);
+                let sum: u64 = cls[k].iter().map(|&c| u64::from(c)).sum();
+                assert_eq!(sum, u64::from(time[k]), "class times add up");
+                let r = q.node_to_node(cch, &metric, s, t).expect("connected");
+                assert_eq!(cls[k], r.classes, "{s} -> {t}");
+            }
+        }
     }
 }

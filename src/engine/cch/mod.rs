@@ -22,6 +22,7 @@
 //!
 //! - this file: [`Cch`], the contraction (topology only).
 //! - [`customize`]: [`CustomizedMetric`], weights of every hierarchy arc.
+//! - [`classes`]: per-arc milliseconds per caller-given edge class.
 //! - `chains`: the walk over elimination-tree ancestor chains shared by
 //!   every search.
 //! - [`query`]: [`CchQuery`], point-to-point search and path unpacking.
@@ -33,6 +34,7 @@
 //! top, in [`crate::engine::region`].
 
 mod chains;
+pub mod classes;
 pub mod customize;
 pub mod matrix;
 pub mod query;

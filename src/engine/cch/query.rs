@@ -8,11 +8,17 @@
 //! walk supports several start nodes per side (a query that starts mid-edge
 //! leaves through both ends of a two-way road), each with an initial cost.
 //!
+//! Each endpoint names the class of its partial edge; on a metric with
+//! classes ([`super::classes`]) the result's class times are the partial
+//! costs in their classes plus the class times of the path's arcs, adding up
+//! exactly to its time.
+//!
 //! [`CchQuery`] owns the per-thread scratch (distance arrays sized to the
 //! graph, reset after each query along the same chains), so a query
 //! allocates nothing.
 
 use super::chains::Chains;
+use super::classes::{add, single, ClassTimes, CLASSES};
 use super::customize::{CustomizedMetric, PrunedArc, INFINITY, VIA_EDGE, VIA_NONE};
 use super::Cch;
 use crate::engine::graph::NONE;
@@ -30,6 +36,8 @@ pub struct Endpoint {
     pub time: u32,
     /// Length of that partial stretch, in centimetres.
     pub len_cm: u32,
+    /// Edge class of that partial stretch (see [`super::classes`]).
+    pub class: u8,
 }
 
 impl Endpoint {
@@ -38,6 +46,7 @@ impl Endpoint {
             node,
             time: 0,
             len_cm: 0,
+            class: 0,
         }
     }
 }
@@ -53,6 +62,9 @@ pub struct PathResult {
     pub source: usize,
     /// Which target endpoint the path uses.
     pub target: usize,
+    /// Milliseconds per edge class, adding up to `time` on a metric with
+    /// classes (all zero on one without).
+    pub classes: ClassTimes,
 }
 
 const UP: bool = true;
@@ -272,11 +284,26 @@ impl CchQuery {
         let source = pick(sources, first);
         let target = pick(targets, last);
         len += u64::from(sources[source].len_cm) + u64::from(targets[target].len_cm);
+        let mut classes = [0; CLASSES];
+        if metric.has_classes() {
+            let (s, t) = (&sources[source], &targets[target]);
+            classes = single(s.class, s.time);
+            add(&mut classes, &single(t.class, t.time));
+            for &(a, dir) in &self.arc_path {
+                let c = if dir == UP {
+                    &metric.up_cls[a as usize]
+                } else {
+                    &metric.down_cls[a as usize]
+                };
+                add(&mut classes, c);
+            }
+        }
         PathResult {
             time: best,
             len_cm: len,
             source,
             target,
+            classes,
         }
     }
 
@@ -402,6 +429,7 @@ mod tests {
                         node: rng.below(n),
                         time: rng.below(20_000),
                         len_cm: rng.below(50_000),
+                        class: 0,
                     })
                 };
                 let (src, dst) = (ends(&mut rng), ends(&mut rng));
@@ -421,5 +449,63 @@ mod tests {
                 check_path(&mut q, cch, &metric, (g, &weights), r, ends);
             }
         }
+    }
+
+    /// Class times on a metric with random edge classes: the total equals
+    /// petgraph's Dijkstra (the reference) for random pairs with partial
+    /// endpoint costs of random classes, and each class's time equals the
+    /// sum of that class's edge weights along the path hodos unpacks, plus
+    /// the partial costs in their classes (a hand-summed reference: among
+    /// tied shortest paths only the unpacked one is checked per class).
+    #[test]
+    fn class_times_match_the_unpacked_path() {
+        let art = city(3_000, 23);
+        let (g, cch) = (&art.graph, &art.cch);
+        let n = g.num_nodes();
+        let mut rng = Rng::new(9);
+        let speeds: Vec<f32> = (0..g.num_edges())
+            .map(|_| 5.0 + rng.below(116) as f32)
+            .collect();
+        let weights = crate::engine::metric::from_speeds(g, &speeds);
+        let classes: Vec<u8> = (0..g.num_edges()).map(|_| rng.below(3) as u8).collect();
+        let mut metric = CustomizedMetric::new(cch, &weights, &g.edge_len_m);
+        metric.set_classes(cch, &weights, &classes);
+        let mut q = CchQuery::new(cch);
+        let mut edges = Vec::new();
+        let mut mixed = 0;
+        for _ in 0..200 {
+            let ep = |rng: &mut Rng| Endpoint {
+                node: rng.below(n),
+                time: rng.below(5_000),
+                len_cm: 0,
+                class: rng.below(3) as u8,
+            };
+            let (a, b) = (ep(&mut rng), ep(&mut rng));
+            let reference = reference_dists(g, &weights, a.node)[b.node as usize]
+                .map(|d| d + u64::from(a.time) + u64::from(b.time));
+            let r = q.run(cch, &metric, &[a], &[b]).expect("strongly connected");
+            assert_eq!(Some(u64::from(r.time)), reference);
+            let mut expect = [0u64; CLASSES];
+            expect[a.class as usize] += u64::from(a.time);
+            expect[b.class as usize] += u64::from(b.time);
+            edges.clear();
+            q.unpack_edges(cch, &metric, &mut edges);
+            for &e in &edges {
+                expect[classes[e as usize] as usize] += u64::from(weights[e as usize]);
+            }
+            assert_eq!(r.classes.map(u64::from), expect);
+            assert_eq!(
+                r.classes.iter().map(|&c| u64::from(c)).sum::<u64>(),
+                u64::from(r.time)
+            );
+            mixed += usize::from(expect.iter().filter(|&&c| c > 0).count() == 3);
+        }
+        assert!(mixed > 100, "{mixed} paths touch all three classes");
+        // Without classes the result carries none.
+        let plain = CustomizedMetric::new(cch, &weights, &g.edge_len_m);
+        let r = q
+            .node_to_node(cch, &plain, 0, (n - 1) as u32)
+            .expect("connected");
+        assert_eq!(r.classes, [0; CLASSES]);
     }
 }

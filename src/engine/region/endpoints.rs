@@ -18,10 +18,11 @@ use crate::engine::snap::Snap;
 /// twin, the twin's endpoint is already that node at no cost), so a point
 /// at an intersection starts or ends there whichever road it snapped to.
 /// Partial costs are the snap's share of the edge's time and of its stored
-/// length. Shared with the matrix so its cells equal ETAs.
+/// length, in the class of its edge (`classes[e]`, 0 when `classes` is
+/// empty). Shared with the matrix so its cells equal ETAs.
 pub(crate) fn snap_endpoints(
     g: &RoadGraph,
-    weights: &[u32],
+    (weights, classes): (&[u32], &[u8]),
     s: Snap,
     origin: bool,
 ) -> ([Endpoint; 2], usize) {
@@ -42,8 +43,14 @@ pub(crate) fn snap_endpoints(
     } else {
         (g.edge_tail[e], t)
     };
+    let class_of = |e: usize| classes.get(e).copied().unwrap_or(0);
     let (time, len_cm) = part(weights[e], frac);
-    out[0] = Endpoint { node, time, len_cm };
+    out[0] = Endpoint {
+        node,
+        time,
+        len_cm,
+        class: class_of(e),
+    };
     let twin = g.edge_twin[e];
     if twin == NONE {
         // At the node the search would otherwise have to leave or enter
@@ -64,7 +71,12 @@ pub(crate) fn snap_endpoints(
         (g.edge_tail[tw], 1.0 - t)
     };
     let (time, len_cm) = part(weights[tw], frac);
-    out[1] = Endpoint { node, time, len_cm };
+    out[1] = Endpoint {
+        node,
+        time,
+        len_cm,
+        class: class_of(tw),
+    };
     (out, 2)
 }
 
@@ -117,6 +129,17 @@ pub(crate) struct Direct {
     pub(crate) to_frac: f64,
     pub(crate) time_ms: f64,
     pub(crate) len_m: f64,
+}
+
+impl Direct {
+    /// The trip's time in the class of its edge.
+    #[inline]
+    pub(crate) fn classes(
+        &self,
+        metric: &super::Metric,
+    ) -> crate::engine::cch::classes::ClassTimes {
+        crate::engine::cch::classes::single(metric.class_of(self.edge), self.time_ms as u32)
+    }
 }
 
 /// Which of the two candidate answers a trip uses.

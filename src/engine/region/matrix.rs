@@ -3,10 +3,12 @@
 //! snapped points, then per cell the same choice as [`Region::eta`] between
 //! the graph answer and a trip along one shared road. A point off the
 //! network makes its row or column [`Cell::Unavailable`], not the whole
-//! matrix.
+//! matrix. On a metric with classes every answered cell also gets its
+//! milliseconds per edge class ([`PointMatrix::classes`]).
 
 use super::endpoints::{choose, direct_stretch, snap_endpoints, Choice};
 use super::{End, EtaError, Metric, Region};
+use crate::engine::cch::classes::{ClassTimes, CLASSES};
 use crate::engine::cch::customize::INFINITY;
 use crate::engine::cch::matrix::{ManyToMany, MatrixError, NodeCells, Points};
 use crate::engine::cch::query::Endpoint;
@@ -44,6 +46,10 @@ pub struct PointMatrix {
     pub rows_done: usize,
     /// Statistics of the node-level run.
     pub bucket_cells: usize,
+    /// Per cell (row-major, like `cells`), milliseconds per edge class of
+    /// a [`Cell::Eta`] (adding up to its time, rounded to ms; all zero for
+    /// other cells). Empty on a metric without classes.
+    pub classes: Vec<ClassTimes>,
     /// The snapped origins, as the node-level run sees them.
     src: Snapped,
     /// The snapped destinations.
@@ -51,6 +57,7 @@ pub struct PointMatrix {
     /// Node-level results over the snapped points.
     node_time: Vec<u32>,
     node_len: Vec<u64>,
+    node_cls: Vec<ClassTimes>,
 }
 
 /// One side's points on the network, in compact order (off-network points
@@ -85,7 +92,7 @@ impl Snapped {
                     self.compact.push(self.eps.len() as u32);
                     self.eps.push(snap_endpoints(
                         &region.graph,
-                        &metric.weights,
+                        metric.edges(),
                         s,
                         which == End::From,
                     ));
@@ -150,6 +157,7 @@ pub fn matrix(
         NodeCells {
             time: &mut out.node_time,
             len_cm: &mut out.node_len,
+            classes: (!metric.classes.is_empty()).then_some(&mut out.node_cls),
         },
     )?;
     out.bucket_cells = outcome.bucket_cells;
@@ -170,17 +178,29 @@ impl PointMatrix {
             .position(|&c| c != NONE && c as usize >= node_rows)
             .unwrap_or(self.from.len());
         let nt = self.dst.eps.len();
+        let with_classes = !metric.classes.is_empty();
         self.cells.clear();
         self.cells.reserve(cell_count);
+        self.classes.clear();
+        if with_classes {
+            self.classes.reserve(cell_count);
+        }
         for (i, a) in self.from.iter().enumerate() {
             for (j, b) in self.to.iter().enumerate() {
+                let mut classes = [0; CLASSES];
                 let (Ok(a), Ok(b)) = (a, b) else {
                     self.cells.push(Cell::Unavailable);
+                    if with_classes {
+                        self.classes.push(classes);
+                    }
                     continue;
                 };
                 let (ci, cj) = (self.src.compact[i] as usize, self.dst.compact[j] as usize);
                 if ci >= node_rows {
                     self.cells.push(Cell::NotComputed);
+                    if with_classes {
+                        self.classes.push(classes);
+                    }
                     continue;
                 }
                 let t = self.node_time[ci * nt + cj];
@@ -190,10 +210,21 @@ impl PointMatrix {
                 });
                 let direct = direct_stretch(g, &metric.weights, *a, *b);
                 self.cells.push(match choose(graph, direct) {
-                    Some(Choice::Graph((ms, cm))) => eta_cell(ms, cm),
-                    Some(Choice::Direct(d)) => eta_cell(d.time_ms, d.len_m * 100.0),
+                    Some(Choice::Graph((ms, cm))) => {
+                        if with_classes {
+                            classes = self.node_cls[ci * nt + cj];
+                        }
+                        eta_cell(ms, cm)
+                    }
+                    Some(Choice::Direct(d)) => {
+                        classes = d.classes(metric);
+                        eta_cell(d.time_ms, d.len_m * 100.0)
+                    }
                     None => Cell::Unreachable,
                 });
+                if with_classes {
+                    self.classes.push(classes);
+                }
             }
         }
     }

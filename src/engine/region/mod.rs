@@ -4,6 +4,10 @@
 //! This is the query engine's front door. It snaps both coordinates, starts
 //! and ends the search mid-edge with the partial costs, and reports time,
 //! distance and snap distances. It does no I/O and knows nothing about HTTP.
+//! A metric made with per-edge classes ([`Region::metric_with_classes`])
+//! also reports, per answer, the milliseconds spent on edges of each class
+//! (partial first/last edges with their partial time; see
+//! [`crate::engine::cch::classes`]).
 //!
 //! # Layout
 //!
@@ -21,6 +25,7 @@ pub mod matrix;
 
 use crate::engine::artifact::{Artifact, Metadata};
 use crate::engine::calibration::Calibration;
+use crate::engine::cch::classes::ClassTimes;
 use crate::engine::cch::{Cch, CchQuery, CustomizedMetric};
 use crate::engine::geo::LatLon;
 use crate::engine::graph::{RoadGraph, NONE};
@@ -45,7 +50,24 @@ pub struct Region {
 pub struct Metric {
     /// Milliseconds per road edge; needed for the partial first/last edge.
     pub weights: Vec<u32>,
+    /// Class per road edge (empty: a metric without classes), for the
+    /// partial first/last edge's class.
+    pub classes: Vec<u8>,
     pub customized: CustomizedMetric,
+}
+
+impl Metric {
+    /// The class of road edge `e` (0 without classes).
+    #[inline]
+    pub fn class_of(&self, e: u32) -> u8 {
+        self.classes.get(e as usize).copied().unwrap_or(0)
+    }
+
+    /// Weights and classes, as the endpoint helpers take them.
+    #[inline]
+    pub(crate) fn edges(&self) -> (&[u32], &[u8]) {
+        (&self.weights, &self.classes)
+    }
 }
 
 /// Which end of a trip.
@@ -84,6 +106,9 @@ pub struct Eta {
     pub meters: f64,
     pub from: Snap,
     pub to: Snap,
+    /// Milliseconds per edge class, adding up to the time (rounded to ms);
+    /// `None` on a metric without classes.
+    pub classes: Option<ClassTimes>,
 }
 
 /// How a path starts: the snapped edge and the first/last road edges used.
@@ -111,8 +136,18 @@ impl Region {
         let customized = CustomizedMetric::new(&self.cch, &weights, &self.graph.edge_len_m);
         Metric {
             weights,
+            classes: Vec::new(),
             customized,
         }
+    }
+
+    /// [`metric`](Self::metric) with a class per road edge (`< CLASSES`),
+    /// so answers report their time per class.
+    pub fn metric_with_classes(&self, weights: Vec<u32>, classes: Vec<u8>) -> Metric {
+        let mut m = self.metric(weights);
+        m.customized.set_classes(&self.cch, &m.weights, &classes);
+        m.classes = classes;
+        m
     }
 
     /// The free-flow metric.
@@ -159,25 +194,30 @@ impl Region {
         a: Snap,
         b: Snap,
     ) -> Result<(Eta, Via), EtaError> {
-        let (src, ns) = snap_endpoints(&self.graph, &metric.weights, a, true);
-        let (dst, nt) = snap_endpoints(&self.graph, &metric.weights, b, false);
+        let (src, ns) = snap_endpoints(&self.graph, metric.edges(), a, true);
+        let (dst, nt) = snap_endpoints(&self.graph, metric.edges(), b, false);
         let graph_best = q.run(&self.cch, &metric.customized, &src[..ns], &dst[..nt]);
         let direct = direct_stretch(&self.graph, &metric.weights, a, b);
-        let eta = |time_ms: f64, cm: f64| Eta {
+        let with_classes = !metric.classes.is_empty();
+        let eta = |time_ms: f64, cm: f64, classes: ClassTimes| Eta {
             time_s: time_ms / 1000.0,
             meters: cm / 100.0,
             from: a,
             to: b,
+            classes: with_classes.then_some(classes),
         };
         match choose(graph_best.map(|r| (r, f64::from(r.time))), direct) {
             Some(Choice::Graph(r)) => Ok((
-                eta(f64::from(r.time), r.len_cm as f64),
+                eta(f64::from(r.time), r.len_cm as f64, r.classes),
                 Via::Graph {
                     source: r.source,
                     target: r.target,
                 },
             )),
-            Some(Choice::Direct(d)) => Ok((eta(d.time_ms, d.len_m * 100.0), Via::Direct(d))),
+            Some(Choice::Direct(d)) => Ok((
+                eta(d.time_ms, d.len_m * 100.0, d.classes(metric)),
+                Via::Direct(d),
+            )),
             None => Err(EtaError::Unreachable),
         }
     }

@@ -23,6 +23,7 @@ pub use admin::{
 pub use probe::{HealthResponse, ReadyResponse, RegionReadiness};
 pub use public::{
     round3, EtaResponse, LineString, MatrixResponse, ProfileRef, RouteResponse, SnapshotRef,
+    SourcesDto,
 };
 pub use request::{
     parse_eta_query, parse_json, parse_leaving, Coord, EtaRequest, MatrixRequest, MatrixTrip, Trip,

@@ -2,10 +2,13 @@
 //! `/v1/route`) and their conversions from the serving layer's answers.
 //!
 //! Numbers are rounded to millimetres / milliseconds here, once, so every
-//! answer route reports the same precision.
+//! answer route reports the same precision. Graph answers carry `sources`:
+//! the shares of their travel time on live, historical and free-flow speeds
+//! (rounded to 1e-6; `null` for heuristic answers).
 
 use crate::engine::geo::LatLon;
 use crate::serving::answer::{Answer, MatrixAnswer};
+use crate::serving::tier::Sources;
 use serde::Serialize;
 
 /// Rounds to three decimals (metres → millimetres, seconds → milliseconds).
@@ -38,6 +41,28 @@ pub struct ProfileRef {
     pub representative_hour: u8,
 }
 
+/// Shares of an answer's travel time per speed source, adding up to 1.
+#[derive(Debug, Clone, Copy, Serialize, PartialEq)]
+pub struct SourcesDto {
+    /// On edges whose speed blends in a fresh live observation.
+    pub live: f64,
+    /// On edges with a historical row for the departure hour.
+    pub historical: f64,
+    /// On edges at their default free-flow speed.
+    pub free_flow: f64,
+}
+
+impl From<&Sources> for SourcesDto {
+    fn from(s: &Sources) -> Self {
+        let r = |x: f64| (x * 1e6).round() / 1e6;
+        SourcesDto {
+            live: r(s.live),
+            historical: r(s.historical),
+            free_flow: r(s.free_flow),
+        }
+    }
+}
+
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct EtaResponse {
     pub eta_s: f64,
@@ -45,6 +70,7 @@ pub struct EtaResponse {
     pub tier: &'static str,
     pub fallback_reason: Option<&'static str>,
     pub speeds_age_s: Option<f64>,
+    pub sources: Option<SourcesDto>,
     pub snapshot: Option<SnapshotRef>,
     pub from_snap_m: Option<f64>,
     pub to_snap_m: Option<f64>,
@@ -63,6 +89,7 @@ impl From<&Answer> for EtaResponse {
             tier: a.tier.as_str(),
             fallback_reason: a.reason.map(|r| r.as_str()),
             speeds_age_s: a.speeds_age_s.map(round3),
+            sources: a.sources.as_ref().map(SourcesDto::from),
             snapshot: SnapshotRef::from_pair(&a.snapshot),
             from_snap_m: a.from_snap_m.map(round3),
             to_snap_m: a.to_snap_m.map(round3),
@@ -126,6 +153,7 @@ pub struct MatrixResponse {
     pub meters: Vec<Vec<f64>>,
     pub tier: Vec<Vec<&'static str>>,
     pub fallback_reason: Vec<Vec<Option<&'static str>>>,
+    pub sources: Vec<Vec<Option<SourcesDto>>>,
     pub snapshot: Option<SnapshotRef>,
 }
 
@@ -144,6 +172,13 @@ impl From<&MatrixAnswer> for MatrixResponse {
                 .collect(),
             fallback_reason: rows()
                 .map(|row| row.iter().map(|c| c.reason.map(|r| r.as_str())).collect())
+                .collect(),
+            sources: rows()
+                .map(|row| {
+                    row.iter()
+                        .map(|c| c.sources.as_ref().map(SourcesDto::from))
+                        .collect()
+                })
                 .collect(),
             snapshot: SnapshotRef::from_pair(&a.snapshot),
         }

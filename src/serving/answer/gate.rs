@@ -3,14 +3,16 @@
 //! graph permit is free → the metric (live if "now" and fresh, else the
 //! metric of the departure hour's profile, always customized). The first
 //! check that fails names the fallback reason; passing them all yields the
-//! snapshot, the chosen metric and the permit. A fallback carries the
-//! departure hour, so its estimate is scaled by that hour's factor.
+//! snapshot, the chosen metric and the permit. The tier is not decided here:
+//! it depends on the sources the route actually used ([`Chosen::label`]).
+//! A fallback carries the departure hour, so its estimate is scaled by
+//! that hour's factor.
 
 use super::{Catalog, Estimator};
 use crate::engine::region::Metric;
 use crate::serving::metrics as m;
 use crate::serving::snapshot::{LiveMetric, ProfileUsed, RegionHandle, Snapshot};
-use crate::serving::tier::{FallbackReason, Tier};
+use crate::serving::tier::{FallbackReason, Sources, Tier};
 use chrono::{DateTime, Utc};
 use std::sync::Arc;
 use std::time::Instant;
@@ -19,16 +21,53 @@ use tokio::sync::OwnedSemaphorePermit;
 /// Region name and snapshot generation an answer came from.
 pub(super) type Tag = Option<(String, u64)>;
 
-/// The metric for a departure, with its tier, reason and data age.
+/// The metric for a departure, and what the region's data said about it.
 pub(super) struct Chosen {
     pub metric: Arc<MetricRef>,
-    pub tier: Tier,
-    pub reason: Option<FallbackReason>,
-    pub age_s: Option<f64>,
     /// Hour of week of the departure (region time zone).
     pub hour: u8,
-    /// The profile whose metric answers (historical tier only).
+    /// The profile whose metric answers (historical metrics only).
     pub profile: Option<ProfileUsed>,
+    /// The state of live data for this departure.
+    pub live: LiveState,
+    /// Age (s) of the newest live observation when `live` is fresh.
+    pub live_age_s: Option<f64>,
+    /// Age (s) of the historical table, when the region has one.
+    pub historical_age_s: Option<f64>,
+}
+
+/// Live data as seen by one departure.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(super) enum LiveState {
+    /// The departure is away from now: live data does not apply.
+    NotWanted,
+    /// Leaving now; the region holds no live layer.
+    NoData,
+    /// Leaving now; the region holds live observations, none fresh.
+    Stale,
+    /// Leaving now; the region holds fresh live data (the live metric).
+    Fresh,
+}
+
+impl Chosen {
+    /// Tier, reason and data age of a graph answer that used `sources`
+    /// (the rules in [`crate::serving::tier`]).
+    pub fn label(&self, sources: &Sources) -> (Tier, Option<FallbackReason>, Option<f64>) {
+        let tier = sources.tier();
+        let reason = match (tier, self.live) {
+            (Tier::Live, _) | (_, LiveState::NotWanted) => None,
+            (_, LiveState::NoData) => Some(FallbackReason::NoLiveData),
+            (_, LiveState::Stale) => Some(FallbackReason::LiveStale),
+            (_, LiveState::Fresh) if sources.live > 0.0 => Some(FallbackReason::LiveMinority),
+            (_, LiveState::Fresh) => Some(FallbackReason::NoLiveOnRoute),
+        };
+        let age = match tier {
+            Tier::Live => self.live_age_s,
+            Tier::Historical => self.historical_age_s,
+            Tier::FreeFlow | Tier::Heuristic => None,
+        };
+        (tier, reason, age)
+    }
 }
 
 /// A metric owned by a snapshot: either its live blend or a bucket.
@@ -172,7 +211,12 @@ fn choose(cat: &Catalog, snap: &Snapshot, depart: Option<DateTime<Utc>>, hour: u
     let ttl = cat.cfg.live.ttl_s;
     let t = depart.unwrap_or(now);
     let leaving_now = ((t - now).num_milliseconds() as f64 / 1000.0).abs() <= ttl;
-    let mut reason = None;
+    let historical_age_s = snap
+        .historical
+        .as_ref()
+        .and(snap.historical_at)
+        .map(|a| ((now - a).num_milliseconds() as f64 / 1000.0).max(0.0));
+    let mut live = LiveState::NotWanted;
     if leaving_now {
         match &snap.live {
             Some(l) => {
@@ -182,26 +226,24 @@ fn choose(cat: &Catalog, snap: &Snapshot, depart: Option<DateTime<Utc>>, hour: u
                 if l.stats.any_fresh && age.map(|a| a <= ttl).unwrap_or(false) {
                     return Chosen {
                         metric: Arc::new(MetricRef::Live(l.clone())),
-                        tier: Tier::Live,
-                        reason: None,
-                        age_s: age.map(|a| a.max(0.0)),
+                        live: LiveState::Fresh,
+                        live_age_s: age.map(|a| a.max(0.0)),
+                        historical_age_s,
                         hour,
                         profile: None,
                     };
                 }
-                reason = Some(FallbackReason::LiveStale);
+                live = LiveState::Stale;
             }
-            None => reason = Some(FallbackReason::NoLiveData),
+            None => live = LiveState::NoData,
         }
     }
     let (profile, bucket) = snap.profiles.for_hour(hour);
     Chosen {
         metric: Arc::new(MetricRef::Bucket(bucket.clone())),
-        tier: Tier::Historical,
-        reason,
-        age_s: snap
-            .historical_at
-            .map(|a| ((now - a).num_milliseconds() as f64 / 1000.0).max(0.0)),
+        live,
+        live_age_s: None,
+        historical_age_s,
         hour,
         profile: Some(profile),
     }

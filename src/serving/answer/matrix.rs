@@ -1,16 +1,18 @@
 //! A matrix: the gate once for the whole request (one region holds every
 //! point), then bucket many-to-many on the blocking pool within the budget;
 //! rows not done in time, off-network points and unreachable cells come
-//! from the heuristic tier and are marked per cell.
+//! from the heuristic tier and are marked per cell. Every graph cell has its
+//! own sources, hence its own tier and reason.
 
 use super::gate::{gate, Chosen, Granted, MetricRef};
 use super::scratch::{with_scratch, ScratchCache};
 use super::{Catalog, CellAnswer, Estimator, MatrixAnswer};
+use crate::engine::cch::classes::ClassTimes;
 use crate::engine::cch::matrix::ManyToMany;
 use crate::engine::geo::LatLon;
 use crate::engine::region::matrix::{matrix, Cell, MatrixLimits, PointMatrix};
 use crate::serving::snapshot::{RegionHandle, Snapshot};
-use crate::serving::tier::{FallbackReason, Tier};
+use crate::serving::tier::{FallbackReason, Sources, Tier};
 use chrono::{DateTime, Utc};
 use std::cell::RefCell;
 use std::sync::Arc;
@@ -32,6 +34,7 @@ fn heuristic_cell(est: Estimator<'_>, a: LatLon, b: LatLon, reason: FallbackReas
         tier: Tier::Heuristic,
         reason: Some(reason),
         region: None,
+        sources: None,
     }
 }
 
@@ -195,16 +198,24 @@ async fn region_matrix_inner(
     let computed = compute(&snap, chosen.metric.clone(), from, to, limits).await;
     drop(permit);
     let cal = Estimator::for_hour(&snap, chosen.hour);
-    let Some(cells) = computed else {
+    let Some(graph) = computed else {
         return all_heuristic(cal, FallbackReason::BudgetExceeded, tag);
     };
-    let out = answers(&cells, from, to, &chosen, cal);
+    let out = answers(&graph, from, to, &chosen, cal);
     MatrixAnswer {
         rows,
         cols,
         cells: out,
         snapshot: tag,
     }
+}
+
+/// A matrix's graph cells, their class times (empty without classes) and
+/// each origin's road class (for zero-time cells).
+struct GraphCells {
+    cells: Vec<Cell>,
+    classes: Vec<ClassTimes>,
+    row_class: Vec<u8>,
 }
 
 /// The graph part of a matrix, on the blocking pool (a large matrix is
@@ -216,7 +227,7 @@ async fn compute(
     from: &[LatLon],
     to: &[LatLon],
     limits: MatrixLimits,
-) -> Option<Vec<Cell>> {
+) -> Option<GraphCells> {
     let snap = snap.clone();
     let (from, to) = (from.to_vec(), to.to_vec());
     let computed = tokio::task::spawn_blocking(move || {
@@ -227,8 +238,14 @@ async fn compute(
             |_| true,
             || (ManyToMany::new(&region.cch), PointMatrix::default()),
             |(m2m, out)| {
-                matrix(region, metric.get(), m2m, &from, &to, limits, out)
-                    .map(|_| out.cells.clone())
+                let metric = metric.get();
+                matrix(region, metric, m2m, &from, &to, limits, out).map(|_| GraphCells {
+                    cells: out.cells.clone(),
+                    classes: out.classes.clone(),
+                    row_class: (out.from.iter())
+                        .map(|s| s.as_ref().map_or(0, |s| metric.class_of(s.edge)))
+                        .collect(),
+                })
             },
         )
     })
@@ -239,27 +256,33 @@ async fn compute(
     }
 }
 
-/// Each cell's answer: the graph's with the chosen tier, or an estimate
-/// from `cal` marked with why the graph gave none.
+/// Each cell's answer: the graph's with the tier of its own sources, or an
+/// estimate from `cal` marked with why the graph gave none.
 fn answers(
-    cells: &[Cell],
+    graph: &GraphCells,
     from: &[LatLon],
     to: &[LatLon],
     chosen: &Chosen,
     cal: Estimator<'_>,
 ) -> Vec<CellAnswer> {
     let cols = to.len();
-    let mut out = Vec::with_capacity(cells.len());
-    for (i, c) in cells.iter().enumerate() {
+    let mut out = Vec::with_capacity(graph.cells.len());
+    for (i, c) in graph.cells.iter().enumerate() {
         let (a, b) = (from[i / cols], to[i % cols]);
         out.push(match *c {
-            Cell::Eta { time_s, meters } => CellAnswer {
-                eta_s: time_s,
-                meters,
-                tier: chosen.tier,
-                reason: chosen.reason,
-                region: None,
-            },
+            Cell::Eta { time_s, meters } => {
+                let ms = graph.classes.get(i).copied().unwrap_or_default();
+                let sources = Sources::from_class_ms(&ms, graph.row_class[i / cols]);
+                let (tier, reason, _) = chosen.label(&sources);
+                CellAnswer {
+                    eta_s: time_s,
+                    meters,
+                    tier,
+                    reason,
+                    sources: Some(sources),
+                    region: None,
+                }
+            }
             Cell::Unreachable => heuristic_cell(cal, a, b, FallbackReason::Unreachable),
             Cell::Unavailable => heuristic_cell(cal, a, b, FallbackReason::OffNetwork),
             Cell::NotComputed => heuristic_cell(cal, a, b, FallbackReason::BudgetExceeded),

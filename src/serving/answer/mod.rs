@@ -11,11 +11,15 @@
 //!    calibration), `overloaded`;
 //! 4. pick the metric: live if the departure is "now" (within the TTL) and
 //!    the region holds fresh live data; otherwise the metric of the
-//!    departure hour's profile (reason `no_live_data` / `live_stale` when
-//!    live was wanted), customized before its snapshot was published;
+//!    departure hour's profile, customized before its snapshot was
+//!    published;
 //! 5. snap and search: off-road → `off_network`, no path → `unreachable`,
 //!    both from the region's calibration; a matrix's cells not done within
-//!    the budget → `budget_exceeded`.
+//!    the budget → `budget_exceeded`;
+//! 6. label: the route's sources (time shares on live, historical and
+//!    free-flow edges) give its tier, and with the live state of step 4
+//!    its reason (`no_live_data`, `live_stale`, `no_live_on_route`,
+//!    `live_minority`; see [`crate::serving::tier`]).
 //!
 //! Every estimate from a region's calibration is scaled by the departure
 //! hour's factor ([`Estimator`]): the calibration was fitted on free-flow
@@ -47,7 +51,7 @@ use crate::engine::geo::LatLon;
 use crate::serving::admission::Admission;
 use crate::serving::settings::ServingSettings;
 use crate::serving::snapshot::{ProfileUsed, RegionHandle, Snapshot};
-use crate::serving::tier::{FallbackReason, Tier};
+use crate::serving::tier::{FallbackReason, Sources, Tier};
 use std::sync::Arc;
 use std::time::Duration;
 use tokio::sync::Semaphore;
@@ -172,7 +176,11 @@ pub struct Answer {
     pub meters: f64,
     pub tier: Tier,
     pub reason: Option<FallbackReason>,
+    /// Age (s) of the data behind the tier: the newest live observation
+    /// (`live`), the historical table (`historical`); none otherwise.
     pub speeds_age_s: Option<f64>,
+    /// Shares of the travel time per speed source (graph answers only).
+    pub sources: Option<Sources>,
     /// Region name and snapshot generation, when a region answered.
     pub snapshot: Option<(String, u64)>,
     pub from_snap_m: Option<f64>,
@@ -197,6 +205,8 @@ pub struct CellAnswer {
     /// its calibration), `None` outside every region: the cell's metric
     /// label ([`Catalog::region_label`]).
     pub region: Option<u16>,
+    /// Shares of the travel time per speed source (graph cells only).
+    pub sources: Option<Sources>,
 }
 
 /// A matrix answer, row-major.

@@ -192,14 +192,14 @@ async fn gate_fallbacks_and_graph_tiers() {
     );
     drop(held);
 
-    // No live data, leaving now → historical (free-flow), no_live_data;
-    // the time is petgraph's Dijkstra on free-flow weights.
+    // No live data, leaving now, no table → free_flow, no_live_data; the
+    // time is petgraph's Dijkstra on free-flow weights.
     let free = weights_at(g, |e| f64::from(g.edge_speed_kmh[e]));
     let want = dijkstra_ms(g, &free, s, t).unwrap() as f64 / 1000.0;
     let r = trip(&cat, a, b, None, Some(2000), false, true).await;
     assert_eq!(
         (r.tier, r.reason),
-        (Tier::Historical, Some(R::NoLiveData)),
+        (Tier::FreeFlow, Some(R::NoLiveData)),
         "{r:?}"
     );
     assert!(
@@ -212,10 +212,10 @@ async fn gate_fallbacks_and_graph_tiers() {
     let r = trip(&cat, a, b, None, Some(2000), true, true).await;
     assert!((r.eta_s - want).abs() < 1e-6 && r.geometry.is_some());
 
-    // A departure next week is not "now": historical, no reason.
+    // A departure next week is not "now": free_flow (no table), no reason.
     let later = Utc::now() + Days::days(7);
     let r = trip(&cat, a, b, Some(later), Some(2000), false, true).await;
-    assert_eq!((r.tier, r.reason), (Tier::Historical, None));
+    assert_eq!((r.tier, r.reason), (Tier::FreeFlow, None));
 
     // Far off-road but inside the coverage → off_network.
     let (lo, _) = g.bbox();
@@ -233,7 +233,7 @@ async fn gate_fallbacks_and_graph_tiers() {
     );
     assert_eq!(
         (mx.cells[0].tier, mx.cells[0].reason),
-        (Tier::Historical, Some(R::NoLiveData))
+        (Tier::FreeFlow, Some(R::NoLiveData))
     );
     assert!(
         (mx.cells[0].eta_s - want).abs() < 1e-6,
@@ -420,7 +420,7 @@ async fn stale_live_data_falls_back_to_historical() {
     .await;
     assert_eq!(
         (r.tier, r.reason),
-        (Tier::Historical, Some(R::LiveStale)),
+        (Tier::FreeFlow, Some(R::LiveStale)),
         "{r:?}"
     );
     // Nothing fresh: the time is free-flow, as petgraph's Dijkstra has it.
@@ -509,7 +509,7 @@ async fn unreachable_pairs_fall_back_per_trip_and_per_cell() {
         (mx.cells[0].tier, mx.cells[0].reason),
         (Tier::Heuristic, Some(R::Unreachable))
     );
-    assert_eq!(mx.cells[1].tier, Tier::Historical);
+    assert_eq!(mx.cells[1].tier, Tier::FreeFlow);
     let free = weights_at(&g, |e| f64::from(g.edge_speed_kmh[e]));
     let want = dijkstra_ms(&g, &free, s, u).unwrap() as f64 / 1000.0;
     assert!(
@@ -619,4 +619,156 @@ async fn a_held_profile_metric_keeps_its_snapshot_retired() {
     drop(held);
     settle().await;
     assert_eq!(region.retired().0, 0, "not freed after the holder let go");
+}
+
+/// A straight road 0–1–2–3 of known lengths (200, 300, 400 m, two-way,
+/// 36 km/h free-flow) with a spur 1–4 (150 m), node ids 1..=5 outside.
+fn line(dir: &Path) -> (PathBuf, RoadGraph) {
+    use crate::engine::graph::{EdgeSpec, GraphBuilder, RoadClass};
+    let mut b = GraphBuilder::default();
+    for (k, lon) in [0.010, 0.012, 0.015, 0.019].into_iter().enumerate() {
+        b.add_node(LatLon::new(0.01, lon), k as u64 + 1);
+    }
+    b.add_node(LatLon::new(0.0115, 0.012), 5);
+    for (way, (u, v, len)) in [(0, 1, 200.0), (1, 2, 300.0), (2, 3, 400.0), (1, 4, 150.0)]
+        .into_iter()
+        .enumerate()
+    {
+        for (tail, head) in [(u, v), (v, u)] {
+            b.add_edge(EdgeSpec {
+                tail,
+                head,
+                length_m: Some(len),
+                speed_kmh: 36.0,
+                way_id: way as u64 + 1,
+                class: RoadClass::Residential,
+                shape: &[],
+            });
+        }
+    }
+    let g = b.finish();
+    let art = assemble("test:line".into(), g.clone(), Calibration::fixed(1.3, 30.0));
+    let path = dir.join("line.hodos");
+    art.save(&path).unwrap();
+    (path, g)
+}
+
+/// Fresh live observations (stamped 5 s ahead: within the allowed skew,
+/// so age 0 and live weight exactly 1) at `kmh` on the directed roads
+/// `(from, to)` (outside node ids).
+async fn observe(region: &crate::serving::snapshot::RegionHandle, roads: &[(u64, u64)], kmh: f64) {
+    let at = (Utc::now() + Days::seconds(5)).to_rfc3339();
+    let batch: Vec<serde_json::Value> = roads
+        .iter()
+        .map(|&(u, v)| serde_json::json!({"tail": u, "head": v, "kmh": kmh, "observed_at": at, "samples": 1}))
+        .collect();
+    region
+        .put_live(&serde_json::to_vec(&batch).unwrap(), false)
+        .await
+        .unwrap();
+    assert!(region.refresh_live(true).await);
+}
+
+/// Sources, tier and reason on the straight road 0→3, worked by hand:
+/// each edge's time is length × 3600 ÷ speed ms (200 m at 18 km/h live =
+/// 40 000; 300 m at 24 km/h historical = 45 000, at 36 km/h free-flow =
+/// 30 000, at 18 km/h live = 60 000; 400 m at 36 km/h = 40 000, at 18 km/h
+/// = 80 000; 200 m at 36 km/h = 20 000), and each share is that edge's
+/// time over the total.
+#[tokio::test]
+async fn sources_name_the_speeds_the_route_used() {
+    let dir = tempfile::tempdir().unwrap();
+    let (artifact, g) = line(dir.path());
+    let cat = catalog(&artifact, &g, &dir.path().join("state")).await;
+    let region = cat.regions[0].clone();
+    let (a, b) = (g.node_pos(0), g.node_pos(3));
+    let shares = |r: &super::Answer| {
+        let s = r.sources.expect("graph answers carry sources");
+        assert!(close(s.live + s.historical + s.free_flow, 1.0), "{s:?}");
+        (s.live, s.historical, s.free_flow)
+    };
+    let near = |x: (f64, f64, f64), y: (f64, f64, f64)| {
+        close(x.0, y.0) && close(x.1, y.1) && close(x.2, y.2)
+    };
+
+    // No table, no live data: all free-flow, 900 m at 36 km/h = 90 s.
+    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    assert_eq!((r.tier, r.reason), (Tier::FreeFlow, Some(R::NoLiveData)));
+    assert_eq!(
+        (r.eta_s, shares(&r), r.speeds_age_s),
+        (90.0, (0.0, 0.0, 1.0), None)
+    );
+    let later = Utc::now() + Days::days(7);
+    let r = trip(&cat, a, b, Some(later), Some(2000), false, true).await;
+    assert_eq!((r.tier, r.reason), (Tier::FreeFlow, None));
+
+    // A table row for 1→2 in every hour: 20 + 45 + 40 = 105 s; free-flow
+    // carries 60/105, so the tier is free_flow, by the largest share.
+    let mut csv = crate::testkit::HistoricalCsv::with_header();
+    for hour in 0..168 {
+        csv.row(2, 3, hour, 24);
+    }
+    region
+        .put_historical(csv.into_string().into_bytes())
+        .await
+        .unwrap();
+    let r = trip(&cat, a, b, Some(later), Some(2000), false, true).await;
+    assert_eq!((r.tier, r.reason, r.eta_s), (Tier::FreeFlow, None, 105.0));
+    assert!(near(shares(&r), (0.0, 45.0 / 105.0, 60.0 / 105.0)), "{r:?}");
+
+    // One fresh observation on the spur 2→5, off the route (the issue's
+    // observation 1): same time, no live share, not live, no live age
+    // (free-flow carries most, so no age at all).
+    observe(&region, &[(2, 5)], 18.0).await;
+    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    assert_eq!(
+        (r.tier, r.reason, r.eta_s, r.speeds_age_s),
+        (Tier::FreeFlow, Some(R::NoLiveOnRoute), 105.0, None),
+        "{r:?}"
+    );
+    assert_eq!(shares(&r).0, 0.0);
+
+    // Outside ids: live on 1→2 (40 s), historical 2→3 (45 s), free-flow
+    // 3→4 (40 s):
+    // 0.32 / 0.36 / 0.32 → historical, with the table's age; the route is
+    // partly live, so the reason is live_minority.
+    observe(&region, &[(1, 2)], 18.0).await;
+    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    assert_eq!(
+        (r.tier, r.reason, r.eta_s),
+        (Tier::Historical, Some(R::LiveMinority), 125.0),
+        "{r:?}"
+    );
+    assert!(near(shares(&r), (0.32, 0.36, 0.32)), "{r:?}");
+    assert!(r.speeds_age_s.is_some_and(|s| s < 600.0));
+    // The route answer and the matrix cell say the same.
+    let route = trip(&cat, a, b, None, Some(2000), true, true).await;
+    assert_eq!((route.tier, route.sources), (r.tier, r.sources));
+    let mx = matrix_trip(&cat, vec![a], vec![b], None, Some(2000), true).await;
+    let c = mx.cells[0];
+    assert_eq!((c.tier, c.reason, c.eta_s), (r.tier, r.reason, r.eta_s));
+    assert!(near(
+        c.sources
+            .map(|s| (s.live, s.historical, s.free_flow))
+            .unwrap(),
+        (0.32, 0.36, 0.32)
+    ));
+
+    // The whole road on fresh live data: 40 + 60 + 80 = 180 s, all live.
+    observe(&region, &[(2, 3), (3, 4)], 18.0).await;
+    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    assert_eq!(
+        (r.tier, r.reason, r.eta_s),
+        (Tier::Live, None, 180.0),
+        "{r:?}"
+    );
+    assert_eq!(shares(&r), (1.0, 0.0, 0.0));
+    assert!(r.speeds_age_s.is_some_and(|s| s < 60.0));
+    // The other way (outside ids 4→1) has no live data and no table row
+    // (the table names 2→3 only): all free-flow.
+    let back = trip(&cat, b, a, None, Some(2000), false, true).await;
+    assert_eq!(
+        (back.tier, back.reason, shares(&back)),
+        (Tier::FreeFlow, Some(R::NoLiveOnRoute), (0.0, 0.0, 1.0))
+    );
 }

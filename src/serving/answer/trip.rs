@@ -1,6 +1,8 @@
 //! One trip (ETA, or route with geometry): the gate, then snap and search
 //! with this thread's query scratch; off-road and unreachable ends fall
-//! back to the heuristic tier from the region's calibration.
+//! back to the heuristic tier from the region's calibration. A graph
+//! answer's tier, reason and age follow from the sources its route used
+//! ([`crate::serving::tier`]).
 
 use super::gate::{gate, Granted, Tag};
 use super::scratch::{with_scratch, ScratchCache};
@@ -8,7 +10,7 @@ use super::{Answer, Catalog, Estimator};
 use crate::engine::cch::CchQuery;
 use crate::engine::geo::LatLon;
 use crate::engine::region::{End, EtaError};
-use crate::serving::tier::{FallbackReason, Tier};
+use crate::serving::tier::{FallbackReason, Sources, Tier};
 use chrono::{DateTime, Utc};
 use std::cell::RefCell;
 use std::sync::Arc;
@@ -34,6 +36,7 @@ fn heuristic(
         tier: Tier::Heuristic,
         reason: Some(reason),
         speeds_age_s: None,
+        sources: None,
         snapshot,
         from_snap_m: None,
         to_snap_m: None,
@@ -94,19 +97,25 @@ pub async fn trip(
     drop(permit);
     let cal = Estimator::for_hour(&snap, chosen.hour);
     match result {
-        Ok((eta, geometry)) => Answer {
-            eta_s: eta.time_s,
-            meters: eta.meters,
-            tier: chosen.tier,
-            reason: chosen.reason,
-            speeds_age_s: chosen.age_s,
-            snapshot: tag,
-            from_snap_m: Some(eta.from.distance_m),
-            to_snap_m: Some(eta.to.distance_m),
-            geometry,
-            hour_of_week: Some(chosen.hour),
-            profile: chosen.profile,
-        },
+        Ok((eta, geometry)) => {
+            let zero_class = metric.class_of(eta.from.edge);
+            let sources = Sources::from_class_ms(&eta.classes.unwrap_or_default(), zero_class);
+            let (tier, reason, age) = chosen.label(&sources);
+            Answer {
+                eta_s: eta.time_s,
+                meters: eta.meters,
+                tier,
+                reason,
+                speeds_age_s: age,
+                sources: Some(sources),
+                snapshot: tag,
+                from_snap_m: Some(eta.from.distance_m),
+                to_snap_m: Some(eta.to.distance_m),
+                geometry,
+                hour_of_week: Some(chosen.hour),
+                profile: chosen.profile,
+            }
+        }
         Err(EtaError::OffNetwork { .. }) => {
             heuristic(cal, from, to, FallbackReason::OffNetwork, tag)
         }

@@ -12,7 +12,7 @@ use super::{RegionHandle, Snapshot};
 use crate::engine::region::{Metric, Region};
 use crate::serving::metrics as m;
 use crate::serving::retire::Retiree;
-use crate::serving::speeds::{HistoricalProfile, HourGrouping};
+use crate::serving::speeds::{sources, HistoricalProfile, HourGrouping};
 use std::sync::Arc;
 use std::time::Instant;
 
@@ -74,7 +74,11 @@ pub(super) fn profile_metric(
         Some(h) => h.speeds_for_hour(free_flow, hour),
         None => free_flow.to_vec(),
     };
-    region.metric(crate::engine::metric::from_speeds(&region.graph, &speeds))
+    // Each edge's source class (historical where the hour has a row,
+    // free-flow elsewhere) so answers report the sources of their time.
+    let classes = sources::hour_classes(hist, speeds.len(), hour);
+    let weights = crate::engine::metric::from_speeds(&region.graph, &speeds);
+    region.metric_with_classes(weights, classes)
 }
 
 /// A superseded snapshot: in use while a request holds it or any of its

@@ -6,13 +6,18 @@
 //! Blending, saving and all file work run off the request workers: blends
 //! and saves on the `updates` thread, customizations on the customizer
 //! thread, the watched folder's `std::fs` calls on tokio's blocking pool.
+//!
+//! A blend labels each edge live (fresh observation), else as the bucket it
+//! blends into ([`crate::serving::speeds::sources`]); the live metric
+//! carries those classes so answers report how much of their time is live.
 
 use super::load::{live_state_path, live_wal_path};
 use super::{age_s, LiveMetric, RegionHandle, Snapshot};
 use crate::engine::region::{Metric, Region};
 use crate::serving::metrics as m;
 use crate::serving::speeds::{
-    blend_into, save_live, BlendStats, EdgeIndex, HistoricalProfile, LiveLayer, SpeedsError,
+    blend_into, save_live, sources, BlendStats, EdgeIndex, HistoricalProfile, LiveLayer,
+    SpeedsError,
 };
 use chrono::{DateTime, Utc};
 use std::path::{Path, PathBuf};
@@ -28,9 +33,12 @@ struct BlendParams {
     tz: chrono_tz::Tz,
 }
 
-/// Blended speeds per edge, the blend's statistics and the newest
-/// observation it used.
-pub(super) type Blended = (Vec<f32>, BlendStats, Option<DateTime<Utc>>);
+/// Blended speeds and their source classes per edge, the blend's
+/// statistics and the newest observation it used.
+pub(super) type Blended = (Speeds, BlendStats, Option<DateTime<Utc>>);
+
+/// One speed (km/h) and one source class per edge.
+pub(super) type Speeds = (Vec<f32>, Vec<u8>);
 
 /// The parts of a snapshot a live blend reads (owned, for the updates
 /// thread).
@@ -55,9 +63,11 @@ fn blend_layer(
         Some(h) => h.speeds_for_hour(&snap.free_flow_kmh, hour),
         None => snap.free_flow_kmh.to_vec(),
     };
+    let base_classes = sources::hour_classes(snap.historical.as_deref(), base.len(), hour);
     let mut blended = Vec::new();
-    blend_into(&base, layer, now, p.half_life, p.ttl, &mut blended)
-        .map(|stats| (blended, stats, newest))
+    let stats = blend_into(&base, layer, now, p.half_life, p.ttl, &mut blended)?;
+    let classes = sources::live_classes(&base_classes, layer, now, p.ttl);
+    Ok(((blended, classes), stats, newest))
 }
 
 /// Saves `layer` to `path` (creating its folder), then empties the
@@ -155,16 +165,19 @@ impl RegionHandle {
         }
     }
 
-    /// Customizes blended speeds on `region` on the customizer thread;
-    /// `None` if the job panicked.
+    /// Customizes blended speeds (with their source classes) on `region`
+    /// on the customizer thread; `None` if the job panicked.
     pub(super) async fn customize_live(
         &self,
         region: Arc<Region>,
-        blended: Vec<f32>,
+        (blended, classes): Speeds,
     ) -> Option<Metric> {
         self.settings
             .customizer
-            .run(move || region.metric(crate::engine::metric::from_speeds(&region.graph, &blended)))
+            .run(move || {
+                let weights = crate::engine::metric::from_speeds(&region.graph, &blended);
+                region.metric_with_classes(weights, classes)
+            })
             .await
     }
 

@@ -18,6 +18,8 @@
 //! - [`profiles`]: the 168 hours grouped into a bounded set of
 //!   representative profiles (exact or k-means), their deviation, and the
 //!   per-hour factors of the heuristic tier.
+//! - [`sources`]: the source class of each edge's speed (free-flow,
+//!   historical, live), next to the speed vector it describes.
 //! - [`persist`]: atomic file writes and save/load of both tables.
 //! - [`wal`]: the write-ahead log of accepted live batches (framed, fsynced
 //!   before the answer, replayed at start).
@@ -46,6 +48,7 @@ pub mod persist;
 pub mod profiles;
 pub mod report;
 pub mod wal;
+pub mod sources;
 
 pub use blend::{blend, blend_into, live_weight, BlendStats};
 pub use clock::{hour_of_week, HOURS_PER_WEEK};
