@@ -94,18 +94,39 @@ async fn ask_all(
     for (i, &s) in src.iter().enumerate() {
         for (j, &t) in dst.iter().enumerate() {
             let body = with_depart(json!({"from": coord(g, s), "to": coord(g, t)}));
-            let r = send(public, "POST", "/v1/eta", Some("application/json"), body, None).await;
+            let r = send(
+                public,
+                "POST",
+                "/v1/eta",
+                Some("application/json"),
+                body,
+                None,
+            )
+            .await;
             assert_eq!(r.status, 200, "{}", r.text);
             let v = r.json();
             let w = want[i * dst.len() + j];
-            bad.extend(mismatch(&format!("eta {s}→{t}"), &v["eta_s"], &v["tier"], w));
+            bad.extend(mismatch(
+                &format!("eta {s}→{t}"),
+                &v["eta_s"],
+                &v["tier"],
+                w,
+            ));
         }
     }
     let body = with_depart(json!({
         "from": src.iter().map(|&s| coord(g, s)).collect::<Vec<_>>(),
         "to": dst.iter().map(|&t| coord(g, t)).collect::<Vec<_>>(),
     }));
-    let r = send(public, "POST", "/v1/eta/matrix", Some("application/json"), body, None).await;
+    let r = send(
+        public,
+        "POST",
+        "/v1/eta/matrix",
+        Some("application/json"),
+        body,
+        None,
+    )
+    .await;
     assert_eq!(r.status, 200, "{}", r.text);
     let v = r.json();
     for (i, &s) in src.iter().enumerate() {
@@ -155,7 +176,10 @@ async fn node_pairs_through_http_equal_dijkstra_before_and_after_an_upload() {
     let want = reference(g, &free_flow(g), &src, &dst);
     // NY is one strongly connected component in the DIMACS file, so every
     // sampled pair has a reference distance.
-    assert!(want.iter().all(Option::is_some), "a sampled pair is unreachable");
+    assert!(
+        want.iter().all(Option::is_some),
+        "a sampled pair is unreachable"
+    );
     let bad = ask_all(&public, g, &src, &dst, &want, None).await;
     assert!(
         bad.is_empty(),

@@ -880,7 +880,10 @@ async fn metrics_geojson_and_openapi_parse_with_outside_tools() {
         .filter(|s| s.metric == "hodos_build_info")
         .collect();
     assert_eq!(info.len(), 1, "one build info series");
-    assert_eq!(info[0].labels.get("version"), Some(env!("CARGO_PKG_VERSION")));
+    assert_eq!(
+        info[0].labels.get("version"),
+        Some(env!("CARGO_PKG_VERSION"))
+    );
     assert!(info[0].labels.get("commit").is_some_and(|c| !c.is_empty()));
     assert!(matches!(info[0].value, prometheus_parse::Value::Gauge(v) if v == 1.0));
 

@@ -8,7 +8,6 @@ use super::dto::{
 use super::problem::ApiError;
 use super::routes;
 use super::{AnswerLabels, AppState};
-use metrics::SharedString;
 use crate::serving::answer::{self, CellAnswer};
 use crate::serving::tier::{FallbackReason, Tier};
 use axum::body::Bytes;
@@ -16,6 +15,7 @@ use axum::extract::{RawQuery, Request, State};
 use axum::http::{header, StatusCode};
 use axum::response::{IntoResponse, Response};
 use axum::Json;
+use metrics::SharedString;
 
 /// Reads a JSON request body up to the configured limit.
 async fn body_bytes(state: &AppState, req: Request) -> Result<Bytes, ApiError> {

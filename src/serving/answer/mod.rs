@@ -97,7 +97,9 @@ impl Catalog {
         region
             .and_then(|i| self.labels.get(usize::from(i)))
             .cloned()
-            .unwrap_or(metrics::SharedString::const_str(crate::serving::metrics::NO_REGION))
+            .unwrap_or(metrics::SharedString::const_str(
+                crate::serving::metrics::NO_REGION,
+            ))
     }
 
     /// The `region` metric label of a region named in an answer's tag.

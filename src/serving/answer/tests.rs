@@ -311,10 +311,10 @@ async fn gate_fallbacks_and_graph_tiers() {
     // graph at once: every profile was customized before the table was
     // published (the old lazy bucket answered `budget_exceeded` here). The
     // table names no edge in that hour, so the time is petgraph's
-    // free-flow Dijkstra.
+    // free-flow Dijkstra, and the answer is labelled free_flow.
     let cold = later + Days::hours(5);
     let r = trip(&cat, a, b, Some(cold), Some(0), false, true).await;
-    assert_eq!((r.tier, r.reason), (Tier::Historical, None), "{r:?}");
+    assert_eq!((r.tier, r.reason), (Tier::FreeFlow, None), "{r:?}");
     assert!(
         (r.eta_s - want).abs() < 1e-6,
         "{} vs petgraph {want}",

@@ -16,9 +16,7 @@ use super::load::{
     choose_historical, file_stamp, historical_state_path, live_wal_path, load_region, Chosen,
     Loaded, TableChoice,
 };
-use super::{
-    LiveMetric, RegionHandle, ReloadOutcome, Reloaded, Snapshot, TableSource, Writer,
-};
+use super::{LiveMetric, RegionHandle, ReloadOutcome, Reloaded, Snapshot, TableSource, Writer};
 use crate::serving::metrics as m;
 use crate::serving::speeds::wal::{self, BatchKind};
 use crate::serving::speeds::{

@@ -47,8 +47,8 @@ pub mod live;
 pub mod persist;
 pub mod profiles;
 pub mod report;
-pub mod wal;
 pub mod sources;
+pub mod wal;
 
 pub use blend::{blend, blend_into, live_weight, BlendStats};
 pub use clock::{hour_of_week, HOURS_PER_WEEK};
