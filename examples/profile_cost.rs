@@ -3,7 +3,7 @@
 //! testkit's 168-hour weekly table, and the median latency of `trip` for
 //! "now" departures and for random departures over a week.
 //!
-//! `cargo run --release --example profile_cost -- [PROFILES]` (default 8).
+//! `cargo run --release --example profile_cost -- [PROFILES]` (default 4, the `query.profiles` default).
 //! The parent builds the artifact and the table; a child process opens the
 //! region and measures, so the build's own memory does not count.
 
@@ -41,7 +41,7 @@ fn main() {
     let profiles: usize = std::env::args()
         .nth(1)
         .and_then(|a| a.parse().ok())
-        .unwrap_or(8);
+        .unwrap_or(4);
     let Ok(dir) = std::env::var("PROFILE_COST_DIR") else {
         let ny = match DimacsNy::find() {
             Ok(ny) => ny,

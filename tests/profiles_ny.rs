@@ -97,7 +97,7 @@ fn ny_every_departure_hour_answers_from_its_profile() {
         prof.build_s
     );
     assert!(status.ready);
-    assert_eq!(prof.count, 8, "default query.profiles");
+    assert_eq!(prof.count, 4, "default query.profiles");
     assert!(!prof.exact, "noise makes every hour distinct");
     let cat = Catalog::new(s, vec![handle]);
 

@@ -86,7 +86,7 @@ impl Default for QueryConfig {
             max_queue_ms: 5,
             max_cpu_wait: 0.4,
             bucket_cache: 2,
-            profiles: 8,
+            profiles: 4,
         }
     }
 }
