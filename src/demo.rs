@@ -253,11 +253,11 @@ pub fn curl_lines(
     );
     let _ = writeln!(
         out,
-        "# the same trip at a weekday rush hour (historical tier; the budget lets the first request\n# for an hour not yet customized wait for it)"
+        "# the same trip at a weekday rush hour: answered from that hour's profile, which names\n# itself; `sources` gives the shares of the time on live, historical and free-flow speeds"
     );
     let _ = writeln!(
         out,
-        "curl -s '{p}/v1/eta?from={:.6},{:.6}&to={:.6},{:.6}&leaving=2026-12-07T08:15:00Z&budget_ms=1500'",
+        "curl -s '{p}/v1/eta?from={:.6},{:.6}&to={:.6},{:.6}&leaving=2026-12-07T08:15:00Z'",
         s.lat, s.lon, n.lat, n.lon
     );
     let _ = writeln!(out, "# a 2x3 matrix");
