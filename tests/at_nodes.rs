@@ -130,7 +130,7 @@ fn check_matrix(region: &Region, metric: &Metric, nodes: &[u32], k: usize, seed:
 
 /// Both checks under free-flow and under random per-edge speeds.
 fn check(region: &Region, pairs: (usize, usize), label: &str) {
-    let nodes = distinct_nodes(region);
+    let nodes = distinct_nodes(&region.graph);
     assert!(nodes.len() * 10 > region.graph.num_nodes() * 9, "{label}");
     let ff = region.free_flow();
     check_eta(

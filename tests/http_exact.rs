@@ -16,6 +16,7 @@
 
 mod common;
 
+use common::graphs::distinct_nodes;
 use common::http::send;
 use common::service::TOKEN;
 use common::{dimacs_ny, petgraph_of, reference_dists, write, SplitMix64};
@@ -33,22 +34,6 @@ const TARGETS: usize = 25;
 /// A Monday 08:30 UTC: hour of week 8 (the region's zone is UTC).
 const DEPART: &str = "2026-12-07T08:30:00Z";
 const HOUR: u32 = 8;
-
-/// Nodes whose position no other node shares (a coordinate shared by two
-/// nodes names neither of them).
-fn distinct_nodes(g: &RoadGraph) -> Vec<u32> {
-    let mut count: HashMap<(u64, u64), u32> = HashMap::new();
-    for v in 0..g.num_nodes() as u32 {
-        let p = g.node_pos(v);
-        *count.entry((p.lat.to_bits(), p.lon.to_bits())).or_default() += 1;
-    }
-    (0..g.num_nodes() as u32)
-        .filter(|&v| {
-            let p = g.node_pos(v);
-            count[&(p.lat.to_bits(), p.lon.to_bits())] == 1
-        })
-        .collect()
-}
 
 fn coord(g: &RoadGraph, v: u32) -> Value {
     let p = g.node_pos(v);

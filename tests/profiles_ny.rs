@@ -103,7 +103,7 @@ fn ny_every_departure_hour_answers_from_its_profile() {
 
     // Departures: sources × random targets among nodes with a position of
     // their own (a coordinate there snaps onto the node).
-    let nodes = distinct_nodes(&hodos::engine::region::Region::from_artifact(art.clone()));
+    let nodes = distinct_nodes(&art.graph);
     let sources: Vec<u32> = (0..SOURCES)
         .map(|_| nodes[rng.below(nodes.len()) as usize])
         .collect();

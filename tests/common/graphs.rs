@@ -178,8 +178,7 @@ pub fn assert_same_graph(a: &RoadGraph, b: &RoadGraph) {
 
 /// Nodes whose position no other node shares (a coordinate shared by two
 /// nodes names neither of them).
-pub fn distinct_nodes(region: &Region) -> Vec<u32> {
-    let g = &region.graph;
+pub fn distinct_nodes(g: &RoadGraph) -> Vec<u32> {
     let mut count: std::collections::HashMap<(u64, u64), u32> = Default::default();
     for v in 0..g.num_nodes() as u32 {
         let p = g.node_pos(v);
