@@ -98,4 +98,8 @@ pub enum UpdateError {
     /// The update could not be carried out.
     #[error("{0}")]
     Failed(UpdateFailure),
+    /// A reload found no usable historical table (every candidate was
+    /// refused); the table that served keeps serving. The text names why.
+    #[error("no historical table could be used: {0}")]
+    TablesRejected(String),
 }
