@@ -38,13 +38,15 @@ pub struct Config {
 }
 
 /// Why a configuration was refused.
+///
+/// A `cause` is written into the message and is not a `source()`: a
+/// chain printer (anyhow's `{:#}`) would otherwise print it twice.
 #[derive(Debug, thiserror::Error)]
 pub enum ConfigError {
-    #[error("{}: {source}", path.display())]
+    #[error("{}: {cause}", path.display())]
     Io {
         path: PathBuf,
-        #[source]
-        source: std::io::Error,
+        cause: std::io::Error,
     },
     #[error("{}: {msg}", path.display())]
     Parse { path: PathBuf, msg: String },
@@ -62,7 +64,7 @@ impl Config {
     pub fn load(path: &Path) -> Result<Config, ConfigError> {
         let text = std::fs::read_to_string(path).map_err(|source| ConfigError::Io {
             path: path.to_path_buf(),
-            source,
+            cause: source,
         })?;
         let mut cfg = Config::parse(&text).map_err(|msg| ConfigError::Parse {
             path: path.to_path_buf(),

@@ -357,7 +357,7 @@ impl RegionHandle {
                     if let Some(dir) = path.parent() {
                         std::fs::create_dir_all(dir).map_err(|source| UpdateFailure::StateDir {
                             dir: dir.to_path_buf(),
-                            source,
+                            cause: source,
                         })?;
                     }
                     save_historical(&path, &csv).map_err(UpdateFailure::Save)?;
