@@ -81,7 +81,8 @@ impl Config {
             .into_iter()
             .flatten()
             {
-                if p.is_relative() {
+                // An empty path stays empty, for `validate` to refuse.
+                if p.is_relative() && !p.as_os_str().is_empty() {
                     *p = base.join(&*p);
                 }
             }
@@ -181,6 +182,14 @@ impl Config {
             }
             if !names.insert(r.name.clone()) {
                 return Err((key("name"), format!("duplicate region name {:?}", r.name)));
+            }
+            // Required (TOML parsing refuses a region without it); an empty
+            // path would silently mean the config file's own folder.
+            if r.state_dir.as_os_str().is_empty() {
+                return Err((
+                    key("state_dir"),
+                    "required: a directory for saved tables and the live log".into(),
+                ));
             }
             if r.time_zone.parse::<chrono_tz::Tz>().is_err() {
                 return Err((

@@ -281,10 +281,7 @@ fn cmd_info(file: &std::path::Path) -> anyhow::Result<()> {
         .and_then(|s| chrono::DateTime::from_timestamp(s, 0))
         .map(|t| t.to_rfc3339_opts(chrono::SecondsFormat::Secs, true))
         .unwrap_or_else(|| format!("{} (unix seconds)", art.meta.built_at_unix));
-    println!(
-        "built at      {built}, hodos {}",
-        art.meta.hodos_version
-    );
+    println!("built at      {built}, hodos {}", art.meta.hodos_version);
     Ok(())
 }
 

@@ -79,10 +79,7 @@ pub enum UpdateFailure {
     LiveTask,
     /// The state directory could not be created.
     #[error("{}: {cause}", dir.display())]
-    StateDir {
-        dir: PathBuf,
-        cause: std::io::Error,
-    },
+    StateDir { dir: PathBuf, cause: std::io::Error },
     /// An accepted table could not be saved to the state directory.
     #[error("{0}")]
     Save(PersistError),

@@ -60,8 +60,5 @@ pub enum PersistError {
     /// The file is intact but its table no longer validates against the
     /// current graph (for example after a map rebuild).
     #[error("{}: saved table no longer valid: {cause}", path.display())]
-    Invalid {
-        path: PathBuf,
-        cause: SpeedsError,
-    },
+    Invalid { path: PathBuf, cause: SpeedsError },
 }

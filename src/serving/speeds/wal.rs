@@ -82,10 +82,7 @@ pub struct Replay {
 #[derive(Debug, thiserror::Error)]
 pub enum WalError {
     #[error("{}: {cause}", path.display())]
-    Io {
-        path: PathBuf,
-        cause: io::Error,
-    },
+    Io { path: PathBuf, cause: io::Error },
     #[error("{}: not a write-ahead log: {reason}", path.display())]
     Corrupt { path: PathBuf, reason: String },
 }
