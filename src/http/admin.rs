@@ -1,7 +1,10 @@
 //! Admin API on its own listener: upload a historical table, post live
 //! observations, trigger a reload, read per-region status. Every route
-//! requires `Authorization: Bearer <token>`, compared in constant time; with
-//! no token configured every request is refused.
+//! requires `Authorization: Bearer <token>` (the scheme in any letter case,
+//! RFC 9110 §11.1), compared in constant time; with no token configured
+//! every request is refused. 404 names only an unknown region; a region
+//! without a graph answers 409, a failed reload 422 or 500, each with the
+//! reason in the problem's `detail`.
 
 use super::dto::{
     HistoricalAccepted, LiveAccepted, RegionStatusDto, ReloadResponse, StatusResponse,
