@@ -38,13 +38,15 @@ pub struct Config {
 }
 
 /// Why a configuration was refused.
+///
+/// A `cause` is written into the message and is not a `source()`: a
+/// chain printer (anyhow's `{:#}`) would otherwise print it twice.
 #[derive(Debug, thiserror::Error)]
 pub enum ConfigError {
-    #[error("{}: {source}", path.display())]
+    #[error("{}: {cause}", path.display())]
     Io {
         path: PathBuf,
-        #[source]
-        source: std::io::Error,
+        cause: std::io::Error,
     },
     #[error("{}: {msg}", path.display())]
     Parse { path: PathBuf, msg: String },
@@ -62,7 +64,7 @@ impl Config {
     pub fn load(path: &Path) -> Result<Config, ConfigError> {
         let text = std::fs::read_to_string(path).map_err(|source| ConfigError::Io {
             path: path.to_path_buf(),
-            source,
+            cause: source,
         })?;
         let mut cfg = Config::parse(&text).map_err(|msg| ConfigError::Parse {
             path: path.to_path_buf(),
@@ -79,7 +81,8 @@ impl Config {
             .into_iter()
             .flatten()
             {
-                if p.is_relative() {
+                // An empty path stays empty, for `validate` to refuse.
+                if p.is_relative() && !p.as_os_str().is_empty() {
                     *p = base.join(&*p);
                 }
             }
@@ -179,6 +182,14 @@ impl Config {
             }
             if !names.insert(r.name.clone()) {
                 return Err((key("name"), format!("duplicate region name {:?}", r.name)));
+            }
+            // Required (TOML parsing refuses a region without it); an empty
+            // path would silently mean the config file's own folder.
+            if r.state_dir.as_os_str().is_empty() {
+                return Err((
+                    key("state_dir"),
+                    "required: a directory for saved tables and the live log".into(),
+                ));
             }
             if r.time_zone.parse::<chrono_tz::Tz>().is_err() {
                 return Err((

@@ -27,10 +27,18 @@ pub enum DemoError {
     Build(#[from] crate::engine::build::BuildError),
     #[error(transparent)]
     Artifact(#[from] crate::engine::artifact::ArtifactError),
+    /// The cause is in the message, so it is no `source()` (a chain
+    /// printer would repeat it).
     #[error("demo files: {0}")]
-    Io(#[from] std::io::Error),
+    Io(std::io::Error),
     #[error("demo configuration: {0}")]
     Config(String),
+}
+
+impl From<std::io::Error> for DemoError {
+    fn from(e: std::io::Error) -> Self {
+        DemoError::Io(e)
+    }
 }
 
 /// Files the demo prepared.

@@ -59,7 +59,8 @@ enum Command {
     /// Build the demo city and serve it on 127.0.0.1 with a simulated live
     /// feed (the default command).
     Demo {
-        /// Public API port (the admin API takes the next one).
+        /// Public API port (the admin API takes the next one). The demo
+        /// refuses to start if either is taken; 0 asks for any free ports.
         #[arg(long, default_value_t = 8080)]
         port: u16,
         /// Build, answer one sample ETA and exit instead of serving.
@@ -77,9 +78,26 @@ struct SourceArgs {
     /// A 9th DIMACS Challenge graph: the .gr and .co files (plain or gzip).
     #[arg(long, num_args = 2, value_names = ["GR", "CO"])]
     dimacs: Option<Vec<PathBuf>>,
-    /// A synthetic city with about this many intersections.
-    #[arg(long, value_name = "NODES")]
+    /// A synthetic city with about this many intersections (at least
+    /// the generator's minimum).
+    #[arg(long, value_name = "NODES", value_parser = synthetic_nodes)]
     synthetic: Option<usize>,
+}
+
+/// Parses `--synthetic`: a count the generator can honour, or a clear
+/// refusal (below its minimum the city's fixed skeleton is larger than
+/// asked, so the request would be silently overridden).
+fn synthetic_nodes(s: &str) -> Result<usize, String> {
+    let min = hodos::engine::import::synthetic::MIN_NODES;
+    let n: usize = s
+        .parse()
+        .map_err(|_| format!("expected a number of intersections, got {s:?}"))?;
+    if n < min {
+        return Err(format!(
+            "{n} intersections is below the synthetic city's minimum of {min}"
+        ));
+    }
+    Ok(n)
 }
 
 #[derive(Args)]
@@ -243,10 +261,27 @@ fn print_summary(art: &Artifact) {
 fn cmd_info(file: &std::path::Path) -> anyhow::Result<()> {
     let art = Artifact::load(file)?;
     print_summary(&art);
+    let (lo, hi) = art.graph.bbox();
     println!(
-        "built at      {} (unix seconds), hodos {}",
-        art.meta.built_at_unix, art.meta.hodos_version
+        "extent        lat {:.6} to {:.6}, lon {:.6} to {:.6}",
+        lo.lat, hi.lat, lo.lon, hi.lon
     );
+    // Ready to paste into a [[region]] of the configuration, padded by
+    // 0.01 degrees so points just off the outermost roads still snap.
+    let pad = 0.01;
+    println!(
+        "coverage      coverage = {{ bbox = [{:.4}, {:.4}, {:.4}, {:.4}] }}",
+        lo.lat - pad,
+        lo.lon - pad,
+        hi.lat + pad,
+        hi.lon + pad
+    );
+    let built = i64::try_from(art.meta.built_at_unix)
+        .ok()
+        .and_then(|s| chrono::DateTime::from_timestamp(s, 0))
+        .map(|t| t.to_rfc3339_opts(chrono::SecondsFormat::Secs, true))
+        .unwrap_or_else(|| format!("{} (unix seconds)", art.meta.built_at_unix));
+    println!("built at      {built}, hodos {}", art.meta.hodos_version);
     Ok(())
 }
 
@@ -331,8 +366,12 @@ fn runtime() -> anyhow::Result<tokio::runtime::Runtime> {
 fn init_tracing() {
     let filter = tracing_subscriber::EnvFilter::try_from_env("HODOS_LOG")
         .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info,tower_http=warn"));
+    // Colour codes only for a terminal: a log redirected to a file or a
+    // collector gets plain text.
+    let ansi = std::io::IsTerminal::is_terminal(&std::io::stderr());
     let _ = tracing_subscriber::fmt()
         .with_env_filter(filter)
+        .with_ansi(ansi)
         .with_writer(std::io::stderr)
         .try_init();
 }
@@ -421,18 +460,31 @@ fn cmd_serve(config: &std::path::Path, strict: bool) -> anyhow::Result<()> {
 fn cmd_demo(port: u16) -> anyhow::Result<()> {
     tune_allocator();
     init_tracing();
-    let dir = std::env::temp_dir().join("hodos-demo");
+    // A folder of this run's own (artifact, table, state), removed at
+    // exit: a demo always starts clean, never serving what an earlier one
+    // was sent.
+    let dir = std::env::temp_dir().join(format!("hodos-demo-{}", std::process::id()));
     let token = format!("demo-{:016x}", rand_token());
-    runtime()?.block_on(async move {
-        let public = match hodos::http::bind(([127, 0, 0, 1], port).into()).await {
-            Ok(l) => l,
-            Err(_) => hodos::http::bind(([127, 0, 0, 1], 0).into()).await?,
-        };
-        let admin = match hodos::http::bind(([127, 0, 0, 1], port.wrapping_add(1)).into()).await {
-            Ok(l) => l,
-            Err(_) => hodos::http::bind(([127, 0, 0, 1], 0).into()).await?,
-        };
+    let admin_port = match port {
+        0 => 0,
+        p => p
+            .checked_add(1)
+            .with_context(|| format!("port {p}: the admin API needs the next port"))?,
+    };
+    let result = runtime()?.block_on(async {
+        let public = hodos::http::bind(([127, 0, 0, 1], port).into())
+            .await
+            .with_context(|| {
+                format!("port {port} (public API) is not free; choose another with --port, or --port 0 for any free ports")
+            })?;
+        let admin = hodos::http::bind(([127, 0, 0, 1], admin_port).into())
+            .await
+            .with_context(|| {
+                format!("port {admin_port} (admin API, --port + 1) is not free; choose another with --port, or --port 0 for any free ports")
+            })?;
         let (pa, aa) = (public.local_addr()?, admin.local_addr()?);
+        let _ = std::fs::remove_dir_all(&dir);
+        println!("demo files in {} (removed at exit)", dir.display());
         println!(
             "building the demo city {} ({} intersections)...",
             hodos::engine::import::synthetic::CITY_NAME,
@@ -478,9 +530,17 @@ fn cmd_demo(port: u16) -> anyhow::Result<()> {
         })
         .await?;
         let _ = feed.await;
-        println!("stopped");
         Ok(())
-    })
+    });
+    if dir.exists() {
+        if let Err(e) = std::fs::remove_dir_all(&dir) {
+            eprintln!("could not remove {}: {e}", dir.display());
+        }
+    }
+    if result.is_ok() {
+        println!("stopped");
+    }
+    result
 }
 
 /// A token for the demo's admin API (not a secret worth more than a demo).

@@ -195,3 +195,145 @@ fn serve_strict_refuses_a_broken_region() {
         "{err}"
     );
 }
+
+/// The OS error text of a missing file, as the standard library writes it
+/// (`std::io::Error`'s Display), for comparing against the binary's output.
+fn not_found_text(dir: &Path) -> String {
+    std::fs::File::open(dir.join("no-such-file"))
+        .unwrap_err()
+        .to_string()
+}
+
+/// An error's cause is printed once: the message chain (anyhow's `{:#}`)
+/// must not repeat a cause that the error's own text already holds.
+#[test]
+fn errors_name_their_cause_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let os = not_found_text(dir.path());
+    let missing = dir.path().join("missing.hodos");
+    let toml = dir.path().join("missing.toml");
+    let gr = dir.path().join("missing.gr");
+    for args in [
+        vec!["info", missing.to_str().unwrap()],
+        vec!["serve", "--config", toml.to_str().unwrap()],
+        vec![
+            "build",
+            "--dimacs",
+            gr.to_str().unwrap(),
+            gr.to_str().unwrap(),
+            "--out",
+            missing.to_str().unwrap(),
+        ],
+    ] {
+        let (ok, _, err) = hodos(&args);
+        assert!(!ok, "{args:?}");
+        assert_eq!(err.matches(os.as_str()).count(), 1, "{args:?}: {err}");
+    }
+}
+
+/// The generator's skeleton has 176 intersections whatever is asked below
+/// it (measured, see `synthetic::MIN_NODES`): such a request is refused,
+/// naming the minimum, rather than silently overridden.
+#[test]
+fn build_refuses_a_synthetic_count_below_the_minimum() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("tiny.hodos");
+    let min = hodos::engine::import::synthetic::MIN_NODES.to_string();
+    for n in ["0", "1", "100"] {
+        let (ok, _, err) = hodos(&["build", "--synthetic", n, "--out", out.to_str().unwrap()]);
+        assert!(!ok, "--synthetic {n} built a city");
+        assert!(err.contains(&min), "{n}: names the minimum: {err}");
+        assert!(!out.exists());
+    }
+    let (ok, _, err) = hodos(&["build", "--synthetic", &min, "--out", out.to_str().unwrap()]);
+    assert!(ok, "{err}");
+}
+
+/// `hodos info` prints the extent as a ready-to-paste coverage line (the
+/// graph's bounding box, padded) and the build time in RFC 3339 (parsed
+/// with chrono's RFC 3339 parser).
+#[test]
+fn info_prints_extent_and_an_rfc3339_build_time() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("city.hodos");
+    let (ok, _, err) = hodos(&[
+        "build",
+        "--synthetic",
+        "400",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert!(ok, "{err}");
+    let (ok, stdout, err) = hodos(&["info", out.to_str().unwrap()]);
+    assert!(ok, "{err}");
+    let art = hodos::engine::artifact::Artifact::load(&out).unwrap();
+    let (lo, hi) = art.graph.bbox();
+    let line = stdout
+        .lines()
+        .find_map(|l| {
+            l.trim_start_matches("coverage")
+                .trim()
+                .strip_prefix("coverage = ")
+        })
+        .unwrap_or_else(|| panic!("no coverage line: {stdout}"));
+    // The line is TOML as config/hodos.toml takes it.
+    let v: toml::Table = toml::from_str(&format!("coverage = {line}")).unwrap();
+    let b: Vec<f64> = v["coverage"]["bbox"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|x| x.as_float().unwrap())
+        .collect();
+    assert!(
+        b[0] <= lo.lat && b[1] <= lo.lon && b[2] >= hi.lat && b[3] >= hi.lon,
+        "{b:?}"
+    );
+    assert!(b[0] > lo.lat - 0.1 && b[3] < hi.lon + 0.1, "{b:?}");
+    let built = stdout
+        .lines()
+        .find_map(|l| l.strip_prefix("built at"))
+        .unwrap()
+        .trim();
+    let stamp = built.split(',').next().unwrap();
+    let t =
+        chrono::DateTime::parse_from_rfc3339(stamp).unwrap_or_else(|e| panic!("{stamp:?}: {e}"));
+    assert_eq!(t.timestamp() as u64, art.meta.built_at_unix);
+}
+
+/// Logs written to a pipe or file carry no ANSI escape sequences (ECMA-48
+/// CSI starts with ESC `[`); the warning about a missing token is logged
+/// before `--strict` refuses the broken region.
+#[test]
+fn logs_off_a_terminal_are_plain_text() {
+    let dir = tempfile::tempdir().unwrap();
+    let broken = dir.path().join("broken.hodos");
+    std::fs::write(&broken, b"not an artifact").unwrap();
+    let cfg = dir.path().join("hodos.toml");
+    std::fs::write(
+        &cfg,
+        format!(
+            "[server]\nlisten = \"127.0.0.1:0\"\n[admin]\nlisten = \"127.0.0.1:0\"\n{}",
+            hodos::testkit::region_table(
+                "r",
+                &broken,
+                &dir.path().join("state"),
+                LatLon::new(1.0, 1.0),
+                LatLon::new(2.0, 2.0),
+                0.0
+            )
+        ),
+    )
+    .unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_hodos"))
+        .args(["serve", "--config", cfg.to_str().unwrap(), "--strict"])
+        .env_remove("HODOS_ADMIN_TOKEN")
+        .env_remove("NO_COLOR")
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("no admin token"), "{err}");
+    assert!(
+        !err.contains("\u{1b}["),
+        "ANSI escapes in a piped log: {err:?}"
+    );
+}

@@ -52,6 +52,13 @@ coverage = { bbox = [1, 1, 2, 2] }
         (base.replace("name = \"a\"", "name = \"a b\""), "name"),
         (base.replace("[1, 1, 2, 2]", "[2, 2, 1, 1]"), "bbox"),
         (format!("{base}time_zone = \"Mars/Olympus\"\n"), "time_zone"),
+        // state_dir is required (config/hodos.toml says so): missing or
+        // empty, the error names it.
+        (base.replace("state_dir = \"s\"\n", ""), "state_dir"),
+        (
+            base.replace("state_dir = \"s\"", "state_dir = \"\""),
+            "state_dir",
+        ),
     ] {
         let err = match Config::parse(&text) {
             Err(e) => e,

@@ -57,13 +57,15 @@ pub struct Artifact {
 }
 
 /// Why an artifact could not be written or read.
+///
+/// A `cause` is written into the message and is not a `source()`: a
+/// chain printer (anyhow's `{:#}`) would otherwise print it twice.
 #[derive(Debug, thiserror::Error)]
 pub enum ArtifactError {
-    #[error("{}: {source}", path.display())]
+    #[error("{}: {cause}", path.display())]
     Io {
         path: PathBuf,
-        #[source]
-        source: std::io::Error,
+        cause: std::io::Error,
     },
     #[error("{}: not a hodos artifact (wrong magic bytes)", path.display())]
     BadMagic { path: PathBuf },
@@ -86,7 +88,7 @@ impl Artifact {
     pub fn save(&self, path: &Path) -> Result<u64, ArtifactError> {
         let io = |source| ArtifactError::Io {
             path: path.to_path_buf(),
-            source,
+            cause: source,
         };
         let payload = bincode::serialize(self).map_err(|e| ArtifactError::Decode {
             path: path.to_path_buf(),
@@ -113,13 +115,13 @@ impl Artifact {
     pub fn load(path: &Path) -> Result<Artifact, ArtifactError> {
         let mut f = std::fs::File::open(path).map_err(|source| ArtifactError::Io {
             path: path.to_path_buf(),
-            source,
+            cause: source,
         })?;
         let mut bytes = Vec::new();
         f.read_to_end(&mut bytes)
             .map_err(|source| ArtifactError::Io {
                 path: path.to_path_buf(),
-                source,
+                cause: source,
             })?;
         Self::from_bytes(path, &bytes)
     }

@@ -1,7 +1,10 @@
 //! Admin API on its own listener: upload a historical table, post live
 //! observations, trigger a reload, read per-region status. Every route
-//! requires `Authorization: Bearer <token>`, compared in constant time; with
-//! no token configured every request is refused.
+//! requires `Authorization: Bearer <token>` (the scheme in any letter case,
+//! RFC 9110 §11.1), compared in constant time; with no token configured
+//! every request is refused. 404 names only an unknown region; a region
+//! without a graph answers 409, a failed reload 422 or 500, each with the
+//! reason in the problem's `detail`.
 
 use super::dto::{
     HistoricalAccepted, LiveAccepted, RegionStatusDto, ReloadResponse, StatusResponse,
@@ -9,7 +12,7 @@ use super::dto::{
 };
 use super::problem::ApiError;
 use super::{routes, AppState};
-use crate::serving::snapshot::{RegionHandle, Reloaded, UpdateError};
+use crate::serving::snapshot::{RegionHandle, Reloaded, UpdateError, UpdateFailure};
 use axum::extract::{Path, Request, State};
 use axum::http::{header, HeaderMap};
 use axum::middleware::Next;
@@ -45,9 +48,15 @@ pub fn token_ok(headers: &HeaderMap, expected: &str) -> bool {
     else {
         return false;
     };
-    let Some(given) = v.strip_prefix("Bearer ") else {
+    // RFC 9110 §11.1 / RFC 7235 §2.1: the scheme name is case-insensitive
+    // and is followed by one or more spaces.
+    let Some((scheme, given)) = v.split_once(' ') else {
         return false;
     };
+    if !scheme.eq_ignore_ascii_case("bearer") {
+        return false;
+    }
+    let given = given.trim_start_matches(' ');
     given.as_bytes().ct_eq(expected.as_bytes()).into()
 }
 
@@ -88,9 +97,16 @@ fn update_error(e: UpdateError) -> ApiError {
             detail: err.to_string(),
             report: err.report().map(|r| Box::new(TableReportDto::from(r))),
         },
-        UpdateError::Unavailable(msg) => {
-            ApiError::NotFound(format!("region has no loaded graph: {msg}"))
-        }
+        // 404 is for unknown region names only: a known region without a
+        // graph is a state conflict the operator can fix (reload).
+        UpdateError::Unavailable(why) => ApiError::NoGraph(why.to_string()),
+        UpdateError::TablesRejected(why) => ApiError::Rejected {
+            detail: format!("no historical table could be used: {why}"),
+            report: None,
+        },
+        UpdateError::Failed(UpdateFailure::Load(e)) => ApiError::ReloadFailed(format!(
+            "the artifact did not load: {e}; the serving snapshot, if any, is unchanged"
+        )),
         UpdateError::Failed(msg) => {
             tracing::error!(error = %msg, "admin update failed");
             ApiError::Internal
@@ -146,15 +162,16 @@ pub(super) async fn reload(
     Path(name): Path<String>,
 ) -> Result<Json<ReloadResponse>, ApiError> {
     let r = region(&state, &name)?;
-    let result = r.reload().await;
-    let st = r.status();
-    let (outcome, error) = match result {
-        Ok(Reloaded::Accepted) => ("accepted", None),
-        Ok(Reloaded::Unchanged) => ("unchanged", None),
-        Err(e) => ("failed", Some(e.to_string())),
+    // A reload that changed nothing because it failed is an error answer
+    // (500 for an artifact that did not load, 422 when every historical
+    // table was refused), never a 200.
+    let outcome = match r.reload().await.map_err(update_error)? {
+        Reloaded::Accepted => "accepted",
+        Reloaded::Unchanged => "unchanged",
     };
+    let st = r.status();
     Ok(Json(ReloadResponse {
-        error,
+        error: None,
         outcome,
         ready: st.ready,
         serving_generation: st.generation,

@@ -135,7 +135,7 @@ pub fn admin_put_historical() -> Value {
         "parameters": region_param(),
         "requestBody": {"required": true, "content": {"text/csv": {"schema": {"type": "string"}}}},
         "responses": {"200": json_response("Accepted, with the validation report", "HistoricalAccepted"),
-                      "401": problem_response("Missing or wrong token"), "404": problem_response("Unknown region"), "413": problem_response("Upload too large"),
+                      "401": problem_response("Missing or wrong token"), "404": problem_response("Unknown region"), "409": problem_response("The region has no graph loaded (its artifact failed to load); the detail names why"), "413": problem_response("Upload too large"),
                       "422": problem_response("Rejected whole; the problem carries the validation report")}})
 }
 
@@ -147,14 +147,17 @@ pub fn admin_post_live() -> Value {
             "text/csv": {"schema": {"type": "string"}}}},
         "responses": {"200": json_response("Applied, with the validation report", "LiveAccepted"),
                       "401": problem_response("Missing or wrong token"), "404": problem_response("Unknown region"),
+                      "409": problem_response("The region has no graph loaded (its artifact failed to load); the detail names why"),
                       "422": problem_response("Rejected whole; the problem carries the validation report")}})
 }
 
 pub fn admin_reload() -> Value {
     json!({"operationId": "adminReload", "summary": "Reload the region's artifact and historical table", "security": admin_auth(),
         "parameters": region_param(),
-        "responses": {"200": json_response("Outcome (accepted, unchanged when the artifact and the chosen historical table are the ones serving, or failed with the error text); a failed reload leaves the serving snapshot as it was", "ReloadResponse"),
-                      "401": problem_response("Missing or wrong token"), "404": problem_response("Unknown region")}})
+        "responses": {"200": json_response("Outcome: accepted, or unchanged when the artifact and the chosen historical table are the ones serving", "ReloadResponse"),
+                      "401": problem_response("Missing or wrong token"), "404": problem_response("Unknown region"),
+                      "422": problem_response("Every historical table was refused; the detail names why and the serving table keeps serving"),
+                      "500": problem_response("The artifact did not load; the detail names why and the serving snapshot, if any, is unchanged")}})
 }
 
 /// The Paths Object: each table route with its operations.

@@ -30,6 +30,13 @@ pub enum ApiError {
     Unauthorized,
     /// No such resource (e.g. an unknown region in the admin API).
     NotFound(String),
+    /// The region exists but has no graph loaded (its artifact failed to
+    /// load); the text names why. 409: the region's state, not the request,
+    /// is at fault, and a reload can fix it.
+    NoGraph(String),
+    /// An admin reload could not load the artifact; the text names why
+    /// (admin-only, so the operator sees the cause).
+    ReloadFailed(String),
     /// The uploaded table was refused; `detail` summarises, `report` is the
     /// validation report (`null` when the table was refused before rows
     /// were read, e.g. for its header).
@@ -77,6 +84,8 @@ impl ApiError {
             ApiError::TooLarge { .. } => StatusCode::PAYLOAD_TOO_LARGE,
             ApiError::Unauthorized => StatusCode::UNAUTHORIZED,
             ApiError::NotFound(_) => StatusCode::NOT_FOUND,
+            ApiError::NoGraph(_) => StatusCode::CONFLICT,
+            ApiError::ReloadFailed(_) => StatusCode::INTERNAL_SERVER_ERROR,
             ApiError::UnsupportedMediaType(_) => StatusCode::UNSUPPORTED_MEDIA_TYPE,
             ApiError::Internal => StatusCode::INTERNAL_SERVER_ERROR,
         }
@@ -91,6 +100,8 @@ impl ApiError {
             ApiError::OverLimit { .. } => "urn:hodos:problem:over-limit",
             ApiError::Unauthorized => "urn:hodos:problem:unauthorized",
             ApiError::NotFound(_) => "urn:hodos:problem:not-found",
+            ApiError::NoGraph(_) => "urn:hodos:problem:region-without-graph",
+            ApiError::ReloadFailed(_) => "urn:hodos:problem:reload-failed",
             ApiError::Rejected { .. } => "urn:hodos:problem:table-rejected",
             ApiError::UnsupportedMediaType(_) => "urn:hodos:problem:unsupported-media-type",
             ApiError::Internal => "urn:hodos:problem:internal",
@@ -105,6 +116,8 @@ impl ApiError {
             ApiError::OverLimit { .. } => "Request over a configured limit",
             ApiError::Unauthorized => "Missing or wrong bearer token",
             ApiError::NotFound(_) => "Not found",
+            ApiError::NoGraph(_) => "Region has no graph loaded",
+            ApiError::ReloadFailed(_) => "Reload failed",
             ApiError::Rejected { .. } => "Table rejected",
             ApiError::UnsupportedMediaType(_) => "Unsupported media type",
             ApiError::Internal => "Internal error",
@@ -123,7 +136,8 @@ impl ApiError {
             ApiError::Unauthorized => {
                 "send `Authorization: Bearer <token>` with the admin token".into()
             }
-            ApiError::NotFound(m) => m.clone(),
+            ApiError::NotFound(m) | ApiError::ReloadFailed(m) => m.clone(),
+            ApiError::NoGraph(m) => format!("region has no graph loaded: {m}"),
             ApiError::Rejected { detail, .. } => detail.clone(),
             ApiError::UnsupportedMediaType(m) => m.clone(),
             ApiError::Internal => "the request could not be completed; it has been logged".into(),

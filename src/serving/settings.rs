@@ -175,7 +175,9 @@ pub struct RegionConfig {
     /// Directory watched for live-observation CSV files (optional).
     #[serde(default)]
     pub live_dir: Option<PathBuf>,
-    /// Where accepted tables are kept across restarts.
+    /// Where accepted tables and the live write-ahead log are kept across
+    /// restarts. Required: without it an acknowledged upload could not
+    /// survive a restart.
     pub state_dir: PathBuf,
 }
 

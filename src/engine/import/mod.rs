@@ -17,13 +17,15 @@ pub mod synthetic;
 use std::path::{Path, PathBuf};
 
 /// A failure to read an input source.
+///
+/// A `cause` is written into the message and is not a `source()`: a
+/// chain printer (anyhow's `{:#}`) would otherwise print it twice.
 #[derive(Debug, thiserror::Error)]
 pub enum ImportError {
-    #[error("{}: {source}", path.display())]
+    #[error("{}: {cause}", path.display())]
     Io {
         path: PathBuf,
-        #[source]
-        source: std::io::Error,
+        cause: std::io::Error,
     },
     #[error("{}:{line}: {msg}", path.display())]
     Syntax {
@@ -41,7 +43,7 @@ impl ImportError {
     pub fn io(path: &Path, source: std::io::Error) -> Self {
         ImportError::Io {
             path: path.to_path_buf(),
-            source,
+            cause: source,
         }
     }
     pub fn syntax(path: &Path, line: usize, msg: impl Into<String>) -> Self {

@@ -31,15 +31,18 @@ impl std::fmt::Display for Degraded {
 }
 
 /// A historical table that could not be read from its configured path.
+///
+/// A `cause` is written into the message and is not a `source()`: a
+/// chain printer (anyhow's `{:#}`) would otherwise print it twice.
 #[derive(Debug, thiserror::Error)]
 pub enum TableReadError {
-    #[error("{}: {source}", path.display())]
+    #[error("{}: {cause}", path.display())]
     Read {
         path: PathBuf,
-        source: std::io::Error,
+        cause: std::io::Error,
     },
-    #[error("{}: {source}", path.display())]
-    Parse { path: PathBuf, source: SpeedsError },
+    #[error("{}: {cause}", path.display())]
+    Parse { path: PathBuf, cause: SpeedsError },
 }
 
 /// Why a candidate historical table was passed over at a load (the other
@@ -54,6 +57,9 @@ pub enum HistoricalNote {
 }
 
 /// What went wrong inside an update that was not the data's fault.
+///
+/// A `cause` is written into the message and is not a `source()`: a
+/// chain printer (anyhow's `{:#}`) would otherwise print it twice.
 #[derive(Debug, thiserror::Error)]
 pub enum UpdateFailure {
     /// The blocking load task itself failed (panicked or was cancelled).
@@ -72,11 +78,8 @@ pub enum UpdateFailure {
     #[error("live batch task failed")]
     LiveTask,
     /// The state directory could not be created.
-    #[error("{}: {source}", dir.display())]
-    StateDir {
-        dir: PathBuf,
-        source: std::io::Error,
-    },
+    #[error("{}: {cause}", dir.display())]
+    StateDir { dir: PathBuf, cause: std::io::Error },
     /// An accepted table could not be saved to the state directory.
     #[error("{0}")]
     Save(PersistError),
@@ -98,4 +101,8 @@ pub enum UpdateError {
     /// The update could not be carried out.
     #[error("{0}")]
     Failed(UpdateFailure),
+    /// A reload found no usable historical table (every candidate was
+    /// refused); the table that served keeps serving. The text names why.
+    #[error("no historical table could be used: {0}")]
+    TablesRejected(String),
 }

@@ -360,7 +360,19 @@ impl RegionHandle {
                 continue;
             };
             let outcome = self.put_live(&bytes, true).await;
-            let ext = if outcome.is_ok() { "done" } else { "rejected" };
+            let ext = match &outcome {
+                Ok(_) => "done",
+                Err(e) => {
+                    // The operator finds the file renamed; the log says why.
+                    tracing::warn!(
+                        region = %self.name,
+                        file = %f.display(),
+                        reason = %e,
+                        "live file rejected (renamed to .rejected)"
+                    );
+                    "rejected"
+                }
+            };
             let _ = tokio::task::spawn_blocking(move || mark(&f, ext)).await;
         }
     }

@@ -182,7 +182,7 @@ pub(super) fn choose_historical(
             Err(source) => {
                 let e = crate::serving::speeds::PersistError::Invalid {
                     path: saved_path.clone(),
-                    source,
+                    cause: source,
                 };
                 refused(name, "historical", &e);
                 out.problems.push(HistoricalNote::Saved(e));
@@ -281,12 +281,12 @@ fn read_table(
 ) -> Result<HistoricalProfile, TableReadError> {
     let bytes = std::fs::read(path).map_err(|source| TableReadError::Read {
         path: path.to_path_buf(),
-        source,
+        cause: source,
     })?;
     HistoricalProfile::parse(&bytes, index, v)
         .map(|(p, _)| p)
         .map_err(|source| TableReadError::Parse {
             path: path.to_path_buf(),
-            source,
+            cause: source,
         })
 }

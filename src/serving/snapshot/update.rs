@@ -146,10 +146,10 @@ impl RegionHandle {
                 table: "historical",
                 outcome: "rejected",
                 at: now,
-                error: note,
+                error: note.clone(),
                 report: None,
             });
-            return Ok(Reloaded::Unchanged);
+            return Err(UpdateError::TablesRejected(note.unwrap_or_default()));
         }
         if same {
             self.record(ReloadOutcome {
@@ -357,7 +357,7 @@ impl RegionHandle {
                     if let Some(dir) = path.parent() {
                         std::fs::create_dir_all(dir).map_err(|source| UpdateFailure::StateDir {
                             dir: dir.to_path_buf(),
-                            source,
+                            cause: source,
                         })?;
                     }
                     save_historical(&path, &csv).map_err(UpdateFailure::Save)?;
@@ -369,10 +369,14 @@ impl RegionHandle {
             .map_err(UpdateError::Failed)
     }
 
-    /// Applies a batch of live observations (JSON array or CSV).
+    /// Applies a batch of live observations (JSON array or CSV). A batch
+    /// without rows (`[]`, a CSV with only its header) is accepted with a
+    /// report of 0 rows and changes nothing: no live layer is created, no
+    /// log record written, no re-blend started.
     pub async fn put_live(&self, body: &[u8], csv: bool) -> Result<TableReport, UpdateError> {
         let mut w = self.writer.lock().await;
         let snap = self.current_or_unavailable()?;
+        let held = w.live.is_some();
         let layer = w
             .live
             .take()
@@ -383,6 +387,12 @@ impl RegionHandle {
         };
         w.live = Some(layer);
         match r {
+            Ok(Ok(report)) if report.rows == 0 => {
+                if !held {
+                    w.live = None;
+                }
+                Ok(report)
+            }
             Ok(Err(e)) => {
                 w.live_changed = true;
                 drop(w);
@@ -441,6 +451,10 @@ impl RegionHandle {
                     layer.apply_json(&index, &body, now, &validation)
                 };
                 let r = r.map(|report| {
+                    if report.rows == 0 {
+                        // Nothing to replay: an empty batch changes nothing.
+                        return Ok(report);
+                    }
                     let kind = if csv { BatchKind::Csv } else { BatchKind::Json };
                     let _ = std::fs::create_dir_all(&dir);
                     wal::append(&log, kind, &body, true).map(|()| report)

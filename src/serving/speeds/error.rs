@@ -43,13 +43,15 @@ impl SpeedsError {
 }
 
 /// Why a saved table could not be written or read back.
+///
+/// A `cause` is written into the message and is not a `source()`: a
+/// chain printer (anyhow's `{:#}`) would otherwise print it twice.
 #[derive(Debug, thiserror::Error)]
 pub enum PersistError {
-    #[error("{}: {source}", path.display())]
+    #[error("{}: {cause}", path.display())]
     Io {
         path: PathBuf,
-        #[source]
-        source: std::io::Error,
+        cause: std::io::Error,
     },
     /// The file exists but is not an intact saved table (truncated, damaged,
     /// another kind of file).
@@ -57,10 +59,6 @@ pub enum PersistError {
     Corrupt { path: PathBuf, reason: String },
     /// The file is intact but its table no longer validates against the
     /// current graph (for example after a map rebuild).
-    #[error("{}: saved table no longer valid: {source}", path.display())]
-    Invalid {
-        path: PathBuf,
-        #[source]
-        source: SpeedsError,
-    },
+    #[error("{}: saved table no longer valid: {cause}", path.display())]
+    Invalid { path: PathBuf, cause: SpeedsError },
 }

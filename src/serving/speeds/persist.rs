@@ -135,7 +135,7 @@ pub fn load_historical(
         .map(Some)
         .map_err(|source| PersistError::Invalid {
             path: path.to_path_buf(),
-            source,
+            cause: source,
         })
 }
 
@@ -165,7 +165,7 @@ pub fn load_live(
         live.apply_json(index, json, now, cfg)
             .map_err(|source| PersistError::Invalid {
                 path: path.to_path_buf(),
-                source,
+                cause: source,
             })?;
     Ok(Some((live, report)))
 }
@@ -246,7 +246,7 @@ fn read_if_exists(path: &Path) -> Result<Option<Vec<u8>>, PersistError> {
 fn io_err(path: &Path, source: io::Error) -> PersistError {
     PersistError::Io {
         path: PathBuf::from(path),
-        source,
+        cause: source,
     }
 }
 

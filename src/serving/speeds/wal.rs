@@ -75,14 +75,14 @@ pub struct Replay {
     pub torn: Option<(String, u64)>,
 }
 
+/// Why the write-ahead log could not be written or read.
+///
+/// A `cause` is written into the message and is not a `source()`: a
+/// chain printer (anyhow's `{:#}`) would otherwise print it twice.
 #[derive(Debug, thiserror::Error)]
 pub enum WalError {
-    #[error("{}: {source}", path.display())]
-    Io {
-        path: PathBuf,
-        #[source]
-        source: io::Error,
-    },
+    #[error("{}: {cause}", path.display())]
+    Io { path: PathBuf, cause: io::Error },
     #[error("{}: not a write-ahead log: {reason}", path.display())]
     Corrupt { path: PathBuf, reason: String },
 }
@@ -90,7 +90,7 @@ pub enum WalError {
 fn io_err(path: &Path) -> impl FnOnce(io::Error) -> WalError + '_ {
     move |source| WalError::Io {
         path: path.to_path_buf(),
-        source,
+        cause: source,
     }
 }
 
@@ -123,7 +123,7 @@ pub fn append(path: &Path, kind: BatchKind, body: &[u8], sync: bool) -> Result<(
         .filter(|&n| n <= MAX_RECORD)
         .ok_or_else(|| WalError::Io {
             path: path.to_path_buf(),
-            source: io::Error::new(io::ErrorKind::InvalidInput, "batch too large to log"),
+            cause: io::Error::new(io::ErrorKind::InvalidInput, "batch too large to log"),
         })?;
     buf.extend_from_slice(&n.to_le_bytes());
     buf.extend_from_slice(&crc.finalize().to_le_bytes());
