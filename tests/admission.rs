@@ -121,9 +121,18 @@ struct Seen {
     slowest: Duration,
 }
 
-/// `clients` concurrent callers, each sending `each` ETA requests one
-/// after another (closed loop); every answer must be a 200.
-async fn load(addr: SocketAddr, clients: usize, each: usize, budget_ms: Option<u64>) -> Seen {
+/// `clients` concurrent callers, each sending up to `each` ETA requests one
+/// after another (closed loop) for at most `secs` seconds (long enough for
+/// a signal measured over 100 ms windows to show); every answer must be a
+/// 200.
+async fn load(
+    addr: SocketAddr,
+    clients: usize,
+    each: usize,
+    secs: u64,
+    budget_ms: Option<u64>,
+) -> Seen {
+    let end = Instant::now() + Duration::from_secs(secs);
     let c = client();
     let tasks: Vec<_> = (0..clients)
         .map(|k| {
@@ -131,6 +140,9 @@ async fn load(addr: SocketAddr, clients: usize, each: usize, budget_ms: Option<u
             tokio::spawn(async move {
                 let mut seen = Seen::default();
                 for i in 0..each {
+                    if Instant::now() > end {
+                        break;
+                    }
                     let t0 = Instant::now();
                     let r = c
                         .post(format!("http://{addr}/v1/eta"))
@@ -171,33 +183,40 @@ async fn load(addr: SocketAddr, clients: usize, each: usize, budget_ms: Option<u
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn sixteen_clients_at_default_settings_are_not_shed() {
     let s = start("").await;
-    let seen = load(s.public, 16, 20, None).await;
-    assert_eq!(seen.answers, 320);
+    let seen = load(s.public, 16, 2000, 3, None).await;
+    eprintln!("{seen:?}");
+    assert!(seen.answers >= 16, "{seen:?}");
     assert_eq!(seen.overloaded, 0, "{seen:?}");
     assert_eq!(seen.heuristic, 0, "every trip is inside the region: {seen:?}");
 }
 
-/// Observation 1: another process keeping a core busy is no reason to
-/// shed. A thread of this test spins on one core for the whole run
+/// Observation 1: other work keeping the machine's cores busy is no reason
+/// to shed. Threads of this test spin, one per core, for the whole run
 /// (stopped by the test) while 8 clients load the server.
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
-async fn a_busy_neighbour_does_not_shed() {
+async fn busy_neighbours_do_not_shed() {
     let s = start("").await;
     let stop = Arc::new(AtomicBool::new(false));
-    let spin = {
-        let stop = stop.clone();
-        std::thread::spawn(move || {
-            let mut x = 0u64;
-            while !stop.load(Ordering::Relaxed) {
-                x = std::hint::black_box(x.wrapping_mul(6364136223846793005).wrapping_add(1));
-            }
-            x
+    let cores = std::thread::available_parallelism().map_or(2, |n| n.get());
+    let spinners: Vec<_> = (0..cores)
+        .map(|_| {
+            let stop = stop.clone();
+            std::thread::spawn(move || {
+                let mut x = 0u64;
+                while !stop.load(Ordering::Relaxed) {
+                    x = std::hint::black_box(x.wrapping_mul(6364136223846793005).wrapping_add(1));
+                }
+                x
+            })
         })
-    };
-    let seen = load(s.public, 8, 25, None).await;
+        .collect();
+    let seen = load(s.public, 8, 2000, 3, None).await;
+    eprintln!("{seen:?}");
     stop.store(true, Ordering::Relaxed);
-    spin.join().unwrap();
-    assert_eq!(seen.answers, 200);
+    for t in spinners {
+        t.join().unwrap();
+    }
+    assert!(seen.answers >= 8, "{seen:?}");
     assert_eq!(seen.overloaded, 0, "{seen:?}");
 }
 
@@ -221,7 +240,8 @@ async fn stalled_bodies_hold_no_place() {
         .collect();
     // Let the server read every stalled request's headers.
     tokio::time::sleep(Duration::from_millis(300)).await;
-    let seen = load(s.public, 4, 25, None).await;
+    let seen = load(s.public, 4, 25, 30, None).await;
+    eprintln!("{seen:?}");
     drop(stalled);
     assert_eq!(seen.answers, 100);
     assert_eq!(seen.overloaded, 0, "{seen:?}");
@@ -265,7 +285,8 @@ async fn real_overload_sheds_and_answers_everyone_in_time() {
         })
         .collect();
     tokio::time::sleep(Duration::from_millis(200)).await;
-    let seen = load(addr, 8, 25, Some(2)).await;
+    let seen = load(addr, 8, 25, 30, Some(2)).await;
+    eprintln!("{seen:?}");
     stop.store(true, Ordering::Relaxed);
     for h in hogs {
         h.await.unwrap();
