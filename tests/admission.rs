@@ -187,7 +187,10 @@ async fn sixteen_clients_at_default_settings_are_not_shed() {
     eprintln!("{seen:?}");
     assert!(seen.answers >= 16, "{seen:?}");
     assert_eq!(seen.overloaded, 0, "{seen:?}");
-    assert_eq!(seen.heuristic, 0, "every trip is inside the region: {seen:?}");
+    assert_eq!(
+        seen.heuristic, 0,
+        "every trip is inside the region: {seen:?}"
+    );
 }
 
 /// Observation 1: other work keeping the machine's cores busy is no reason
@@ -260,7 +263,10 @@ async fn real_overload_sheds_and_answers_everyone_in_time() {
     let stop = Arc::new(AtomicBool::new(false));
     let pts: Vec<Value> = (0..200)
         .map(|i| {
-            let p = at(0.1 + 0.8 * (i as f64 / 199.0), 0.1 + 0.8 * ((i * 7 % 200) as f64 / 199.0));
+            let p = at(
+                0.1 + 0.8 * (i as f64 / 199.0),
+                0.1 + 0.8 * ((i * 7 % 200) as f64 / 199.0),
+            );
             json!({"lat": p.lat, "lon": p.lon})
         })
         .collect();
@@ -292,7 +298,10 @@ async fn real_overload_sheds_and_answers_everyone_in_time() {
         h.await.unwrap();
     }
     assert_eq!(seen.answers, 200);
-    assert!(seen.overloaded > 0, "one busy permit, 2 ms budgets: {seen:?}");
+    assert!(
+        seen.overloaded > 0,
+        "one busy permit, 2 ms budgets: {seen:?}"
+    );
     assert!(
         seen.slowest < Duration::from_millis(2 + 3000),
         "answered by the budget plus a bound: {seen:?}"

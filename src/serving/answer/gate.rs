@@ -11,13 +11,13 @@
 
 use super::{Catalog, Estimator};
 use crate::engine::region::Metric;
+use crate::serving::admission::GraphPermit;
 use crate::serving::metrics as m;
 use crate::serving::snapshot::{LiveMetric, ProfileUsed, RegionHandle, Snapshot};
 use crate::serving::tier::{FallbackReason, Sources, Tier};
 use chrono::{DateTime, Utc};
 use std::sync::Arc;
 use std::time::Instant;
-use crate::serving::admission::GraphPermit;
 
 /// Region name and snapshot generation an answer came from.
 pub(super) type Tag = Option<(String, u64)>;
