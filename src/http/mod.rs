@@ -200,6 +200,10 @@ pub async fn serve(
         }
     };
     let mut loops = Vec::new();
+    // Run-queue lag probe for admission by deadline (see `admission`).
+    loops.push(tokio::spawn(
+        state.catalog.admission.clone().run_probe(stop()),
+    ));
     for r in &state.catalog.regions {
         loops.push(tokio::spawn(r.clone().run_live_loop(stop())));
     }

@@ -25,6 +25,15 @@
 //!   length, is CoDel's (K. Nichols and V. Jacobson, "Controlling Queue
 //!   Delay", ACM Queue 10(5), 2012); here the target is each request's own
 //!   budget.
+//! - Time spent before the handler runs counts against the budget too: a
+//!   CPU backlog waits in the runtime's run queue, not for a permit (an
+//!   ETA holds its permit without yielding). A probe task asks to be woken
+//!   every millisecond and records how late it ran ([`Admission::run_probe`]);
+//!   the smallest lateness of the last [`PROBE_WINDOW`] wake-ups (a single
+//!   stall is no backlog) is the queueing a request saw before its handler,
+//!   and is taken off its deadline. So under a CPU backlog a request is shed
+//!   once that queueing plus its service would exceed its budget, never
+//!   before.
 //! - `S` is smoothed like a TCP round-trip time (RFC 6298, section 2:
 //!   gains 1/8 for the mean and 1/4 for the mean deviation); the estimate
 //!   used is `mean + deviation`, so a burst of slow graph work (a large
@@ -53,9 +62,16 @@ pub struct Admission {
     srtt_ns: AtomicU64,
     /// Smoothed mean deviation of the hold time, ns (RFC 6298 RTTVAR).
     rttvar_ns: AtomicU64,
+    /// Latest run-queue lateness from the probe, µs (0 until it runs).
+    lag_us: AtomicU64,
     /// Requests shed so far (any cause).
     shed: AtomicU64,
 }
+
+/// How often the probe asks to be woken.
+const PROBE_EVERY: Duration = Duration::from_millis(1);
+/// Consecutive wake-ups that must all be late before the lag counts.
+pub const PROBE_WINDOW: usize = 8;
 
 /// One request's place; leaving is its drop.
 #[derive(Debug)]
@@ -91,6 +107,7 @@ impl Admission {
             waiting: AtomicUsize::new(0),
             srtt_ns: AtomicU64::new(0),
             rttvar_ns: AtomicU64::new(0),
+            lag_us: AtomicU64::new(0),
             shed: AtomicU64::new(0),
         })
     }
@@ -112,9 +129,11 @@ impl Admission {
 
     /// A graph permit from `permits` (of `total` in all) in time for
     /// `deadline`, or `None`: the request would miss its budget and is
-    /// shed. Takes a free permit at once; else sheds at once when the
-    /// estimated wait plus service runs past the deadline, else waits for a
-    /// permit until the deadline less one service time.
+    /// shed. The deadline is first moved earlier by the run-queue lag the
+    /// request already spent; if one service time no longer fits, it is
+    /// shed. Then it takes a free permit at once; else sheds at once when
+    /// the estimated wait plus service runs past the deadline, else waits
+    /// for a permit until the deadline less one service time.
     pub async fn permit(
         self: &Arc<Self>,
         permits: &Arc<Semaphore>,
@@ -126,14 +145,18 @@ impl Admission {
             admission: self.clone(),
             since: Instant::now(),
         };
+        let service = self.service();
+        let now = Instant::now();
+        let latest = deadline.checked_sub(self.lag() + service).unwrap_or(now);
+        if latest < now {
+            self.shed.fetch_add(1, Ordering::Relaxed);
+            return None;
+        }
         if let Ok(p) = permits.clone().try_acquire_owned() {
             return Some(wrap(p));
         }
         let ahead = self.waiting.fetch_add(1, Ordering::AcqRel);
         let _waiting = Waiting(&self.waiting);
-        let service = self.service();
-        let now = Instant::now();
-        let latest = deadline.checked_sub(service).unwrap_or(now);
         if total == 0 || now + expected_wait(ahead, total, service) > latest {
             self.shed.fetch_add(1, Ordering::Relaxed);
             return None;
@@ -176,6 +199,35 @@ impl Admission {
         self.srtt_ns.store(srtt.max(1), Ordering::Relaxed);
     }
 
+    /// Latest run-queue lag seen by the probe.
+    pub fn lag(&self) -> Duration {
+        Duration::from_micros(self.lag_us.load(Ordering::Relaxed))
+    }
+
+    /// Records one lag measurement (the probe's, or a test's).
+    pub fn record_lag(&self, lag: Duration) {
+        self.lag_us.store(lag.as_micros() as u64, Ordering::Relaxed);
+    }
+
+    /// Measures run-queue lag on the current runtime until `shutdown`
+    /// resolves: sleeps one tick at a time and records how late it woke
+    /// (the smallest lateness of the last [`PROBE_WINDOW`] wake-ups).
+    pub async fn run_probe(self: Arc<Self>, shutdown: impl std::future::Future<Output = ()>) {
+        tokio::pin!(shutdown);
+        let mut window = LagWindow::default();
+        loop {
+            let due = Instant::now() + PROBE_EVERY;
+            tokio::select! {
+                _ = &mut shutdown => break,
+                _ = tokio::time::sleep_until(due.into()) => {}
+            }
+            // The timer wheel has a 1 ms grain: up to a tick late is normal.
+            let late = Instant::now().saturating_duration_since(due);
+            self.record_lag(window.push(late.saturating_sub(PROBE_EVERY)));
+        }
+        self.record_lag(Duration::ZERO);
+    }
+
     /// Requests shed since start.
     pub fn shed_total(&self) -> u64 {
         self.shed.load(Ordering::Relaxed)
@@ -199,6 +251,22 @@ impl Admission {
 pub fn expected_wait(ahead: usize, servers: usize, service: Duration) -> Duration {
     let rounds = (ahead / servers.max(1) + 1) as u32;
     service.saturating_mul(rounds)
+}
+
+/// The last [`PROBE_WINDOW`] lateness readings; the signal is their minimum.
+#[derive(Debug, Default)]
+pub struct LagWindow {
+    last: [Duration; PROBE_WINDOW],
+    next: usize,
+}
+
+impl LagWindow {
+    /// Adds a reading and returns the minimum of the window.
+    pub fn push(&mut self, lag: Duration) -> Duration {
+        self.last[self.next] = lag;
+        self.next = (self.next + 1) % PROBE_WINDOW;
+        self.last.iter().copied().min().unwrap_or_default()
+    }
 }
 
 impl Ticket {
@@ -329,6 +397,67 @@ mod tests {
         });
         assert_eq!(a.shed_total(), 2);
         assert_eq!(a.waiting(), 0);
+    }
+
+    /// Run-queue lag already spent counts against the budget: with a free
+    /// permit, a 100 ms budget and S = 15 ms, a lag of 50 ms still admits,
+    /// one of 90 ms sheds at once (90 + 15 > 100).
+    #[test]
+    fn lag_is_taken_off_the_deadline() {
+        let a = Admission::new(10);
+        let sem = Arc::new(Semaphore::new(1));
+        a.record_service(Duration::from_millis(10)); // S = 15 ms
+        let rt = rt();
+        let ms = Duration::from_millis;
+        a.record_lag(ms(50));
+        assert!(rt
+            .block_on(a.permit(&sem, 1, Instant::now() + ms(100)))
+            .is_some());
+        a.record_lag(ms(90));
+        assert!(rt
+            .block_on(a.permit(&sem, 1, Instant::now() + ms(100)))
+            .is_none());
+    }
+
+    #[test]
+    fn one_late_wake_up_is_not_a_backlog() {
+        let mut w = LagWindow::default();
+        let ms = Duration::from_millis;
+        for _ in 0..PROBE_WINDOW {
+            w.push(ms(0));
+        }
+        assert_eq!(w.push(ms(40)), ms(0), "a single stall does not count");
+        for _ in 0..PROBE_WINDOW - 2 {
+            assert_eq!(w.push(ms(9)), ms(0));
+        }
+        assert_eq!(w.push(ms(7)), ms(7), "a full window of late wake-ups does");
+        assert_eq!(w.push(ms(0)), ms(0));
+    }
+
+    /// A runtime whose only worker is kept busy in 3 ms slices: the probe,
+    /// due every millisecond, sees every wake-up late once the window
+    /// fills, and resets when it stops.
+    #[test]
+    fn probe_sees_a_busy_worker() {
+        let a = Admission::new(10);
+        let (tx, rx) = tokio::sync::oneshot::channel::<()>();
+        let seen = rt().block_on(async {
+            let probe = tokio::spawn(a.clone().run_probe(async {
+                let _ = rx.await;
+            }));
+            tokio::time::sleep(Duration::from_millis(5)).await;
+            let mut seen = Duration::ZERO;
+            for _ in 0..20 {
+                std::thread::sleep(Duration::from_millis(3));
+                tokio::task::yield_now().await;
+                seen = seen.max(a.lag());
+            }
+            let _ = tx.send(());
+            let _ = probe.await;
+            seen
+        });
+        assert!(seen >= Duration::from_millis(1), "probe recorded {seen:?}");
+        assert_eq!(a.lag(), Duration::ZERO, "reset when the probe stops");
     }
 
     /// No permits at all (`graph_concurrency = 0`): every request is shed.
