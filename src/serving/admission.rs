@@ -31,9 +31,11 @@
 //!   every millisecond and records how late it ran ([`Admission::run_probe`]);
 //!   the smallest lateness of the last [`PROBE_WINDOW`] wake-ups (a single
 //!   stall is no backlog) is the queueing a request saw before its handler,
-//!   and is taken off its deadline. So under a CPU backlog a request is shed
-//!   once that queueing plus its service would exceed its budget, never
-//!   before.
+//!   and is taken off its deadline. So under a CPU backlog a request is
+//!   shed once that queueing alone exceeds its budget (it is late already,
+//!   and a cheap answer drains the backlog), never before. A free permit
+//!   with no such backlog is always taken: no wait, the graph answer comes
+//!   as soon as it can.
 //! - `S` is smoothed like a TCP round-trip time (RFC 6298, section 2:
 //!   gains 1/8 for the mean and 1/4 for the mean deviation); the estimate
 //!   used is `mean + deviation`, so a burst of slow graph work (a large
@@ -129,11 +131,12 @@ impl Admission {
 
     /// A graph permit from `permits` (of `total` in all) in time for
     /// `deadline`, or `None`: the request would miss its budget and is
-    /// shed. The deadline is first moved earlier by the run-queue lag the
-    /// request already spent; if one service time no longer fits, it is
-    /// shed. Then it takes a free permit at once; else sheds at once when
-    /// the estimated wait plus service runs past the deadline, else waits
-    /// for a permit until the deadline less one service time.
+    /// shed. A request whose run-queue lag alone (nonzero) runs past its
+    /// deadline is shed; else it takes a free permit at once (no wait: the
+    /// graph answer can come no sooner); else, with the deadline moved
+    /// earlier by the lag, it is shed at once when the estimated wait plus
+    /// service runs past it, else waits for a permit until the deadline
+    /// less one service time.
     pub async fn permit(
         self: &Arc<Self>,
         permits: &Arc<Semaphore>,
@@ -145,16 +148,17 @@ impl Admission {
             admission: self.clone(),
             since: Instant::now(),
         };
-        let service = self.service();
-        let now = Instant::now();
-        let latest = deadline.checked_sub(self.lag() + service).unwrap_or(now);
-        if latest < now {
+        let (lag, service, now) = (self.lag(), self.service(), Instant::now());
+        if !lag.is_zero() && now + lag > deadline {
+            // Already late by its run-queue wait: a backlog to drain.
             self.shed.fetch_add(1, Ordering::Relaxed);
             return None;
         }
         if let Ok(p) = permits.clone().try_acquire_owned() {
+            // No wait: the graph answer can come no sooner than this.
             return Some(wrap(p));
         }
+        let latest = deadline.checked_sub(lag + service).unwrap_or(now);
         let ahead = self.waiting.fetch_add(1, Ordering::AcqRel);
         let _waiting = Waiting(&self.waiting);
         if total == 0 || now + expected_wait(ahead, total, service) > latest {
@@ -400,8 +404,9 @@ mod tests {
     }
 
     /// Run-queue lag already spent counts against the budget: with a free
-    /// permit, a 100 ms budget and S = 15 ms, a lag of 50 ms still admits,
-    /// one of 90 ms sheds at once (90 + 15 > 100).
+    /// permit and a 100 ms budget, a lag of 90 ms still admits, one of
+    /// 120 ms sheds at once; with the permit busy and S = 15 ms, a lag of
+    /// 90 ms sheds at once (90 + 15 + 15 > 100).
     #[test]
     fn lag_is_taken_off_the_deadline() {
         let a = Admission::new(10);
@@ -409,11 +414,14 @@ mod tests {
         a.record_service(Duration::from_millis(10)); // S = 15 ms
         let rt = rt();
         let ms = Duration::from_millis;
-        a.record_lag(ms(50));
-        assert!(rt
-            .block_on(a.permit(&sem, 1, Instant::now() + ms(100)))
-            .is_some());
         a.record_lag(ms(90));
+        let p = rt.block_on(a.permit(&sem, 1, Instant::now() + ms(100)));
+        assert!(p.is_some());
+        let t0 = Instant::now();
+        assert!(rt.block_on(a.permit(&sem, 1, t0 + ms(100))).is_none());
+        assert!(t0.elapsed() < ms(50), "shed at once, no wait");
+        drop(p);
+        a.record_lag(ms(120));
         assert!(rt
             .block_on(a.permit(&sem, 1, Instant::now() + ms(100)))
             .is_none());
