@@ -58,8 +58,9 @@ pub struct QueryConfig {
     /// and validated, then answered at once from the heuristic tier with
     /// reason `overloaded`.
     pub max_in_flight: usize,
-    /// Accepted for old configuration files and ignored: admission no
-    /// longer sheds on scheduling lag but on each request's deadline.
+    /// Accepted for old configuration files and ignored: the scheduling
+    /// lag now counts against each request's own budget instead of a fixed
+    /// bound (see [`crate::serving::admission`]).
     pub max_queue_ms: u64,
     /// Accepted for old configuration files and ignored: admission no
     /// longer reads the CPU wait of the request threads (it also rose when
