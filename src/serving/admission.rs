@@ -4,8 +4,10 @@
 //! The rule is **admission by deadline**: a request is answered from the
 //! heuristic tier with reason `overloaded` only when it would not get its
 //! graph answer within its budget (`budget_ms`, default
-//! `query.default_budget_ms`). What other processes do with the machine is
-//! no signal: a request that gets its graph answer in time is never shed.
+//! `query.default_budget_ms`). CPU time other processes take is no signal
+//! of its own (the CPU-wait signal is gone): it matters only through the
+//! queueing it adds to requests, and only once that breaks a budget. A
+//! request that gets its graph answer in time is never shed.
 //!
 //! - A request enters when its body has been read (the HTTP layer enters it
 //!   after the body, so a caller that stalls mid-body holds no place), and
@@ -41,9 +43,11 @@
 //!   used is `mean + deviation`, so a burst of slow graph work (a large
 //!   matrix holding a permit) makes the queue look slower at once.
 //!
-//! So every request is answered, and no later than its budget plus the
-//! cost of a heuristic answer: a shed request is still validated (bad input
-//! keeps its 4xx) and gets an estimate marked `overloaded`.
+//! So every request is answered, and its wait inside the server is bounded
+//! by its budget (plus the cost of a heuristic answer); time spent in the
+//! listen backlog before the server reads it is not seen. A shed request is
+//! still validated (bad input keeps its 4xx) and gets an estimate marked
+//! `overloaded`.
 
 use std::sync::atomic::{AtomicU64, AtomicUsize, Ordering};
 use std::sync::Arc;
