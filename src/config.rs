@@ -132,12 +132,6 @@ impl Config {
         if !(1..=168).contains(&q.profiles) {
             return bad("query.profiles", "must be 1 to 168 hour-of-week profiles");
         }
-        if !(q.max_cpu_wait.is_finite() && q.max_cpu_wait >= 0.0) {
-            return bad(
-                "query.max_cpu_wait",
-                "must be a share of time, 0 or more (0 disables)",
-            );
-        }
         let l = &self.live;
         if !(l.half_life_s > 0.0
             && l.ttl_s > 0.0

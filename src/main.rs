@@ -353,13 +353,8 @@ fn cmd_demo_once() -> anyhow::Result<()> {
 }
 
 fn runtime() -> anyhow::Result<tokio::runtime::Runtime> {
-    // The runtime's workers are the request threads whose CPU wait the
-    // admission control reads (`hodos::serving::cpu_wait`); tokio calls the park
-    // hook on workers only.
     Ok(tokio::runtime::Builder::new_multi_thread()
         .enable_all()
-        .on_thread_park(hodos::serving::cpu_wait::register_worker)
-        .on_thread_stop(hodos::serving::cpu_wait::unregister_current_thread)
         .build()?)
 }
 

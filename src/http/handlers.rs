@@ -41,8 +41,9 @@ fn with_labels(mut resp: Response, tier: &'static str, region: SharedString) -> 
     resp
 }
 
-/// Whether admission control let this request do graph work (set by the
-/// `admit` middleware on the answer routes; absent means admitted).
+/// Whether admission control let this request go on to a graph permit (set
+/// by the `admit` middleware on the answer routes once the body is read;
+/// absent means admitted).
 #[derive(Debug, Clone, Copy)]
 pub struct Admitted(pub bool);
 

@@ -33,7 +33,7 @@ use crate::serving::answer::Catalog;
 use crate::serving::snapshot::{RegionHandle, UpdateSettings};
 use axum::extract::{MatchedPath, Request, State};
 use axum::middleware::Next;
-use axum::response::Response;
+use axum::response::{IntoResponse, Response};
 use axum::Router;
 use metrics_exporter_prometheus::PrometheusHandle;
 use std::future::Future;
@@ -134,10 +134,19 @@ async fn track(matched: Option<MatchedPath>, req: Request, next: Next) -> Respon
     resp
 }
 
-/// Admission control on the answer routes: counts the request in flight
-/// from here (headers read, body not yet) until its response is built, and
-/// tells the handler whether it may do graph work.
-async fn admit(State(state): State<AppState>, mut req: Request, next: Next) -> Response {
+/// Admission control on the answer routes: reads the body first (bounded
+/// by `server.max_body_bytes`; a GET has none), so a caller that stalls
+/// mid-body holds no place; then counts the request in flight until its
+/// response is built, and tells the handler whether it may go on to a graph
+/// permit (the deadline rule is in [`crate::serving::admission`]).
+async fn admit(State(state): State<AppState>, req: Request, next: Next) -> Response {
+    let limit = state.settings.server.max_body_bytes;
+    let (parts, body) = req.into_parts();
+    let bytes = match axum::body::to_bytes(body, limit).await {
+        Ok(b) => b,
+        Err(_) => return problem::ApiError::TooLarge { limit }.into_response(),
+    };
+    let mut req = Request::from_parts(parts, axum::body::Body::from(bytes));
     let ticket = state.catalog.admission.enter();
     req.extensions_mut()
         .insert(handlers::Admitted(ticket.admitted()));
@@ -191,7 +200,7 @@ pub async fn serve(
         }
     };
     let mut loops = Vec::new();
-    // Scheduling-lag probe for admission control (see `admission`).
+    // Run-queue lag probe for admission by deadline (see `admission`).
     loops.push(tokio::spawn(
         state.catalog.admission.clone().run_probe(stop()),
     ));

@@ -10,8 +10,7 @@
 //!   freed on those threads, never by a request.
 //! - [`speeds`]: historical profiles, live observations, blending, saving.
 //! - [`answer`], [`tier`]: tier choice and fallbacks for trips and matrices.
-//! - [`admission`], [`cpu_wait`]: shedding under overload and the CPU-wait
-//!   signal it reads.
+//! - [`admission`]: shedding by deadline under overload.
 //! - [`metrics`]: metric names and their recording (the exporter is the
 //!   HTTP layer's).
 //! - [`settings`]: the serving knobs as plain `serde` types (the file that
@@ -23,7 +22,6 @@
 
 pub mod admission;
 pub mod answer;
-pub mod cpu_wait;
 pub mod customizer;
 pub mod metrics;
 pub mod retire;

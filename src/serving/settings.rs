@@ -46,24 +46,25 @@ pub struct QueryConfig {
     pub max_snap_m: f64,
     /// Most cells (`from × to`) one matrix request may ask for.
     pub max_matrix_cells: usize,
-    /// Requests doing graph work at once; beyond, answers come from the
-    /// heuristic tier with reason `overloaded`.
+    /// Requests doing graph work at once; beyond, a request waits for a
+    /// permit only as long as its graph answer can still come within its
+    /// budget, else it is answered from the heuristic tier with reason
+    /// `overloaded`.
     pub graph_concurrency: usize,
-    /// Answer requests (ETA, matrix, route) in flight at once, counted from
-    /// the moment their headers are read. Beyond it a request is still
-    /// parsed and validated, then answered at once from the heuristic tier
-    /// with reason `overloaded`: under overload the server sheds graph work
-    /// instead of queueing it, so every caller gets an answer quickly.
+    /// Hard cap on answer requests (ETA, matrix, route) in flight at once,
+    /// counted from the moment their body is read: a bound on memory, not a
+    /// load signal (admission is by deadline, see
+    /// [`crate::serving::admission`]). Beyond it a request is still parsed
+    /// and validated, then answered at once from the heuristic tier with
+    /// reason `overloaded`.
     pub max_in_flight: usize,
-    /// Scheduling lag (how late a task that is ready to run gets a CPU)
-    /// above which answer requests are shed the same way: the queueing
-    /// delay a request arriving now would see. 0 disables this signal.
+    /// Accepted for old configuration files and ignored: the scheduling
+    /// lag now counts against each request's own budget instead of a fixed
+    /// bound (see [`crate::serving::admission`]).
     pub max_queue_ms: u64,
-    /// Share of time the request threads may spend waiting for a CPU
-    /// (per worker, over the last 100 ms) before answer requests are shed
-    /// the same way: the signal for a machine whose cores are all busy
-    /// while the backlog sits in the callers' connection pools. Linux
-    /// only; 0 disables this signal.
+    /// Accepted for old configuration files and ignored: admission no
+    /// longer reads the CPU wait of the request threads (it also rose when
+    /// other processes kept the machine busy, and shed healthy load).
     pub max_cpu_wait: f64,
     /// Accepted for old configuration files and ignored: every profile of
     /// the serving table is kept customized (see `profiles`).
@@ -82,9 +83,9 @@ impl Default for QueryConfig {
             max_snap_m: 500.0,
             max_matrix_cells: 250_000,
             graph_concurrency: 8,
-            max_in_flight: 32,
-            max_queue_ms: 5,
-            max_cpu_wait: 0.4,
+            max_in_flight: 4096,
+            max_queue_ms: 0,
+            max_cpu_wait: 0.0,
             bucket_cache: 2,
             profiles: 4,
         }

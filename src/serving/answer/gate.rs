@@ -1,6 +1,7 @@
 //! The gate every answer passes before graph work, in this order: a region
 //! covers the request → it has a snapshot → the request was admitted → a
-//! graph permit is free → the metric (live if "now" and fresh, else the
+//! graph permit comes in time for its deadline (admission by deadline,
+//! [`crate::serving::admission::Admission::permit`]) → the metric (live if "now" and fresh, else the
 //! metric of the departure hour's profile, always customized). The first
 //! check that fails names the fallback reason; passing them all yields the
 //! snapshot, the chosen metric and the permit. The tier is not decided here:
@@ -10,13 +11,13 @@
 
 use super::{Catalog, Estimator};
 use crate::engine::region::Metric;
+use crate::serving::admission::GraphPermit;
 use crate::serving::metrics as m;
 use crate::serving::snapshot::{LiveMetric, ProfileUsed, RegionHandle, Snapshot};
 use crate::serving::tier::{FallbackReason, Sources, Tier};
 use chrono::{DateTime, Utc};
 use std::sync::Arc;
 use std::time::Instant;
-use tokio::sync::OwnedSemaphorePermit;
 
 /// Region name and snapshot generation an answer came from.
 pub(super) type Tag = Option<(String, u64)>;
@@ -106,8 +107,8 @@ pub(super) struct Granted {
     pub snap: Arc<Snapshot>,
     pub chosen: Chosen,
     pub tag: Tag,
-    /// Held until the graph work ends.
-    pub permit: OwnedSemaphorePermit,
+    /// Held until the graph work ends (its hold time feeds admission).
+    pub permit: GraphPermit,
     /// Held until the answer is built.
     pub _in_flight: InFlight,
 }
@@ -186,13 +187,15 @@ pub(super) async fn gate(
     if !admitted {
         return stop(snap, FallbackReason::Overloaded, tag);
     }
-    let Ok(permit) = cat.permits.clone().try_acquire_owned() else {
+    // A free permit at once; else a wait only as long as the answer can
+    // still come within the budget (see `admission`).
+    let total = cat.cfg.query.graph_concurrency;
+    let Some(permit) = cat.admission.permit(&cat.permits, total, deadline).await else {
         return stop(snap, FallbackReason::Overloaded, tag);
     };
     let in_flight = InFlight::start();
     // Every profile is customized before its snapshot is published, so the
     // metric is always there: no departure hour waits out the budget.
-    let _ = deadline;
     let chosen = choose(cat, &snap, depart, hour);
     Ok(Granted {
         snap,

@@ -6,9 +6,11 @@
 //!    `outside_regions`;
 //! 2. the region has no snapshot → heuristic (configured defaults),
 //!    `region_unavailable`;
-//! 3. the request was not admitted (too many in flight, see
-//!    [`crate::serving::admission`]) or no graph permit is free → heuristic (region
-//!    calibration), `overloaded`;
+//! 3. the request was not admitted (over the hard cap on requests in
+//!    flight) or no graph permit would come in time for its graph answer
+//!    within its budget (admission by deadline, see
+//!    [`crate::serving::admission`]) → heuristic (region calibration),
+//!    `overloaded`;
 //! 4. pick the metric: live if the departure is "now" (within the TTL) and
 //!    the region holds fresh live data; otherwise the metric of the
 //!    departure hour's profile, customized before its snapshot was
@@ -62,7 +64,8 @@ pub struct Catalog {
     pub regions: Vec<Arc<RegionHandle>>,
     pub cfg: ServingSettings,
     pub permits: Arc<Semaphore>,
-    /// Answer requests in flight (entered by the HTTP layer).
+    /// Answer requests in flight (entered by the HTTP layer once their
+    /// body is read) and the wait estimate for graph permits.
     pub admission: Arc<Admission>,
     /// Calibration used outside every region (configured defaults).
     pub outside: Calibration,
@@ -76,11 +79,7 @@ impl Catalog {
         let outside = Calibration::fixed(cfg.fallback.circuity, cfg.fallback.speed_kmh);
         Catalog {
             permits: Arc::new(Semaphore::new(cfg.query.graph_concurrency)),
-            admission: Admission::new(
-                cfg.query.max_in_flight,
-                Duration::from_millis(cfg.query.max_queue_ms),
-                cfg.query.max_cpu_wait,
-            ),
+            admission: Admission::new(cfg.query.max_in_flight),
             labels: regions
                 .iter()
                 .map(|r| metrics::SharedString::from_shared(Arc::<str>::from(r.name.as_str())))

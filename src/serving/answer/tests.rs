@@ -180,17 +180,29 @@ async fn gate_fallbacks_and_graph_tiers() {
     let (m, secs) = region_estimate(&cal, a, b); // haversine × factors
     assert!(close(r.meters, m) && close(r.eta_s, secs), "{r:?}");
 
-    // Every graph permit taken → overloaded too.
+    // Every graph permit taken for longer than the budget → overloaded too,
+    // answered by the deadline (admission by deadline: the request waits
+    // for a permit at most its budget; 1 s of slack for a loaded machine).
     let n = cat.cfg.query.graph_concurrency as u32;
     let held = cat.permits.clone().try_acquire_many_owned(n).unwrap();
-    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    let t0 = std::time::Instant::now();
+    let r = trip(&cat, a, b, None, Some(50), false, true).await;
     assert_eq!((r.tier, r.reason), (Tier::Heuristic, Some(R::Overloaded)));
-    let mx = matrix_trip(&cat, vec![a], vec![b], None, Some(2000), true).await;
+    let mx = matrix_trip(&cat, vec![a], vec![b], None, Some(50), true).await;
     assert_eq!(
         (mx.cells[0].tier, mx.cells[0].reason),
         (Tier::Heuristic, Some(R::Overloaded))
     );
-    drop(held);
+    assert!(t0.elapsed() < std::time::Duration::from_millis(2 * 50 + 1000));
+    // A permit that frees inside the budget: the request waits for it and
+    // answers from the graph.
+    let release = tokio::spawn(async move {
+        tokio::time::sleep(std::time::Duration::from_millis(30)).await;
+        drop(held);
+    });
+    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    assert_ne!(r.tier, Tier::Heuristic, "{r:?}");
+    release.await.unwrap();
 
     // No live data, leaving now, no table → free_flow, no_live_data; the
     // time is petgraph's Dijkstra on free-flow weights.
