@@ -402,7 +402,12 @@ fn raise_nofile() {
             return;
         }
     }
-    tracing::info!(soft_was = before, soft = lim.rlim_cur, hard = lim.rlim_max, "file-descriptor limit");
+    tracing::info!(
+        soft_was = before,
+        soft = lim.rlim_cur,
+        hard = lim.rlim_max,
+        "file-descriptor limit"
+    );
 }
 
 fn cmd_serve(config: &std::path::Path, strict: bool) -> anyhow::Result<()> {

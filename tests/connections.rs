@@ -214,7 +214,11 @@ async fn read_response(s: &mut TcpStream) -> String {
 /// closed the idle ones), so normal requests timed out.
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn idle_sockets_under_a_low_descriptor_limit_do_not_starve_requests() {
-    let p = start("idle_timeout_ms = 1000\nheader_timeout_ms = 1000", Some(256)).await;
+    let p = start(
+        "idle_timeout_ms = 1000\nheader_timeout_ms = 1000",
+        Some(256),
+    )
+    .await;
     let c = client();
     assert_ne!(eta_tier(&c, p.public, 0).await, "heuristic");
     let mut idle = Vec::new();
@@ -368,5 +372,8 @@ async fn matrix_is_gzip_when_asked_and_identity_otherwise() {
     );
     let br = post(Some("br")).await.unwrap();
     assert_eq!(br.headers()["content-encoding"], "br");
-    println!("matrix {n}x{n}: br {} bytes", br.bytes().await.unwrap().len());
+    println!(
+        "matrix {n}x{n}: br {} bytes",
+        br.bytes().await.unwrap().len()
+    );
 }

@@ -53,6 +53,8 @@ pub fn nofile_soft_limit() -> Option<u64> {
     };
     // SAFETY: getrlimit writes into the struct we pass.
     let rc = unsafe { libc::getrlimit(libc::RLIMIT_NOFILE, &mut lim) };
+    // `rlim_t` is u64 on Linux but not on every target.
+    #[allow(clippy::unnecessary_cast)]
     (rc == 0).then_some(lim.rlim_cur as u64)
 }
 
