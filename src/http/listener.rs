@@ -154,6 +154,9 @@ struct Activity {
     first_byte: AtomicU64,
     /// Last successful read or write.
     last_io: AtomicU64,
+    /// Wakes the watchdog when its deadline may have moved earlier (the
+    /// first byte of the next request's headers).
+    changed: tokio::sync::Notify,
 }
 
 impl Activity {
@@ -206,6 +209,7 @@ async fn connection(
         free_since: AtomicU64::new(0),
         first_byte: AtomicU64::new(u64::MAX),
         last_io: AtomicU64::new(0),
+        changed: tokio::sync::Notify::new(),
     });
     let io = Tracked {
         inner: stream,
@@ -247,10 +251,14 @@ async fn watchdog(activity: &Activity, limits: &ConnLimits) {
     let recheck = limits.header_timeout.min(limits.idle_timeout);
     loop {
         let now = activity.now();
-        match activity.deadline(limits) {
+        let wait = match activity.deadline(limits) {
             Some(d) if d <= now => return,
-            Some(d) => tokio::time::sleep(Duration::from_millis(d - now)).await,
-            None => tokio::time::sleep(recheck).await,
+            Some(d) => Duration::from_millis(d - now),
+            None => recheck,
+        };
+        tokio::select! {
+            _ = tokio::time::sleep(wait) => {}
+            _ = activity.changed.notified() => {}
         }
     }
 }
@@ -274,12 +282,12 @@ impl AsyncRead for Tracked {
             let now = a.now();
             a.last_io.store(now, Ordering::Release);
             if a.in_flight.load(Ordering::Acquire) == 0 {
-                let _ = a.first_byte.compare_exchange(
-                    u64::MAX,
-                    now,
-                    Ordering::AcqRel,
-                    Ordering::Acquire,
-                );
+                if a.first_byte
+                    .compare_exchange(u64::MAX, now, Ordering::AcqRel, Ordering::Acquire)
+                    .is_ok()
+                {
+                    a.changed.notify_one();
+                }
             }
         }
         r
