@@ -281,13 +281,12 @@ impl AsyncRead for Tracked {
             let a = &self.activity;
             let now = a.now();
             a.last_io.store(now, Ordering::Release);
-            if a.in_flight.load(Ordering::Acquire) == 0 {
-                if a.first_byte
+            if a.in_flight.load(Ordering::Acquire) == 0
+                && a.first_byte
                     .compare_exchange(u64::MAX, now, Ordering::AcqRel, Ordering::Acquire)
                     .is_ok()
-                {
-                    a.changed.notify_one();
-                }
+            {
+                a.changed.notify_one();
             }
         }
         r
