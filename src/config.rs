@@ -113,6 +113,20 @@ impl Config {
     /// Range and consistency checks; the error names the key.
     pub fn validate(&self) -> Result<(), (String, String)> {
         let bad = |k: &str, m: &str| Err((k.to_string(), m.to_string()));
+        let sv = &self.server;
+        for (k, v) in [
+            ("server.header_timeout_ms", sv.header_timeout_ms),
+            ("server.body_timeout_ms", sv.body_timeout_ms),
+            ("server.idle_timeout_ms", sv.idle_timeout_ms),
+            ("admin.body_timeout_ms", self.admin.body_timeout_ms),
+        ] {
+            if v == 0 {
+                return bad(k, "must be a positive number of milliseconds");
+            }
+        }
+        if self.admin.max_connections == 0 {
+            return bad("admin.max_connections", "must be positive");
+        }
         let q = &self.query;
         if q.max_budget_ms == 0 || q.default_budget_ms == 0 {
             return bad("query.default_budget_ms", "budgets must be positive");

@@ -413,9 +413,41 @@ fn tune_allocator() {
     }
 }
 
+/// Raises the soft limit on open file descriptors to the hard limit: each
+/// connection is a descriptor, and the usual soft default (1,024, or 256 on
+/// some systems) is far below what a busy listener holds. Logs both.
+fn raise_nofile() {
+    let mut lim = libc::rlimit {
+        rlim_cur: 0,
+        rlim_max: 0,
+    };
+    // SAFETY: getrlimit/setrlimit read and write the struct we pass.
+    if unsafe { libc::getrlimit(libc::RLIMIT_NOFILE, &mut lim) } != 0 {
+        tracing::warn!(error = %std::io::Error::last_os_error(), "cannot read the file-descriptor limit");
+        return;
+    }
+    let before = lim.rlim_cur;
+    if lim.rlim_cur < lim.rlim_max {
+        lim.rlim_cur = lim.rlim_max;
+        // SAFETY: as above; raising the soft limit up to the hard one needs no privilege.
+        if unsafe { libc::setrlimit(libc::RLIMIT_NOFILE, &lim) } != 0 {
+            tracing::warn!(soft = before, hard = lim.rlim_max, error = %std::io::Error::last_os_error(),
+                "cannot raise the file-descriptor soft limit");
+            return;
+        }
+    }
+    tracing::info!(
+        soft_was = before,
+        soft = lim.rlim_cur,
+        hard = lim.rlim_max,
+        "file-descriptor limit"
+    );
+}
+
 fn cmd_serve(config: &std::path::Path, strict: bool) -> anyhow::Result<()> {
     tune_allocator();
     init_tracing();
+    raise_nofile();
     let cfg = hodos::config::Config::load(config)?;
     if cfg.admin.token.is_empty() {
         tracing::warn!(
@@ -455,6 +487,7 @@ fn cmd_serve(config: &std::path::Path, strict: bool) -> anyhow::Result<()> {
 fn cmd_demo(port: u16) -> anyhow::Result<()> {
     tune_allocator();
     init_tracing();
+    raise_nofile();
     // A folder of this run's own (artifact, table, state), removed at
     // exit: a demo always starts clean, never serving what an earlier one
     // was sent.

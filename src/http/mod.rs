@@ -19,11 +19,15 @@
 //! - [`dto`]: request and response shapes, conversions from serving types.
 //! - [`openapi`]: the OpenAPI document; [`problem`]: RFC 9457 errors.
 //! - [`exporter`]: the Prometheus recorder; [`settings`]: `[server]`/`[admin]`.
+//! - [`listener`]: the accept loop and per-connection limits (header and
+//!   idle timeouts, connection cap); [`body_deadline`]: the body timeout.
 
 pub mod admin;
+pub mod body_deadline;
 pub mod dto;
 pub mod exporter;
 pub mod handlers;
+pub mod listener;
 pub mod openapi;
 pub mod problem;
 pub mod routes;
@@ -175,13 +179,37 @@ pub fn app(state: AppState) -> Router {
         .fallback(handlers::not_found)
         .layer(axum::extract::DefaultBodyLimit::disable())
         .layer(axum::middleware::from_fn(track))
+        .layer(axum::middleware::from_fn_with_state(
+            body_deadline::BodyTimeout(ms(state.settings.server.body_timeout_ms)),
+            body_deadline::body_deadline,
+        ))
+        .layer(compression(state.settings.server.compression))
         .layer(tower_http::trace::TraceLayer::new_for_http())
         .with_state(state)
 }
 
+/// Response compression (gzip or brotli, as `Accept-Encoding` allows);
+/// with `on == false` it passes every response through unchanged.
+fn compression(on: bool) -> tower_http::compression::CompressionLayer {
+    let layer = tower_http::compression::CompressionLayer::new();
+    if on {
+        layer
+    } else {
+        layer.no_gzip().no_br()
+    }
+}
+
+fn ms(v: u64) -> std::time::Duration {
+    std::time::Duration::from_millis(v)
+}
+
 /// The admin router (bearer token on every route).
 pub fn admin_app(state: AppState) -> Router {
-    admin::router(state)
+    let limit = body_deadline::BodyTimeout(ms(state.settings.admin.body_timeout_ms));
+    admin::router(state).layer(axum::middleware::from_fn_with_state(
+        limit,
+        body_deadline::body_deadline,
+    ))
 }
 
 /// Runs both listeners until `shutdown` resolves, then drains. Returns the
@@ -193,6 +221,7 @@ pub async fn serve(
     shutdown: impl Future<Output = ()> + Send + 'static,
 ) -> std::io::Result<()> {
     let (tx, rx) = tokio::sync::watch::channel(false);
+    let conn_rx = rx.clone();
     let stop = move || {
         let mut rx = rx.clone();
         async move {
@@ -223,10 +252,26 @@ pub async fn serve(
         }));
     }
     let drain = std::time::Duration::from_secs(state.settings.server.drain_seconds);
-    let public_srv = axum::serve(public, app(state.clone())).with_graceful_shutdown(stop());
-    let admin_srv = axum::serve(admin, admin_app(state.clone())).with_graceful_shutdown(stop());
-    let a = tokio::spawn(async move { public_srv.await });
-    let b = tokio::spawn(async move { admin_srv.await });
+    let (public_limits, admin_limits) = connection_limits(&state.settings);
+    tracing::info!(
+        public = public_limits.max_connections,
+        admin = admin_limits.max_connections,
+        "connection caps"
+    );
+    let a = tokio::spawn(listener::run(
+        "public",
+        public,
+        app(state.clone()),
+        public_limits,
+        conn_rx.clone(),
+    ));
+    let b = tokio::spawn(listener::run(
+        "admin",
+        admin,
+        admin_app(state.clone()),
+        admin_limits,
+        conn_rx,
+    ));
     shutdown.await;
     tracing::info!("shutting down: draining in-flight requests");
     let _ = tx.send(true);
@@ -242,6 +287,31 @@ pub async fn serve(
         tracing::warn!("drain timed out after {:?}", drain);
     }
     Ok(())
+}
+
+/// Descriptors kept out of the public listener's automatic cap: the
+/// artifacts, saved state, log and watched folder need their own.
+const FD_RESERVE: u64 = 128;
+
+/// Each listener's limits. The public cap, when `server.max_connections`
+/// is 0, is what the descriptor limit leaves after [`FD_RESERVE`] and the
+/// admin listener's cap (at least 16).
+fn connection_limits(s: &settings::Settings) -> (listener::ConnLimits, listener::ConnLimits) {
+    let public_max = match s.server.max_connections {
+        0 => {
+            let soft = listener::nofile_soft_limit().unwrap_or(1024);
+            soft.saturating_sub(FD_RESERVE + s.admin.max_connections as u64)
+                .max(16)
+                .min(usize::MAX as u64) as usize
+        }
+        n => n,
+    };
+    let limits = |max_connections| listener::ConnLimits {
+        header_timeout: ms(s.server.header_timeout_ms),
+        idle_timeout: ms(s.server.idle_timeout_ms),
+        max_connections,
+    };
+    (limits(public_max), limits(s.admin.max_connections))
 }
 
 /// Binds `addr` (port 0 picks a free one).

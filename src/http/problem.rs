@@ -24,6 +24,9 @@ pub enum ApiError {
     Invalid { field: String, rule: String },
     /// The body is larger than the configured limit.
     TooLarge { limit: usize },
+    /// The request body did not arrive completely within the body timeout
+    /// (`server.body_timeout_ms`); the connection is closed after this answer.
+    BodyTimeout { limit_ms: u64 },
     /// The request asks for more than a configured limit allows.
     OverLimit { field: String, rule: String },
     /// Wrong or missing bearer token (admin API).
@@ -82,6 +85,7 @@ impl ApiError {
                 StatusCode::UNPROCESSABLE_ENTITY
             }
             ApiError::TooLarge { .. } => StatusCode::PAYLOAD_TOO_LARGE,
+            ApiError::BodyTimeout { .. } => StatusCode::REQUEST_TIMEOUT,
             ApiError::Unauthorized => StatusCode::UNAUTHORIZED,
             ApiError::NotFound(_) => StatusCode::NOT_FOUND,
             ApiError::NoGraph(_) => StatusCode::CONFLICT,
@@ -97,6 +101,7 @@ impl ApiError {
             ApiError::Malformed(_) => "urn:hodos:problem:malformed-request",
             ApiError::Invalid { .. } => "urn:hodos:problem:invalid-field",
             ApiError::TooLarge { .. } => "urn:hodos:problem:body-too-large",
+            ApiError::BodyTimeout { .. } => "urn:hodos:problem:body-timeout",
             ApiError::OverLimit { .. } => "urn:hodos:problem:over-limit",
             ApiError::Unauthorized => "urn:hodos:problem:unauthorized",
             ApiError::NotFound(_) => "urn:hodos:problem:not-found",
@@ -113,6 +118,7 @@ impl ApiError {
             ApiError::Malformed(_) => "Malformed request",
             ApiError::Invalid { .. } => "Invalid field",
             ApiError::TooLarge { .. } => "Request body too large",
+            ApiError::BodyTimeout { .. } => "Request body too slow",
             ApiError::OverLimit { .. } => "Request over a configured limit",
             ApiError::Unauthorized => "Missing or wrong bearer token",
             ApiError::NotFound(_) => "Not found",
@@ -132,6 +138,9 @@ impl ApiError {
             }
             ApiError::TooLarge { limit } => {
                 format!("the request body is over the limit of {limit} bytes")
+            }
+            ApiError::BodyTimeout { limit_ms } => {
+                format!("the request body did not arrive within {limit_ms} ms")
             }
             ApiError::Unauthorized => {
                 "send `Authorization: Bearer <token>` with the admin token".into()

@@ -34,6 +34,29 @@ pub struct ServerConfig {
     /// instance out of rotation): every region serving normally, or at
     /// least one.
     pub ready_when: ReadyWhen,
+    /// Milliseconds a client has to send a request's complete headers,
+    /// counted from its first byte. A client that trickles headers would
+    /// otherwise hold a connection (and a file descriptor) forever.
+    /// Applies to both listeners.
+    pub header_timeout_ms: u64,
+    /// Milliseconds a public request's body has to arrive completely,
+    /// counted from its headers; a late body gets 408 and the connection
+    /// is closed. (The admin listener has `admin.body_timeout_ms`: uploads
+    /// are large.)
+    pub body_timeout_ms: u64,
+    /// Milliseconds a connection may sit with no request in progress and
+    /// nothing sent before it is closed (keep-alive idle, or opened and
+    /// never used). Applies to both listeners.
+    pub idle_timeout_ms: u64,
+    /// Most connections the public listener holds at once; beyond it new
+    /// connections wait in the kernel's accept backlog. 0: derived from the
+    /// file-descriptor limit (soft limit, less 128 for files and the admin
+    /// listener's share), so the service never runs out of descriptors
+    /// for its own files.
+    pub max_connections: usize,
+    /// Compress public responses (gzip or brotli) when the client's
+    /// `Accept-Encoding` allows: a large matrix is mostly repeated digits.
+    pub compression: bool,
 }
 
 /// `server.ready_when`: which regions must be `serving` for `/readyz` to
@@ -68,6 +91,11 @@ impl Default for ServerConfig {
             drain_seconds: 10,
             customize_priority: CustomizePriority::Idle,
             ready_when: ReadyWhen::AllRegions,
+            header_timeout_ms: 10_000,
+            body_timeout_ms: 30_000,
+            idle_timeout_ms: 60_000,
+            max_connections: 0,
+            compression: true,
         }
     }
 }
@@ -81,6 +109,12 @@ pub struct AdminConfig {
     pub token: String,
     /// Largest upload (historical table), bytes.
     pub max_upload_bytes: usize,
+    /// Milliseconds an admin request's body (a table upload of up to
+    /// `max_upload_bytes`) has to arrive completely; a late body gets 408.
+    pub body_timeout_ms: u64,
+    /// Most connections the admin listener holds at once; beyond it new
+    /// connections wait in the accept backlog.
+    pub max_connections: usize,
 }
 
 impl Default for AdminConfig {
@@ -89,6 +123,8 @@ impl Default for AdminConfig {
             listen: "127.0.0.1:8081".parse().expect("literal address"),
             token: String::new(),
             max_upload_bytes: 512 * 1024 * 1024,
+            body_timeout_ms: 300_000,
+            max_connections: 64,
         }
     }
 }
