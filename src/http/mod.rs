@@ -164,6 +164,7 @@ pub fn app(state: AppState) -> Router {
         .merge(answers)
         .merge(others)
         .fallback(handlers::not_found)
+        .layer(axum::middleware::map_response(problem::method_not_allowed))
         .layer(axum::extract::DefaultBodyLimit::disable())
         .layer(axum::middleware::from_fn(track))
         .layer(tower_http::trace::TraceLayer::new_for_http())

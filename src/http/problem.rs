@@ -31,8 +31,8 @@ pub enum ApiError {
     /// No such resource (e.g. an unknown region in the admin API).
     NotFound(String),
     /// The uploaded table was refused; `detail` summarises, `report` is the
-    /// validation report (`null` when the table was refused before rows
-    /// were read, e.g. for its header).
+    /// validation report (absent from the body when the table was refused
+    /// before rows were read, e.g. for its header).
     Rejected {
         detail: String,
         report: Option<Box<TableReportDto>>,
@@ -54,10 +54,11 @@ struct Problem<'a> {
     field: Option<&'a str>,
     #[serde(skip_serializing_if = "Option::is_none")]
     rule: Option<&'a str>,
-    /// Absent unless the problem is a rejected table; then the report or
-    /// `null`.
+    /// The validation report of a rejected table; absent otherwise, and
+    /// absent when the table was refused before rows were read (the schema
+    /// says object: no `null`).
     #[serde(skip_serializing_if = "Option::is_none")]
-    report: Option<Option<&'a TableReportDto>>,
+    report: Option<&'a TableReportDto>,
 }
 
 impl ApiError {
@@ -140,7 +141,7 @@ impl IntoResponse for ApiError {
             _ => (None, None),
         };
         let report = match &self {
-            ApiError::Rejected { report, .. } => Some(report.as_deref()),
+            ApiError::Rejected { report, .. } => report.as_deref(),
             _ => None,
         };
         let status = self.status();
@@ -167,4 +168,36 @@ impl IntoResponse for ApiError {
         }
         resp
     }
+}
+
+/// Gives a bodiless 405 from the router an RFC 9457 body naming the
+/// methods the resource takes; the router's `Allow` header (RFC 9110
+/// §15.5.6) is kept. Other responses pass through untouched.
+pub async fn method_not_allowed(resp: Response) -> Response {
+    if resp.status() != StatusCode::METHOD_NOT_ALLOWED {
+        return resp;
+    }
+    let (mut parts, _) = resp.into_parts();
+    let allow = parts
+        .headers
+        .get(header::ALLOW)
+        .and_then(|v| v.to_str().ok())
+        .unwrap_or("")
+        .to_string();
+    let body = Problem {
+        kind: "urn:hodos:problem:method-not-allowed",
+        title: "Method not allowed",
+        status: StatusCode::METHOD_NOT_ALLOWED.as_u16(),
+        detail: format!("this resource takes only {allow}"),
+        field: None,
+        rule: None,
+        report: None,
+    };
+    let bytes = serde_json::to_vec(&body).unwrap_or_else(|_| b"{}".to_vec());
+    parts.headers.insert(
+        header::CONTENT_TYPE,
+        header::HeaderValue::from_static(PROBLEM_JSON),
+    );
+    parts.headers.remove(header::CONTENT_LENGTH);
+    Response::from_parts(parts, axum::body::Body::from(bytes))
 }
