@@ -3,7 +3,10 @@
 //! Operation rules), the routers' answers and `Allow` headers (RFC 9110
 //! §15.5.6: a 405 lists the methods the resource supports), the latency
 //! and answer labels in the scraped Prometheus text (prometheus-parse), and
-//! admission control on exactly the table's answer routes.
+//! admission control on exactly the table's answer routes. Then the
+//! mismatches a schema-driven tester found between the documents and the
+//! service, one test each: every answer follows the document it is checked
+//! against (OpenAPI 3.1, JSON Schema 2020-12, RFC 9457, RFC 9110).
 
 mod common;
 
@@ -58,28 +61,49 @@ async fn table_router_document_and_labels_agree() {
         .chain(ADMIN.iter().map(|r| (r, &admin, true)))
         .collect();
 
-    // OpenAPI: the Paths Object holds exactly the table's templates, each
-    // Path Item exactly the table's methods (OpenAPI 3.1 §4.8.9: the fixed
-    // fields get, put, post, delete, options, head, patch, trace).
-    let doc: Value = serde_json::from_str(
-        &send(&public, "GET", "/openapi.json", vec![], false)
+    // OpenAPI: each listener's Paths Object holds exactly its table's
+    // templates, each Path Item exactly the table's methods (OpenAPI 3.1
+    // §4.8.9: the fixed fields get, put, post, delete, options, head, patch,
+    // trace). The public document lists no admin path; the admin document
+    // is on the admin listener, behind the token like every admin route.
+    let public_doc = send(&public, "GET", "/openapi.json", vec![], false)
+        .await
+        .json();
+    let admin_doc = send(&admin, "GET", "/admin/openapi.json", vec![], true)
+        .await
+        .json();
+    assert_eq!(
+        send(&admin, "GET", "/admin/openapi.json", vec![], false)
             .await
-            .text,
-    )
-    .unwrap();
-    let documented: BTreeSet<&str> = doc["paths"]
-        .as_object()
-        .unwrap()
-        .keys()
-        .map(|k| k.as_str())
-        .collect();
-    let tabled: BTreeSet<&str> = table.iter().map(|(r, _, _)| r.path).collect();
-    assert_eq!(documented, tabled, "documented paths vs the route table");
+            .status,
+        StatusCode::UNAUTHORIZED
+    );
+    for (doc, routes) in [(&public_doc, PUBLIC), (&admin_doc, ADMIN)] {
+        let documented: BTreeSet<&str> = doc["paths"]
+            .as_object()
+            .unwrap()
+            .keys()
+            .map(|k| k.as_str())
+            .collect();
+        let tabled: BTreeSet<&str> = routes.iter().map(|r| r.path).collect();
+        assert_eq!(documented, tabled, "documented paths vs the route table");
+        // No hard-coded listener: without `servers` the document is
+        // relative to where it was fetched (OpenAPI 3.1 §4.8.1).
+        assert!(doc.get("servers").is_none(), "{}", doc["servers"]);
+    }
+    // Every `$ref` of each document resolves within it.
+    for doc in [&public_doc, &admin_doc] {
+        for r in refs(doc) {
+            let name = r.strip_prefix("#/components/schemas/").unwrap();
+            assert!(doc["components"]["schemas"].get(name).is_some(), "{r}");
+        }
+    }
     let oas_methods = [
         "get", "put", "post", "delete", "options", "head", "patch", "trace",
     ];
     let mut operation_ids = BTreeSet::new();
-    for (r, _, _) in &table {
+    for (r, _, is_admin) in &table {
+        let doc = if *is_admin { &admin_doc } else { &public_doc };
         let item = doc["paths"][r.path].as_object().unwrap();
         let doc_methods: BTreeSet<&str> = item
             .keys()
@@ -141,6 +165,16 @@ async fn table_router_document_and_labels_agree() {
                     .map(str::trim)
                     .collect();
                 assert_eq!(allow, want, "Allow of {uri}");
+                // RFC 9457: a problem body like every other error (a HEAD
+                // answer has no body, RFC 9110 §9.3.2).
+                assert_eq!(resp.content_type, "application/problem+json", "{m} {uri}");
+                if m == "HEAD" {
+                    continue;
+                }
+                let p = resp.json();
+                assert_eq!(p["status"], 405, "{p}");
+                assert_eq!(p["type"], "urn:hodos:problem:method-not-allowed");
+                assert!(p["detail"].as_str().unwrap().contains("Allow"), "{p}");
             }
         }
     }
@@ -189,6 +223,21 @@ async fn table_router_document_and_labels_agree() {
             .collect::<BTreeSet<_>>(),
         answers
     );
+}
+
+/// Every `$ref` string in a document.
+fn refs(v: &Value) -> Vec<String> {
+    match v {
+        Value::Object(m) => m
+            .iter()
+            .flat_map(|(k, v)| match (k.as_str(), v) {
+                ("$ref", Value::String(r)) => vec![r.clone()],
+                _ => refs(v),
+            })
+            .collect(),
+        Value::Array(a) => a.iter().flat_map(refs).collect(),
+        _ => vec![],
+    }
 }
 
 /// A valid request for each operation of an answer route.

@@ -170,25 +170,22 @@ impl IntoResponse for ApiError {
     }
 }
 
-/// Gives a bodiless 405 from the router an RFC 9457 body naming the
-/// methods the resource takes; the router's `Allow` header (RFC 9110
-/// §15.5.6) is kept. Other responses pass through untouched.
+/// Gives a bodiless 405 from the router an RFC 9457 body; the router's
+/// `Allow` header (RFC 9110 §15.5.6) is kept and lists the methods the
+/// resource takes (axum adds it as the response leaves the route, after
+/// this layer, so the detail points at it rather than copying it). Other
+/// responses pass through untouched.
 pub async fn method_not_allowed(resp: Response) -> Response {
     if resp.status() != StatusCode::METHOD_NOT_ALLOWED {
         return resp;
     }
     let (mut parts, _) = resp.into_parts();
-    let allow = parts
-        .headers
-        .get(header::ALLOW)
-        .and_then(|v| v.to_str().ok())
-        .unwrap_or("")
-        .to_string();
     let body = Problem {
         kind: "urn:hodos:problem:method-not-allowed",
         title: "Method not allowed",
         status: StatusCode::METHOD_NOT_ALLOWED.as_u16(),
-        detail: format!("this resource takes only {allow}"),
+        detail: "this resource does not take that method; the Allow header lists the ones it takes"
+            .into(),
         field: None,
         rule: None,
         report: None,
