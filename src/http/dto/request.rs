@@ -60,8 +60,31 @@ impl<'de> Deserialize<'de> for Coord {
             fn visit_seq<A: SeqAccess<'de>>(self, _: A) -> Result<Coord, A::Error> {
                 Err(de::Error::custom(format!("{RULE}{COORD_ARRAY_RULE}")))
             }
+            fn visit_bool<E: de::Error>(self, _: bool) -> Result<Coord, E> {
+                Err(not_an_object())
+            }
+            fn visit_i64<E: de::Error>(self, _: i64) -> Result<Coord, E> {
+                Err(not_an_object())
+            }
+            fn visit_u64<E: de::Error>(self, _: u64) -> Result<Coord, E> {
+                Err(not_an_object())
+            }
+            fn visit_f64<E: de::Error>(self, _: f64) -> Result<Coord, E> {
+                Err(not_an_object())
+            }
+            fn visit_str<E: de::Error>(self, _: &str) -> Result<Coord, E> {
+                Err(not_an_object())
+            }
+            fn visit_unit<E: de::Error>(self) -> Result<Coord, E> {
+                Err(not_an_object())
+            }
         }
-        d.deserialize_map(ObjectOnly)
+        fn not_an_object<E: de::Error>() -> E {
+            E::custom(format!("{RULE}must be an object {{\"lat\": .., \"lon\": ..}}"))
+        }
+        // `any`, not `map`: serde_json refuses an array for `map` before
+        // the visitor can say why.
+        d.deserialize_any(ObjectOnly)
     }
 }
 
