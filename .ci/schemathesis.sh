@@ -80,7 +80,12 @@ common=(--checks all --max-examples "$examples" --seed 1 --workers 1
 status=0
 echo "== schemathesis: public API ($public/openapi.json)"
 "$st" run "$public/openapi.json" "${common[@]}" || status=1
+# positive_data_acceptance is left out for the admin API only: whether an
+# uploaded table is taken depends on the loaded graph (a segment id must
+# exist in it, an empty CSV has no header), which no schema can say; every
+# other check runs, and refusals must still be RFC 9457 problems.
 echo "== schemathesis: admin API ($admin/admin/openapi.json)"
 "$st" run "$admin/admin/openapi.json" "${common[@]}" \
+  --exclude-checks positive_data_acceptance \
   -H "Authorization: Bearer $token" || status=1
 exit "$status"

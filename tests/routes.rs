@@ -325,7 +325,10 @@ async fn refused_table_problem_has_no_null_report() {
         .await
         .json();
     let schema = &doc["components"]["schemas"]["Problem"]["properties"]["report"];
-    assert_eq!(schema["$ref"], "#/components/schemas/TableReport", "{schema}");
+    assert_eq!(
+        schema["$ref"], "#/components/schemas/TableReport",
+        "{schema}"
+    );
     let r = common::http::send(
         &admin,
         "PUT",
@@ -365,11 +368,20 @@ async fn query_coordinates_follow_the_documented_pattern() {
     let (p, q) = (at(0.2, 0.2), at(0.8, 0.8));
     let from = format!("{:.5},{:.5}", p.lat, p.lon);
     let eta = |to: &str| format!("/v1/eta?from={from}&to={to}");
-    let ok = send(&public, "GET", &eta(&format!("{:.5},{:.5}", q.lat, q.lon)), vec![], false).await;
+    let ok = send(
+        &public,
+        "GET",
+        &eta(&format!("{:.5},{:.5}", q.lat, q.lon)),
+        vec![],
+        false,
+    )
+    .await;
     assert_eq!(ok.status, StatusCode::OK, "{}", ok.text);
     // Not matched by the pattern: exponent, plus sign, blank, missing
     // digits, leading zero on a three-digit longitude, 3-digit latitude.
-    for bad in ["1e1,2", "%2B1,2", "%201,2", "1.,2", ".5,2", "1,099", "100,2", "1;2"] {
+    for bad in [
+        "1e1,2", "%2B1,2", "%201,2", "1.,2", ".5,2", "1,099", "100,2", "1;2",
+    ] {
         let r = send(&public, "GET", &eta(bad), vec![], false).await;
         assert_refused(&r, "to");
     }
@@ -389,9 +401,18 @@ async fn null_leaving_is_refused_naming_the_field() {
     let public = app(st);
     let (p, q) = (at(0.2, 0.2), at(0.8, 0.8));
     for (uri, body) in [
-        ("/v1/eta", json!({"from": obj(p), "to": obj(q), "leaving": null})),
-        ("/v1/route", json!({"from": obj(p), "to": obj(q), "leaving": null})),
-        ("/v1/eta/matrix", json!({"from": [obj(p)], "to": [obj(q)], "leaving": null})),
+        (
+            "/v1/eta",
+            json!({"from": obj(p), "to": obj(q), "leaving": null}),
+        ),
+        (
+            "/v1/route",
+            json!({"from": obj(p), "to": obj(q), "leaving": null}),
+        ),
+        (
+            "/v1/eta/matrix",
+            json!({"from": [obj(p)], "to": [obj(q)], "leaving": null}),
+        ),
     ] {
         let r = post_text(&public, uri, &body.to_string()).await;
         let rule = assert_refused(&r, "leaving");
@@ -426,7 +447,17 @@ async fn budget_ms_takes_integral_numbers_and_refuses_the_rest_in_our_words() {
         let r = post_text(&public, "/v1/eta", &trip(good)).await;
         assert_eq!(r.status, StatusCode::OK, "{good}: {}", r.text);
     }
-    for bad in ["147700.5", "-1", "\"147700\"", "null", "true", "0", "1e30"] {
+    // 2^53 = 9007199254740992 is one over the documented maximum.
+    for bad in [
+        "147700.5",
+        "-1",
+        "\"147700\"",
+        "null",
+        "true",
+        "0",
+        "1e30",
+        "9007199254740992",
+    ] {
         let r = post_text(&public, "/v1/eta", &trip(bad)).await;
         let rule = assert_refused(&r, "budget_ms");
         assert!(rule.contains("at least 1"), "{bad}: {rule}");
@@ -446,7 +477,11 @@ async fn coordinate_arrays_are_refused() {
     let cases = [
         ("/v1/eta", json!({"from": arr(p), "to": obj(q)}), "from"),
         ("/v1/route", json!({"from": obj(p), "to": arr(q)}), "to"),
-        ("/v1/eta/matrix", json!({"from": [obj(p)], "to": [arr(q)]}), "to[0]"),
+        (
+            "/v1/eta/matrix",
+            json!({"from": [obj(p)], "to": [arr(q)]}),
+            "to[0]",
+        ),
         ("/v1/eta", json!([obj(p), obj(q)]), "body"),
     ];
     for (uri, body, field) in cases {
@@ -486,7 +521,10 @@ async fn live_json_refuses_duplicate_keys_and_arrays() {
     // The well-formed row is taken (so the refusals below are about form).
     let r = post(format!("[{text}]")).await;
     assert_eq!(r.status, StatusCode::OK, "{}", r.text);
-    for (body, says) in [(dup, "duplicate key `kmh`"), (fields, "must be a JSON object")] {
+    for (body, says) in [
+        (dup, "duplicate key `kmh`"),
+        (fields, "must be a JSON object"),
+    ] {
         let r = post(body).await;
         assert_eq!(r.status, StatusCode::UNPROCESSABLE_ENTITY, "{}", r.text);
         let e = &r.json()["report"]["first_errors"][0];
@@ -494,4 +532,27 @@ async fn live_json_refuses_duplicate_keys_and_arrays() {
         assert_eq!(e["kind"], "malformed_row", "{e}");
         assert!(e["message"].as_str().unwrap().contains(says), "{e}");
     }
+}
+
+/// An integral JSON number is an integer (JSON Schema 2020-12 validation
+/// §6.1.1): a live observation with `samples: 3.0` is taken like
+/// `samples: 3`.
+#[tokio::test]
+async fn live_json_takes_integral_numbers_as_integers() {
+    let (st, _d) = state("").await;
+    let admin = admin_app(st);
+    let now = chrono::Utc::now().to_rfc3339();
+    let mut one = common::tables::observations(1, 12.0, &now, 3).remove(0);
+    one["samples"] = json!(3.0);
+    let r = common::http::send(
+        &admin,
+        "POST",
+        "/admin/regions/testcity/live",
+        Some("application/json"),
+        json!([one]).to_string().into_bytes(),
+        Some(TOKEN),
+    )
+    .await;
+    assert_eq!(r.status, StatusCode::OK, "{}", r.text);
+    assert_eq!(r.json()["report"]["accepted"], 1, "{}", r.text);
 }

@@ -13,7 +13,7 @@
 //! (`[server]`/`[admin]`), and without `servers` a document is relative to
 //! where it was fetched (OpenAPI 3.1 §4.8.1), which is the right listener.
 
-use super::dto::request::QUERY_COORD_PATTERN;
+use super::dto::request::{BUDGET_MAX, QUERY_COORD_PATTERN};
 use super::routes::{Route, ADMIN, PUBLIC};
 use serde_json::{json, Map, Value};
 
@@ -79,7 +79,7 @@ pub fn eta_get() -> Value {
             {"name": "from", "in": "query", "required": true, "schema": {"type": "string", "pattern": QUERY_COORD_PATTERN}, "description": "Origin as LAT,LON (WGS84 decimal degrees)"},
             {"name": "to", "in": "query", "required": true, "schema": {"type": "string", "pattern": QUERY_COORD_PATTERN}, "description": "Destination as LAT,LON (WGS84 decimal degrees)"},
             {"name": "leaving", "in": "query", "required": false, "schema": {"type": "string", "format": "date-time"}, "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"},
-            {"name": "budget_ms", "in": "query", "required": false, "schema": {"type": "integer", "minimum": 1}}
+            {"name": "budget_ms", "in": "query", "required": false, "schema": {"type": "integer", "minimum": 1, "maximum": BUDGET_MAX}}
         ],
         "responses": merge(json!({"200": json_response("An ETA", "EtaResponse")}), errors(&[]))
     })
@@ -242,11 +242,11 @@ fn schemas() -> Value {
             "properties": {"lat": {"type": "number", "minimum": -90, "maximum": 90}, "lon": {"type": "number", "minimum": -180, "maximum": 180}}},
         "EtaRequest": {"type": "object", "required": ["from", "to"], "additionalProperties": false,
             "properties": {"from": {"$ref": "#/components/schemas/Coord"}, "to": {"$ref": "#/components/schemas/Coord"},
-                           "leaving": {"type": "string", "format": "date-time", "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"}, "budget_ms": {"type": "integer", "minimum": 1}}},
+                           "leaving": {"type": "string", "format": "date-time", "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"}, "budget_ms": {"type": "integer", "minimum": 1, "maximum": BUDGET_MAX}}},
         "MatrixRequest": {"type": "object", "required": ["from", "to"], "additionalProperties": false,
             "properties": {"from": {"type": "array", "minItems": 1, "items": {"$ref": "#/components/schemas/Coord"}},
                            "to": {"type": "array", "minItems": 1, "items": {"$ref": "#/components/schemas/Coord"}},
-                           "leaving": {"type": "string", "format": "date-time", "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"}, "budget_ms": {"type": "integer", "minimum": 1}}},
+                           "leaving": {"type": "string", "format": "date-time", "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"}, "budget_ms": {"type": "integer", "minimum": 1, "maximum": BUDGET_MAX}}},
         "Tier": {"type": "string", "enum": tiers,
             "description": "The speed source with the largest share of the travel time (ties to the better: live, historical, free_flow); heuristic when the graph gave no answer"},
         "FallbackReason": {"type": ["string", "null"], "enum": reasons},

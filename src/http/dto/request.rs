@@ -80,7 +80,9 @@ impl<'de> Deserialize<'de> for Coord {
             }
         }
         fn not_an_object<E: de::Error>() -> E {
-            E::custom(format!("{RULE}must be an object {{\"lat\": .., \"lon\": ..}}"))
+            E::custom(format!(
+                "{RULE}must be an object {{\"lat\": .., \"lon\": ..}}"
+            ))
         }
         // `any`, not `map`: serde_json refuses an array for `map` before
         // the visitor can say why.
@@ -133,8 +135,13 @@ fn leaving_string<'de, D: Deserializer<'de>>(d: D) -> Result<Option<String>, D::
     d.deserialize_any(V)
 }
 
+/// The largest `budget_ms`: 2^53 − 1, the largest integer every JSON
+/// parser holds exactly (RFC 8259 §6); the document's `maximum`.
+pub const BUDGET_MAX: u64 = (1 << 53) - 1;
+
 /// The rule for `budget_ms`.
-pub const BUDGET_RULE: &str = "must be a whole number of milliseconds, at least 1";
+pub const BUDGET_RULE: &str =
+    "must be a whole number of milliseconds, at least 1 and at most 9007199254740991";
 
 /// `budget_ms`: an integral JSON number (JSON Schema's `integer` takes
 /// `147700.0` as well as `147700`), at least 1. Anything else is refused
@@ -368,6 +375,7 @@ pub fn parse_leaving(v: &Option<String>) -> Result<Option<DateTime<Utc>>, ApiErr
 fn check_budget(b: Option<u64>) -> Result<Option<u64>, ApiError> {
     match b {
         Some(0) => Err(ApiError::invalid("budget_ms", "must be at least 1")),
+        Some(b) if b > BUDGET_MAX => Err(ApiError::invalid("budget_ms", BUDGET_RULE)),
         other => Ok(other),
     }
 }
@@ -465,7 +473,7 @@ pub fn parse_eta_query(query: Option<&str>) -> Result<Trip, ApiError> {
         None => None,
         Some(b) => Some(
             b.parse::<u64>()
-                .map_err(|_| ApiError::invalid("budget_ms", "must be a positive integer"))?,
+                .map_err(|_| ApiError::invalid("budget_ms", BUDGET_RULE))?,
         ),
     };
     Ok(Trip {
@@ -484,7 +492,8 @@ pub const QUERY_COORD_RULE: &str =
 /// strings [`parse_eta_query`] takes (decimal syntax of [`decimal`], then
 /// latitude within ±90 and longitude within ±180), so a tool generating
 /// from the schema and the service agree on every string.
-pub const QUERY_COORD_PATTERN: &str = r"^-?(90(\.0+)?|[0-8]?[0-9](\.[0-9]+)?),-?(180(\.0+)?|(1[0-7][0-9]|[0-9]?[0-9])(\.[0-9]+)?)$";
+pub const QUERY_COORD_PATTERN: &str =
+    r"^-?(90(\.0+)?|[0-8]?[0-9](\.[0-9]+)?),-?(180(\.0+)?|(1[0-7][0-9]|[0-9]?[0-9])(\.[0-9]+)?)$";
 
 /// `-?D{1,int_digits}(.D+)?` with a three-digit integer part starting with
 /// `1` (longitudes): the syntax half of [`QUERY_COORD_PATTERN`].

@@ -69,8 +69,8 @@ pub const COLUMNS: [&str; 3] = ["kmh", "observed_at", "samples"];
 /// Marks "no observation held" in the time array.
 pub(crate) const NO_OBS: i64 = i64::MIN;
 
-/// One element of a JSON batch as read: its value, and the first key given
-/// twice in it. `serde_json::Value` keeps the last of duplicate keys, so
+/// One element of a JSON batch as read: its value (integral numbers as
+/// integers), and the first key given twice in it. `serde_json::Value` keeps the last of duplicate keys, so
 /// `{"kmh": 5, "kmh": 500}` would pass as 500; the public API refuses
 /// duplicates (serde's derive reports them) and so does this.
 struct Element {
@@ -122,7 +122,16 @@ impl<'de> Deserialize<'de> for Element {
                 Ok(Value::from(v))
             }
             fn visit_f64<E>(self, v: f64) -> Result<Value, E> {
-                Ok(Value::from(v))
+                // JSON Schema's `integer` takes a number with a zero
+                // fractional part (2020-12 validation §6.1.1): `3.0` is
+                // read as the integer 3, so `samples: 3.0` is taken.
+                if v.fract() == 0.0 && v >= 0.0 && v < 18_446_744_073_709_551_616.0 {
+                    Ok(Value::from(v as u64))
+                } else if v.fract() == 0.0 && v < 0.0 && v >= -9_223_372_036_854_775_808.0 {
+                    Ok(Value::from(v as i64))
+                } else {
+                    Ok(Value::from(v))
+                }
             }
             fn visit_str<E>(self, v: &str) -> Result<Value, E> {
                 Ok(Value::String(v.to_string()))
