@@ -321,14 +321,6 @@ fn obj(p: hodos::engine::geo::LatLon) -> Value {
 async fn refused_table_problem_has_no_null_report() {
     let (st, _d) = state("").await;
     let admin = admin_app(st.clone());
-    let doc = send(&admin, "GET", "/admin/openapi.json", vec![], true)
-        .await
-        .json();
-    let schema = &doc["components"]["schemas"]["Problem"]["properties"]["report"];
-    assert_eq!(
-        schema["$ref"], "#/components/schemas/TableReport",
-        "{schema}"
-    );
     let r = common::http::send(
         &admin,
         "PUT",
@@ -342,6 +334,14 @@ async fn refused_table_problem_has_no_null_report() {
     let p = r.json();
     assert!(p.get("report").is_none(), "{p}");
     assert_eq!(p["type"], "urn:hodos:problem:table-rejected");
+    let doc = send(&admin, "GET", "/admin/openapi.json", vec![], true)
+        .await
+        .json();
+    let schema = &doc["components"]["schemas"]["Problem"]["properties"]["report"];
+    assert_eq!(
+        schema["$ref"], "#/components/schemas/TableReport",
+        "{schema}"
+    );
 }
 
 /// `to` has the same documented pattern as `from`, and the service takes
