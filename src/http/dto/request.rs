@@ -165,7 +165,7 @@ fn budget_number<'de, D: Deserializer<'de>>(d: D) -> Result<Option<u64>, D::Erro
         }
         fn visit_f64<E: de::Error>(self, v: f64) -> Result<Self::Value, E> {
             // Exactly integral and within u64 (2^64 itself is not).
-            if v.is_finite() && v.fract() == 0.0 && v >= 0.0 && v < 18_446_744_073_709_551_616.0 {
+            if v.fract() == 0.0 && (0.0..18_446_744_073_709_551_616.0).contains(&v) {
                 Ok(Some(v as u64))
             } else {
                 Err(refuse())

@@ -125,9 +125,9 @@ impl<'de> Deserialize<'de> for Element {
                 // JSON Schema's `integer` takes a number with a zero
                 // fractional part (2020-12 validation §6.1.1): `3.0` is
                 // read as the integer 3, so `samples: 3.0` is taken.
-                if v.fract() == 0.0 && v >= 0.0 && v < 18_446_744_073_709_551_616.0 {
+                if v.fract() == 0.0 && (0.0..18_446_744_073_709_551_616.0).contains(&v) {
                     Ok(Value::from(v as u64))
-                } else if v.fract() == 0.0 && v < 0.0 && v >= -9_223_372_036_854_775_808.0 {
+                } else if v.fract() == 0.0 && (-9_223_372_036_854_775_808.0..0.0).contains(&v) {
                     Ok(Value::from(v as i64))
                 } else {
                     Ok(Value::from(v))
