@@ -29,6 +29,9 @@ pub fn router(state: AppState) -> Router {
             r.route(route.path, route.method_router())
         })
         .fallback(|| async { ApiError::NotFound("no such admin endpoint".into()) })
+        .layer(axum::middleware::map_response(
+            super::problem::method_not_allowed,
+        ))
         .layer(axum::extract::DefaultBodyLimit::disable())
         .layer(axum::middleware::from_fn_with_state(
             state.clone(),

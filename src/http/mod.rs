@@ -177,6 +177,7 @@ pub fn app(state: AppState) -> Router {
         .merge(answers)
         .merge(others)
         .fallback(handlers::not_found)
+        .layer(axum::middleware::map_response(problem::method_not_allowed))
         .layer(axum::extract::DefaultBodyLimit::disable())
         .layer(axum::middleware::from_fn(track))
         .layer(axum::middleware::from_fn_with_state(

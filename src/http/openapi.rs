@@ -1,11 +1,19 @@
-//! The OpenAPI 3.1 description of the public and admin APIs, served at
-//! `/openapi.json`. Written by hand next to the DTOs it describes: one
+//! The OpenAPI 3.1 descriptions of the public API (served at
+//! `/openapi.json` on the public listener) and of the admin API (served at
+//! `/admin/openapi.json` on the admin listener, behind its token like every
+//! admin route). Written by hand next to the DTOs they describe: one
 //! Operation Object per table operation (the functions below, named in
 //! [`super::routes`]), and the component schemas. [`document`] takes its
-//! `paths` from the route table, so it lists exactly what the routers
-//! serve; `tests/routes.rs` checks that from outside, and
-//! `tests/service_api.rs` runs an external validator on the result.
+//! `paths` from [`PUBLIC`] and [`admin_document`] from [`ADMIN`], so each
+//! lists exactly what its router serves; `tests/routes.rs` checks that
+//! from outside, and `tests/service_api.rs` runs an external validator on
+//! the result.
+//!
+//! Neither document has `servers`: the listeners are configured
+//! (`[server]`/`[admin]`), and without `servers` a document is relative to
+//! where it was fetched (OpenAPI 3.1 §4.8.1), which is the right listener.
 
+use super::dto::request::{BUDGET_MAX, QUERY_COORD_PATTERN};
 use super::routes::{Route, ADMIN, PUBLIC};
 use serde_json::{json, Map, Value};
 
@@ -68,10 +76,10 @@ pub fn eta_get() -> Value {
         "operationId": "etaGet",
         "summary": "Travel time between two coordinates (query string form)",
         "parameters": [
-            {"name": "from", "in": "query", "required": true, "schema": {"type": "string", "pattern": "^-?[0-9.]+,-?[0-9.]+$"}, "description": "Origin as LAT,LON (WGS84 degrees)"},
-            {"name": "to", "in": "query", "required": true, "schema": {"type": "string"}, "description": "Destination as LAT,LON"},
+            {"name": "from", "in": "query", "required": true, "schema": {"type": "string", "pattern": QUERY_COORD_PATTERN}, "description": "Origin as LAT,LON (WGS84 decimal degrees)"},
+            {"name": "to", "in": "query", "required": true, "schema": {"type": "string", "pattern": QUERY_COORD_PATTERN}, "description": "Destination as LAT,LON (WGS84 decimal degrees)"},
             {"name": "leaving", "in": "query", "required": false, "schema": {"type": "string", "format": "date-time"}, "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"},
-            {"name": "budget_ms", "in": "query", "required": false, "schema": {"type": "integer", "minimum": 1}}
+            {"name": "budget_ms", "in": "query", "required": false, "schema": {"type": "integer", "minimum": 1, "maximum": BUDGET_MAX}}
         ],
         "responses": merge(json!({"200": json_response("An ETA", "EtaResponse")}), errors(&[]))
     })
@@ -125,6 +133,17 @@ pub fn openapi() -> Value {
         "responses": {"200": {"description": "OpenAPI 3.1", "content": {"application/json": {"schema": {"type": "object"}}}}}})
 }
 
+pub fn admin_openapi() -> Value {
+    json!({"operationId": "adminOpenapi", "summary": "This document (the admin API)", "security": admin_auth(),
+        "responses": {"200": {"description": "OpenAPI 3.1", "content": {"application/json": {"schema": {"type": "object"}}}},
+                      "401": problem_response("Missing or wrong token")}})
+}
+
+/// `GET /admin/openapi.json`.
+pub async fn serve_admin_document() -> axum::Json<Value> {
+    axum::Json(admin_document())
+}
+
 pub fn admin_status() -> Value {
     json!({"operationId": "adminStatus", "summary": "Per-region snapshot generation, data ages, last reload outcome", "security": admin_auth(),
         "responses": {"200": json_response("Status", "StatusResponse"), "401": problem_response("Missing or wrong token")}})
@@ -174,7 +193,9 @@ fn paths(tables: &[&[Route]]) -> Value {
     Value::Object(paths)
 }
 
-/// The whole document.
+const LICENSE: &str = "MIT OR Apache-2.0";
+
+/// The public API's document.
 pub fn document() -> Value {
     json!({
         "openapi": "3.1.0",
@@ -182,11 +203,26 @@ pub fn document() -> Value {
             "title": "hodos travel-time API",
             "version": env!("CARGO_PKG_VERSION"),
             "description": "Travel times (ETAs), matrices and routes over road graphs, with live, historical, free-flow and heuristic tiers and the share of each answer's time on each speed source. Every valid request gets an answer that says which tier produced it and why. Estimates only: see the README's cautions.",
-            "license": {"name": "MIT OR Apache-2.0", "identifier": "MIT OR Apache-2.0"}
+            "license": {"name": LICENSE, "identifier": LICENSE}
         },
-        "servers": [{"url": "http://127.0.0.1:8080", "description": "public API (default listener)"},
-                    {"url": "http://127.0.0.1:8081", "description": "admin API (default listener)"}],
-        "paths": paths(&[PUBLIC, ADMIN]),
+        "paths": paths(&[PUBLIC]),
+        "components": {"schemas": schemas()}
+    })
+}
+
+/// The admin API's document (its own listener; every operation needs the
+/// bearer token).
+pub fn admin_document() -> Value {
+    json!({
+        "openapi": "3.1.0",
+        "info": {
+            "title": "hodos admin API",
+            "version": env!("CARGO_PKG_VERSION"),
+            "description": "Operator API on the admin listener: upload historical tables, post live observations, reload a region, read per-region status. Every operation needs `Authorization: Bearer <token>`.",
+            "license": {"name": LICENSE, "identifier": LICENSE}
+        },
+        "security": admin_auth(),
+        "paths": paths(&[ADMIN]),
         "components": {
             "securitySchemes": {"adminToken": {"type": "http", "scheme": "bearer"}},
             "schemas": schemas()
@@ -209,11 +245,11 @@ fn schemas() -> Value {
             "properties": {"lat": {"type": "number", "minimum": -90, "maximum": 90}, "lon": {"type": "number", "minimum": -180, "maximum": 180}}},
         "EtaRequest": {"type": "object", "required": ["from", "to"], "additionalProperties": false,
             "properties": {"from": {"$ref": "#/components/schemas/Coord"}, "to": {"$ref": "#/components/schemas/Coord"},
-                           "leaving": {"type": "string", "format": "date-time", "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"}, "budget_ms": {"type": "integer", "minimum": 1}}},
+                           "leaving": {"type": "string", "format": "date-time", "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"}, "budget_ms": {"type": "integer", "minimum": 1, "maximum": BUDGET_MAX}}},
         "MatrixRequest": {"type": "object", "required": ["from", "to"], "additionalProperties": false,
             "properties": {"from": {"type": "array", "minItems": 1, "items": {"$ref": "#/components/schemas/Coord"}},
                            "to": {"type": "array", "minItems": 1, "items": {"$ref": "#/components/schemas/Coord"}},
-                           "leaving": {"type": "string", "format": "date-time", "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"}, "budget_ms": {"type": "integer", "minimum": 1}}},
+                           "leaving": {"type": "string", "format": "date-time", "description": "When the vehicle sets off (RFC 3339 with offset); absent: now"}, "budget_ms": {"type": "integer", "minimum": 1, "maximum": BUDGET_MAX}}},
         "Tier": {"type": "string", "enum": tiers,
             "description": "The speed source with the largest share of the travel time (ties to the better: live, historical, free_flow); heuristic when the graph gave no answer"},
         "FallbackReason": {"type": ["string", "null"], "enum": reasons},
@@ -311,6 +347,6 @@ fn schemas() -> Value {
         "Problem": {"type": "object", "description": "RFC 9457 problem details", "required": ["type", "title", "status", "detail"],
             "properties": {"type": {"type": "string"}, "title": {"type": "string"}, "status": {"type": "integer"}, "detail": {"type": "string"},
                            "field": {"type": "string"}, "rule": {"type": "string"},
-                           "report": {"anyOf": [{"$ref": "#/components/schemas/TableReport"}, {"type": "null"}]}}}
+                           "report": {"$ref": "#/components/schemas/TableReport", "description": "a rejected table's validation report; absent when it was refused before rows were read"}}}
     })
 }

@@ -41,8 +41,8 @@ pub enum ApiError {
     /// (admin-only, so the operator sees the cause).
     ReloadFailed(String),
     /// The uploaded table was refused; `detail` summarises, `report` is the
-    /// validation report (`null` when the table was refused before rows
-    /// were read, e.g. for its header).
+    /// validation report (absent from the body when the table was refused
+    /// before rows were read, e.g. for its header).
     Rejected {
         detail: String,
         report: Option<Box<TableReportDto>>,
@@ -64,10 +64,11 @@ struct Problem<'a> {
     field: Option<&'a str>,
     #[serde(skip_serializing_if = "Option::is_none")]
     rule: Option<&'a str>,
-    /// Absent unless the problem is a rejected table; then the report or
-    /// `null`.
+    /// The validation report of a rejected table; absent otherwise, and
+    /// absent when the table was refused before rows were read (the schema
+    /// says object: no `null`).
     #[serde(skip_serializing_if = "Option::is_none")]
-    report: Option<Option<&'a TableReportDto>>,
+    report: Option<&'a TableReportDto>,
 }
 
 impl ApiError {
@@ -163,7 +164,7 @@ impl IntoResponse for ApiError {
             _ => (None, None),
         };
         let report = match &self {
-            ApiError::Rejected { report, .. } => Some(report.as_deref()),
+            ApiError::Rejected { report, .. } => report.as_deref(),
             _ => None,
         };
         let status = self.status();
@@ -190,4 +191,33 @@ impl IntoResponse for ApiError {
         }
         resp
     }
+}
+
+/// Gives a bodiless 405 from the router an RFC 9457 body; the router's
+/// `Allow` header (RFC 9110 §15.5.6) is kept and lists the methods the
+/// resource takes (axum adds it as the response leaves the route, after
+/// this layer, so the detail points at it rather than copying it). Other
+/// responses pass through untouched.
+pub async fn method_not_allowed(resp: Response) -> Response {
+    if resp.status() != StatusCode::METHOD_NOT_ALLOWED {
+        return resp;
+    }
+    let (mut parts, _) = resp.into_parts();
+    let body = Problem {
+        kind: "urn:hodos:problem:method-not-allowed",
+        title: "Method not allowed",
+        status: StatusCode::METHOD_NOT_ALLOWED.as_u16(),
+        detail: "this resource does not take that method; the Allow header lists the ones it takes"
+            .into(),
+        field: None,
+        rule: None,
+        report: None,
+    };
+    let bytes = serde_json::to_vec(&body).unwrap_or_else(|_| b"{}".to_vec());
+    parts.headers.insert(
+        header::CONTENT_TYPE,
+        header::HeaderValue::from_static(PROBLEM_JSON),
+    );
+    parts.headers.remove(header::CONTENT_LENGTH);
+    Response::from_parts(parts, axum::body::Body::from(bytes))
 }

@@ -9,7 +9,8 @@
 //!   ([`Route::method_router`] binds each handler under its table method);
 //! - the latency middleware picks its `route` label ([`label`]), and
 //!   [`answer_paths`] gives the answer routes for metric pre-registration;
-//! - [`super::openapi::document`] builds its `paths`.
+//! - [`super::openapi::document`] builds its `paths` from [`PUBLIC`],
+//!   [`super::openapi::admin_document`] from [`ADMIN`].
 //!
 //! `tests/routes.rs` checks the three against one another from outside:
 //! the served document, the router's answers and `Allow` headers, and the
@@ -169,6 +170,15 @@ pub static PUBLIC: &[Route] = &[
 
 /// The admin router's routes (all behind the bearer token).
 pub static ADMIN: &[Route] = &[
+    Route {
+        path: "/admin/openapi.json",
+        answers: false,
+        ops: &[Operation {
+            verb: Verb::Get,
+            handler: |f| on(f, openapi::serve_admin_document),
+            doc: openapi::admin_openapi,
+        }],
+    },
     Route {
         path: "/admin/status",
         answers: false,

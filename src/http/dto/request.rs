@@ -15,15 +15,184 @@
 use crate::engine::geo::LatLon;
 use crate::http::problem::ApiError;
 use chrono::{DateTime, Utc};
-use serde::de::DeserializeOwned;
+use serde::de::{self, DeserializeOwned, Deserializer, MapAccess, SeqAccess, Visitor};
 use serde::{Deserialize, Serialize};
+use std::fmt;
 
-/// `{"lat": .., "lon": ..}` in WGS84 degrees.
-#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq)]
-#[serde(deny_unknown_fields)]
+/// `{"lat": .., "lon": ..}` in WGS84 degrees. Only the object form: serde's
+/// derive would also take `[lat, lon]`, which the schema does not allow and
+/// whose axis order a caller cannot tell (GeoJSON writes `[lon, lat]`).
+#[derive(Debug, Clone, Copy, Serialize, PartialEq)]
 pub struct Coord {
     pub lat: f64,
     pub lon: f64,
+}
+
+/// Marks a parse error whose text is our own rule: [`parse_json`] hands
+/// the rest of the message on as the problem's `rule` (no serde wording).
+const RULE: &str = "rule: ";
+
+/// The rule for a coordinate sent as an array.
+pub const COORD_ARRAY_RULE: &str =
+    "must be an object {\"lat\": .., \"lon\": ..}; arrays are refused (their axis order is ambiguous)";
+
+impl<'de> Deserialize<'de> for Coord {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        #[derive(Deserialize)]
+        #[serde(deny_unknown_fields)]
+        struct Fields {
+            lat: f64,
+            lon: f64,
+        }
+        struct ObjectOnly;
+        impl<'de> Visitor<'de> for ObjectOnly {
+            type Value = Coord;
+            fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+                f.write_str("an object {\"lat\": .., \"lon\": ..}")
+            }
+            fn visit_map<A: MapAccess<'de>>(self, map: A) -> Result<Coord, A::Error> {
+                let c = Fields::deserialize(de::value::MapAccessDeserializer::new(map))?;
+                Ok(Coord {
+                    lat: c.lat,
+                    lon: c.lon,
+                })
+            }
+            fn visit_seq<A: SeqAccess<'de>>(self, _: A) -> Result<Coord, A::Error> {
+                Err(de::Error::custom(format!("{RULE}{COORD_ARRAY_RULE}")))
+            }
+            fn visit_bool<E: de::Error>(self, _: bool) -> Result<Coord, E> {
+                Err(not_an_object())
+            }
+            fn visit_i64<E: de::Error>(self, _: i64) -> Result<Coord, E> {
+                Err(not_an_object())
+            }
+            fn visit_u64<E: de::Error>(self, _: u64) -> Result<Coord, E> {
+                Err(not_an_object())
+            }
+            fn visit_f64<E: de::Error>(self, _: f64) -> Result<Coord, E> {
+                Err(not_an_object())
+            }
+            fn visit_str<E: de::Error>(self, _: &str) -> Result<Coord, E> {
+                Err(not_an_object())
+            }
+            fn visit_unit<E: de::Error>(self) -> Result<Coord, E> {
+                Err(not_an_object())
+            }
+        }
+        fn not_an_object<E: de::Error>() -> E {
+            E::custom(format!(
+                "{RULE}must be an object {{\"lat\": .., \"lon\": ..}}"
+            ))
+        }
+        // `any`, not `map`: serde_json refuses an array for `map` before
+        // the visitor can say why.
+        d.deserialize_any(ObjectOnly)
+    }
+}
+
+/// The rule for `leaving`.
+const LEAVING_RULE: &str = "must be an RFC 3339 date-time such as 2026-12-02T08:30:00Z";
+
+/// `leaving`: a string when present. `null` is refused like the schema
+/// says (`type: string`); omit the field for "now".
+fn leaving_string<'de, D: Deserializer<'de>>(d: D) -> Result<Option<String>, D::Error> {
+    struct V;
+    impl<'de> Visitor<'de> for V {
+        type Value = Option<String>;
+        fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+            f.write_str("a date-time string")
+        }
+        fn visit_str<E: de::Error>(self, s: &str) -> Result<Self::Value, E> {
+            Ok(Some(s.to_string()))
+        }
+        fn visit_unit<E: de::Error>(self) -> Result<Self::Value, E> {
+            Err(E::custom(format!(
+                "{RULE}{LEAVING_RULE}; null is refused: omit the field to leave now"
+            )))
+        }
+        fn visit_none<E: de::Error>(self) -> Result<Self::Value, E> {
+            self.visit_unit()
+        }
+        fn visit_bool<E: de::Error>(self, _: bool) -> Result<Self::Value, E> {
+            Err(E::custom(format!("{RULE}{LEAVING_RULE}")))
+        }
+        fn visit_i64<E: de::Error>(self, _: i64) -> Result<Self::Value, E> {
+            Err(E::custom(format!("{RULE}{LEAVING_RULE}")))
+        }
+        fn visit_u64<E: de::Error>(self, _: u64) -> Result<Self::Value, E> {
+            Err(E::custom(format!("{RULE}{LEAVING_RULE}")))
+        }
+        fn visit_f64<E: de::Error>(self, _: f64) -> Result<Self::Value, E> {
+            Err(E::custom(format!("{RULE}{LEAVING_RULE}")))
+        }
+        fn visit_map<A: MapAccess<'de>>(self, _: A) -> Result<Self::Value, A::Error> {
+            Err(de::Error::custom(format!("{RULE}{LEAVING_RULE}")))
+        }
+        fn visit_seq<A: SeqAccess<'de>>(self, _: A) -> Result<Self::Value, A::Error> {
+            Err(de::Error::custom(format!("{RULE}{LEAVING_RULE}")))
+        }
+    }
+    d.deserialize_any(V)
+}
+
+/// The largest `budget_ms`: 2^53 − 1, the largest integer every JSON
+/// parser holds exactly (RFC 8259 §6); the document's `maximum`.
+pub const BUDGET_MAX: u64 = (1 << 53) - 1;
+
+/// The rule for `budget_ms`.
+pub const BUDGET_RULE: &str =
+    "must be a whole number of milliseconds, at least 1 and at most 9007199254740991";
+
+/// `budget_ms`: an integral JSON number (JSON Schema's `integer` takes
+/// `147700.0` as well as `147700`), at least 1. Anything else is refused
+/// with [`BUDGET_RULE`], never a Rust type name; `null` is refused like
+/// the schema says (omit the field for no budget).
+fn budget_number<'de, D: Deserializer<'de>>(d: D) -> Result<Option<u64>, D::Error> {
+    struct V;
+    fn refuse<E: de::Error>() -> E {
+        E::custom(format!("{RULE}{BUDGET_RULE}"))
+    }
+    impl<'de> Visitor<'de> for V {
+        type Value = Option<u64>;
+        fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+            f.write_str(BUDGET_RULE)
+        }
+        fn visit_u64<E: de::Error>(self, v: u64) -> Result<Self::Value, E> {
+            Ok(Some(v))
+        }
+        fn visit_i64<E: de::Error>(self, v: i64) -> Result<Self::Value, E> {
+            u64::try_from(v).map(Some).map_err(|_| refuse())
+        }
+        fn visit_f64<E: de::Error>(self, v: f64) -> Result<Self::Value, E> {
+            // Exactly integral and within u64 (2^64 itself is not).
+            if v.fract() == 0.0 && (0.0..18_446_744_073_709_551_616.0).contains(&v) {
+                Ok(Some(v as u64))
+            } else {
+                Err(refuse())
+            }
+        }
+        fn visit_unit<E: de::Error>(self) -> Result<Self::Value, E> {
+            Err(E::custom(format!(
+                "{RULE}{BUDGET_RULE}; null is refused: omit the field for no budget"
+            )))
+        }
+        fn visit_none<E: de::Error>(self) -> Result<Self::Value, E> {
+            self.visit_unit()
+        }
+        fn visit_bool<E: de::Error>(self, _: bool) -> Result<Self::Value, E> {
+            Err(refuse())
+        }
+        fn visit_str<E: de::Error>(self, _: &str) -> Result<Self::Value, E> {
+            Err(refuse())
+        }
+        fn visit_map<A: MapAccess<'de>>(self, _: A) -> Result<Self::Value, A::Error> {
+            Err(refuse())
+        }
+        fn visit_seq<A: SeqAccess<'de>>(self, _: A) -> Result<Self::Value, A::Error> {
+            Err(refuse())
+        }
+    }
+    d.deserialize_any(V)
 }
 
 impl Coord {
@@ -59,9 +228,9 @@ pub struct EtaRequest {
     pub from: Coord,
     pub to: Coord,
     /// When the vehicle sets off (RFC 3339 with offset); absent = now.
-    #[serde(default)]
+    #[serde(default, deserialize_with = "leaving_string")]
     pub leaving: Option<String>,
-    #[serde(default)]
+    #[serde(default, deserialize_with = "budget_number")]
     pub budget_ms: Option<u64>,
 }
 
@@ -71,9 +240,9 @@ pub struct MatrixRequest {
     pub from: Vec<Coord>,
     pub to: Vec<Coord>,
     /// When the vehicle sets off (RFC 3339 with offset); absent = now.
-    #[serde(default)]
+    #[serde(default, deserialize_with = "leaving_string")]
     pub leaving: Option<String>,
-    #[serde(default)]
+    #[serde(default, deserialize_with = "budget_number")]
     pub budget_ms: Option<u64>,
 }
 
@@ -97,7 +266,13 @@ pub struct MatrixTrip {
 
 /// Parses a JSON body into `T`: syntax errors are 400, shape errors 422 with
 /// the path of the offending field.
+/// Every request body is an object: serde's derive would also read a
+/// struct from an array of its fields in order, which the schema does not
+/// allow, so an array is refused before parsing.
 pub fn parse_json<T: DeserializeOwned>(body: &[u8]) -> Result<T, ApiError> {
+    if body.iter().find(|b| !b.is_ascii_whitespace()) == Some(&b'[') {
+        return Err(ApiError::invalid("body", "must be a JSON object"));
+    }
     let mut de = serde_json::Deserializer::from_slice(body);
     let parsed: Result<T, _> = serde_path_to_error::deserialize(&mut de);
     match parsed {
@@ -121,6 +296,10 @@ pub fn parse_json<T: DeserializeOwned>(body: &[u8]) -> Result<T, ApiError> {
                     } else {
                         path
                     };
+                    // Our own rule from a field's deserializer.
+                    if let Some(rule) = msg.strip_prefix(RULE) {
+                        return Err(ApiError::invalid(base_or_body(base), rule));
+                    }
                     // serde reports a missing field at its parent: name it.
                     if let Some(name) = msg
                         .strip_prefix("missing field `")
@@ -189,18 +368,14 @@ pub fn parse_leaving(v: &Option<String>) -> Result<Option<DateTime<Utc>>, ApiErr
         None => Ok(None),
         Some(s) => DateTime::parse_from_rfc3339(s)
             .map(|d| Some(d.with_timezone(&Utc)))
-            .map_err(|_| {
-                ApiError::invalid(
-                    "leaving",
-                    "must be an RFC 3339 date-time such as 2026-12-02T08:30:00Z",
-                )
-            }),
+            .map_err(|_| ApiError::invalid("leaving", LEAVING_RULE)),
     }
 }
 
 fn check_budget(b: Option<u64>) -> Result<Option<u64>, ApiError> {
     match b {
         Some(0) => Err(ApiError::invalid("budget_ms", "must be at least 1")),
+        Some(b) if b > BUDGET_MAX => Err(ApiError::invalid("budget_ms", BUDGET_RULE)),
         other => Ok(other),
     }
 }
@@ -283,13 +458,13 @@ pub fn parse_eta_query(query: Option<&str>) -> Result<Trip, ApiError> {
         let v = v.ok_or_else(|| ApiError::invalid(name, "is required (LAT,LON)"))?;
         let (a, b) = v
             .split_once(',')
-            .ok_or_else(|| ApiError::invalid(name, "must be LAT,LON in degrees"))?;
+            .filter(|(a, b)| decimal(a, 2) && decimal(b, 3))
+            .ok_or_else(|| ApiError::invalid(name, QUERY_COORD_RULE))?;
+        // `decimal` admits only digits, one point and a sign: these parse.
         let lat: f64 = a
-            .trim()
             .parse()
             .map_err(|_| ApiError::invalid(format!("{name}.lat"), "must be a number"))?;
         let lon: f64 = b
-            .trim()
             .parse()
             .map_err(|_| ApiError::invalid(format!("{name}.lon"), "must be a number"))?;
         Coord { lat, lon }.check(name)
@@ -298,7 +473,7 @@ pub fn parse_eta_query(query: Option<&str>) -> Result<Trip, ApiError> {
         None => None,
         Some(b) => Some(
             b.parse::<u64>()
-                .map_err(|_| ApiError::invalid("budget_ms", "must be a positive integer"))?,
+                .map_err(|_| ApiError::invalid("budget_ms", BUDGET_RULE))?,
         ),
     };
     Ok(Trip {
@@ -307,6 +482,32 @@ pub fn parse_eta_query(query: Option<&str>) -> Result<Trip, ApiError> {
         depart_at: parse_leaving(&leaving)?,
         budget_ms: check_budget(budget_ms)?,
     })
+}
+
+/// The rule for a malformed `from`/`to` query parameter.
+pub const QUERY_COORD_RULE: &str =
+    "must be LAT,LON in decimal degrees (digits, an optional point and sign; e.g. 12.5,-3.25)";
+
+/// The OpenAPI `pattern` of the `from`/`to` query parameters: exactly the
+/// strings [`parse_eta_query`] takes (decimal syntax of [`decimal`], then
+/// latitude within ±90 and longitude within ±180), so a tool generating
+/// from the schema and the service agree on every string.
+pub const QUERY_COORD_PATTERN: &str =
+    r"^-?(90(\.0+)?|[0-8]?[0-9](\.[0-9]+)?),-?(180(\.0+)?|(1[0-7][0-9]|[0-9]?[0-9])(\.[0-9]+)?)$";
+
+/// `-?D{1,int_digits}(.D+)?` with a three-digit integer part starting with
+/// `1` (longitudes): the syntax half of [`QUERY_COORD_PATTERN`].
+fn decimal(s: &str, int_digits: usize) -> bool {
+    let s = s.strip_prefix('-').unwrap_or(s);
+    let (int, frac) = match s.split_once('.') {
+        Some((i, f)) => (i, Some(f)),
+        None => (s, None),
+    };
+    let digits = |t: &str| !t.is_empty() && t.bytes().all(|c| c.is_ascii_digit());
+    digits(int)
+        && int.len() <= int_digits
+        && (int.len() < 3 || int.starts_with('1'))
+        && frac.is_none_or(digits)
 }
 
 /// `application/x-www-form-urlencoded` pairs, percent-decoded.

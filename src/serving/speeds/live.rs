@@ -69,6 +69,107 @@ pub const COLUMNS: [&str; 3] = ["kmh", "observed_at", "samples"];
 /// Marks "no observation held" in the time array.
 pub(crate) const NO_OBS: i64 = i64::MIN;
 
+/// One element of a JSON batch as read: its value (integral numbers as
+/// integers), and the first key given twice in it. `serde_json::Value` keeps the last of duplicate keys, so
+/// `{"kmh": 5, "kmh": 500}` would pass as 500; the public API refuses
+/// duplicates (serde's derive reports them) and so does this.
+struct Element {
+    value: serde_json::Value,
+    duplicate: Option<String>,
+}
+
+impl Element {
+    /// The observation, or why the element is not one (an object
+    /// without duplicate keys: serde's derive would also read an array of
+    /// the fields in order, which the schema does not allow).
+    fn observation(&self) -> Result<Observation, String> {
+        if let Some(k) = &self.duplicate {
+            return Err(format!("not an observation: duplicate key `{k}`"));
+        }
+        if !self.value.is_object() {
+            return Err("not an observation: must be a JSON object".to_string());
+        }
+        Observation::deserialize(&self.value).map_err(|e| format!("not an observation: {e}"))
+    }
+}
+
+impl<'de> Deserialize<'de> for Element {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        use serde::de::{MapAccess, SeqAccess, Visitor};
+        use serde_json::{Map, Value};
+        /// Builds a `Value`, noting the first duplicate key at any depth.
+        struct V<'a>(&'a mut Option<String>);
+        /// One nested value through the same visitor.
+        struct Seed<'a>(&'a mut Option<String>);
+        impl<'de> serde::de::DeserializeSeed<'de> for Seed<'_> {
+            type Value = Value;
+            fn deserialize<D: serde::Deserializer<'de>>(self, d: D) -> Result<Value, D::Error> {
+                d.deserialize_any(V(self.0))
+            }
+        }
+        impl<'de> Visitor<'de> for V<'_> {
+            type Value = Value;
+            fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+                f.write_str("a JSON value")
+            }
+            fn visit_bool<E>(self, v: bool) -> Result<Value, E> {
+                Ok(Value::Bool(v))
+            }
+            fn visit_i64<E>(self, v: i64) -> Result<Value, E> {
+                Ok(Value::from(v))
+            }
+            fn visit_u64<E>(self, v: u64) -> Result<Value, E> {
+                Ok(Value::from(v))
+            }
+            fn visit_f64<E>(self, v: f64) -> Result<Value, E> {
+                // JSON Schema's `integer` takes a number with a zero
+                // fractional part (2020-12 validation §6.1.1): `3.0` is
+                // read as the integer 3, so `samples: 3.0` is taken.
+                if v.fract() == 0.0 && (0.0..18_446_744_073_709_551_616.0).contains(&v) {
+                    Ok(Value::from(v as u64))
+                } else if v.fract() == 0.0 && (-9_223_372_036_854_775_808.0..0.0).contains(&v) {
+                    Ok(Value::from(v as i64))
+                } else {
+                    Ok(Value::from(v))
+                }
+            }
+            fn visit_str<E>(self, v: &str) -> Result<Value, E> {
+                Ok(Value::String(v.to_string()))
+            }
+            fn visit_string<E>(self, v: String) -> Result<Value, E> {
+                Ok(Value::String(v))
+            }
+            fn visit_unit<E>(self) -> Result<Value, E> {
+                Ok(Value::Null)
+            }
+            fn visit_none<E>(self) -> Result<Value, E> {
+                Ok(Value::Null)
+            }
+            fn visit_seq<A: SeqAccess<'de>>(self, mut seq: A) -> Result<Value, A::Error> {
+                let mut out = Vec::new();
+                while let Some(v) = seq.next_element_seed(Seed(&mut *self.0))? {
+                    out.push(v);
+                }
+                Ok(Value::Array(out))
+            }
+            fn visit_map<A: MapAccess<'de>>(self, mut map: A) -> Result<Value, A::Error> {
+                let mut out = Map::new();
+                while let Some(k) = map.next_key::<String>()? {
+                    let v = map.next_value_seed(Seed(&mut *self.0))?;
+                    if out.contains_key(&k) && self.0.is_none() {
+                        *self.0 = Some(k.clone());
+                    }
+                    out.insert(k, v);
+                }
+                Ok(Value::Object(out))
+            }
+        }
+        let mut duplicate = None;
+        let value = d.deserialize_any(V(&mut duplicate))?;
+        Ok(Element { value, duplicate })
+    }
+}
+
 /// One observed speed as uploaded.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -240,19 +341,17 @@ impl LiveLayer {
         cfg: &ValidationConfig,
     ) -> Result<TableReport, SpeedsError> {
         self.check_index(index)?;
-        let values: Vec<serde_json::Value> = serde_json::from_slice(json)
+        let values: Vec<Element> = serde_json::from_slice(json)
             .map_err(|e| SpeedsError::Json(format!("expected an array of observations: {e}")))?;
         let now_ms = now.timestamp_millis();
         let mut rb = ReportBuilder::new(cfg);
         let mut valid = Vec::with_capacity(values.len());
         for (i, v) in values.iter().enumerate() {
             let loc = Loc::Index(i as u64);
-            let o = match Observation::deserialize(v) {
+            let o = match v.observation() {
                 Ok(o) => o,
                 Err(e) => {
-                    rb.bad(loc, ErrorKind::MalformedRow, || {
-                        format!("not an observation: {e}")
-                    });
+                    rb.bad(loc, ErrorKind::MalformedRow, || e);
                     continue;
                 }
             };
