@@ -371,25 +371,32 @@ fn init_tracing() {
         .try_init();
 }
 
-/// Resolves on Ctrl-C or SIGTERM.
-async fn shutdown_signal() {
-    let ctrl_c = async {
-        let _ = tokio::signal::ctrl_c().await;
-    };
+/// Resolves on Ctrl-C or SIGTERM. The SIGTERM handler is installed when
+/// this is called (not when first polled), so a signal that arrives right
+/// after the caller announces it is serving still stops it gracefully.
+/// Must be called inside the runtime.
+fn shutdown_signal() -> impl std::future::Future<Output = ()> {
     #[cfg(unix)]
-    let term = async {
-        match tokio::signal::unix::signal(tokio::signal::unix::SignalKind::terminate()) {
-            Ok(mut s) => {
-                s.recv().await;
+    let term = tokio::signal::unix::signal(tokio::signal::unix::SignalKind::terminate()).ok();
+    async move {
+        let ctrl_c = async {
+            let _ = tokio::signal::ctrl_c().await;
+        };
+        #[cfg(unix)]
+        let term = async move {
+            match term {
+                Some(mut s) => {
+                    s.recv().await;
+                }
+                None => std::future::pending::<()>().await,
             }
-            Err(_) => std::future::pending::<()>().await,
+        };
+        #[cfg(not(unix))]
+        let term = std::future::pending::<()>();
+        tokio::select! {
+            _ = ctrl_c => {},
+            _ = term => {},
         }
-    };
-    #[cfg(not(unix))]
-    let term = std::future::pending::<()>();
-    tokio::select! {
-        _ = ctrl_c => {},
-        _ = term => {},
     }
 }
 
@@ -540,6 +547,7 @@ fn cmd_demo(port: u16) -> anyhow::Result<()> {
                 let _ = rx2.wait_for(|v| *v).await;
             },
         ));
+        let stop = shutdown_signal();
         println!();
         println!(
             "serving {} on http://{pa} (admin on http://{aa}, token {token})",
@@ -553,7 +561,7 @@ fn cmd_demo(port: u16) -> anyhow::Result<()> {
         println!();
         print!("{}", hodos::demo::curl_lines(&files, pa, aa, &token));
         hodos::http::serve(state, public, admin, async move {
-            shutdown_signal().await;
+            stop.await;
             let _ = tx.send(true);
         })
         .await?;
