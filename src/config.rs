@@ -124,6 +124,9 @@ impl Config {
                 return bad(k, "must be a positive number of milliseconds");
             }
         }
+        if self.admin.max_live_batch_bytes == 0 {
+            return bad("admin.max_live_batch_bytes", "must be positive");
+        }
         if self.admin.max_connections == 0 {
             return bad("admin.max_connections", "must be positive");
         }

@@ -4,13 +4,17 @@
 //! RFC 9110 §11.1), compared in constant time; with no token configured
 //! every request is refused. 404 names only an unknown region; a region
 //! without a graph answers 409, a failed reload 422 or 500, each with the
-//! reason in the problem's `detail`.
+//! reason in the problem's `detail`. Uploads are streamed to the parser
+//! ([`super::upload`]) under their own limits: `admin.max_upload_bytes`
+//! for a historical table, `admin.max_live_batch_bytes` for a live batch
+//! (413 past either).
 
 use super::dto::{
     HistoricalAccepted, LiveAccepted, RegionStatusDto, ReloadResponse, StatusResponse,
     TableReportDto,
 };
 use super::problem::ApiError;
+use super::upload::{self, BodyReader, Pumped};
 use super::{routes, AppState};
 use crate::serving::snapshot::{RegionHandle, Reloaded, UpdateError, UpdateFailure};
 use axum::extract::{Path, Request, State};
@@ -80,18 +84,54 @@ fn region(state: &AppState, name: &str) -> Result<Arc<RegionHandle>, ApiError> {
         .ok_or_else(|| ApiError::NotFound(format!("no region named {name:?}")))
 }
 
-async fn read_body(state: &AppState, req: Request) -> Result<(String, Vec<u8>), ApiError> {
-    let limit = state.settings.admin.max_upload_bytes;
-    let ct = req
-        .headers()
+fn content_type(req: &Request) -> String {
+    req.headers()
         .get(header::CONTENT_TYPE)
         .and_then(|v| v.to_str().ok())
         .unwrap_or("")
-        .to_ascii_lowercase();
-    let bytes = axum::body::to_bytes(req.into_body(), limit)
-        .await
-        .map_err(|_| ApiError::TooLarge { limit })?;
-    Ok((ct, bytes.to_vec()))
+        .to_ascii_lowercase()
+}
+
+/// Hands the request body, as a stream of at most `limit` bytes, to
+/// `update` (run as a task of its own, so a client that goes away cannot
+/// cancel it halfway through applying) and answers 413 naming `setting`
+/// when the body is over the limit: at once if its `Content-Length` says
+/// so, else as soon as the bytes pass it (nothing is applied then).
+async fn streamed<T, F, Fut>(
+    req: Request,
+    limit: usize,
+    setting: &'static str,
+    update: F,
+) -> Result<T, ApiError>
+where
+    F: FnOnce(BodyReader) -> Fut,
+    Fut: std::future::Future<Output = Result<T, UpdateError>> + Send + 'static,
+    T: Send + 'static,
+{
+    let too_large = ApiError::TooLarge { limit, setting };
+    let declared = req
+        .headers()
+        .get(header::CONTENT_LENGTH)
+        .and_then(|v| v.to_str().ok())
+        .and_then(|v| v.parse::<u64>().ok());
+    if declared.is_some_and(|n| n > limit as u64) {
+        return Err(too_large);
+    }
+    let (body, pump) = upload::stream(req.into_body(), limit);
+    let task = tokio::spawn(update(body));
+    let pumped = pump.await;
+    let out = task.await.map_err(|e| {
+        tracing::error!(error = %e, "admin upload task failed");
+        ApiError::Internal
+    })?;
+    match pumped {
+        Pumped::OverLimit => Err(too_large),
+        // The body deadline, if it fired, answers 408 instead.
+        Pumped::Failed => Err(ApiError::Malformed(
+            "the request body could not be read to its end".into(),
+        )),
+        Pumped::Complete | Pumped::Abandoned => out.map_err(update_error),
+    }
 }
 
 fn update_error(e: UpdateError) -> ApiError {
@@ -107,6 +147,7 @@ fn update_error(e: UpdateError) -> ApiError {
             detail: format!("no historical table could be used: {why}"),
             report: None,
         },
+        UpdateError::GraphReplaced => ApiError::GraphReplaced(e.to_string()),
         UpdateError::Failed(UpdateFailure::Load(e)) => ApiError::ReloadFailed(format!(
             "the artifact did not load: {e}; the serving snapshot, if any, is unchanged"
         )),
@@ -134,8 +175,14 @@ pub(super) async fn put_historical(
     req: Request,
 ) -> Result<Json<HistoricalAccepted>, ApiError> {
     let r = region(&state, &name)?;
-    let (_, body) = read_body(&state, req).await?;
-    let report = r.put_historical(body).await.map_err(update_error)?;
+    let handle = r.clone();
+    let report = streamed(
+        req,
+        state.settings.admin.max_upload_bytes,
+        "admin.max_upload_bytes",
+        move |body| async move { handle.put_historical_from(body).await },
+    )
+    .await?;
     let st = r.status();
     Ok(Json(HistoricalAccepted {
         generation: st.generation,
@@ -151,9 +198,14 @@ pub(super) async fn post_live(
     req: Request,
 ) -> Result<Json<LiveAccepted>, ApiError> {
     let r = region(&state, &name)?;
-    let (ct, body) = read_body(&state, req).await?;
-    let csv = ct.starts_with("text/csv");
-    let report = r.put_live(&body, csv).await.map_err(update_error)?;
+    let csv = content_type(&req).starts_with("text/csv");
+    let report = streamed(
+        req,
+        state.settings.admin.max_live_batch_bytes,
+        "admin.max_live_batch_bytes",
+        move |body| async move { r.put_live_from(body, csv).await },
+    )
+    .await?;
     Ok(Json(LiveAccepted {
         outcome: "accepted",
         report: TableReportDto::from(&report),

@@ -33,7 +33,10 @@ async fn body_bytes(state: &AppState, req: Request) -> Result<Bytes, ApiError> {
     }
     axum::body::to_bytes(req.into_body(), limit)
         .await
-        .map_err(|_| ApiError::TooLarge { limit })
+        .map_err(|_| ApiError::TooLarge {
+            limit,
+            setting: "server.max_body_bytes",
+        })
 }
 
 fn with_labels(mut resp: Response, tier: &'static str, region: SharedString) -> Response {

@@ -21,6 +21,8 @@
 //! - [`exporter`]: the Prometheus recorder; [`settings`]: `[server]`/`[admin]`.
 //! - [`listener`]: the accept loop and per-connection limits (header and
 //!   idle timeouts, connection cap); [`body_deadline`]: the body timeout.
+//! - [`upload`]: an admin upload's body as a blocking reader for the parser
+//!   thread, under a byte limit.
 
 pub mod admin;
 pub mod body_deadline;
@@ -32,6 +34,7 @@ pub mod openapi;
 pub mod problem;
 pub mod routes;
 pub mod settings;
+pub mod upload;
 
 use crate::serving::answer::Catalog;
 use crate::serving::snapshot::{RegionHandle, UpdateSettings};
@@ -148,7 +151,13 @@ async fn admit(State(state): State<AppState>, req: Request, next: Next) -> Respo
     let (parts, body) = req.into_parts();
     let bytes = match axum::body::to_bytes(body, limit).await {
         Ok(b) => b,
-        Err(_) => return problem::ApiError::TooLarge { limit }.into_response(),
+        Err(_) => {
+            return problem::ApiError::TooLarge {
+                limit,
+                setting: "server.max_body_bytes",
+            }
+            .into_response()
+        }
     };
     let mut req = Request::from_parts(parts, axum::body::Body::from(bytes));
     let ticket = state.catalog.admission.enter();

@@ -154,7 +154,7 @@ pub fn admin_put_historical() -> Value {
         "parameters": region_param(),
         "requestBody": {"required": true, "content": {"text/csv": {"schema": {"type": "string"}}}},
         "responses": {"200": json_response("Accepted, with the validation report", "HistoricalAccepted"),
-                      "401": problem_response("Missing or wrong token"), "404": problem_response("Unknown region"), "409": problem_response("The region has no graph loaded (its artifact failed to load); the detail names why"), "413": problem_response("Upload too large"),
+                      "401": problem_response("Missing or wrong token"), "404": problem_response("Unknown region"), "409": problem_response("The region has no graph loaded (its artifact failed to load), or its graph was replaced while the table arrived (nothing saved: send it again); the detail names why"), "413": problem_response("Table over `admin.max_upload_bytes`; nothing saved"),
                       "422": problem_response("Rejected whole; the problem carries the validation report")}})
 }
 
@@ -166,7 +166,8 @@ pub fn admin_post_live() -> Value {
             "text/csv": {"schema": {"type": "string"}}}},
         "responses": {"200": json_response("Applied, with the validation report", "LiveAccepted"),
                       "401": problem_response("Missing or wrong token"), "404": problem_response("Unknown region"),
-                      "409": problem_response("The region has no graph loaded (its artifact failed to load); the detail names why"),
+                      "409": problem_response("The region has no graph loaded (its artifact failed to load), or its graph was replaced while the batch arrived (nothing applied: send it again); the detail names why"),
+                      "413": problem_response("Batch over `admin.max_live_batch_bytes`; nothing applied"),
                       "422": problem_response("Rejected whole; the problem carries the validation report")}})
 }
 

@@ -22,8 +22,9 @@ pub enum ApiError {
     /// A field breaks a rule: `field` names it (`from.lat`), `rule` says what
     /// it must be (`must be within -90..90`).
     Invalid { field: String, rule: String },
-    /// The body is larger than the configured limit.
-    TooLarge { limit: usize },
+    /// The body is larger than the configured limit; `setting` names it
+    /// (`server.max_body_bytes`, `admin.max_live_batch_bytes`, ...).
+    TooLarge { limit: usize, setting: &'static str },
     /// The request body did not arrive completely within the body timeout
     /// (`server.body_timeout_ms`); the connection is closed after this answer.
     BodyTimeout { limit_ms: u64 },
@@ -37,6 +38,9 @@ pub enum ApiError {
     /// load); the text names why. 409: the region's state, not the request,
     /// is at fault, and a reload can fix it.
     NoGraph(String),
+    /// The region's graph was replaced while an upload arrived; nothing of
+    /// it was applied (409: sending it again applies it).
+    GraphReplaced(String),
     /// An admin reload could not load the artifact; the text names why
     /// (admin-only, so the operator sees the cause).
     ReloadFailed(String),
@@ -89,7 +93,7 @@ impl ApiError {
             ApiError::BodyTimeout { .. } => StatusCode::REQUEST_TIMEOUT,
             ApiError::Unauthorized => StatusCode::UNAUTHORIZED,
             ApiError::NotFound(_) => StatusCode::NOT_FOUND,
-            ApiError::NoGraph(_) => StatusCode::CONFLICT,
+            ApiError::NoGraph(_) | ApiError::GraphReplaced(_) => StatusCode::CONFLICT,
             ApiError::ReloadFailed(_) => StatusCode::INTERNAL_SERVER_ERROR,
             ApiError::UnsupportedMediaType(_) => StatusCode::UNSUPPORTED_MEDIA_TYPE,
             ApiError::Internal => StatusCode::INTERNAL_SERVER_ERROR,
@@ -107,6 +111,7 @@ impl ApiError {
             ApiError::Unauthorized => "urn:hodos:problem:unauthorized",
             ApiError::NotFound(_) => "urn:hodos:problem:not-found",
             ApiError::NoGraph(_) => "urn:hodos:problem:region-without-graph",
+            ApiError::GraphReplaced(_) => "urn:hodos:problem:graph-replaced",
             ApiError::ReloadFailed(_) => "urn:hodos:problem:reload-failed",
             ApiError::Rejected { .. } => "urn:hodos:problem:table-rejected",
             ApiError::UnsupportedMediaType(_) => "urn:hodos:problem:unsupported-media-type",
@@ -124,6 +129,7 @@ impl ApiError {
             ApiError::Unauthorized => "Missing or wrong bearer token",
             ApiError::NotFound(_) => "Not found",
             ApiError::NoGraph(_) => "Region has no graph loaded",
+            ApiError::GraphReplaced(_) => "Graph replaced during the upload",
             ApiError::ReloadFailed(_) => "Reload failed",
             ApiError::Rejected { .. } => "Table rejected",
             ApiError::UnsupportedMediaType(_) => "Unsupported media type",
@@ -137,8 +143,8 @@ impl ApiError {
             ApiError::Invalid { field, rule } | ApiError::OverLimit { field, rule } => {
                 format!("{field} {rule}")
             }
-            ApiError::TooLarge { limit } => {
-                format!("the request body is over the limit of {limit} bytes")
+            ApiError::TooLarge { limit, setting } => {
+                format!("the request body is over the limit of {limit} bytes (`{setting}`)")
             }
             ApiError::BodyTimeout { limit_ms } => {
                 format!("the request body did not arrive within {limit_ms} ms")
@@ -146,7 +152,9 @@ impl ApiError {
             ApiError::Unauthorized => {
                 "send `Authorization: Bearer <token>` with the admin token".into()
             }
-            ApiError::NotFound(m) | ApiError::ReloadFailed(m) => m.clone(),
+            ApiError::NotFound(m) | ApiError::ReloadFailed(m) | ApiError::GraphReplaced(m) => {
+                m.clone()
+            }
             ApiError::NoGraph(m) => format!("region has no graph loaded: {m}"),
             ApiError::Rejected { detail, .. } => detail.clone(),
             ApiError::UnsupportedMediaType(m) => m.clone(),

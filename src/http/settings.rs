@@ -107,8 +107,13 @@ pub struct AdminConfig {
     pub listen: SocketAddr,
     /// Bearer token; prefer the HODOS_ADMIN_TOKEN environment variable.
     pub token: String,
-    /// Largest upload (historical table), bytes.
+    /// Largest historical table upload, bytes.
     pub max_upload_bytes: usize,
+    /// Largest live batch (JSON or CSV), bytes; over it the batch gets 413
+    /// and nothing of it is applied. Batches are parsed as they arrive, so
+    /// a batch costs about 30 bytes of memory per valid observation, not
+    /// its size.
+    pub max_live_batch_bytes: usize,
     /// Milliseconds an admin request's body (a table upload of up to
     /// `max_upload_bytes`) has to arrive completely; a late body gets 408.
     pub body_timeout_ms: u64,
@@ -123,6 +128,7 @@ impl Default for AdminConfig {
             listen: "127.0.0.1:8081".parse().expect("literal address"),
             token: String::new(),
             max_upload_bytes: 512 * 1024 * 1024,
+            max_live_batch_bytes: 128 * 1024 * 1024,
             body_timeout_ms: 300_000,
             max_connections: 64,
         }

@@ -113,6 +113,26 @@ impl Customizer {
     }
 }
 
+/// Runs `f` on a new thread named `name` at `priority` and waits for its
+/// result; `None` if the thread could not start or `f` panicked. For a job
+/// that waits on I/O for as long as a client takes (an upload parsed as it
+/// arrives): it must not hold a shared job thread meanwhile.
+pub async fn run_on_own_thread<R: Send + 'static>(
+    name: &str,
+    priority: CustomizePriority,
+    f: impl FnOnce() -> R + Send + 'static,
+) -> Option<R> {
+    let (tx, rx) = tokio::sync::oneshot::channel();
+    std::thread::Builder::new()
+        .name(name.into())
+        .spawn(move || {
+            lower_priority(priority);
+            let _ = tx.send(f());
+        })
+        .ok()?;
+    rx.await.ok()
+}
+
 /// Lowers the calling thread's CPU priority; true if it took effect.
 #[cfg(target_os = "linux")]
 fn lower_priority(p: CustomizePriority) -> bool {
@@ -156,6 +176,13 @@ mod tests {
             c.spawn(move || log.lock().unwrap().push(i));
         }
         let boom: Option<u32> = c.run(|| panic!("job fails")).await;
+        let own: Option<u32> =
+            run_on_own_thread("t", CustomizePriority::Low, || panic!("job fails")).await;
+        assert_eq!(own, None);
+        assert_eq!(
+            run_on_own_thread("t", CustomizePriority::Low, || 8).await,
+            Some(8)
+        );
         assert_eq!(boom, None);
         assert_eq!(c.run(|| 7).await, Some(7));
         assert_eq!(*log.lock().unwrap(), vec![0, 1, 2, 3, 4]);

@@ -105,4 +105,9 @@ pub enum UpdateError {
     /// refused); the table that served keeps serving. The text names why.
     #[error("no historical table could be used: {0}")]
     TablesRejected(String),
+    /// The region's graph was replaced (a reload of a new artifact) while
+    /// the upload arrived: it was validated against the old graph, so
+    /// nothing of it was applied or saved. Sending it again applies it.
+    #[error("the region's graph was replaced while the upload arrived; nothing was applied, send it again")]
+    GraphReplaced,
 }

@@ -355,11 +355,13 @@ impl RegionHandle {
         };
         for f in files {
             let path = f.clone();
-            let Ok(Ok(bytes)) = tokio::task::spawn_blocking(move || std::fs::read(&path)).await
+            let Ok(Ok(file)) =
+                tokio::task::spawn_blocking(move || std::fs::File::open(&path)).await
             else {
                 continue;
             };
-            let outcome = self.put_live(&bytes, true).await;
+            // Read as a stream, like an upload.
+            let outcome = self.put_live_from(file, true).await;
             let ext = match &outcome {
                 Ok(_) => "done",
                 Err(e) => {

@@ -28,7 +28,8 @@ use crate::serving::metrics as m;
 use crate::serving::settings::RegionConfig;
 use crate::serving::speeds::wal::{self, BatchKind};
 use crate::serving::speeds::{
-    load_live, open_historical, EdgeIndex, HistoricalProfile, LiveLayer, ValidationConfig,
+    load_live, open_historical, Batch, EdgeIndex, HistoricalProfile, LiveLayer, SpeedsError,
+    ValidationConfig,
 };
 use chrono::{DateTime, Utc};
 use std::path::{Path, PathBuf};
@@ -263,6 +264,9 @@ fn restore_live(
         let applied = match r.kind {
             BatchKind::Json => l.apply_json(index, &r.body, now, v),
             BatchKind::Csv => l.apply_csv(index, &r.body, now, v),
+            BatchKind::Compact => Batch::decode(r.body)
+                .map_err(SpeedsError::Json)
+                .and_then(|b| l.apply_batch(index, &b, now, v)),
         };
         if let Err(e) = applied {
             tracing::warn!(region = %name, error = %e, "logged live batch no longer applies");

@@ -47,7 +47,7 @@ use crate::engine::region::{Metric, Region};
 use crate::serving::customizer::Customizer;
 use crate::serving::metrics as m;
 use crate::serving::retire::RetireBin;
-use crate::serving::settings::{LiveConfig, RegionConfig, ServingSettings};
+use crate::serving::settings::{CustomizePriority, LiveConfig, RegionConfig, ServingSettings};
 use crate::serving::speeds::{
     BlendStats, EdgeIndex, HistoricalProfile, LiveLayer, TableReport, ValidationConfig,
 };
@@ -240,6 +240,9 @@ pub struct UpdateSettings {
     /// its own at the same priority, so an upload is not queued behind a
     /// customization of several hundred milliseconds.
     pub updates: Customizer,
+    /// The CPU priority of both (`server.customize_priority`), also given
+    /// to the thread that reads an upload as it arrives.
+    pub priority: CustomizePriority,
 }
 
 impl UpdateSettings {
@@ -255,6 +258,7 @@ impl UpdateSettings {
             profiles: cfg.query.profiles.clamp(1, 168),
             customizer: Customizer::start(cfg.customize_priority),
             updates: Customizer::start_named("hodos-update", cfg.customize_priority),
+            priority: cfg.customize_priority,
         }
     }
 }

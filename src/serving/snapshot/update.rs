@@ -10,6 +10,11 @@
 //! table is the one serving it publishes nothing and reports
 //! [`Reloaded::Unchanged`]. An accepted live batch is appended to the
 //! write-ahead log and synced before it is acknowledged.
+//!
+//! Uploads are read as streams: a table or batch is parsed as it arrives
+//! on a thread of its own (it may wait on the client for minutes), into
+//! the compact form the snapshot needs, before the writer lock is taken;
+//! applying, logging and saving then run on the `updates` thread.
 
 use super::error::{Degraded, HistoricalNote, LoadError, UpdateError, UpdateFailure};
 use super::load::{
@@ -17,12 +22,17 @@ use super::load::{
     Loaded, TableChoice,
 };
 use super::{LiveMetric, RegionHandle, ReloadOutcome, Reloaded, Snapshot, TableSource, Writer};
+use crate::serving::customizer::run_on_own_thread;
 use crate::serving::metrics as m;
+use crate::serving::retire::trim_heap;
+use crate::serving::speeds::persist::Saving;
 use crate::serving::speeds::wal::{self, BatchKind};
 use crate::serving::speeds::{
-    save_historical, HistoricalProfile, LiveLayer, SpeedsError, TableReport,
+    read_csv, read_json, Batch, HistoricalProfile, LiveLayer, PendingTable, SpeedsError,
+    TableReport,
 };
 use chrono::{DateTime, Utc};
+use std::io::Read;
 use std::sync::atomic::Ordering;
 use std::sync::Arc;
 
@@ -295,12 +305,26 @@ impl RegionHandle {
         self: &Arc<Self>,
         csv: Vec<u8>,
     ) -> Result<TableReport, UpdateError> {
-        let w = self.writer.lock().await;
-        let snap = self.current_or_unavailable()?;
-        let (profile, report) = match self.parse_and_save_historical(&snap, csv).await? {
+        self.put_historical_from(std::io::Cursor::new(csv)).await
+    }
+
+    /// [`put_historical`](Self::put_historical) from a stream, parsed and
+    /// saved as it arrives ([`Self::read_historical`]): memory is the
+    /// profile being built, not the table's text. The writer lock is taken
+    /// once the table is read; if the graph was replaced meanwhile nothing
+    /// is saved or served ([`UpdateError::GraphReplaced`]).
+    pub async fn put_historical_from<R: Read + Send + 'static>(
+        self: &Arc<Self>,
+        input: R,
+    ) -> Result<TableReport, UpdateError> {
+        let read_on = self.current_or_unavailable()?;
+        let (profile, report, pending) = match self.read_historical(&read_on, input).await? {
             Ok(x) => x,
             Err(e) => return Err(self.rejected("historical", Utc::now(), e)),
         };
+        let w = self.writer.lock().await;
+        let snap = self.same_graph(&read_on)?;
+        self.save_pending(pending).await?;
         let now = Utc::now();
         let profile = Arc::new(profile);
         // The old table's profiles keep answering until all of the new
@@ -338,35 +362,76 @@ impl RegionHandle {
         Ok(report)
     }
 
-    /// Parses the table on the `updates` thread and, if it validates,
-    /// saves it to the state directory there too. The outer error is a
-    /// failure to save (or a panicked job), the inner one a rejection.
-    async fn parse_and_save_historical(
+    /// The serving snapshot, if it is still over the graph (the same edge
+    /// index) that an upload was validated against.
+    fn same_graph(&self, read_on: &Snapshot) -> Result<Arc<Snapshot>, UpdateError> {
+        let cur = self.current_or_unavailable()?;
+        if Arc::ptr_eq(&cur.index, &read_on.index) {
+            Ok(cur)
+        } else {
+            Err(UpdateError::GraphReplaced)
+        }
+    }
+
+    /// Runs `f`, which reads an upload as it arrives, on a thread of its
+    /// own at the update threads' CPU priority: it waits on the client for
+    /// as long as the client takes, so it must not hold the shared
+    /// `updates` thread meanwhile.
+    async fn read_off_worker<T: Send + 'static>(
+        &self,
+        f: impl FnOnce() -> T + Send + 'static,
+    ) -> Option<T> {
+        run_on_own_thread("hodos-upload", self.settings.priority, f).await
+    }
+
+    /// Parses the table as it arrives and writes it, as it passes, to a
+    /// temporary file beside its place in the state directory (removed
+    /// again unless the table is accepted and [`Self::save_pending`]
+    /// completes it). The outer error is a failure to save (or a panicked
+    /// job), the inner one a rejection.
+    async fn read_historical<R: Read + Send + 'static>(
         &self,
         snap: &Snapshot,
-        csv: Vec<u8>,
-    ) -> Result<Result<(HistoricalProfile, TableReport), SpeedsError>, UpdateError> {
+        input: R,
+    ) -> Result<Result<(HistoricalProfile, TableReport, PendingTable), SpeedsError>, UpdateError>
+    {
         let index = snap.index.clone();
         let validation = self.settings.validation.clone();
+        let path = historical_state_path(&self.cfg);
+        self.read_off_worker(move || {
+            if let Some(dir) = path.parent() {
+                std::fs::create_dir_all(dir).map_err(|source| UpdateFailure::StateDir {
+                    dir: dir.to_path_buf(),
+                    cause: source,
+                })?;
+            }
+            let mut pending = PendingTable::create(&path).map_err(UpdateFailure::Save)?;
+            let saving = Saving {
+                inner: input,
+                to: &mut pending,
+            };
+            let r = HistoricalProfile::read(saving, &index, &validation);
+            Ok::<_, UpdateFailure>(r.map(|(p, report)| (p, report, pending)))
+        })
+        .await
+        .ok_or(UpdateError::Failed(UpdateFailure::ParseTask))?
+        .map_err(UpdateError::Failed)
+    }
+
+    /// Completes the saved copy of an accepted table (header, sync,
+    /// rename) on the `updates` thread.
+    async fn save_pending(&self, pending: PendingTable) -> Result<(), UpdateError> {
         let path = historical_state_path(&self.cfg);
         self.settings
             .updates
             .run(move || {
-                let r = HistoricalProfile::parse(&csv, &index, &validation);
-                if r.is_ok() {
-                    if let Some(dir) = path.parent() {
-                        std::fs::create_dir_all(dir).map_err(|source| UpdateFailure::StateDir {
-                            dir: dir.to_path_buf(),
-                            cause: source,
-                        })?;
-                    }
-                    save_historical(&path, &csv).map_err(UpdateFailure::Save)?;
-                }
-                Ok::<_, UpdateFailure>(r)
+                let r = pending.finish(&path);
+                trim_heap();
+                r
             })
             .await
             .ok_or(UpdateError::Failed(UpdateFailure::ParseTask))?
-            .map_err(UpdateError::Failed)
+            .map_err(|e| UpdateError::Failed(UpdateFailure::Save(e)))
     }
 
     /// Applies a batch of live observations (JSON array or CSV). A batch
@@ -374,25 +439,52 @@ impl RegionHandle {
     /// report of 0 rows and changes nothing: no live layer is created, no
     /// log record written, no re-blend started.
     pub async fn put_live(&self, body: &[u8], csv: bool) -> Result<TableReport, UpdateError> {
+        self.put_live_from(std::io::Cursor::new(body.to_vec()), csv)
+            .await
+    }
+
+    /// [`put_live`](Self::put_live) from a stream, parsed as it arrives
+    /// into the batch's compact form ([`crate::serving::speeds::batch`]):
+    /// memory is about 30 bytes per valid observation, not the batch's
+    /// text. The writer lock is taken once the batch is read; if the graph
+    /// was replaced meanwhile nothing is applied
+    /// ([`UpdateError::GraphReplaced`]).
+    pub async fn put_live_from<R: Read + Send + 'static>(
+        &self,
+        input: R,
+        csv: bool,
+    ) -> Result<TableReport, UpdateError> {
+        let read_on = self.current_or_unavailable()?;
+        let now = Utc::now();
+        let (index, validation) = (read_on.index.clone(), self.settings.validation.clone());
+        let read = self
+            .read_off_worker(move || {
+                if csv {
+                    read_csv(&index, input, now, &validation)
+                } else {
+                    read_json(&index, input, now, &validation)
+                }
+            })
+            .await
+            .ok_or(UpdateError::Failed(UpdateFailure::LiveTask))?;
+        let batch = match read {
+            Ok(b) => b,
+            Err(e) => return Err(self.rejected("live", now, e)),
+        };
+        if batch.report().rows == 0 {
+            return Ok(batch.report().clone());
+        }
         let mut w = self.writer.lock().await;
-        let snap = self.current_or_unavailable()?;
-        let held = w.live.is_some();
+        let snap = self.same_graph(&read_on)?;
         let layer = w
             .live
             .take()
             .unwrap_or_else(|| LiveLayer::new(snap.index.num_edges()));
-        let now = Utc::now();
-        let Some((layer, r)) = self.apply_batch(&snap, layer, body, csv, now).await else {
+        let Some((layer, r)) = self.apply_batch(&snap, layer, batch, now).await else {
             return Err(UpdateError::Failed(UpdateFailure::LiveTask));
         };
         w.live = Some(layer);
         match r {
-            Ok(Ok(report)) if report.rows == 0 => {
-                if !held {
-                    w.live = None;
-                }
-                Ok(report)
-            }
             Ok(Err(e)) => {
                 w.live_changed = true;
                 drop(w);
@@ -423,42 +515,30 @@ impl RegionHandle {
         }
     }
 
-    /// Parses and applies a batch on the `updates` thread: a large batch is
-    /// milliseconds of CPU that request workers should not spend. An
-    /// accepted batch is then appended to the write-ahead log and synced
-    /// there, before the caller answers (the inner error: it could not be).
-    /// The layer moves there and back; `None` if the job panicked.
+    /// Applies a read batch on the `updates` thread, then appends its
+    /// compact form to the write-ahead log and syncs it there, before the
+    /// caller answers (the inner error: it could not be). The layer moves
+    /// there and back; `None` if the job panicked. Heap memory the batch
+    /// freed is given back to the kernel afterwards.
     async fn apply_batch(
         &self,
         snap: &Snapshot,
         mut layer: LiveLayer,
-        body: &[u8],
-        csv: bool,
+        batch: Batch,
         now: DateTime<Utc>,
     ) -> Option<(LiveLayer, BatchResult)> {
-        let (index, validation, body) = (
-            snap.index.clone(),
-            self.settings.validation.clone(),
-            body.to_vec(),
-        );
+        let (index, validation) = (snap.index.clone(), self.settings.validation.clone());
         let (log, dir) = (live_wal_path(&self.cfg), self.cfg.state_dir.clone());
         self.settings
             .updates
             .run(move || {
-                let r = if csv {
-                    layer.apply_csv(&index, &body, now, &validation)
-                } else {
-                    layer.apply_json(&index, &body, now, &validation)
-                };
+                let r = layer.apply_batch(&index, &batch, now, &validation);
                 let r = r.map(|report| {
-                    if report.rows == 0 {
-                        // Nothing to replay: an empty batch changes nothing.
-                        return Ok(report);
-                    }
-                    let kind = if csv { BatchKind::Csv } else { BatchKind::Json };
                     let _ = std::fs::create_dir_all(&dir);
-                    wal::append(&log, kind, &body, true).map(|()| report)
+                    wal::append(&log, BatchKind::Compact, batch.encoded(), true).map(|()| report)
                 });
+                drop(batch);
+                trim_heap();
                 (layer, r)
             })
             .await

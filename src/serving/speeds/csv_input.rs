@@ -13,19 +13,128 @@
 //! In a row, an empty key cell means "not given", so one file can mix rows
 //! naming segments by id with rows naming them by ends
 //! ([`SegmentKey`], rules in [`edge_index`](super::edge_index)).
+//!
+//! Tables are read as streams ([`reader`] over any [`Read`]): an upload is
+//! parsed as it arrives, never held whole. [`Recent`] keeps the last bytes
+//! read so a row's line number is exact without the whole input.
 
 use super::edge_index::{SegmentKey, INCOMPLETE_KEY};
 use super::error::SpeedsError;
 use csv::{ByteRecord, Reader, ReaderBuilder};
+use std::io::Read;
 
-/// A reader over in-memory CSV bytes. Flexible field counts so that one
-/// short row is one bad row, not a failed file. Fields are trimmed by
-/// [`field`] rather than by the reader, which is several times cheaper.
-pub(crate) fn reader(bytes: &[u8]) -> Reader<&[u8]> {
+/// A CSV reader over a stream. Flexible field counts so that one short row
+/// is one bad row, not a failed file. Fields are trimmed by [`field`]
+/// rather than by the reader, which is several times cheaper.
+pub(crate) fn reader<R: Read>(input: R) -> Reader<Recent<R>> {
     ReaderBuilder::new()
         .has_headers(true)
         .flexible(true)
-        .from_reader(bytes)
+        .buffer_capacity(64 * 1024)
+        .from_reader(Recent::new(input))
+}
+
+/// Bytes of input [`Recent`] keeps behind the reader's position.
+const RECENT_KEEP: usize = 256 * 1024;
+
+/// A reader that keeps the last [`RECENT_KEEP`] or more bytes it passed on,
+/// so that [`Recent::line_of`] can step over the blank lines the CSV
+/// reader skipped before a record.
+pub(crate) struct Recent<R> {
+    inner: R,
+    kept: Vec<u8>,
+    /// Input offset of `kept[0]`.
+    start: u64,
+}
+
+impl<R> Recent<R> {
+    fn new(inner: R) -> Self {
+        Recent {
+            inner,
+            kept: Vec::new(),
+            start: 0,
+        }
+    }
+
+    /// 1-based line where a record starts. The reader places a record's
+    /// position before any blank lines it skipped to reach it, so those
+    /// are stepped over here (a few bytes at most per record, usually
+    /// none). A record so long that its start is no longer kept (over
+    /// 256 KiB) gets the line of its position.
+    pub(crate) fn line_of(&self, rec: &ByteRecord) -> u64 {
+        let Some(p) = rec.position() else {
+            return 0;
+        };
+        let from = p
+            .byte()
+            .checked_sub(self.start)
+            .and_then(|o| usize::try_from(o).ok())
+            .and_then(|o| self.kept.get(o..))
+            .unwrap_or(&[]);
+        line_after_blanks(p.line(), from)
+    }
+
+    pub(crate) fn into_inner(self) -> R {
+        self.inner
+    }
+}
+
+impl<R: Read> Read for Recent<R> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let n = self.inner.read(buf)?;
+        self.kept.extend_from_slice(&buf[..n]);
+        if self.kept.len() > 2 * RECENT_KEEP {
+            let cut = self.kept.len() - RECENT_KEEP;
+            self.kept.drain(..cut);
+            self.start += cut as u64;
+        }
+        Ok(n)
+    }
+}
+
+/// `line` plus the newlines of the blank lines at the start of `input`.
+fn line_after_blanks(mut line: u64, input: &[u8]) -> u64 {
+    for &c in input {
+        match c {
+            b'\n' => line += 1,
+            b'\r' => {}
+            _ => break,
+        }
+    }
+    line
+}
+
+/// A reader that hashes what passes through it: the content version of a
+/// streamed table (CRC-32 and length of its bytes,
+/// [`HistoricalProfile::version`](super::HistoricalProfile::version)).
+pub(crate) struct Hashing<R> {
+    inner: R,
+    crc: crc32fast::Hasher,
+    len: u64,
+}
+
+impl<R> Hashing<R> {
+    pub(crate) fn new(inner: R) -> Self {
+        Hashing {
+            inner,
+            crc: crc32fast::Hasher::new(),
+            len: 0,
+        }
+    }
+
+    /// `"<crc32 hex>-<length>"` of everything read so far.
+    pub(crate) fn version(&self) -> String {
+        format!("{:08x}-{}", self.crc.clone().finalize(), self.len)
+    }
+}
+
+impl<R: Read> Read for Hashing<R> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let n = self.inner.read(buf)?;
+        self.crc.update(&buf[..n]);
+        self.len += n as u64;
+        Ok(n)
+    }
 }
 
 /// Field `i` without surrounding ASCII whitespace.
@@ -110,8 +219,8 @@ fn expected_columns(required: &[&str]) -> String {
 
 /// Reads a header of required columns plus key columns and returns the
 /// required columns' positions and the key columns found.
-pub(crate) fn map_columns<const N: usize>(
-    rdr: &mut Reader<&[u8]>,
+pub(crate) fn map_columns<R: Read, const N: usize>(
+    rdr: &mut Reader<R>,
     required: [&str; N],
 ) -> Result<([usize; N], KeyColumns), SpeedsError> {
     let header = rdr
@@ -181,26 +290,6 @@ pub(crate) fn map_columns<const N: usize>(
     ))
 }
 
-/// 1-based line where a record starts. The reader places a record's
-/// position before any blank lines it skipped to reach it, so those are
-/// stepped over here (a few bytes at most per record, usually none).
-pub(crate) fn line_of(rec: &ByteRecord, input: &[u8]) -> u64 {
-    let Some(p) = rec.position() else {
-        return 0;
-    };
-    let mut line = p.line();
-    let mut i = p.byte() as usize;
-    while let Some(&c) = input.get(i) {
-        match c {
-            b'\n' => line += 1,
-            b'\r' => {}
-            _ => break,
-        }
-        i += 1;
-    }
-    line
-}
-
 /// A field shown in a message (lossy, shortened).
 pub(crate) fn show(b: &[u8]) -> String {
     let s = String::from_utf8_lossy(b);
@@ -260,7 +349,7 @@ mod tests {
             let mut rec = ByteRecord::new();
             let mut lines = Vec::new();
             while r.read_byte_record(&mut rec).unwrap() {
-                lines.push(line_of(&rec, input));
+                lines.push(r.get_ref().line_of(&rec));
             }
             assert_eq!(
                 lines,

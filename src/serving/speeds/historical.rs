@@ -54,11 +54,12 @@
 
 use super::clock::HOURS_PER_WEEK;
 use super::config::ValidationConfig;
-use super::csv_input::{field, line_of, map_columns, parse_f64, parse_u64, reader, show};
+use super::csv_input::{field, map_columns, parse_f64, parse_u64, reader, show, Hashing};
 use super::edge_index::EdgeIndex;
 use super::error::SpeedsError;
 use super::report::{ErrorKind, Loc, ReportBuilder, TableReport};
 use csv::ByteRecord;
+use std::io::Read;
 
 /// The CSV columns every table has, in their canonical order; the key
 /// columns (`segment`, `way`, `tail`, `head`) come before them.
@@ -88,7 +89,19 @@ impl HistoricalProfile {
         index: &EdgeIndex,
         cfg: &ValidationConfig,
     ) -> Result<(HistoricalProfile, TableReport), SpeedsError> {
-        let mut rdr = reader(csv);
+        Self::read(csv, index, cfg)
+    }
+
+    /// [`parse`](Self::parse) over a stream, read to its end row by row:
+    /// memory is the profile being built (8 bytes per stored value), never
+    /// the table's text. An I/O error of `input` is a
+    /// [`SpeedsError::Csv`].
+    pub fn read<R: Read>(
+        input: R,
+        index: &EdgeIndex,
+        cfg: &ValidationConfig,
+    ) -> Result<(HistoricalProfile, TableReport), SpeedsError> {
+        let mut rdr = reader(Hashing::new(input));
         let ([c_hour, c_speed], keys) = map_columns(&mut rdr, COLUMNS)?;
         let want_fields = rdr
             .byte_headers()
@@ -103,7 +116,7 @@ impl HistoricalProfile {
                 Ok(false) => break,
                 Err(e) => return Err(SpeedsError::Csv(e.to_string())),
             }
-            let line = Loc::Line(line_of(&rec, csv));
+            let line = Loc::Line(rdr.get_ref().line_of(&rec));
             if rec.len() != want_fields {
                 let got = rec.len();
                 rb.bad(line, ErrorKind::MalformedRow, || {
@@ -149,6 +162,7 @@ impl HistoricalProfile {
             rb.good();
             per_hour[hour].extend(named.iter().map(|e| (e, speed as f32)));
         }
+        let version = rdr.into_inner().into_inner().version();
         let mut report = rb.finish(cfg, true);
         if report.rejected {
             return Err(SpeedsError::Rejected(Box::new(report)));
@@ -180,7 +194,7 @@ impl HistoricalProfile {
             entries,
             hour_start,
             rows: report.accepted,
-            version: content_version(csv),
+            version,
         };
         Ok((profile, report))
     }
@@ -265,9 +279,4 @@ pub(crate) fn speed_message(kind: ErrorKind, field: &str, cfg: &ValidationConfig
             cfg.max_speed_kmh
         ),
     }
-}
-
-/// `"<crc32 hex>-<length>"` of the bytes.
-pub(crate) fn content_version(bytes: &[u8]) -> String {
-    format!("{:08x}-{}", crc32fast::hash(bytes), bytes.len())
 }

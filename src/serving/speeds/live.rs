@@ -52,14 +52,14 @@
 //! samples; 16 bytes per edge), so that blending is one branch-light pass
 //! over all edges and an update is O(1) per edge.
 
+use super::batch::{read_csv, read_json, Batch, Compact};
 use super::config::ValidationConfig;
-use super::csv_input::{field, line_of, map_columns, parse_u64, reader, show};
+use super::csv_input::show;
 use super::edge_index::{EdgeIndex, Named, SegmentKey, INCOMPLETE_KEY};
 use super::error::SpeedsError;
-use super::historical::{check_speed, check_speed_value, speed_message};
-use super::report::{ErrorKind, Loc, ReportBuilder, TableReport};
+use super::historical::{check_speed_value, speed_message};
+use super::report::{reject_reason, ErrorKind, Loc, ReportBuilder, TableReport};
 use chrono::{DateTime, SecondsFormat, Utc};
-use csv::ByteRecord;
 use serde::{Deserialize, Serialize};
 
 /// The live CSV columns every batch has, in their canonical order; the key
@@ -68,107 +68,6 @@ pub const COLUMNS: [&str; 3] = ["kmh", "observed_at", "samples"];
 
 /// Marks "no observation held" in the time array.
 pub(crate) const NO_OBS: i64 = i64::MIN;
-
-/// One element of a JSON batch as read: its value (integral numbers as
-/// integers), and the first key given twice in it. `serde_json::Value` keeps the last of duplicate keys, so
-/// `{"kmh": 5, "kmh": 500}` would pass as 500; the public API refuses
-/// duplicates (serde's derive reports them) and so does this.
-struct Element {
-    value: serde_json::Value,
-    duplicate: Option<String>,
-}
-
-impl Element {
-    /// The observation, or why the element is not one (an object
-    /// without duplicate keys: serde's derive would also read an array of
-    /// the fields in order, which the schema does not allow).
-    fn observation(&self) -> Result<Observation, String> {
-        if let Some(k) = &self.duplicate {
-            return Err(format!("not an observation: duplicate key `{k}`"));
-        }
-        if !self.value.is_object() {
-            return Err("not an observation: must be a JSON object".to_string());
-        }
-        Observation::deserialize(&self.value).map_err(|e| format!("not an observation: {e}"))
-    }
-}
-
-impl<'de> Deserialize<'de> for Element {
-    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
-        use serde::de::{MapAccess, SeqAccess, Visitor};
-        use serde_json::{Map, Value};
-        /// Builds a `Value`, noting the first duplicate key at any depth.
-        struct V<'a>(&'a mut Option<String>);
-        /// One nested value through the same visitor.
-        struct Seed<'a>(&'a mut Option<String>);
-        impl<'de> serde::de::DeserializeSeed<'de> for Seed<'_> {
-            type Value = Value;
-            fn deserialize<D: serde::Deserializer<'de>>(self, d: D) -> Result<Value, D::Error> {
-                d.deserialize_any(V(self.0))
-            }
-        }
-        impl<'de> Visitor<'de> for V<'_> {
-            type Value = Value;
-            fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
-                f.write_str("a JSON value")
-            }
-            fn visit_bool<E>(self, v: bool) -> Result<Value, E> {
-                Ok(Value::Bool(v))
-            }
-            fn visit_i64<E>(self, v: i64) -> Result<Value, E> {
-                Ok(Value::from(v))
-            }
-            fn visit_u64<E>(self, v: u64) -> Result<Value, E> {
-                Ok(Value::from(v))
-            }
-            fn visit_f64<E>(self, v: f64) -> Result<Value, E> {
-                // JSON Schema's `integer` takes a number with a zero
-                // fractional part (2020-12 validation §6.1.1): `3.0` is
-                // read as the integer 3, so `samples: 3.0` is taken.
-                if v.fract() == 0.0 && (0.0..18_446_744_073_709_551_616.0).contains(&v) {
-                    Ok(Value::from(v as u64))
-                } else if v.fract() == 0.0 && (-9_223_372_036_854_775_808.0..0.0).contains(&v) {
-                    Ok(Value::from(v as i64))
-                } else {
-                    Ok(Value::from(v))
-                }
-            }
-            fn visit_str<E>(self, v: &str) -> Result<Value, E> {
-                Ok(Value::String(v.to_string()))
-            }
-            fn visit_string<E>(self, v: String) -> Result<Value, E> {
-                Ok(Value::String(v))
-            }
-            fn visit_unit<E>(self) -> Result<Value, E> {
-                Ok(Value::Null)
-            }
-            fn visit_none<E>(self) -> Result<Value, E> {
-                Ok(Value::Null)
-            }
-            fn visit_seq<A: SeqAccess<'de>>(self, mut seq: A) -> Result<Value, A::Error> {
-                let mut out = Vec::new();
-                while let Some(v) = seq.next_element_seed(Seed(&mut *self.0))? {
-                    out.push(v);
-                }
-                Ok(Value::Array(out))
-            }
-            fn visit_map<A: MapAccess<'de>>(self, mut map: A) -> Result<Value, A::Error> {
-                let mut out = Map::new();
-                while let Some(k) = map.next_key::<String>()? {
-                    let v = map.next_value_seed(Seed(&mut *self.0))?;
-                    if out.contains_key(&k) && self.0.is_none() {
-                        *self.0 = Some(k.clone());
-                    }
-                    out.insert(k, v);
-                }
-                Ok(Value::Object(out))
-            }
-        }
-        let mut duplicate = None;
-        let value = d.deserialize_any(V(&mut duplicate))?;
-        Ok(Element { value, duplicate })
-    }
-}
 
 /// One observed speed as uploaded.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -231,7 +130,7 @@ pub struct LiveLayer {
 }
 
 /// A validated observation, before it is applied.
-struct Valid<'a> {
+pub(super) struct Valid<'a> {
     edges: Named<'a>,
     speed: f32,
     observed_ms: i64,
@@ -321,7 +220,7 @@ impl LiveLayer {
                 &o.key(),
                 check_speed_value(o.kmh, cfg)
                     .map_err(|k| (k, speed_message(k, &o.kmh.to_string(), cfg))),
-                &o.observed_at,
+                At::Text(&o.observed_at),
                 Some(u64::from(o.samples)),
                 now_ms,
                 cfg,
@@ -332,7 +231,7 @@ impl LiveLayer {
     }
 
     /// Validates and applies a JSON array of observations (errors by
-    /// 0-based index).
+    /// 0-based index); [`read_json`] and [`apply_batch`](Self::apply_batch).
     pub fn apply_json(
         &mut self,
         index: &EdgeIndex,
@@ -341,37 +240,13 @@ impl LiveLayer {
         cfg: &ValidationConfig,
     ) -> Result<TableReport, SpeedsError> {
         self.check_index(index)?;
-        let values: Vec<Element> = serde_json::from_slice(json)
-            .map_err(|e| SpeedsError::Json(format!("expected an array of observations: {e}")))?;
-        let now_ms = now.timestamp_millis();
-        let mut rb = ReportBuilder::new(cfg);
-        let mut valid = Vec::with_capacity(values.len());
-        for (i, v) in values.iter().enumerate() {
-            let loc = Loc::Index(i as u64);
-            let o = match v.observation() {
-                Ok(o) => o,
-                Err(e) => {
-                    rb.bad(loc, ErrorKind::MalformedRow, || e);
-                    continue;
-                }
-            };
-            let checked = check_obs(
-                index,
-                &o.key(),
-                check_speed_value(o.kmh, cfg)
-                    .map_err(|k| (k, speed_message(k, &o.kmh.to_string(), cfg))),
-                &o.observed_at,
-                Some(u64::from(o.samples)),
-                now_ms,
-                cfg,
-            );
-            record(&mut rb, &mut valid, loc, checked);
-        }
-        self.commit(rb.finish(cfg, false), valid)
+        let batch = read_json(index, json, now, cfg)?;
+        self.apply_batch(index, &batch, now, cfg)
     }
 
     /// Validates and applies a CSV file of observations (errors by 1-based
-    /// line, header = line 1).
+    /// line, header = line 1); [`read_csv`] and
+    /// [`apply_batch`](Self::apply_batch).
     pub fn apply_csv(
         &mut self,
         index: &EdgeIndex,
@@ -380,63 +255,73 @@ impl LiveLayer {
         cfg: &ValidationConfig,
     ) -> Result<TableReport, SpeedsError> {
         self.check_index(index)?;
-        let mut rdr = reader(csv);
-        let ([c_speed, c_at, c_samples], keys) = map_columns(&mut rdr, COLUMNS)?;
-        let want_fields = rdr
-            .byte_headers()
-            .map_err(|e| SpeedsError::Csv(e.to_string()))?
-            .len();
+        let batch = read_csv(index, csv, now, cfg)?;
+        self.apply_batch(index, &batch, now, cfg)
+    }
+
+    /// Applies a batch read by [`read_json`] or [`read_csv`] (or taken back
+    /// from the write-ahead log), newest per edge winning, and returns its
+    /// report with `superseded` filled in. Each observation is checked
+    /// again against `index`, `now` and `cfg`: with those the batch was
+    /// read with, every one passes; a logged batch replayed over another
+    /// graph may lose some, which then count as bad rows of the batch
+    /// (rejecting it whole if its bad share now exceeds the maximum).
+    pub fn apply_batch(
+        &mut self,
+        index: &EdgeIndex,
+        batch: &Batch,
+        now: DateTime<Utc>,
+        cfg: &ValidationConfig,
+    ) -> Result<TableReport, SpeedsError> {
+        self.check_index(index)?;
         let now_ms = now.timestamp_millis();
-        let mut rb = ReportBuilder::new(cfg);
-        let mut valid = Vec::new();
-        let mut rec = ByteRecord::new();
-        loop {
-            match rdr.read_byte_record(&mut rec) {
-                Ok(true) => {}
-                Ok(false) => break,
-                Err(e) => return Err(SpeedsError::Csv(e.to_string())),
-            }
-            let loc = Loc::Line(line_of(&rec, csv));
-            if rec.len() != want_fields {
-                let got = rec.len();
-                rb.bad(loc, ErrorKind::MalformedRow, || {
-                    format!("{got} fields, expected {want_fields}")
-                });
-                continue;
-            }
-            let key = match keys.read(&rec) {
-                Ok(k) => k,
-                Err(e) => {
-                    rb.bad(loc, ErrorKind::MalformedRow, || e.message());
-                    continue;
-                }
-            };
-            let at = String::from_utf8_lossy(field(&rec, c_at));
-            let samples_b = field(&rec, c_samples);
-            let samples = parse_u64(samples_b);
-            let checked = check_obs(
+        let check = |o: &Compact| {
+            check_obs(
                 index,
-                &key,
-                check_speed(field(&rec, c_speed), cfg)
-                    .map_err(|k| (k, speed_message(k, &show(field(&rec, c_speed)), cfg))),
-                &at,
-                samples,
+                &o.key,
+                check_speed_value(o.kmh, cfg)
+                    .map_err(|k| (k, speed_message(k, &o.kmh.to_string(), cfg))),
+                At::Ms(o.observed_ms),
+                Some(u64::from(o.samples)),
                 now_ms,
                 cfg,
-            );
-            let checked = checked.map_err(|(k, m)| {
-                if k == ErrorKind::BadSamples && samples.is_none() {
-                    (
-                        k,
-                        format!("samples `{}`: expected an integer ≥ 1", show(samples_b)),
-                    )
-                } else {
-                    (k, m)
-                }
-            });
-            record(&mut rb, &mut valid, loc, checked);
+            )
+        };
+        let mut report = batch.report().clone();
+        let mut newly_bad = [0u64; ErrorKind::ALL.len()];
+        for o in batch.observations() {
+            if let Err((kind, _)) = check(&o) {
+                newly_bad[kind as usize] += 1;
+            }
         }
-        self.commit(rb.finish(cfg, false), valid)
+        let n: u64 = newly_bad.iter().sum();
+        if n > 0 {
+            report.accepted = report.accepted.saturating_sub(n);
+            report.bad += n;
+            for (k, &c) in ErrorKind::ALL.iter().zip(&newly_bad) {
+                if c > 0 {
+                    *report.bad_by_kind.entry(k.name().to_string()).or_default() += c;
+                }
+            }
+            report.reject_reason = reject_reason(report.bad, report.rows, cfg);
+            report.rejected = report.reject_reason.is_some();
+        }
+        if report.rejected {
+            return Err(SpeedsError::Rejected(Box::new(report)));
+        }
+        let mut changed = false;
+        for o in batch.observations() {
+            let Ok(v) = check(&o) else { continue };
+            if self.commit_one(&v) {
+                changed = true;
+            } else {
+                report.superseded += 1;
+            }
+        }
+        if changed {
+            self.generation += 1;
+        }
+        Ok(report)
     }
 
     /// Drops observations older than `ttl` at `now` (age > ttl, the same
@@ -519,23 +404,8 @@ impl LiveLayer {
         }
         let mut changed = false;
         for v in valid {
-            let mut took = false;
-            for e in v.edges.iter() {
-                let i = e as usize;
-                let held = self.observed_ms[i];
-                if held == NO_OBS || v.observed_ms >= held {
-                    if held == NO_OBS {
-                        self.held += 1;
-                    }
-                    self.observed_ms[i] = v.observed_ms;
-                    self.speed[i] = v.speed;
-                    self.samples[i] = v.samples;
-                    took = true;
-                }
-            }
-            if took {
+            if self.commit_one(&v) {
                 changed = true;
-                self.newest_ms = self.newest_ms.max(v.observed_ms);
             } else {
                 report.superseded += 1;
             }
@@ -545,6 +415,29 @@ impl LiveLayer {
         }
         Ok(report)
     }
+
+    /// Applies one validated observation to every edge it names that holds
+    /// nothing newer; whether it took effect anywhere.
+    fn commit_one(&mut self, v: &Valid<'_>) -> bool {
+        let mut took = false;
+        for e in v.edges.iter() {
+            let i = e as usize;
+            let held = self.observed_ms[i];
+            if held == NO_OBS || v.observed_ms >= held {
+                if held == NO_OBS {
+                    self.held += 1;
+                }
+                self.observed_ms[i] = v.observed_ms;
+                self.speed[i] = v.speed;
+                self.samples[i] = v.samples;
+                took = true;
+            }
+        }
+        if took {
+            self.newest_ms = self.newest_ms.max(v.observed_ms);
+        }
+        took
+    }
 }
 
 /// `ttl` in milliseconds, saturating.
@@ -552,7 +445,7 @@ pub(crate) fn ttl_ms(d: std::time::Duration) -> i64 {
     i64::try_from(d.as_millis()).unwrap_or(i64::MAX)
 }
 
-fn record<'a>(
+pub(super) fn record<'a>(
     rb: &mut ReportBuilder,
     valid: &mut Vec<Valid<'a>>,
     loc: Loc,
@@ -567,13 +460,21 @@ fn record<'a>(
     }
 }
 
+/// An observation's time as given: the text of a JSON or CSV row, or Unix
+/// milliseconds (a batch taken back from the write-ahead log).
+#[derive(Debug, Clone, Copy)]
+pub(super) enum At<'t> {
+    Text(&'t str),
+    Ms(i64),
+}
+
 /// The checks after parsing, in the documented order.
 #[allow(clippy::too_many_arguments)]
-fn check_obs<'a>(
+pub(super) fn check_obs<'a>(
     index: &'a EdgeIndex,
     key: &SegmentKey,
     speed: Result<f64, (ErrorKind, String)>,
-    observed_at: &str,
+    at: At<'_>,
     samples: Option<u64>,
     now_ms: i64,
     cfg: &ValidationConfig,
@@ -582,22 +483,32 @@ fn check_obs<'a>(
         return Err((ErrorKind::MalformedRow, INCOMPLETE_KEY.to_string()));
     }
     let speed = speed?;
-    let at = DateTime::parse_from_rfc3339(observed_at).map_err(|e| {
-        (
-            ErrorKind::BadTimestamp,
-            format!(
-                "observed_at `{}`: not an RFC 3339 timestamp ({e})",
-                show(observed_at.as_bytes())
-            ),
-        )
-    })?;
-    let observed_ms = at.timestamp_millis();
+    let observed_ms = match at {
+        At::Ms(ms) => ms,
+        At::Text(observed_at) => DateTime::parse_from_rfc3339(observed_at)
+            .map_err(|e| {
+                (
+                    ErrorKind::BadTimestamp,
+                    format!(
+                        "observed_at `{}`: not an RFC 3339 timestamp ({e})",
+                        show(observed_at.as_bytes())
+                    ),
+                )
+            })?
+            .timestamp_millis(),
+    };
     let skew_ms = i64::try_from(cfg.max_future_skew_s.saturating_mul(1000)).unwrap_or(i64::MAX);
     if observed_ms > now_ms.saturating_add(skew_ms) {
         return Err((
             ErrorKind::FutureTimestamp,
             format!(
-                "observed_at {observed_at} is {:.0} s in the future (allowed skew {} s)",
+                "observed_at {} is {:.0} s in the future (allowed skew {} s)",
+                match at {
+                    At::Text(t) => t.to_string(),
+                    At::Ms(ms) => DateTime::from_timestamp_millis(ms)
+                        .map(|t| t.to_rfc3339_opts(SecondsFormat::Millis, true))
+                        .unwrap_or_else(|| ms.to_string()),
+                },
                 (observed_ms - now_ms) as f64 / 1000.0,
                 cfg.max_future_skew_s
             ),

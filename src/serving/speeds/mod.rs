@@ -13,6 +13,8 @@
 //! - [`historical`]: the 168-hour profile parsed from CSV; missing rows fall
 //!   back to free-flow.
 //! - [`live`]: recent observations (JSON batch or CSV), newest per edge wins.
+//! - [`batch`]: a live batch read as a stream (JSON element by element, CSV
+//!   record by record) into its compact form, which the log also records.
 //! - [`blend`](mod@blend): historical bucket + live layer → one speed vector, with
 //!   exponential decay of the live weight.
 //! - [`profiles`]: the 168 hours grouped into a bounded set of
@@ -36,6 +38,7 @@
 //! [`ValidationConfig::max_bad_share`] is rejected whole: nothing of it is
 //! applied and the error carries the report.
 
+pub mod batch;
 pub mod blend;
 pub mod clock;
 pub mod config;
@@ -50,6 +53,7 @@ pub mod report;
 pub mod sources;
 pub mod wal;
 
+pub use batch::{read_csv, read_json, Batch};
 pub use blend::{blend, blend_into, live_weight, BlendStats};
 pub use clock::{hour_of_week, HOURS_PER_WEEK};
 pub use config::ValidationConfig;
@@ -59,7 +63,7 @@ pub use historical::HistoricalProfile;
 pub use live::{LiveEntry, LiveLayer, Observation};
 pub use persist::{
     load_historical, load_live, open_historical, save_historical, save_live, write_atomic,
-    SavedTable,
+    PendingTable, SavedTable,
 };
 pub use profiles::HourGrouping;
 pub use report::{ErrorKind, RowError, TableReport};

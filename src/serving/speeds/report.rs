@@ -173,15 +173,8 @@ impl ReportBuilder {
             .collect();
         let reject_reason = if self.rows == 0 {
             reject_empty.then(|| "no data rows".to_string())
-        } else if bad as f64 > cfg.max_bad_share * self.rows as f64 || cfg.max_bad_share.is_nan() {
-            Some(format!(
-                "{bad} of {} rows bad ({:.2}%), more than the allowed {:.2}%",
-                self.rows,
-                100.0 * bad as f64 / self.rows as f64,
-                100.0 * cfg.max_bad_share
-            ))
         } else {
-            None
+            reject_reason(bad, self.rows, cfg)
         };
         TableReport {
             rows: self.rows,
@@ -193,6 +186,20 @@ impl ReportBuilder {
             rejected: reject_reason.is_some(),
             reject_reason,
         }
+    }
+}
+
+/// Why `bad` of `rows` (> 0) rows reject a table, if they do: their share
+/// exceeds [`ValidationConfig::max_bad_share`].
+pub(crate) fn reject_reason(bad: u64, rows: u64, cfg: &ValidationConfig) -> Option<String> {
+    if bad as f64 > cfg.max_bad_share * rows as f64 || cfg.max_bad_share.is_nan() {
+        Some(format!(
+            "{bad} of {rows} rows bad ({:.2}%), more than the allowed {:.2}%",
+            100.0 * bad as f64 / rows.max(1) as f64,
+            100.0 * cfg.max_bad_share
+        ))
+    } else {
+        None
     }
 }
 

@@ -12,8 +12,13 @@
 //! ```text
 //! header: b"hodos-wal" 0x00 0x00 0x00 | format version (u32 LE) = 1
 //! record: payload length (u32 LE) | CRC-32 of payload (u32 LE) | payload
-//! payload: kind (1 byte: 1 = JSON batch, 2 = CSV batch) | batch bytes
+//! payload: kind (1 byte) | batch
 //! ```
+//!
+//! Kind 3 (what the service writes): the batch's valid observations in the
+//! compact form of [`batch`](super::batch), about 30 bytes each, a third
+//! of their JSON text. Kinds 1 (JSON text) and 2 (CSV text), the whole
+//! batch as uploaded, are still read.
 //!
 //! A crash can tear only the last record (appends go to the end and are
 //! synced one at a time). Reading stops at the first record that is cut
@@ -38,6 +43,8 @@ const MAX_RECORD: u32 = 1 << 30;
 pub enum BatchKind {
     Json,
     Csv,
+    /// A [`Batch`](super::Batch)'s compact form.
+    Compact,
 }
 
 impl BatchKind {
@@ -45,6 +52,7 @@ impl BatchKind {
         match self {
             BatchKind::Json => 1,
             BatchKind::Csv => 2,
+            BatchKind::Compact => 3,
         }
     }
 
@@ -52,6 +60,7 @@ impl BatchKind {
         match b {
             1 => Some(BatchKind::Json),
             2 => Some(BatchKind::Csv),
+            3 => Some(BatchKind::Compact),
             _ => None,
         }
     }
@@ -111,7 +120,9 @@ pub fn append(path: &Path, kind: BatchKind, body: &[u8], sync: bool) -> Result<(
         .open(path)
         .map_err(io_err(path))?;
     let len = f.metadata().map_err(io_err(path))?.len();
-    let mut buf = Vec::with_capacity(HEADER_LEN as usize + 9 + body.len());
+    // The framing first, then the batch as it is (no copy of it): a crash
+    // between the two writes leaves a torn record, which replay cuts off.
+    let mut buf = Vec::with_capacity(HEADER_LEN as usize + 9);
     if len == 0 {
         buf.extend_from_slice(&header());
     }
@@ -128,8 +139,11 @@ pub fn append(path: &Path, kind: BatchKind, body: &[u8], sync: bool) -> Result<(
     buf.extend_from_slice(&n.to_le_bytes());
     buf.extend_from_slice(&crc.finalize().to_le_bytes());
     buf.push(kind.byte());
-    buf.extend_from_slice(body);
-    f.write_all(&buf).map_err(io_err(path))?;
+    if let Err(e) = f.write_all(&buf).and_then(|()| f.write_all(body)) {
+        // Leave no partial record for later appends to hide behind.
+        let _ = f.set_len(len);
+        return Err(io_err(path)(e));
+    }
     if sync {
         f.sync_data().map_err(io_err(path))?;
         if len == 0 {
