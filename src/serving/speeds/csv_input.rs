@@ -399,7 +399,7 @@ mod tests {
     #[test]
     fn key_cells() {
         let input = b"segment,way,tail,head,a\n7,,,,x\n,3,1,2,x\n,,1,,x\n,,q,2,x\n";
-        let mut r = reader(input);
+        let mut r = reader(&input[..]);
         let (_, k) = map_columns(&mut r, ["a"]).unwrap();
         let mut rec = ByteRecord::new();
         let mut got = Vec::new();

@@ -133,8 +133,8 @@ pub struct LiveLayer {
 pub(super) struct Valid<'a> {
     edges: Named<'a>,
     speed: f32,
-    observed_ms: i64,
-    samples: u32,
+    pub(super) observed_ms: i64,
+    pub(super) samples: u32,
 }
 
 impl LiveLayer {
