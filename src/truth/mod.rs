@@ -21,6 +21,8 @@
 //!   interval coverage), overall and per group;
 //! - `report/`: the HTML page with its plots and the same figures as JSON.
 
+pub mod measure;
 pub mod outcome;
 pub mod replay;
+pub mod report;
 pub mod trips;
