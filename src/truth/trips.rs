@@ -975,7 +975,7 @@ not json
         let t = &trips[0];
         assert_eq!(t.duration_s, 1083.0);
         assert!((t.distance_m.unwrap() - 2558.85696).abs() < 1e-6);
-        assert_eq!(t.from, LatLon::new(40.750110626220703, -73.993896484375));
+        assert_eq!(t.from, LatLon::new(40.750_110_626_220_7, -73.993896484375));
         assert_eq!(t.leaving.to_rfc3339(), "2015-01-15T19:05:39-05:00");
         assert_eq!(t.vehicle.as_deref(), Some("yellow_taxi"));
         let kinds: Vec<_> = rep.first_errors.iter().map(|e| (e.line, e.kind)).collect();

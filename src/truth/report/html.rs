@@ -82,19 +82,19 @@ fn row(out: &mut String, key: &str, s: &ErrorSummary, coverage: bool) {
 }
 
 fn head(out: &mut String, first: &str, coverage: bool) {
-    let _ = write!(
+    let _ = writeln!(
         out,
         "<table><thead><tr><th>{}</th><th>trips</th><th>MAPE</th><th>median APE</th><th>p90 APE</th>\
-         <th>median ratio</th><th>RMSLE</th><th>MAE (s)</th><th>within ±10 %</th><th>within ±20 %</th>{}</tr></thead><tbody>\n",
+         <th>median ratio</th><th>RMSLE</th><th>MAE (s)</th><th>within ±10 %</th><th>within ±20 %</th>{}</tr></thead><tbody>",
         esc(first),
         if coverage { "<th>interval coverage</th>" } else { "" }
     );
 }
 
 fn figure(out: &mut String, svg: String, caption: &str) {
-    let _ = write!(
+    let _ = writeln!(
         out,
-        "<figure>{svg}<figcaption>{}</figcaption></figure>\n",
+        "<figure>{svg}<figcaption>{}</figcaption></figure>",
         esc(caption)
     );
 }
@@ -174,25 +174,25 @@ fn figures_section(out: &mut String, r: &Report, f: &Figures) -> Result<(), Repo
 /// The whole page.
 pub fn page(r: &Report) -> Result<String, ReportError> {
     let mut out = String::new();
-    let _ = write!(
+    let _ = writeln!(
         out,
         "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">\
          <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\
          <title>hodos accuracy report</title><style>{STYLE}</style></head><body>\n\
-         <header><h1>Accuracy from completed trips</h1><p>{} trips answered as hodos would have at their departure; made {}</p></header><main>\n",
+         <header><h1>Accuracy from completed trips</h1><p>{} trips answered as hodos would have at their departure; made {}</p></header><main>",
         r.answered,
         esc(&r.generated_at)
     );
     let main = &r.measurements[0];
     let last = r.measurements.last().unwrap_or(main);
-    let _ = write!(
+    let _ = writeln!(
         out,
         "<div class=\"cards\">\
          <div class=\"card\"><b>{}</b><span>trips answered</span></div>\
          <div class=\"card\"><b>{}</b><span>MAPE, {}</span></div>\
          <div class=\"card\"><b>{:.2}×</b><span>median estimate ÷ actual</span></div>\
          <div class=\"card\"><b>{:.3}</b><span>RMSLE</span></div>\
-         <div class=\"card\"><b>{}</b><span>within ±20 %</span></div>{}</div>\n",
+         <div class=\"card\"><b>{}</b><span>within ±20 %</span></div>{}</div>",
         last.overall.n,
         pct(last.overall.mape),
         estimate_name(last.estimate),
@@ -265,13 +265,13 @@ pub fn page(r: &Report) -> Result<String, ReportError> {
             out.push_str("</tbody></table>\n");
         }
     }
-    let _ = write!(
+    let _ = writeln!(
         out,
         "<p class=\"note\">APE: |estimate − actual| ÷ actual. MAPE: its mean; median and p90: its quantiles \
          (linear interpolation between order statistics, numpy's default). Median ratio: the median of \
          estimate ÷ actual (below 1: too fast). RMSLE: √mean((ln(1+estimate) − ln(1+actual))²). MAE: mean \
          |estimate − actual| in seconds. Distance bands are great-circle ({}, …, {}); duration bands are the \
-         trip's actual duration. Per-hour figures are in report.json.</p>\n",
+         trip's actual duration. Per-hour figures are in report.json.</p>",
         band_label(DISTANCE_BANDS_KM[0], "km"),
         band_label(DISTANCE_BANDS_KM[DISTANCE_BANDS_KM.len() - 1], "km")
     );
