@@ -12,6 +12,9 @@
 //! - [`serving`]: per-region snapshots behind `arc-swap` and their update
 //!   paths, speed tables, tier choice and fallbacks, admission control,
 //!   background threads, metric names and recording.
+//! - [`truth`]: completed trips: readers, replaying each trip as hodos
+//!   would have answered it at its departure, error metrics and the
+//!   accuracy report.
 //! - [`http`]: the axum routers, DTOs, RFC 9457 problems, OpenAPI document,
 //!   admin API and Prometheus exporter.
 //! - [`config`]: the TOML configuration file, which composes the settings
@@ -27,3 +30,4 @@ pub mod engine;
 pub mod http;
 pub mod serving;
 pub mod testkit;
+pub mod truth;

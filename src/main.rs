@@ -1,8 +1,9 @@
 //! The `hodos` command: a thin shell over the library.
 //!
 //! `hodos build` writes an artifact, `hodos info` describes one, `hodos eta`
-//! answers one trip from one, and `hodos demo` (also plain `hodos`) builds
-//! the fictional demo city and shows a sample answer.
+//! answers one trip from one, `hodos eval` measures the answers against
+//! completed trips, and `hodos demo` (also plain `hodos`) builds the
+//! fictional demo city and shows a sample answer.
 
 use anyhow::Context;
 use clap::{Args, Parser, Subcommand};
@@ -46,6 +47,9 @@ enum Command {
         #[arg(long, default_value_t = DEFAULT_MAX_SNAP_M)]
         max_snap_m: f64,
     },
+    /// Measure ETA accuracy against completed trips: answer each trip as
+    /// the service would have at its departure, and report the error.
+    Eval(EvalArgs),
     /// Serve the HTTP API for the regions of a configuration file.
     Serve {
         /// TOML configuration (see config/hodos.toml).
@@ -112,6 +116,34 @@ struct BuildArgs {
     out: PathBuf,
 }
 
+#[derive(Args)]
+struct EvalArgs {
+    /// Completed-trip files (plain, or gzip when the name ends in .gz).
+    #[arg(long, required = true, num_args = 1..)]
+    trips: Vec<PathBuf>,
+    /// csv (ours, with a header), jsonl (JSON lines) or tlc (NYC TLC
+    /// yellow-taxi CSV). Default: jsonl for .jsonl/.ndjson names, else csv.
+    #[arg(long)]
+    format: Option<hodos::truth::trips::TripFormat>,
+    /// Artifact written by `hodos build`.
+    #[arg(long)]
+    artifact: PathBuf,
+    /// Historical speed table (CSV), as a region's `historical` file.
+    #[arg(long)]
+    historical: Option<PathBuf>,
+    /// IANA time zone of the region's hour-of-week profiles and of
+    /// departures written without an offset. Default: America/New_York
+    /// for --format tlc, else UTC.
+    #[arg(long)]
+    zone: Option<String>,
+    /// Longest trip accepted, minutes (longer ones are refused by line).
+    #[arg(long, default_value_t = 360.0)]
+    max_duration_min: f64,
+    /// Folder for report.html and report.json (created if missing).
+    #[arg(long)]
+    out: PathBuf,
+}
+
 /// Progress bars on stderr.
 struct Bars {
     bar: Option<ProgressBar>,
@@ -166,6 +198,7 @@ fn main() -> ExitCode {
             to,
             max_snap_m,
         } => cmd_eta(&file, from, to, max_snap_m),
+        Command::Eval(args) => cmd_eval(args),
         Command::Serve { config, strict } => cmd_serve(&config, strict),
         Command::Demo { port, once } => {
             if once {
@@ -305,6 +338,106 @@ fn cmd_eta(
         "to snap      {:.1} m (to {})",
         eta.to.distance_m, eta.to.point
     );
+    Ok(())
+}
+
+fn cmd_eval(args: EvalArgs) -> anyhow::Result<()> {
+    use hodos::truth::replay::{open_catalog, replay_settings, replay_trip, ReplayRegion};
+    use hodos::truth::report::{Inputs, Report};
+    use hodos::truth::trips::{read_trips_file, ReadOptions, TripFormat, TripReport};
+    let zone_name = args.zone.clone().unwrap_or_else(|| {
+        if args.format == Some(TripFormat::Tlc) {
+            "America/New_York".into()
+        } else {
+            "UTC".into()
+        }
+    });
+    let zone: chrono_tz::Tz = zone_name
+        .parse()
+        .map_err(|_| anyhow::anyhow!("--zone {zone_name:?} is not an IANA time zone"))?;
+    anyhow::ensure!(
+        args.max_duration_min > 0.0,
+        "--max-duration-min must be positive"
+    );
+    let opts = ReadOptions {
+        zone: args.zone.as_ref().map(|_| zone),
+        max_duration_s: args.max_duration_min * 60.0,
+        ..ReadOptions::default()
+    };
+    let mut trips = Vec::new();
+    let mut read = TripReport::default();
+    let mut format_used = Vec::new();
+    for path in &args.trips {
+        let format = args.format.unwrap_or_else(|| TripFormat::from_name(path));
+        let (t, rep) = read_trips_file(path, format, &opts)?;
+        println!(
+            "{}: {} rows, {} accepted, {} refused{}",
+            path.display(),
+            rep.rows,
+            rep.accepted,
+            rep.refused,
+            rep.first_errors
+                .first()
+                .map(|e| format!(" (first: {e})"))
+                .unwrap_or_default()
+        );
+        if !format_used.contains(&format.as_str()) {
+            format_used.push(format.as_str());
+        }
+        trips.extend(t);
+        read.merge(rep, opts.max_reported_errors);
+    }
+    anyhow::ensure!(
+        !trips.is_empty(),
+        "no trip was accepted; nothing to measure"
+    );
+    let state = std::env::temp_dir().join(format!("hodos-eval-{}", std::process::id()));
+    let region = ReplayRegion {
+        name: "eval".into(),
+        artifact: args.artifact.clone(),
+        historical: args.historical.clone(),
+        time_zone: zone_name.clone(),
+        coverage: None,
+    };
+    let result = runtime()?.block_on(async {
+        let spinner = ProgressBar::new_spinner().with_style(
+            ProgressStyle::with_template("{msg:32} {spinner} {elapsed}").expect("valid template"),
+        );
+        spinner.set_message("loading the artifact");
+        spinner.enable_steady_tick(std::time::Duration::from_millis(120));
+        let cat = open_catalog(&[region], replay_settings(), &state).await?;
+        spinner.finish_and_clear();
+        let bar = ProgressBar::new(trips.len() as u64).with_style(
+            ProgressStyle::with_template("{msg:32} [{bar:30}] {pos}/{len} {elapsed} (eta {eta})")
+                .expect("valid template")
+                .progress_chars("=> "),
+        );
+        bar.set_message("answering trips at departure");
+        let mut outcomes = Vec::with_capacity(trips.len());
+        for t in &trips {
+            outcomes.push(replay_trip(&cat, t).await);
+            bar.inc(1);
+        }
+        bar.finish();
+        anyhow::Ok(outcomes)
+    });
+    let _ = std::fs::remove_dir_all(&state);
+    let outcomes = result?;
+    let inputs = Inputs {
+        trips: args.trips.iter().map(|p| p.display().to_string()).collect(),
+        format: format_used.join(", "),
+        artifact: args.artifact.display().to_string(),
+        historical: args.historical.as_ref().map(|p| p.display().to_string()),
+        model: None,
+        time_zone: zone_name,
+        hodos_version: env!("CARGO_PKG_VERSION").to_string(),
+    };
+    let report = Report::build(inputs, read, &outcomes, None)?;
+    println!();
+    print!("{}", report.summary_text());
+    let (json, html) = report.write(&args.out)?;
+    println!();
+    println!("wrote {} and {}", html.display(), json.display());
     Ok(())
 }
 

@@ -2,7 +2,7 @@
 //! text: every `crate::` path in a layer's (non-test) code names only a
 //! layer below it, and the engine's modules only modules below them.
 //!
-//! Layers, bottom to top: `engine` → `serving` → `http` → the top
+//! Layers, bottom to top: `engine` → `serving` → `truth` → `http` → the top
 //! (`config`, `demo`, `testkit`, `lib.rs`; the binary uses `hodos::`).
 //! Inside `engine`: `geo` → `graph` → {`import`, `order`, `snap`} → `cch`
 //! → `metric` → `calibration` → `artifact` → {`region`, `build`} →
@@ -21,8 +21,9 @@ fn layer_rank(layer: &str) -> Option<u8> {
     Some(match layer {
         "engine" => 0,
         "serving" => 1,
-        "http" => 2,
-        "config" | "demo" | "testkit" => 3,
+        "truth" => 2,
+        "http" => 3,
+        "config" | "demo" | "testkit" => 4,
         _ => return None,
     })
 }
@@ -53,6 +54,8 @@ fn forbidden_crates(layer: &str) -> &'static [&'static str] {
         "engine" => &["tokio::", "axum::", "tower::", "tower_http::", "metrics::"],
         // Serving records metrics but knows nothing of HTTP.
         "serving" => &["axum::", "tower::", "tower_http::", "hyper::"],
+        // Completed trips and their measurement know nothing of HTTP either.
+        "truth" => &["axum::", "tower::", "tower_http::", "hyper::"],
         _ => &[],
     }
 }
@@ -220,11 +223,16 @@ fn checker_catches_an_upward_import() {
         "#[cfg(test)]\nmod tests;\nuse crate::http::Y;\n",
     );
     write("serving/snapshot/tests.rs", "use crate::testkit::Z;\n");
+    write(
+        "truth/replay.rs",
+        "use crate::serving::answer::trip;\nuse crate::http::dto::Y;\n",
+    );
     let bad = violations(dir.path());
-    assert_eq!(bad.len(), 5, "{bad:#?}");
+    assert_eq!(bad.len(), 6, "{bad:#?}");
     assert!(bad[0].contains("engine::cch reaches up to engine::region"));
     assert!(bad[1].contains("engine uses metrics::"));
     assert!(bad[2].contains("serving reaches up to http"));
     assert!(bad[3].contains("serving uses axum::"));
     assert!(bad[4].contains("serving/snapshot/mod.rs:3: serving reaches up to http"));
+    assert!(bad[5].contains("truth/replay.rs:2: truth reaches up to http"));
 }

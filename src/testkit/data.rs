@@ -63,3 +63,23 @@ impl DimacsNy {
         Ok(ny)
     }
 }
+
+/// The NYC TLC yellow-taxi sample under `<data dir>/trips` (see its
+/// SOURCES.md): the four monthly files, oldest first, when all exist, else
+/// why not (for [`skipped`]).
+pub fn tlc_trip_files() -> Result<Vec<PathBuf>, String> {
+    let dir = data_dir().join("trips/nyc-tlc-yellow-sample");
+    let files: Vec<PathBuf> = ["2015-01", "2016-01", "2016-02", "2016-03"]
+        .iter()
+        .map(|m| dir.join(format!("yellow_tripdata_{m}.csv.gz")))
+        .collect();
+    for f in &files {
+        if !f.is_file() {
+            return Err(format!(
+                "{} not found (set {DATA_DIR_ENV} to the directory holding trips/)",
+                f.display()
+            ));
+        }
+    }
+    Ok(files)
+}

@@ -9,7 +9,8 @@
 //!
 //! - [`splitmix`]: SplitMix64 and the node samplers built on it.
 //! - [`data`]: `$HODOS_DATA_DIR` (default `../shared/data`), the DIMACS NY
-//!   files and the `SKIPPED:` line printed when they are absent.
+//!   files, the NYC TLC trip sample, and the `SKIPPED:` line printed when
+//!   they are absent.
 //! - [`tables`]: historical and live speed tables as CSV text, and live
 //!   observations as JSON values.
 //! - [`config_text`]: the `[[region]]` table of a configuration file.
@@ -22,7 +23,7 @@ pub mod tables;
 pub mod weekly;
 
 pub use config_text::region_table;
-pub use data::{data_dir, skipped, DimacsNy, DATA_DIR_ENV};
+pub use data::{data_dir, skipped, tlc_trip_files, DimacsNy, DATA_DIR_ENV};
 pub use splitmix::{node_pairs, nodes, SplitMix64};
 pub use tables::{
     observation, segment_observation, HistoricalCsv, LiveCsv, HISTORICAL_HEADER, LIVE_HEADER,
