@@ -1,7 +1,8 @@
 //! Admin traffic that runs beside a query load: live observations POSTed
 //! on a fixed schedule (every 100 ms in the reload storm), historical
 //! tables PUT every few seconds, or one batch of observations stamped far in
-//! the past (the stale feed). Each stream keeps its own schedule on its own
+//! the past (the stale feed), or one batch of a given size (the memory
+//! phase's 100 MiB live batch). Each stream keeps its own schedule on its own
 //! task; a call slower than its interval makes the next one late (counted),
 //! never skipped. Bounded by the same deadline as the query run.
 
@@ -50,26 +51,56 @@ pub struct StreamReport {
 }
 
 fn observations(feed: &Feed, rng: &mut ChaCha8Rng) -> Bytes {
-    let at = (Utc::now() - chrono::Duration::from_std(feed.observed_ago).unwrap_or_default())
-        .to_rfc3339_opts(SecondsFormat::Millis, true);
     let mut s = String::with_capacity(feed.live_batch * 110);
+    let at = stamp(feed);
     s.push('[');
     for i in 0..feed.live_batch {
-        let e = &feed.edges[rng.random_range(0..feed.edges.len())];
-        let f = 0.3 + 0.7 * rng.random::<f64>();
         if i > 0 {
             s.push(',');
         }
-        let _ = write!(
-            s,
-            r#"{{"segment":{},"kmh":{:.1},"observed_at":"{at}","samples":{}}}"#,
-            e.segment,
-            (e.free_kmh as f64 * f).max(1.0),
-            1 + rng.random_range(0..5)
-        );
+        observation(feed, rng, &at, &mut s);
     }
     s.push(']');
     Bytes::from(s)
+}
+
+/// The `observed_at` stamp of a feed's observations.
+fn stamp(feed: &Feed) -> String {
+    (Utc::now() - chrono::Duration::from_std(feed.observed_ago).unwrap_or_default())
+        .to_rfc3339_opts(SecondsFormat::Millis, true)
+}
+
+/// Appends one observation of a random edge (0.3–1.0 × its free-flow
+/// speed) as JSON.
+fn observation(feed: &Feed, rng: &mut ChaCha8Rng, at: &str, s: &mut String) {
+    let e = &feed.edges[rng.random_range(0..feed.edges.len())];
+    let f = 0.3 + 0.7 * rng.random::<f64>();
+    let _ = write!(
+        s,
+        r#"{{"segment":{},"kmh":{:.1},"observed_at":"{at}","samples":{}}}"#,
+        e.segment,
+        (e.free_kmh as f64 * f).max(1.0),
+        1 + rng.random_range(0..5)
+    );
+}
+
+/// One JSON batch of at least `bytes` bytes (observations of random
+/// edges, stamped like the feed's) and the number of observations in it.
+pub fn batch_of_size(feed: &Feed, bytes: usize) -> (Bytes, usize) {
+    let mut rng = ChaCha8Rng::seed_from_u64(feed.seed);
+    let at = stamp(feed);
+    let mut s = String::with_capacity(bytes + 256);
+    s.push('[');
+    let mut n = 0;
+    while s.len() + 1 < bytes {
+        if n > 0 {
+            s.push(',');
+        }
+        observation(feed, &mut rng, &at, &mut s);
+        n += 1;
+    }
+    s.push(']');
+    (Bytes::from(s), n)
 }
 
 /// A historical table for `n` random edges over the hours just before, at

@@ -1,4 +1,4 @@
-//! The command line (clap): the four commands, which server to load
+//! The command line (clap): the four commands (and the hidden `spin`), which server to load
 //! (`ServerArgs`), how to load it (`LoadArgs`, turned into the suite's
 //! `Settings`), and the scenario names of `drive` and `probe`.
 
@@ -84,6 +84,15 @@ pub enum Command {
         seconds: f64,
         #[arg(long, default_value = "target/hodos-load/smoke")]
         out: PathBuf,
+    },
+    /// The noisy neighbour the suite starts beside a run: `threads` threads
+    /// spinning for `seconds` (ends by itself and with its parent).
+    #[command(hide = true)]
+    Spin {
+        #[arg(long, default_value_t = 1)]
+        threads: usize,
+        #[arg(long, default_value_t = 30.0)]
+        seconds: f64,
     },
 }
 

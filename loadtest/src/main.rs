@@ -10,7 +10,9 @@
 //! - `drive`: one scenario at a fixed rate;
 //! - `probe`: capacity search for one workload;
 //! - `smoke`: a few seconds at a low rate for CI; fails only if requests go
-//!   unanswered or the tool itself fails.
+//!   unanswered or the tool itself fails;
+//! - `spin` (hidden): the noisy neighbour the suite starts as a child
+//!   process (threads spinning for a bounded time).
 //!
 //! Results: a table on stdout, `results.json`, `table.txt` and SVG plots in
 //! the output folder.
@@ -29,7 +31,8 @@
 //! 3. `engine` (the open-loop generator: `Plan` in, `Outcome` out);
 //!    `report` (the stdout table) and `plot` (SVG), which only read `model`;
 //! 4. `server` (the server under test, `/proc` readings), `admin` (admin
-//!    traffic beside a load), `baseline` (the in-process ceiling);
+//!    traffic beside a load), `baseline` (the in-process ceiling),
+//!    `beside` (a noisy-neighbour process and held sockets beside a load);
 //! 5. `suite`: the driver and its scenarios;
 //! 6. `cli`: the clap definitions (turned into the suite's settings);
 //! 7. `draw` (pools from an artifact), `open` (the server of a command),
@@ -40,6 +43,7 @@
 
 mod admin;
 mod baseline;
+mod beside;
 mod cli;
 mod commands;
 mod draw;
@@ -67,11 +71,18 @@ use std::process::ExitCode;
 /// exit code.
 fn main() -> ExitCode {
     let cli = Cli::parse();
+    if let Command::Spin { threads, seconds } = cli.command {
+        beside::spin(threads, seconds);
+        return ExitCode::SUCCESS;
+    }
+    // Held sockets and connection pools need more than the usual 1,024
+    // descriptors.
+    let _ = beside::raise_nofile();
     let (wall, threads) = match &cli.command {
         Command::Suite { load, .. } | Command::Drive { load, .. } | Command::Probe { load, .. } => {
             (load.max_wall_s, load.generator_threads)
         }
-        Command::Smoke { .. } => (300, 2),
+        Command::Smoke { .. } | Command::Spin { .. } => (300, 2),
     };
     watchdog::start(wall);
     signals::stop_child_on_signal();
@@ -130,6 +141,7 @@ fn main() -> ExitCode {
                 )
                 .await
             }
+            Command::Spin { .. } => Ok(()),
         }
     });
     match result {

@@ -70,6 +70,7 @@ struct Results<'a> {
     goals: &'a [crate::suite::Goal],
     probes: &'a [crate::suite::Probe],
     memory: &'a [crate::suite::Memory],
+    live_batch: &'a Option<crate::suite::LiveBatch>,
     admin: serde_json::Value,
     runs: &'a [crate::model::Summary],
 }
@@ -91,6 +92,7 @@ pub fn write_outputs(ctx: &Ctx, start_load: f64, out: &Path) -> anyhow::Result<(
         }),
         trip_mix: serde_json::Value::Array(mix),
         goals: &ctx.goals,
+        live_batch: &ctx.live_batch,
         probes: &ctx.probes,
         memory: &ctx.memory,
         admin: serde_json::to_value(&ctx.admin)?,

@@ -23,6 +23,17 @@ pub const REGION: &str = "ny";
 /// Pid of a server process this tool started, so the watchdog can stop it.
 pub static CHILD_PID: AtomicU32 = AtomicU32::new(0);
 
+/// Pid of a noisy-neighbour process this tool started (`beside`), so the
+/// watchdog and the signal handler can stop it too.
+pub static NEIGHBOUR_PID: AtomicU32 = AtomicU32::new(0);
+
+/// Connections the public listener of a server this tool configures holds
+/// at once: room for the held-sockets run (200 stalled bodies and 500 idle
+/// sockets beside a 32-connection pool) and the 64-connection overload pool,
+/// independent of the machine's descriptor limit (the server raises its
+/// soft limit to the hard one at start).
+pub const MAX_CONNECTIONS: usize = 2048;
+
 /// Where the server is and what is known about it.
 #[derive(Debug, Clone)]
 pub struct ServerInfo {
@@ -164,6 +175,8 @@ pub fn config_text(
         r#"# Written by hodos-load for one run; defaults everywhere else.
 [server]
 listen = "{public}"
+# 200 stalled bodies + 500 idle sockets beside the load's own pool fit.
+max_connections = {MAX_CONNECTIONS}
 [admin]
 listen = "{admin}"
 # token: from the HODOS_ADMIN_TOKEN environment variable

@@ -1,16 +1,18 @@
-//! Signal handling: Ctrl-C or SIGTERM stops a server this process
-//! started, then exits with 128 + the signal number.
+//! Signal handling: Ctrl-C or SIGTERM stops a server (and a noisy
+//! neighbour) this process started, then exits with 128 + the signal number.
 
 use crate::server;
 
 /// Ctrl-C or SIGTERM: stop a server this process started, then exit.
 pub fn stop_child_on_signal() {
     extern "C" fn handler(sig: libc::c_int) {
-        let pid = server::CHILD_PID.load(std::sync::atomic::Ordering::SeqCst);
-        if pid != 0 {
-            // SAFETY: kill(2) is async-signal-safe; the pid is our child's.
-            unsafe {
-                libc::kill(pid as libc::pid_t, libc::SIGTERM);
+        for child in [&server::CHILD_PID, &server::NEIGHBOUR_PID] {
+            let pid = child.load(std::sync::atomic::Ordering::SeqCst);
+            if pid != 0 {
+                // SAFETY: kill(2) is async-signal-safe; the pid is our child's.
+                unsafe {
+                    libc::kill(pid as libc::pid_t, libc::SIGTERM);
+                }
             }
         }
         // SAFETY: _exit(2) is async-signal-safe.

@@ -1,5 +1,5 @@
 //! The watchdog: a thread that stops the whole process (and a server it
-//! started) once `--max-wall-s` has passed, whatever the command is doing.
+//! started, and a noisy neighbour) once `--max-wall-s` has passed, whatever the command is doing.
 
 use crate::server;
 use std::time::Duration;
@@ -10,11 +10,13 @@ pub fn start(secs: u64) {
     std::thread::spawn(move || {
         std::thread::sleep(Duration::from_secs(secs));
         eprintln!("error: hodos-load ran past its {secs} s bound (--max-wall-s); stopping");
-        let pid = server::CHILD_PID.load(std::sync::atomic::Ordering::SeqCst);
-        if pid != 0 {
-            // SAFETY: kill(2) on the pid of the child this process started.
-            unsafe {
-                libc::kill(pid as libc::pid_t, libc::SIGKILL);
+        for child in [&server::CHILD_PID, &server::NEIGHBOUR_PID] {
+            let pid = child.load(std::sync::atomic::Ordering::SeqCst);
+            if pid != 0 {
+                // SAFETY: kill(2) on the pid of a child this process started.
+                unsafe {
+                    libc::kill(pid as libc::pid_t, libc::SIGKILL);
+                }
             }
         }
         std::process::exit(3);

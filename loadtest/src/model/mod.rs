@@ -17,5 +17,5 @@ pub mod tally;
 
 pub use latency::Window;
 pub use run::{Outcome, Plan};
-pub use summary::{MachineUse, ServerUse, Summary};
+pub use summary::{BesideReport, MachineUse, ServerUse, Summary};
 pub use tally::Tally;

@@ -59,6 +59,9 @@ pub struct Summary {
     pub server: Option<ServerUse>,
     /// Machine-wide CPU during the run, to spot noise from other work.
     pub machine: Option<MachineUse>,
+    /// What ran beside the load (a noisy neighbour, held sockets), if
+    /// anything.
+    pub beside: Option<BesideReport>,
     /// Free-form remarks (verdicts, admin traffic of a storm, ...).
     pub notes: Vec<String>,
     pub timeline: Vec<Window>,
@@ -80,9 +83,35 @@ pub struct MachineUse {
     pub generator_cpu_s: f64,
     /// The server's, when it is a separate process.
     pub server_cpu_s: f64,
+    /// The noisy neighbour the tool itself started beside the run (zero
+    /// without one): known load, so not counted as other work.
+    pub neighbour_cpu_s: f64,
     /// Everything else: other work on the machine competing with the run.
     pub other_cpu_s: f64,
     pub loadavg_1m_before: f64,
+}
+
+/// What ran beside one run: a noisy-neighbour process burning CPU, and
+/// sockets held open (stalled bodies, idle connections).
+#[derive(Debug, Clone, Serialize, Default)]
+pub struct BesideReport {
+    /// Pid of the neighbour process, when one ran.
+    pub neighbour_pid: Option<u32>,
+    /// Cores the neighbour burned over the run (its CPU seconds ÷ wall).
+    pub neighbour_cores: Option<f64>,
+    /// Connections that sent headers and one byte of body (asked, opened,
+    /// still open at the end of the run).
+    pub stalled_asked: usize,
+    pub stalled_opened: usize,
+    pub stalled_open_at_end: usize,
+    /// Connections opened and never used (asked, opened, open at the end).
+    pub idle_asked: usize,
+    pub idle_opened: usize,
+    pub idle_open_at_end: usize,
+    /// Open descriptors of the server process before the sockets were
+    /// opened and while they were held (`/proc/<pid>/fd`).
+    pub server_fds_before: Option<usize>,
+    pub server_fds_held: Option<usize>,
 }
 
 impl Summary {
@@ -121,6 +150,7 @@ impl Summary {
             },
             server: None,
             machine: None,
+            beside: None,
             notes: Vec::new(),
             timeline: timeline(&t.samples, 250),
             curve: curve(&t.hist),
@@ -133,8 +163,12 @@ impl Summary {
         if all == 0 {
             return 0.0;
         }
-        let k: u64 = self
-            .answers
+        self.reason_count(reason) as f64 / all as f64
+    }
+
+    /// Answers (or cells) with this fallback reason.
+    pub fn reason_count(&self, reason: &str) -> u64 {
+        self.answers
             .iter()
             .filter(|(k, _)| {
                 k.rsplit_once('/')
@@ -142,7 +176,21 @@ impl Summary {
                     .unwrap_or(false)
             })
             .map(|(_, v)| v)
+            .sum()
+    }
+
+    /// Share of answers (or cells) from the graph: any tier but `heuristic`.
+    pub fn graph_share(&self) -> f64 {
+        let all: u64 = self.answers.values().sum();
+        if all == 0 {
+            return 0.0;
+        }
+        let heuristic: u64 = self
+            .answers
+            .iter()
+            .filter(|(k, _)| k.split('/').next() == Some("heuristic"))
+            .map(|(_, v)| v)
             .sum();
-        k as f64 / all as f64
+        (all - heuristic) as f64 / all as f64
     }
 }

@@ -10,7 +10,7 @@ use crate::model::Summary;
 use crate::report;
 use crate::server::ServerInfo;
 use crate::suite::pools::{Drawn, Workloads};
-use crate::suite::records::{Goal, Memory, Probe, SuiteOutcome};
+use crate::suite::records::{Beside, Goal, LiveBatch, Memory, Probe, SuiteOutcome};
 use crate::suite::settings::Settings;
 use crate::workload::EdgeRef;
 use std::net::SocketAddr;
@@ -52,6 +52,10 @@ pub struct Ctx {
     pub goals: Vec<Goal>,
     pub table: Vec<String>,
     pub outcome: Option<SuiteOutcome>,
+    /// What the next runs have beside them.
+    pub beside: Beside,
+    /// The live batch of the memory phase, once measured.
+    pub live_batch: Option<LiveBatch>,
 }
 
 impl Ctx {
@@ -79,6 +83,8 @@ impl Ctx {
             goals: Vec::new(),
             table: Vec::new(),
             outcome: None,
+            beside: Beside::Nothing,
+            live_batch: None,
         }
     }
 

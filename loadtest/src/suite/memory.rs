@@ -1,7 +1,8 @@
 //! Server memory: a reading of resident memory at a named moment, and the
 //! memory phase on a fresh server (ready, warm, after 100,000 ETAs with
-//! `/metrics` never scraped, after one scrape, and sampled for 12 s with a
-//! stale live feed: two customized metrics).
+//! `/metrics` never scraped, after one scrape, sampled for 12 s with a
+//! stale live feed: two customized metrics; then around a 100 MiB live
+//! batch, in `live_batch`).
 
 use crate::admin;
 use crate::server::{proc_stat, ProcStat};
@@ -90,6 +91,7 @@ impl Ctx {
         let _ = self.scrape().await;
         self.memory_now("after one GET /metrics");
         self.memory_two_metrics().await;
+        self.live_batch_memory().await;
     }
 
     /// A stale live feed (so the live metric is customized too), then

@@ -14,8 +14,10 @@
 //!   modules above it;
 //! - `drive`: one measured run with CPU and memory readings, noise redo;
 //! - `observe`: waiting for answer tiers, scraping `/metrics`;
-//! - scenarios: `cold_start`, `capacity`, `steady`, `overload`, `stale`,
-//!   `storm`, `memory`;
+//! - scenarios: `cold_start`, `capacity`, `steady`, `no_shed` (90% of
+//!   capacity, and half beside a noisy neighbour), `held` (stalled bodies
+//!   and idle sockets beside a steady run), `overload`, `stale`, `storm`,
+//!   `memory`, `live_batch` (memory around a 100 MiB live batch);
 //! - `run`: the suite's order (the driver), keeping the figures for the goals;
 //! - `verdicts`: the figures held against `crate::goals`.
 
@@ -23,7 +25,10 @@ mod capacity;
 mod cold_start;
 mod ctx;
 mod drive;
+mod held;
+mod live_batch;
 mod memory;
+mod no_shed;
 mod observe;
 mod overload;
 mod pools;
@@ -37,5 +42,5 @@ mod verdicts;
 
 pub use ctx::{Ctx, System};
 pub use pools::{pick, Drawn, Workloads};
-pub use records::{Goal, Memory, Probe};
+pub use records::{Goal, LiveBatch, Memory, Probe};
 pub use settings::Settings;

@@ -1,5 +1,6 @@
 //! What the suite records: capacity searches and their steps, memory
-//! readings, overload runs, the goals with their verdicts (all written to
+//! readings, overload runs, the no-shed and held-sockets runs, the live
+//! batch, what runs beside a run, the goals with their verdicts (all written to
 //! `results.json`), and the figures kept for the goals until the memory
 //! phase is done. Plain data below `ctx` and the scenarios.
 
@@ -92,6 +93,58 @@ pub struct SuiteOutcome {
     /// The steady run just before the storm, at the storm's rate.
     pub(crate) pre: Summary,
     pub(crate) storm: Option<Summary>,
+    pub(crate) no_shed: NoShed,
+    pub(crate) held: Option<HeldRuns>,
+}
+
+/// What the next runs have beside them (set by a scenario, reset after).
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub enum Beside {
+    #[default]
+    Nothing,
+    /// A child process spinning this many threads throughout each run.
+    Neighbour { threads: usize },
+    /// Stalled bodies and idle sockets held open throughout each run.
+    Sockets { stalled: usize, idle: usize },
+}
+
+/// The no-shed runs: ETAs at 90% of the capacity, and at 50% beside a
+/// noisy neighbour.
+#[derive(Clone)]
+pub struct NoShed {
+    pub at90: Option<Summary>,
+    pub neighbour: Option<Summary>,
+}
+
+/// The held-sockets runs: a steady ETA run without the sockets, with them,
+/// and without them again, at the same rate.
+#[derive(Clone)]
+pub struct HeldRuns {
+    pub before: Summary,
+    pub held: Summary,
+    pub after: Summary,
+}
+
+/// The 100 MiB live batch of the memory phase.
+#[derive(Debug, Clone, Serialize)]
+pub struct LiveBatch {
+    pub bytes: usize,
+    pub observations: usize,
+    /// HTTP status of the upload (0: no answer).
+    pub status: u16,
+    pub answer_s: f64,
+    /// Server VmRSS just before the upload, MB.
+    pub rss_before_mb: f64,
+    /// Largest VmRSS sampled (every 50 ms) and VmHWM (reset just before the
+    /// upload through `/proc/<pid>/clear_refs`, when allowed) from the
+    /// upload until the settle time, MB.
+    pub rss_max_sampled_mb: f64,
+    pub hwm_mb: f64,
+    pub hwm_was_reset: bool,
+    /// VmRSS the settle time after the answer, MB.
+    pub rss_after_mb: f64,
+    pub settle_s: f64,
+    pub in_process: bool,
 }
 
 /// One goal and how the run did against it.
@@ -99,5 +152,8 @@ pub struct SuiteOutcome {
 pub struct Goal {
     pub goal: String,
     pub measured: String,
+    /// The baseline in the same run, where the goal is a ratio to it (or
+    /// where it shows what the machine allows).
+    pub baseline: Option<String>,
     pub pass: Option<bool>,
 }

@@ -1,6 +1,8 @@
 //! The suite's order: cold start, capacity search per workload, steady
-//! runs at half capacity, overload, the stale feed, a steady run and the
-//! reload storm at the same rate, with memory readings between; the figures
+//! runs at half capacity, ETAs at 90% of capacity and at half beside a
+//! noisy neighbour, a steady run with held sockets between two without,
+//! overload, the stale feed, a steady run and the reload storm at the same
+//! rate, with memory readings between; the figures
 //! held against the goals are kept in a `SuiteOutcome` until the memory
 //! phase (on a fresh server) is done.
 
@@ -20,10 +22,15 @@ impl Ctx {
         let caps = self.capacities(&sets).await;
         let eta_cap = caps[0].hodos;
         let steady = self.steady_runs(&sets, &caps).await;
-        let overloads = self.overloads(&sets, &caps).await;
         let half = eta_cap
             .map(|c| c * STEADY_SHARE_OF_CAPACITY)
             .unwrap_or(100.0);
+        let no_shed = self.no_shed_runs(eta_cap).await;
+        let held = match eta_cap {
+            Some(_) => Some(self.held_sockets(half).await),
+            None => None,
+        };
+        let overloads = self.overloads(&sets, &caps).await;
         if let Some(sum) = self.stale_feed(half, self.s.steady).await {
             self.runs.push(sum);
         }
@@ -36,6 +43,8 @@ impl Ctx {
             overloads,
             pre,
             storm,
+            no_shed,
+            held,
         });
     }
 
