@@ -24,7 +24,13 @@ pub fn spin(threads: usize, seconds: f64) {
     // SAFETY: prctl with PR_SET_PDEATHSIG takes a plain signal number and
     // changes only this process.
     unsafe {
-        libc::prctl(libc::PR_SET_PDEATHSIG, libc::SIGKILL as libc::c_ulong, 0, 0, 0);
+        libc::prctl(
+            libc::PR_SET_PDEATHSIG,
+            libc::SIGKILL as libc::c_ulong,
+            0,
+            0,
+            0,
+        );
     }
     let end = Instant::now() + Duration::from_secs_f64(seconds.clamp(0.0, 3600.0));
     let workers: Vec<_> = (0..threads.clamp(1, 64))
@@ -33,7 +39,9 @@ pub fn spin(threads: usize, seconds: f64) {
                 let mut x = 0u64;
                 while Instant::now() < end {
                     for i in 0..10_000u64 {
-                        x = std::hint::black_box(x.wrapping_mul(6364136223846793005).wrapping_add(i));
+                        x = std::hint::black_box(
+                            x.wrapping_mul(6364136223846793005).wrapping_add(i),
+                        );
                     }
                 }
                 x

@@ -37,7 +37,10 @@ impl Ctx {
         server::wait_quiet(Duration::from_secs(15), QUIET_CORES).await;
         let Some(before) = proc_stat(pid) else { return };
         let hwm_was_reset = reset_hwm(pid);
-        let (stop, max_kb) = (Arc::new(AtomicBool::new(false)), Arc::new(AtomicU64::new(0)));
+        let (stop, max_kb) = (
+            Arc::new(AtomicBool::new(false)),
+            Arc::new(AtomicU64::new(0)),
+        );
         let sampler = {
             let (stop, max_kb) = (stop.clone(), max_kb.clone());
             tokio::spawn(async move {

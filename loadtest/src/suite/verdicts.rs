@@ -15,9 +15,7 @@ use crate::goals::{
 };
 use crate::model::Summary;
 use crate::suite::ctx::Ctx;
-use crate::suite::records::{
-    Capacity, Goal, HeldRuns, LiveBatch, NoShed, Overload, SuiteOutcome,
-};
+use crate::suite::records::{Capacity, Goal, HeldRuns, LiveBatch, NoShed, Overload, SuiteOutcome};
 
 /// Capacity of one workload (a goal for single ETAs, reported for others).
 fn capacity_goal(c: &Capacity) -> Goal {
