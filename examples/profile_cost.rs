@@ -84,6 +84,7 @@ fn main() {
         coverage: Coverage::Bbox([lo.lat - 0.01, lo.lon - 0.01, hi.lat + 0.01, hi.lon + 0.01]),
         historical: Some(dir.join("historical.csv")),
         live_dir: None,
+        model: None,
         state_dir: dir.join("state"),
     };
     let rt = tokio::runtime::Builder::new_multi_thread()

@@ -11,7 +11,7 @@ set -uo pipefail
 cd "$(dirname "$0")"
 RUNS="${1:-1000000}"
 MAX_S="${2:-900}"
-targets=(request_json query_string historical_table live_batch dimacs osm_tags artifact config_file)
+targets=(request_json query_string historical_table live_batch dimacs osm_tags artifact config_file model_file)
 cargo +nightly fuzz build --release >/dev/null 2>&1 || { echo "fuzz build failed"; exit 1; }
 for t in "${targets[@]}"; do
     mkdir -p "corpus/$t"

@@ -76,6 +76,7 @@ impl Config {
                 Some(&mut r.artifact),
                 r.historical.as_mut(),
                 r.live_dir.as_mut(),
+                r.model.as_mut(),
                 Some(&mut r.state_dir),
             ]
             .into_iter()

@@ -1,3 +1,4 @@
+#![recursion_limit = "256"]
 //! hodos: travel times (ETAs) over customizable contraction hierarchies.
 //!
 //! # Layout

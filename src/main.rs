@@ -50,6 +50,10 @@ enum Command {
     /// Measure ETA accuracy against completed trips: answer each trip as
     /// the service would have at its departure, and report the error.
     Eval(EvalArgs),
+    /// Fit a correction model (gradient-boosted trees, conformal
+    /// intervals) on completed trips, earlier ones training and later
+    /// ones testing.
+    Train(TrainArgs),
     /// Serve the HTTP API for the regions of a configuration file.
     Serve {
         /// TOML configuration (see config/hodos.toml).
@@ -116,8 +120,9 @@ struct BuildArgs {
     out: PathBuf,
 }
 
+/// Completed trips and what to answer them on (`eval` and `train`).
 #[derive(Args)]
-struct EvalArgs {
+struct TripsArgs {
     /// Completed-trip files (plain, or gzip when the name ends in .gz).
     #[arg(long, required = true, num_args = 1..)]
     trips: Vec<PathBuf>,
@@ -139,9 +144,53 @@ struct EvalArgs {
     /// Longest trip accepted, minutes (longer ones are refused by line).
     #[arg(long, default_value_t = 360.0)]
     max_duration_min: f64,
+}
+
+#[derive(Args)]
+struct EvalArgs {
+    #[command(flatten)]
+    input: TripsArgs,
+    /// Correction model written by `hodos train`: measured beside the
+    /// uncorrected answer, with its intervals.
+    #[arg(long)]
+    model: Option<PathBuf>,
     /// Folder for report.html and report.json (created if missing).
     #[arg(long)]
     out: PathBuf,
+}
+
+#[derive(Args)]
+struct TrainArgs {
+    #[command(flatten)]
+    input: TripsArgs,
+    /// The model file to write.
+    #[arg(long)]
+    out: PathBuf,
+    /// Also write the test trips' accuracy report (report.html and
+    /// report.json, corrected beside uncorrected) to this folder.
+    #[arg(long)]
+    report: Option<PathBuf>,
+    /// Share of the latest trips held out for the test figures.
+    #[arg(long, default_value_t = 0.25)]
+    test_share: f64,
+    /// Share of the remaining trips, the latest, that calibrate the
+    /// intervals (not fitted on).
+    #[arg(long, default_value_t = 0.2)]
+    calibration_share: f64,
+    /// Boosting rounds (trees).
+    #[arg(long, default_value_t = 120)]
+    trees: usize,
+    #[arg(long, default_value_t = 0.08)]
+    learning_rate: f32,
+    #[arg(long, default_value_t = 5)]
+    depth: usize,
+    /// Interval quantile levels LOW,HIGH.
+    #[arg(long, default_value = "0.1,0.9")]
+    interval: String,
+    /// Version reported with every corrected answer. Default: the
+    /// training time, in seconds since 1970.
+    #[arg(long)]
+    model_version: Option<u64>,
 }
 
 /// Progress bars on stderr.
@@ -199,6 +248,7 @@ fn main() -> ExitCode {
             max_snap_m,
         } => cmd_eta(&file, from, to, max_snap_m),
         Command::Eval(args) => cmd_eval(args),
+        Command::Train(args) => cmd_train(args),
         Command::Serve { config, strict } => cmd_serve(&config, strict),
         Command::Demo { port, once } => {
             if once {
@@ -341,9 +391,18 @@ fn cmd_eta(
     Ok(())
 }
 
-fn cmd_eval(args: EvalArgs) -> anyhow::Result<()> {
+/// Reads the trips of `args` and answers each at its departure (through
+/// `model`, when given).
+fn replay_input(
+    args: &TripsArgs,
+    model: Option<&PathBuf>,
+) -> anyhow::Result<(
+    Vec<hodos::truth::outcome::TripOutcome>,
+    hodos::truth::trips::TripReport,
+    hodos::truth::report::Inputs,
+)> {
     use hodos::truth::replay::{open_catalog, replay_settings, replay_trip, ReplayRegion};
-    use hodos::truth::report::{Inputs, Report};
+    use hodos::truth::report::Inputs;
     use hodos::truth::trips::{read_trips_file, ReadOptions, TripFormat, TripReport};
     let zone_name = args.zone.clone().unwrap_or_else(|| {
         if args.format == Some(TripFormat::Tlc) {
@@ -398,6 +457,7 @@ fn cmd_eval(args: EvalArgs) -> anyhow::Result<()> {
         historical: args.historical.clone(),
         time_zone: zone_name.clone(),
         coverage: None,
+        model: model.cloned(),
     };
     let result = runtime()?.block_on(async {
         let spinner = ProgressBar::new_spinner().with_style(
@@ -428,16 +488,119 @@ fn cmd_eval(args: EvalArgs) -> anyhow::Result<()> {
         format: format_used.join(", "),
         artifact: args.artifact.display().to_string(),
         historical: args.historical.as_ref().map(|p| p.display().to_string()),
-        model: None,
+        model: model.map(|p| p.display().to_string()),
         time_zone: zone_name,
         hodos_version: env!("CARGO_PKG_VERSION").to_string(),
     };
-    let report = Report::build(inputs, read, &outcomes, None)?;
+    Ok((outcomes, read, inputs))
+}
+
+fn cmd_eval(args: EvalArgs) -> anyhow::Result<()> {
+    use hodos::truth::report::Report;
+    let nominal = match &args.model {
+        Some(p) => {
+            let m = hodos::serving::correction::file::read(p)?;
+            Some(m.interval.levels[1] - m.interval.levels[0])
+        }
+        None => None,
+    };
+    let (outcomes, read, inputs) = replay_input(&args.input, args.model.as_ref())?;
+    let report = Report::build(inputs, read, &outcomes, nominal)?;
     println!();
     print!("{}", report.summary_text());
     let (json, html) = report.write(&args.out)?;
     println!();
     println!("wrote {} and {}", html.display(), json.display());
+    Ok(())
+}
+
+fn cmd_train(args: TrainArgs) -> anyhow::Result<()> {
+    use hodos::serving::correction::file;
+    use hodos::truth::report::Report;
+    use hodos::truth::train::{corrected, split_by_time, train, TrainOptions};
+    let levels: Vec<f64> = args
+        .interval
+        .split(',')
+        .map(|v| v.trim().parse::<f64>())
+        .collect::<Result<_, _>>()
+        .map_err(|_| anyhow::anyhow!("--interval {:?} is not LOW,HIGH", args.interval))?;
+    anyhow::ensure!(levels.len() == 2, "--interval takes two levels, LOW,HIGH");
+    let opts = TrainOptions {
+        test_share: args.test_share,
+        calibration_share: args.calibration_share,
+        iterations: args.trees,
+        learning_rate: args.learning_rate,
+        max_depth: args.depth,
+        interval: [levels[0], levels[1]],
+        model_version: args
+            .model_version
+            .unwrap_or_else(|| chrono::Utc::now().timestamp().max(0) as u64),
+        ..TrainOptions::default()
+    };
+    anyhow::ensure!(args.trees >= 1, "--trees must be at least 1");
+    let (outcomes, read, mut inputs) = replay_input(&args.input, None)?;
+    let (model, rep) = train(&outcomes, &opts)?;
+    let bytes = file::encode(&model);
+    std::fs::write(&args.out, &bytes).with_context(|| format!("writing {}", args.out.display()))?;
+    println!();
+    println!(
+        "{} usable trips: {} fit the trees, {} calibrate the intervals, {} test (latest)",
+        rep.trips_usable, rep.n_fit, rep.n_calibration, rep.n_test
+    );
+    println!(
+        "best constant factors on the training window: {:.3} (MAPE), {:.3} (RMSLE)",
+        rep.constant_mape, rep.constant_rmsle
+    );
+    println!(
+        "{} trees, {} nodes, fitted in {:.2} s",
+        rep.trees, rep.nodes, rep.fit_seconds
+    );
+    println!();
+    println!(
+        "{:<12} {:<15} {:>6} {:>8} {:>7} {:>9}",
+        "set", "estimate", "n", "MAPE", "RMSLE", "coverage"
+    );
+    for f in &rep.figures {
+        println!(
+            "{:<12} {:<15} {:>6} {:>7.1}% {:>7.3} {:>9}",
+            f.set,
+            f.estimate,
+            f.n,
+            f.mape,
+            f.rmsle,
+            f.coverage
+                .map(|c| format!("{:.1}%", c * 100.0))
+                .unwrap_or_else(|| "-".into())
+        );
+    }
+    println!();
+    println!(
+        "wrote {} (model version {}, {} bytes)",
+        args.out.display(),
+        model.meta.model_version,
+        bytes.len()
+    );
+    if let Some(dir) = &args.report {
+        let split = split_by_time(&outcomes, opts.test_share, opts.calibration_share);
+        anyhow::ensure!(
+            !split.test.is_empty(),
+            "--report needs test trips (--test-share above 0)"
+        );
+        let test: Vec<_> = split
+            .test
+            .iter()
+            .map(|&i| corrected(&outcomes[i], &model))
+            .collect();
+        inputs.model = Some(args.out.display().to_string());
+        let nominal = model.interval.levels[1] - model.interval.levels[0];
+        let report = Report::build(inputs, read, &test, Some(nominal))?;
+        let (json, html) = report.write(dir)?;
+        println!(
+            "wrote the test trips' report: {} and {}",
+            html.display(),
+            json.display()
+        );
+    }
     Ok(())
 }
 

@@ -67,6 +67,7 @@ fn ny_every_departure_hour_answers_from_its_profile() {
         coverage: Coverage::Bbox([lo.lat - 0.01, lo.lon - 0.01, hi.lat + 0.01, hi.lon + 0.01]),
         historical: Some(table),
         live_dir: None,
+        model: None,
         state_dir: dir.path().join("state"),
     };
     let mut s = ServingSettings {

@@ -97,6 +97,7 @@ fn replayed_trips_answer_from_their_departure_hour() {
         historical: Some(table),
         time_zone: "America/New_York".into(),
         coverage: None,
+        model: None,
     };
     let outcomes = rt.block_on(async {
         let cat = open_catalog(&[region], settings, &dir.path().join("state"))

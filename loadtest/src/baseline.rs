@@ -49,6 +49,10 @@ fn fixed_eta() -> EtaResponse {
             index: 0,
             representative_hour: 0,
         }),
+        graph_eta_s: 600.0,
+        eta_low_s: None,
+        eta_high_s: None,
+        model_version: None,
     }
 }
 
@@ -84,6 +88,10 @@ async fn matrix(State(l): State<Limits>, body: Bytes) -> Result<Response, ApiErr
             region: "baseline".into(),
             generation: 1,
         }),
+        graph_eta_s: vec![vec![600.0; c]; r],
+        eta_low_s: vec![vec![None; c]; r],
+        eta_high_s: vec![vec![None; c]; r],
+        model_version: vec![vec![None; c]; r],
     })
     .into_response())
 }

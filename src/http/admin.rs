@@ -10,8 +10,8 @@
 //! (413 past either).
 
 use super::dto::{
-    HistoricalAccepted, LiveAccepted, RegionStatusDto, ReloadResponse, StatusResponse,
-    TableReportDto,
+    HistoricalAccepted, LiveAccepted, ModelAccepted, RegionStatusDto, ReloadResponse,
+    StatusResponse, TableReportDto,
 };
 use super::problem::ApiError;
 use super::upload::{self, BodyReader, Pumped};
@@ -164,7 +164,11 @@ pub(super) async fn status(State(state): State<AppState>) -> Json<StatusResponse
             .catalog
             .regions
             .iter()
-            .map(|r| RegionStatusDto::new(&r.name, &r.status()))
+            .map(|r| RegionStatusDto {
+                model_refused: r.correction.refused(),
+                model_version: r.correction.current().map(|m| m.meta.model_version),
+                ..RegionStatusDto::new(&r.name, &r.status())
+            })
             .collect(),
     })
 }
@@ -190,6 +194,50 @@ pub(super) async fn put_historical(
         report: TableReportDto::from(&report),
         version: st.historical_version,
     }))
+}
+
+/// A correction model file: read whole (it is small next to the upload
+/// limit), checked, saved, then served; a refused file changes nothing.
+pub(super) async fn put_model(
+    State(state): State<AppState>,
+    Path(name): Path<String>,
+    req: Request,
+) -> Result<Json<ModelAccepted>, ApiError> {
+    use crate::serving::snapshot::ModelUpdateError;
+    use std::io::Read;
+    let r = region(&state, &name)?;
+    let outcome = streamed(
+        req,
+        state.settings.admin.max_upload_bytes,
+        "admin.max_upload_bytes",
+        move |mut body| async move {
+            let read = tokio::task::spawn_blocking(move || {
+                let mut bytes = Vec::new();
+                body.read_to_end(&mut bytes).map(|_| bytes)
+            })
+            .await;
+            match read {
+                Ok(Ok(bytes)) => Ok(Some(r.put_model(bytes).await)),
+                // The pump's verdict (over the limit, cut off) answers.
+                _ => Ok(None),
+            }
+        },
+    )
+    .await?;
+    match outcome {
+        Some(Ok(m)) => Ok(Json(ModelAccepted::from(&*m))),
+        Some(Err(ModelUpdateError::Refused(e))) => Err(ApiError::Rejected {
+            detail: format!("the model was refused: {e}; the model before it keeps serving"),
+            report: None,
+        }),
+        Some(Err(e @ ModelUpdateError::Save { .. })) => {
+            tracing::error!(error = %e, "model upload not saved");
+            Err(ApiError::Internal)
+        }
+        None => Err(ApiError::Malformed(
+            "the request body could not be read to its end".into(),
+        )),
+    }
 }
 
 pub(super) async fn post_live(

@@ -207,6 +207,15 @@ pub static ADMIN: &[Route] = &[
         }],
     },
     Route {
+        path: "/admin/regions/{region}/model",
+        answers: false,
+        ops: &[Operation {
+            verb: Verb::Put,
+            handler: |f| on(f, admin::put_model),
+            doc: openapi::admin_put_model,
+        }],
+    },
+    Route {
         path: "/admin/regions/{region}/reload",
         answers: false,
         ops: &[Operation {

@@ -10,6 +10,8 @@
 //!   freed on those threads, never by a request.
 //! - [`speeds`]: historical profiles, live observations, blending, saving.
 //! - [`answer`], [`tier`]: tier choice and fallbacks for trips and matrices.
+//! - [`correction`]: the learned correction of graph times (a model per
+//!   region, hot-swapped) and the interval around each ETA.
 //! - [`admission`]: shedding by deadline under overload.
 //! - [`metrics`]: metric names and their recording (the exporter is the
 //!   HTTP layer's).
@@ -22,6 +24,7 @@
 
 pub mod admission;
 pub mod answer;
+pub mod correction;
 pub mod customizer;
 pub mod metrics;
 pub mod retire;

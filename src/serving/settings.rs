@@ -176,6 +176,10 @@ pub struct RegionConfig {
     /// Directory watched for live-observation CSV files (optional).
     #[serde(default)]
     pub live_dir: Option<PathBuf>,
+    /// Correction model written by `hodos train` (optional): loaded at
+    /// start unless an uploaded model is saved in `state_dir`.
+    #[serde(default)]
+    pub model: Option<PathBuf>,
     /// Where accepted tables and the live write-ahead log are kept across
     /// restarts. Required: without it an acknowledged upload could not
     /// survive a restart.

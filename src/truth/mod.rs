@@ -19,10 +19,13 @@
 //! - `measure`: the error metrics (MAPE, median and p90 absolute percentage
 //!   error, median ratio, RMSLE, MAE, shares within ±10 % / ±20 %,
 //!   interval coverage), overall and per group;
-//! - `report/`: the HTML page with its plots and the same figures as JSON.
+//! - `report/`: the HTML page with its plots and the same figures as JSON;
+//! - `train`: fitting a correction model on replayed trips (time split,
+//!   gradient-boosted trees, conformal intervals) and its figures.
 
 pub mod measure;
 pub mod outcome;
 pub mod replay;
 pub mod report;
+pub mod train;
 pub mod trips;

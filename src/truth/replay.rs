@@ -14,6 +14,7 @@ use super::trips::TripRecord;
 use crate::engine::artifact::{Artifact, ArtifactError};
 use crate::engine::geo::haversine_m;
 use crate::serving::answer::{trip, Catalog};
+use crate::serving::correction::{features, Query};
 use crate::serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
 use crate::serving::snapshot::{RegionHandle, UpdateSettings};
 use chrono::Utc;
@@ -30,6 +31,8 @@ pub struct ReplayRegion {
     /// Where the region answers; `None`: the artifact's node extent padded
     /// by 0.01° (what `hodos info` suggests for a configuration).
     pub coverage: Option<Coverage>,
+    /// Correction model applied to every answer, as a region's `model`.
+    pub model: Option<PathBuf>,
 }
 
 /// Why a replay catalog could not be opened.
@@ -41,6 +44,8 @@ pub enum ReplayError {
     Zone(String),
     #[error("region {name} did not load: {reason}")]
     Degraded { name: String, reason: String },
+    #[error("region {name}: the correction model was refused: {reason}")]
+    Model { name: String, reason: String },
     #[error("region {name}: the historical table {path} is not serving: {problems}")]
     Historical {
         name: String,
@@ -92,6 +97,7 @@ pub async fn open_catalog(
             coverage,
             historical: r.historical.clone(),
             live_dir: None,
+            model: r.model.clone(),
             state_dir: state_dir.join(&r.name),
         };
         let h = RegionHandle::open(cfg, UpdateSettings::from_settings(&settings)).await;
@@ -119,13 +125,23 @@ pub async fn open_catalog(
                 });
             }
         }
+        if r.model.is_some() && h.correction.current().is_none() {
+            return Err(ReplayError::Model {
+                name: r.name.clone(),
+                reason: h
+                    .correction
+                    .refused()
+                    .unwrap_or_else(|| "no reason given".into()),
+            });
+        }
         handles.push(h);
     }
     Ok(Catalog::new(settings, handles))
 }
 
 /// Answers one trip at its departure and pairs the answer with the
-/// trip's actual duration.
+/// trip's actual duration and the correction model's feature vector of
+/// the uncorrected answer (what `hodos train` fits on).
 pub async fn replay_trip(cat: &Catalog, t: &TripRecord) -> TripOutcome {
     let budget = Some(cat.cfg.query.max_budget_ms);
     let a = trip(
@@ -139,6 +155,16 @@ pub async fn replay_trip(cat: &Catalog, t: &TripRecord) -> TripOutcome {
     )
     .await;
     let (hour_of_week, weekend) = local_hour_of_week(&t.leaving);
+    let graph_s = a.graph_s();
+    let x = features(&Query {
+        from: t.from,
+        to: t.to,
+        graph_s,
+        graph_m: a.meters,
+        hour_of_week: a.hour_of_week,
+        tier: a.tier,
+        sources: a.sources,
+    });
     TripOutcome {
         trip_id: t.trip_id.clone(),
         leaving: t.leaving,
@@ -149,11 +175,11 @@ pub async fn replay_trip(cat: &Catalog, t: &TripRecord) -> TripOutcome {
         reason: a.reason,
         great_circle_m: haversine_m(t.from, t.to),
         actual_s: t.duration_s,
-        graph_s: a.eta_s,
+        graph_s,
         eta_s: a.eta_s,
-        interval_s: None,
-        model_version: None,
-        features: vec![],
+        interval_s: a.correction.map(|c| (c.low_s, c.high_s)),
+        model_version: a.correction.map(|c| c.model_version),
+        features: x.to_vec(),
     }
 }
 

@@ -121,6 +121,11 @@ pub struct RegionStatusDto {
     /// Why the saved live layer or its write-ahead log was refused at the
     /// last load; empty when nothing was.
     pub live_problems: Vec<String>,
+    /// Why the last model offered to the region was refused (the model
+    /// before it, if any, keeps serving).
+    pub model_refused: Option<String>,
+    /// The correction model serving, if any.
+    pub model_version: Option<u64>,
     pub profiles: Option<ProfilesDto>,
     pub ready: bool,
     pub region: String,
@@ -190,6 +195,8 @@ impl RegionStatusDto {
             live_edges: s.live_edges,
             live_newest_age_s: s.live_newest_age_s,
             live_problems: s.live_problems.clone(),
+            model_refused: None,
+            model_version: None,
             profiles: s.profiles.as_ref().map(ProfilesDto::from),
             ready: s.ready,
             region: region.to_string(),
@@ -213,6 +220,39 @@ pub struct HistoricalAccepted {
     pub report: TableReportDto,
     /// Version of the historical table now serving.
     pub version: Option<String>,
+}
+
+/// `PUT /admin/regions/{region}/model`, serving.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct ModelAccepted {
+    /// Always `accepted` (a refused model is a problem response).
+    pub outcome: &'static str,
+    pub model_version: u64,
+    pub trained_at: String,
+    pub trees: usize,
+    pub features: Vec<String>,
+    /// Nominal quantile levels of the interval.
+    pub interval_levels: [f64; 2],
+    pub train_window: [String; 2],
+    pub test_window: Option<[String; 2]>,
+    /// What `hodos train` measured (MAPE, RMSLE, coverage per set).
+    pub figures: Vec<crate::serving::correction::model::Figure>,
+}
+
+impl From<&crate::serving::correction::CorrectionModel> for ModelAccepted {
+    fn from(m: &crate::serving::correction::CorrectionModel) -> Self {
+        ModelAccepted {
+            outcome: "accepted",
+            model_version: m.meta.model_version,
+            trained_at: m.meta.trained_at.clone(),
+            trees: m.forest.roots.len(),
+            features: m.meta.features.clone(),
+            interval_levels: m.interval.levels,
+            train_window: m.meta.train_window.clone(),
+            test_window: m.meta.test_window.clone(),
+            figures: m.meta.figures.clone(),
+        }
+    }
 }
 
 /// `POST /admin/regions/{region}/live`, accepted.
@@ -304,7 +344,7 @@ mod tests {
             profiles: None,
         };
         let want = format!(
-            r#"{{"degraded_reason":null,"generation":4,"historical_age_s":1.5,"historical_path":"/state/historical.table","historical_problems":[],"historical_rows":10,"historical_source":"upload","historical_version":"v1","last_live_batch":null,"last_reload":{{"at":"2026-12-02T08:30:00.123Z","error":"bad","outcome":"rejected","report":{report_json},"table":"historical"}},"live_edges":2,"live_newest_age_s":null,"live_problems":["x"],"profiles":null,"ready":true,"region":"quellhaven"}}"#
+            r#"{{"degraded_reason":null,"generation":4,"historical_age_s":1.5,"historical_path":"/state/historical.table","historical_problems":[],"historical_rows":10,"historical_source":"upload","historical_version":"v1","last_live_batch":null,"last_reload":{{"at":"2026-12-02T08:30:00.123Z","error":"bad","outcome":"rejected","report":{report_json},"table":"historical"}},"live_edges":2,"live_newest_age_s":null,"live_problems":["x"],"model_refused":null,"model_version":null,"profiles":null,"ready":true,"region":"quellhaven"}}"#
         );
         assert_eq!(
             serde_json::to_string(&RegionStatusDto::new("quellhaven", &status)).unwrap(),

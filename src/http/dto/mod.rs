@@ -17,8 +17,8 @@ pub mod public;
 pub mod request;
 
 pub use admin::{
-    HistoricalAccepted, LiveAccepted, ProfilesDto, RegionStatusDto, ReloadOutcomeDto,
-    ReloadResponse, RowErrorDto, StatusResponse, TableReportDto,
+    HistoricalAccepted, LiveAccepted, ModelAccepted, ProfilesDto, RegionStatusDto,
+    ReloadOutcomeDto, ReloadResponse, RowErrorDto, StatusResponse, TableReportDto,
 };
 pub use probe::{HealthResponse, ReadyResponse, RegionReadiness};
 pub use public::{

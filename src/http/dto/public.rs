@@ -79,6 +79,15 @@ pub struct EtaResponse {
     pub hour_of_week: Option<u8>,
     /// The profile whose metric answered (historical tier only).
     pub profile: Option<ProfileRef>,
+    /// The tier's uncorrected time: `eta_s` itself when no correction
+    /// model applied.
+    pub graph_eta_s: f64,
+    /// The interval around `eta_s` (the model's quantile levels, p10 and
+    /// p90 by default); null without a correction model.
+    pub eta_low_s: Option<f64>,
+    pub eta_high_s: Option<f64>,
+    /// The correction model that gave `eta_s`; null when none applied.
+    pub model_version: Option<u64>,
 }
 
 impl From<&Answer> for EtaResponse {
@@ -98,6 +107,10 @@ impl From<&Answer> for EtaResponse {
                 index: p.index,
                 representative_hour: p.representative_hour,
             }),
+            graph_eta_s: round3(a.graph_s()),
+            eta_low_s: a.correction.map(|c| round3(c.low_s)),
+            eta_high_s: a.correction.map(|c| round3(c.high_s)),
+            model_version: a.correction.map(|c| c.model_version),
         }
     }
 }
@@ -155,6 +168,11 @@ pub struct MatrixResponse {
     pub fallback_reason: Vec<Vec<Option<&'static str>>>,
     pub sources: Vec<Vec<Option<SourcesDto>>>,
     pub snapshot: Option<SnapshotRef>,
+    /// Per cell, as in [`EtaResponse`].
+    pub graph_eta_s: Vec<Vec<f64>>,
+    pub eta_low_s: Vec<Vec<Option<f64>>>,
+    pub eta_high_s: Vec<Vec<Option<f64>>>,
+    pub model_version: Vec<Vec<Option<u64>>>,
 }
 
 impl From<&MatrixAnswer> for MatrixResponse {
@@ -181,6 +199,34 @@ impl From<&MatrixAnswer> for MatrixResponse {
                 })
                 .collect(),
             snapshot: SnapshotRef::from_pair(&a.snapshot),
+            graph_eta_s: rows()
+                .map(|row| {
+                    row.iter()
+                        .map(|c| round3(c.correction.map_or(c.eta_s, |k| k.graph_s)))
+                        .collect()
+                })
+                .collect(),
+            eta_low_s: rows()
+                .map(|row| {
+                    row.iter()
+                        .map(|c| c.correction.map(|k| round3(k.low_s)))
+                        .collect()
+                })
+                .collect(),
+            eta_high_s: rows()
+                .map(|row| {
+                    row.iter()
+                        .map(|c| c.correction.map(|k| round3(k.high_s)))
+                        .collect()
+                })
+                .collect(),
+            model_version: rows()
+                .map(|row| {
+                    row.iter()
+                        .map(|c| c.correction.map(|k| k.model_version))
+                        .collect()
+                })
+                .collect(),
         }
     }
 }

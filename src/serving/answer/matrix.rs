@@ -35,6 +35,7 @@ fn heuristic_cell(est: Estimator<'_>, a: LatLon, b: LatLon, reason: FallbackReas
         reason: Some(reason),
         region: None,
         sources: None,
+        correction: None,
     }
 }
 
@@ -139,11 +140,13 @@ pub async fn matrix_trip(
         cols,
         cells,
         snapshot,
+        hour_of_week: None,
     }
 }
 
 /// One region's matrix over points it holds (`None`: outside every
-/// region): the gate, then the graph within the deadline.
+/// region): the gate, then the graph within the deadline, then the
+/// region's correction per cell.
 async fn region_matrix(
     cat: &Catalog,
     handle: Option<&Arc<RegionHandle>>,
@@ -154,6 +157,7 @@ async fn region_matrix(
     admitted: bool,
 ) -> MatrixAnswer {
     let mut m = region_matrix_inner(cat, handle, from, to, depart, deadline, admitted).await;
+    super::correct::matrix(handle, from, to, &mut m);
     if let Some(idx) = handle.and_then(|h| cat.index_of(h)) {
         for c in &mut m.cells {
             c.region = Some(idx);
@@ -178,6 +182,7 @@ async fn region_matrix_inner(
         cols,
         cells: heuristic_cells(est, from, to, reason),
         snapshot,
+        hour_of_week: est.hour,
     };
     let g = match gate(cat, handle, depart, deadline, admitted).await {
         Ok(g) => g,
@@ -207,6 +212,7 @@ async fn region_matrix_inner(
         cols,
         cells: out,
         snapshot: tag,
+        hour_of_week: Some(chosen.hour),
     }
 }
 
@@ -281,6 +287,7 @@ fn answers(
                     reason,
                     sources: Some(sources),
                     region: None,
+                    correction: None,
                 }
             }
             Cell::Unreachable => heuristic_cell(cal, a, b, FallbackReason::Unreachable),

@@ -21,7 +21,10 @@
 //! 6. label: the route's sources (time shares on live, historical and
 //!    free-flow edges) give its tier, and with the live state of step 4
 //!    its reason (`no_live_data`, `live_stale`, `no_live_on_route`,
-//!    `live_minority`; see [`crate::serving::tier`]).
+//!    `live_minority`; see [`crate::serving::tier`]);
+//! 7. correct: when the region serves a correction model, every answer it
+//!    covers (estimates included) gets the model's ETA and interval, and
+//!    keeps its uncorrected time beside them.
 //!
 //! Every estimate from a region's calibration is scaled by the departure
 //! hour's factor ([`Estimator`]): the calibration was fitted on free-flow
@@ -33,11 +36,14 @@
 //! - `gate`: steps 1–4, written once for trips and matrices;
 //! - `trip`: [`trip`], step 5 for one trip; `matrix`: [`matrix_trip`],
 //!   step 5 per cell;
-//! - `scratch`: the per-thread search scratch both reuse.
+//! - `scratch`: the per-thread search scratch both reuse;
+//! - `correct`: the region's correction model applied to a finished
+//!   answer or matrix (step 7).
 //!
 //! **Architecture Invariant:** no HTTP types here; the service converts
 //! [`Answer`] to its DTOs.
 
+mod correct;
 mod gate;
 mod matrix;
 mod scratch;
@@ -51,6 +57,7 @@ pub use trip::trip;
 use crate::engine::calibration::Calibration;
 use crate::engine::geo::LatLon;
 use crate::serving::admission::Admission;
+use crate::serving::correction::Corrected;
 use crate::serving::settings::ServingSettings;
 use crate::serving::snapshot::{ProfileUsed, RegionHandle, Snapshot};
 use crate::serving::tier::{FallbackReason, Sources, Tier};
@@ -193,6 +200,16 @@ pub struct Answer {
     pub hour_of_week: Option<u8>,
     /// The hour-of-week profile whose metric answered (historical tier).
     pub profile: Option<ProfileUsed>,
+    /// The region's correction model applied: `eta_s` is then its ETA,
+    /// and this holds the tier's uncorrected time and the interval.
+    pub correction: Option<Corrected>,
+}
+
+impl Answer {
+    /// The tier's uncorrected time.
+    pub fn graph_s(&self) -> f64 {
+        self.correction.map_or(self.eta_s, |c| c.graph_s)
+    }
 }
 
 /// One matrix cell's answer.
@@ -208,6 +225,8 @@ pub struct CellAnswer {
     pub region: Option<u16>,
     /// Shares of the travel time per speed source (graph cells only).
     pub sources: Option<Sources>,
+    /// As [`Answer::correction`].
+    pub correction: Option<Corrected>,
 }
 
 /// A matrix answer, row-major.
@@ -217,4 +236,6 @@ pub struct MatrixAnswer {
     pub cols: usize,
     pub cells: Vec<CellAnswer>,
     pub snapshot: Option<(String, u64)>,
+    /// Hour of week of the departure in the answering region's time zone.
+    pub hour_of_week: Option<u8>,
 }

@@ -72,6 +72,7 @@ async fn catalog(artifact: &Path, g: &RoadGraph, state: &Path) -> Catalog {
         coverage: Coverage::Bbox([lo.lat - 0.05, lo.lon - 0.05, hi.lat + 0.05, hi.lon + 0.05]),
         historical: None,
         live_dir: None,
+        model: None,
         state_dir: state.to_path_buf(),
     };
     let s = settings();
@@ -549,6 +550,7 @@ async fn matrix_cells_belong_to_the_region_holding_both_ends() {
         coverage: Coverage::Bbox([lo.lat - 0.05, w, hi.lat + 0.05, e]),
         historical: None,
         live_dir: None,
+        model: None,
         state_dir: state.path().join(name),
     };
     let s = settings();

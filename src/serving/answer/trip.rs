@@ -10,6 +10,7 @@ use super::{Answer, Catalog, Estimator};
 use crate::engine::cch::CchQuery;
 use crate::engine::geo::LatLon;
 use crate::engine::region::{End, EtaError};
+use crate::serving::snapshot::RegionHandle;
 use crate::serving::tier::{FallbackReason, Sources, Tier};
 use chrono::{DateTime, Utc};
 use std::cell::RefCell;
@@ -43,11 +44,13 @@ fn heuristic(
         geometry: None,
         hour_of_week: est.hour,
         profile: None,
+        correction: None,
     }
 }
 
 /// Answers one trip (ETA, or route when `with_geometry`). `admitted` is
-/// false when admission control shed the request.
+/// false when admission control shed the request. The region's correction
+/// model, if any, applies to the answer whatever its tier.
 pub async fn trip(
     cat: &Catalog,
     from: LatLon,
@@ -57,8 +60,35 @@ pub async fn trip(
     with_geometry: bool,
     admitted: bool,
 ) -> Answer {
-    let deadline = Instant::now() + cat.budget(budget_ms);
     let handle = cat.region_for(from, to);
+    let mut a = uncorrected(
+        cat,
+        handle,
+        from,
+        to,
+        depart,
+        budget_ms,
+        with_geometry,
+        admitted,
+    )
+    .await;
+    super::correct::trip(handle, from, to, &mut a);
+    a
+}
+
+/// [`trip`] before its correction.
+#[allow(clippy::too_many_arguments)]
+async fn uncorrected(
+    cat: &Catalog,
+    handle: Option<&Arc<RegionHandle>>,
+    from: LatLon,
+    to: LatLon,
+    depart: Option<DateTime<Utc>>,
+    budget_ms: Option<u64>,
+    with_geometry: bool,
+    admitted: bool,
+) -> Answer {
+    let deadline = Instant::now() + cat.budget(budget_ms);
     let g = match gate(cat, handle, depart, deadline, admitted).await {
         Ok(g) => g,
         Err(f) => {
@@ -114,6 +144,7 @@ pub async fn trip(
                 geometry,
                 hour_of_week: Some(chosen.hour),
                 profile: chosen.profile,
+                correction: None,
             }
         }
         Err(EtaError::OffNetwork { .. }) => {

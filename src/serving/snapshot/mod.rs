@@ -28,6 +28,7 @@
 //! - `load`: the file work of a load (artifact, the rule choosing the
 //!   historical table, refusing damaged saved files, the saved live layer
 //!   with its write-ahead log replayed), run on tokio's blocking pool;
+//! - `model`: the correction model's update path (at start, on upload);
 //! - `error`: the typed errors ([`UpdateError`], [`LoadError`], ...).
 //!
 //! **Architecture Invariant:** nothing here knows about HTTP; the service
@@ -37,13 +38,16 @@ mod buckets;
 mod error;
 mod live;
 mod load;
+mod model;
 mod update;
 
 pub use buckets::{metric_bytes, ProfileUsed, Profiles};
 pub use error::{Degraded, HistoricalNote, LoadError, TableReadError, UpdateError, UpdateFailure};
 pub use load::FileStamp;
+pub use model::ModelUpdateError;
 
 use crate::engine::region::{Metric, Region};
+use crate::serving::correction::ModelSlot;
 use crate::serving::customizer::Customizer;
 use crate::serving::metrics as m;
 use crate::serving::retire::RetireBin;
@@ -290,6 +294,10 @@ pub struct RegionHandle {
     loads: AtomicU64,
     /// Set once the first load finished (served or degraded).
     loaded: AtomicBool,
+    /// The correction model this region's answers go through (none until
+    /// one is configured or uploaded). Independent of snapshots: a new
+    /// table or artifact keeps the model, a new model keeps the snapshot.
+    pub correction: ModelSlot,
 }
 
 impl std::fmt::Debug for RegionHandle {
@@ -332,6 +340,7 @@ impl RegionHandle {
             generation: AtomicU64::new(0),
             loads: AtomicU64::new(0),
             loaded: AtomicBool::new(false),
+            correction: ModelSlot::default(),
         })
     }
 
@@ -344,6 +353,7 @@ impl RegionHandle {
         if let Err(e) = h.reload().await {
             tracing::warn!(region = %h.name, error = %e, "region starts degraded");
         }
+        h.load_model_at_start();
         // Ready means ready to answer from the graph for any departure:
         // `reload` publishes the first snapshot only once every profile is
         // customized (a bounded amount of work: `query.profiles` metrics).

@@ -1,0 +1,133 @@
+//! Chooses training options without looking at the test trips: the
+//! shared NYC TLC sample on USA-road-d.NY is split as `hodos train` splits
+//! it, the latest quarter (the test set) is dropped, and each option set is
+//! trained on the rest with its own latest 20 % as the validation set
+//! (nested time split). Prints validation MAPE, RMSLE and coverage.
+//!
+//! `cargo run --release --example train_sweep` (needs `$HODOS_DATA_DIR`).
+
+use hodos::engine::build::{build_from_graph, Quiet};
+use hodos::engine::import::dimacs;
+use hodos::testkit::{tlc_trip_files, DimacsNy};
+use hodos::truth::replay::{open_catalog, replay_all, replay_settings, ReplayRegion};
+use hodos::truth::train::{split_by_time, train, TrainOptions};
+use hodos::truth::trips::{read_trips_file, ReadOptions, TripFormat};
+
+fn main() {
+    let ny = DimacsNy::find().expect("NY data");
+    let raw = dimacs::read(&ny.distance_gr, &ny.coordinates).expect("read NY");
+    let art = build_from_graph("dimacs:NY".into(), raw, 0.0, &mut Quiet).expect("build");
+    let dir = tempfile::tempdir().unwrap();
+    let artifact = dir.path().join("ny.hodos");
+    art.save(&artifact).unwrap();
+    drop(art);
+    let mut trips = Vec::new();
+    for f in tlc_trip_files().expect("trips") {
+        trips.extend(
+            read_trips_file(&f, TripFormat::Tlc, &ReadOptions::default())
+                .unwrap()
+                .0,
+        );
+    }
+    let region = ReplayRegion {
+        name: "ny".into(),
+        artifact,
+        historical: None,
+        time_zone: "America/New_York".into(),
+        coverage: None,
+        model: None,
+    };
+    let rt = tokio::runtime::Runtime::new().unwrap();
+    let outcomes = rt.block_on(async {
+        let cat = open_catalog(&[region], replay_settings(), &dir.path().join("state"))
+            .await
+            .unwrap();
+        replay_all(&cat, &trips, |_| {}).await
+    });
+    let d = TrainOptions::default();
+    let split = split_by_time(&outcomes, d.test_share, d.calibration_share);
+    let mut window: Vec<_> = split
+        .fit
+        .iter()
+        .chain(&split.calibration)
+        .map(|&i| outcomes[i].clone())
+        .collect();
+    window.sort_by_key(|o| o.leaving.timestamp_millis());
+    let sets: Vec<(&str, TrainOptions)> = vec![
+        ("default", d.clone()),
+        (
+            "depth4",
+            TrainOptions {
+                max_depth: 4,
+                ..d.clone()
+            },
+        ),
+        (
+            "depth6",
+            TrainOptions {
+                max_depth: 6,
+                ..d.clone()
+            },
+        ),
+        (
+            "leaf50",
+            TrainOptions {
+                min_leaf_weight: 50.0,
+                ..d.clone()
+            },
+        ),
+        (
+            "trees200_lr05",
+            TrainOptions {
+                iterations: 200,
+                learning_rate: 0.05,
+                ..d.clone()
+            },
+        ),
+        (
+            "trees60_lr15",
+            TrainOptions {
+                iterations: 60,
+                learning_rate: 0.15,
+                ..d.clone()
+            },
+        ),
+        (
+            "bands1",
+            TrainOptions {
+                bands: 1,
+                ..d.clone()
+            },
+        ),
+        (
+            "bands2",
+            TrainOptions {
+                bands: 2,
+                ..d.clone()
+            },
+        ),
+        (
+            "cal30",
+            TrainOptions {
+                calibration_share: 0.3,
+                ..d.clone()
+            },
+        ),
+    ];
+    for (name, o) in sets {
+        let o = TrainOptions {
+            test_share: 0.2,
+            ..o
+        };
+        let (_, rep) = train(&window, &o).unwrap();
+        let v = rep.figure("test", "corrected").unwrap();
+        let c = rep.figure("test", "constant_mape").unwrap();
+        println!(
+            "{name:<16} validation MAPE {:.1}% RMSLE {:.3} coverage {:.1}% (constant {:.1}%)",
+            v.mape,
+            v.rmsle,
+            v.coverage.unwrap() * 100.0,
+            c.mape
+        );
+    }
+}

@@ -1,0 +1,59 @@
+//! Step 7: a region's correction model applied to a finished answer, a
+//! trip or each cell of a matrix. Answers outside every region, and
+//! regions without a model, keep their uncorrected time.
+
+use super::{Answer, MatrixAnswer};
+use crate::engine::geo::LatLon;
+use crate::serving::correction::{correct, Query};
+use crate::serving::snapshot::RegionHandle;
+use std::sync::Arc;
+
+/// Corrects `a` (from `from` to `to`) with `handle`'s model, if it has one.
+pub(super) fn trip(handle: Option<&Arc<RegionHandle>>, from: LatLon, to: LatLon, a: &mut Answer) {
+    let Some(h) = handle else { return };
+    let guard = h.correction.guard();
+    let Some(model) = guard.as_ref() else { return };
+    let c = correct(
+        model,
+        &Query {
+            from,
+            to,
+            graph_s: a.eta_s,
+            graph_m: a.meters,
+            hour_of_week: a.hour_of_week,
+            tier: a.tier,
+            sources: a.sources,
+        },
+    );
+    a.eta_s = c.eta_s;
+    a.correction = Some(c);
+}
+
+/// Corrects every cell of `m` (rows `from`, columns `to`).
+pub(super) fn matrix(
+    handle: Option<&Arc<RegionHandle>>,
+    from: &[LatLon],
+    to: &[LatLon],
+    m: &mut MatrixAnswer,
+) {
+    let Some(h) = handle else { return };
+    let guard = h.correction.guard();
+    let Some(model) = guard.as_ref() else { return };
+    let cols = to.len();
+    for (k, cell) in m.cells.iter_mut().enumerate() {
+        let c = correct(
+            model,
+            &Query {
+                from: from[k / cols],
+                to: to[k % cols],
+                graph_s: cell.eta_s,
+                graph_m: cell.meters,
+                hour_of_week: m.hour_of_week,
+                tier: cell.tier,
+                sources: cell.sources,
+            },
+        );
+        cell.eta_s = c.eta_s;
+        cell.correction = Some(c);
+    }
+}
