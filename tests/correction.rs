@@ -385,3 +385,117 @@ async fn the_service_applies_swaps_refuses_and_keeps_models() {
     doubled(&s.eta(trip).await, 50);
     s.stop().await;
 }
+
+/// Completed trips posted to `/admin/trips`: each trip's duration is set
+/// to twice the ETA the service gives for it, so every recorded
+/// `ln(estimate / actual)` is ln ½ (and ln ¾ for the served ETA of 1.5×
+/// the answer), and the histograms' sums and counts are those multiples.
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn posted_trips_are_answered_and_their_error_recorded() {
+    let dir = tempfile::tempdir().unwrap();
+    let s = start(&config_text(
+        &city().artifact,
+        &dir.path().join("state"),
+        "",
+    ))
+    .await;
+    let leaving = chrono::Utc::now().to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
+    let mut csv = String::from(
+        "id,from_lat,from_lon,to_lat,to_lon,leaving,duration_s,distance_m,vehicle,served_eta_s,served_tier,served_snapshot\n",
+    );
+    let n = 6;
+    for k in 0..n {
+        let (a, b) = (at(0.1 + 0.1 * k as f64, 0.2), at(0.8, 0.3 + 0.1 * k as f64));
+        let v = s
+            .eta(json!({"from": point(a), "to": point(b), "leaving": leaving}))
+            .await;
+        let eta = v["eta_s"].as_f64().unwrap();
+        let tier = v["tier"].as_str().unwrap();
+        csv.push_str(&format!(
+            "t{k},{},{},{},{},{leaving},{},,,{},{tier},\n",
+            a.lat,
+            a.lon,
+            b.lat,
+            b.lon,
+            2.0 * eta,
+            1.5 * eta
+        ));
+    }
+    csv.push_str(&format!("bad,95,0.1,1,1,{leaving},100,,,,,\n"));
+    let r = client()
+        .post(format!("http://{}/admin/trips", s.admin))
+        .bearer_auth(TOKEN)
+        .header("content-type", "text/csv")
+        .body(csv)
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(r.status().as_u16(), 200);
+    let body: Value = r.json().await.unwrap();
+    assert_eq!(body["rows"], json!(n + 1), "{body}");
+    assert_eq!(body["recorded"], json!(n));
+    assert_eq!(body["refused"], json!(1));
+    assert_eq!(body["errors"][0]["line"], json!(n + 2));
+    approx(&body["mape"], 50.0, 0.05);
+
+    let text = client()
+        .get(format!("http://{}/metrics", s.public))
+        .send()
+        .await
+        .unwrap()
+        .text()
+        .await
+        .unwrap();
+    let scrape = prometheus_parse::Scrape::parse(text.lines().map(|l| Ok(l.to_string()))).unwrap();
+    let value = |name: &str, source: &str| -> (f64, f64) {
+        let mut sum = 0.0;
+        let mut count = 0.0;
+        for smp in &scrape.samples {
+            if smp.labels.get("region") != Some("testcity")
+                || smp.labels.get("source") != Some(source)
+            {
+                continue;
+            }
+            if smp.metric == format!("{name}_sum") {
+                if let prometheus_parse::Value::Untyped(v) | prometheus_parse::Value::Counter(v) =
+                    smp.value
+                {
+                    sum += v;
+                }
+            }
+            if smp.metric == format!("{name}_count") {
+                if let prometheus_parse::Value::Untyped(v) | prometheus_parse::Value::Counter(v) =
+                    smp.value
+                {
+                    count += v;
+                }
+            }
+        }
+        (sum, count)
+    };
+    let (sum, count) = value("hodos_trip_log_error", "replayed");
+    assert_eq!(count, n as f64, "{text}");
+    assert!((sum - n as f64 * 0.5f64.ln()).abs() < 1e-3, "sum {sum}");
+    let (sum, count) = value("hodos_trip_log_error", "served");
+    assert_eq!(count, n as f64);
+    assert!((sum - n as f64 * 0.75f64.ln()).abs() < 1e-3, "sum {sum}");
+    let (sum, _) = value("hodos_trip_abs_pct_error", "replayed");
+    assert!((sum - n as f64 * 0.5).abs() < 1e-3, "sum {sum}");
+    assert!(
+        text.contains("hodos_trips_recorded_total{region=\"testcity\",outcome=\"recorded\"} 6")
+            || text
+                .contains("hodos_trips_recorded_total{outcome=\"recorded\",region=\"testcity\"} 6"),
+        "{text}"
+    );
+
+    let r = client()
+        .post(format!("http://{}/admin/trips", s.admin))
+        .bearer_auth(TOKEN)
+        .header("content-type", "application/xml")
+        .body("x")
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(r.status().as_u16(), 415);
+    s.stop().await;
+}

@@ -1,7 +1,9 @@
 //! The Prometheus exporter: the process-wide recorder that renders the
 //! series [`crate::serving::metrics`] names and records, for `GET /metrics`.
 
-use crate::serving::metrics::{describe, CUSTOMIZATION, REQUEST_DURATION};
+use crate::serving::metrics::{
+    describe, CUSTOMIZATION, REQUEST_DURATION, TRIP_ABS_PCT_ERROR, TRIP_LOG_ERROR,
+};
 use metrics_exporter_prometheus::{Matcher, PrometheusBuilder, PrometheusHandle};
 use std::sync::OnceLock;
 
@@ -21,6 +23,22 @@ pub fn handle() -> PrometheusHandle {
                 b.set_buckets_for_metric(
                     Matcher::Full(CUSTOMIZATION.into()),
                     &[0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1.0, 2.5, 10.0],
+                )
+            })
+            .and_then(|b| {
+                // ln(estimate/actual): ±0.1 is about ±10 %, ±0.7 a factor of 2.
+                b.set_buckets_for_metric(
+                    Matcher::Full(TRIP_LOG_ERROR.into()),
+                    &[
+                        -1.5, -1.0, -0.7, -0.5, -0.3, -0.2, -0.1, -0.05, 0.0, 0.05, 0.1, 0.2, 0.3,
+                        0.5, 0.7, 1.0, 1.5,
+                    ],
+                )
+            })
+            .and_then(|b| {
+                b.set_buckets_for_metric(
+                    Matcher::Full(TRIP_ABS_PCT_ERROR.into()),
+                    &[0.05, 0.1, 0.2, 0.3, 0.5, 0.75, 1.0, 2.0, 5.0],
                 )
             })
             .expect("static bucket lists are non-empty")

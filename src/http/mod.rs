@@ -34,6 +34,7 @@ pub mod openapi;
 pub mod problem;
 pub mod routes;
 pub mod settings;
+pub mod trips;
 pub mod upload;
 
 use crate::serving::answer::Catalog;

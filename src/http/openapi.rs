@@ -171,6 +171,16 @@ pub fn admin_post_live() -> Value {
                       "422": problem_response("Rejected whole; the problem carries the validation report")}})
 }
 
+pub fn admin_post_trips() -> Value {
+    json!({"operationId": "adminPostTrips", "summary": "Post completed trips (our CSV with a header, or JSON lines); each is answered as hodos answers its departure now and its error recorded in hodos_trip_log_error and hodos_trip_abs_pct_error", "security": admin_auth(),
+        "requestBody": {"required": true, "content": {"text/csv": {"schema": {"type": "string"}}, "application/x-ndjson": {"schema": {"type": "string"}}}},
+        "responses": {"200": json_response("Recorded, with refused rows by line and the batch's error", "TripsRecorded"),
+                      "400": problem_response("The body could not be read as trips at all"),
+                      "401": problem_response("Missing or wrong token"),
+                      "413": problem_response("Body over `admin.max_upload_bytes`; nothing recorded"),
+                      "415": problem_response("Content type is neither text/csv nor application/x-ndjson")}})
+}
+
 pub fn admin_put_model() -> Value {
     json!({"operationId": "adminPutModel", "summary": "Upload a correction model written by `hodos train` (binary file); it serves at once and is saved in the region's state_dir", "security": admin_auth(),
         "parameters": region_param(),
@@ -360,6 +370,12 @@ fn schemas() -> Value {
         "HistoricalAccepted": {"type": "object", "required": ["generation", "outcome", "report", "version"],
             "properties": {"generation": {"type": "integer"}, "outcome": {"const": "accepted"},
                            "report": {"$ref": "#/components/schemas/TableReport"}, "version": {"type": ["string", "null"]}}},
+        "TripsRecorded": {"type": "object", "required": ["rows", "recorded", "refused", "errors", "mape", "median_ape", "rmsle", "coverage"],
+            "properties": {"rows": {"type": "integer", "minimum": 0}, "recorded": {"type": "integer", "minimum": 0}, "refused": {"type": "integer", "minimum": 0},
+                           "errors": {"type": "array", "items": {"type": "object", "required": ["line", "kind", "message"],
+                               "properties": {"line": {"type": "integer"}, "kind": {"type": "string"}, "message": {"type": "string"}}}},
+                           "mape": {"type": ["number", "null"], "description": "percent"}, "median_ape": {"type": ["number", "null"], "description": "percent"},
+                           "rmsle": {"type": ["number", "null"]}, "coverage": {"type": ["number", "null"], "description": "share inside the answer's interval; null without a correction model"}}},
         "ModelAccepted": {"type": "object", "required": ["outcome", "model_version", "trained_at", "trees", "features", "interval_levels", "train_window", "test_window", "figures"],
             "properties": {"outcome": {"const": "accepted"}, "model_version": {"type": "integer", "minimum": 0}, "trained_at": {"type": "string"},
                            "trees": {"type": "integer", "minimum": 0}, "features": {"type": "array", "items": {"type": "string"}},

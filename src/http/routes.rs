@@ -16,7 +16,7 @@
 //! the served document, the router's answers and `Allow` headers, and the
 //! scraped metric labels.
 
-use super::{admin, handlers, openapi, AppState};
+use super::{admin, handlers, openapi, trips, AppState};
 use axum::routing::{on, MethodFilter, MethodRouter};
 use serde_json::Value;
 
@@ -186,6 +186,15 @@ pub static ADMIN: &[Route] = &[
             verb: Verb::Get,
             handler: |f| on(f, admin::status),
             doc: openapi::admin_status,
+        }],
+    },
+    Route {
+        path: "/admin/trips",
+        answers: false,
+        ops: &[Operation {
+            verb: Verb::Post,
+            handler: |f| on(f, trips::post_trips),
+            doc: openapi::admin_post_trips,
         }],
     },
     Route {

@@ -27,6 +27,12 @@ pub const BUILD_INFO: &str = "hodos_build_info";
 /// The `region` label of answers outside every region.
 pub const NO_REGION: &str = "none";
 pub const STATE_FILES_REFUSED: &str = "hodos_state_files_refused_total";
+/// `ln(estimate / actual)` of completed trips posted to the admin API.
+pub const TRIP_LOG_ERROR: &str = "hodos_trip_log_error";
+/// `|estimate − actual| / actual` of the same trips.
+pub const TRIP_ABS_PCT_ERROR: &str = "hodos_trip_abs_pct_error";
+/// Completed trips posted, by region and outcome (`recorded`, `refused`).
+pub const TRIPS_RECORDED: &str = "hodos_trips_recorded_total";
 
 /// Describes every series (units and help text) to the installed recorder.
 pub fn describe() {
@@ -71,6 +77,18 @@ pub fn describe() {
     describe_gauge!(
         REGION_READY,
         "1 when the region serves from a graph, 0 when degraded."
+    );
+    describe_histogram!(
+        TRIP_LOG_ERROR,
+        "ln(estimate / actual) of posted completed trips, by region, tier and source (replayed: what hodos answers now for the trip's departure; served: the ETA the caller kept). Negative: too fast."
+    );
+    describe_histogram!(
+        TRIP_ABS_PCT_ERROR,
+        "|estimate - actual| / actual of posted completed trips (a fraction: 0.2 is 20 %), by region, tier and source."
+    );
+    describe_counter!(
+        TRIPS_RECORDED,
+        "Completed trips posted to the admin API, by region (none outside every region) and outcome (recorded, refused)."
     );
     describe_counter!(
         STATE_FILES_REFUSED,
