@@ -925,8 +925,10 @@ async fn metrics_geojson_and_openapi_parse_with_outside_tools() {
             &[
                 "/admin/openapi.json",
                 "/admin/status",
+                "/admin/trips",
                 "/admin/regions/{region}/historical",
                 "/admin/regions/{region}/live",
+                "/admin/regions/{region}/model",
                 "/admin/regions/{region}/reload",
             ][..],
         ),

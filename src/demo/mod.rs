@@ -4,6 +4,16 @@
 //!
 //! Everything here is invented for the demo; none of it is used by tests as
 //! a reference.
+//!
+//! # Layout
+//!
+//! - this file: the files ([`prepare`]), the historical profile, the live
+//!   feed and the curl lines;
+//! - `trips`: completed trips with true durations from speeds hodos does
+//!   not see exactly (the demo's ground truth for `hodos eval` and
+//!   `hodos train`).
+
+pub mod trips;
 
 use crate::config::Config;
 use crate::engine::build::{build, Progress, Source};
@@ -47,6 +57,8 @@ pub struct DemoFiles {
     pub dir: PathBuf,
     pub artifact: PathBuf,
     pub historical: PathBuf,
+    /// Completed trips of the last four weeks (our trips CSV).
+    pub trips: PathBuf,
     pub config: Config,
     /// The bridge the live feed slows down: its name and directed edges as
     /// (tail, head) external node ids.
@@ -123,6 +135,9 @@ pub fn prepare(
     art.save(&artifact)?;
     let historical = dir.join("quellhaven-historical.csv");
     crate::serving::speeds::write_atomic(&historical, historical_csv(&art.graph).as_bytes())?;
+    let trips = dir.join("quellhaven-trips.csv");
+    let csv = trips::completed_trips_csv(&art, trips::DEMO_TRIPS, 28, Utc::now(), DEMO_SEED);
+    crate::serving::speeds::write_atomic(&trips, csv.as_bytes())?;
     let (lo, hi) = art.graph.bbox();
     let pad = 0.01;
     let text = format!(
@@ -155,6 +170,7 @@ coverage = {{ bbox = [{a}, {b}, {c}, {d}] }}
         dir: dir.to_path_buf(),
         artifact,
         historical,
+        trips,
         config,
         bridge,
         south,
@@ -312,6 +328,30 @@ pub fn curl_lines(
     let _ = writeln!(
         out,
         "curl -s -X POST {a}/admin/regions/{region}/reload -H 'authorization: Bearer {token}'"
+    );
+    let (d, t) = (files.dir.display(), files.trips.display());
+    let (art, hist) = (files.artifact.display(), files.historical.display());
+    let _ = writeln!(
+        out,
+        "# completed trips of the last four weeks, with true durations the graph does not know
+# (from the source tree, `cargo run --release --` in place of `hodos`):
+# measure the answers, learn a correction, serve it, and post trips to be scored online"
+    );
+    let _ = writeln!(
+        out,
+        "hodos eval --trips {t} --artifact {art} --historical {hist} --out {d}/eval"
+    );
+    let _ = writeln!(
+        out,
+        "hodos train --trips {t} --artifact {art} --historical {hist} --out {d}/quellhaven.model --report {d}/eval-corrected"
+    );
+    let _ = writeln!(
+        out,
+        "curl -s -X PUT {a}/admin/regions/{region}/model -H 'authorization: Bearer {token}' -H 'content-type: application/octet-stream' --data-binary @{d}/quellhaven.model"
+    );
+    let _ = writeln!(
+        out,
+        "curl -s -X POST {a}/admin/trips -H 'authorization: Bearer {token}' -H 'content-type: text/csv' --data-binary @{t}"
     );
     out
 }
