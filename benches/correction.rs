@@ -75,6 +75,7 @@ fn model() -> CorrectionModel {
         },
         forest,
         interval: conformal(&g, &r, opts.interval, opts.bands),
+        compiled: Default::default(),
     };
     m.check().expect("a valid model");
     m.meta.model_version = 2;

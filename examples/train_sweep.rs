@@ -113,6 +113,42 @@ fn main() {
                 ..d.clone()
             },
         ),
+        (
+            "t60_lr15_d4",
+            TrainOptions {
+                iterations: 60,
+                learning_rate: 0.15,
+                max_depth: 4,
+                ..d.clone()
+            },
+        ),
+        (
+            "t40_lr2_d4",
+            TrainOptions {
+                iterations: 40,
+                learning_rate: 0.2,
+                max_depth: 4,
+                ..d.clone()
+            },
+        ),
+        (
+            "t30_lr25_d3",
+            TrainOptions {
+                iterations: 30,
+                learning_rate: 0.25,
+                max_depth: 3,
+                ..d.clone()
+            },
+        ),
+        (
+            "t20_lr3_d3",
+            TrainOptions {
+                iterations: 20,
+                learning_rate: 0.3,
+                max_depth: 3,
+                ..d.clone()
+            },
+        ),
     ];
     for (name, o) in sets {
         let o = TrainOptions {

@@ -22,7 +22,9 @@ use hodos::config::Config;
 use hodos::http::{bind, serve, AppState};
 use hodos::serving::correction::features::{N, NAMES};
 use hodos::serving::correction::file;
-use hodos::serving::correction::model::{CorrectionModel, Forest, Interval, ModelMeta, Node};
+use hodos::serving::correction::model::{
+    Compiled, CorrectionModel, Forest, Interval, ModelMeta, Node,
+};
 use hodos::truth::train::{booster_predict, conformal, fit_booster, forest_of, TrainOptions};
 use serde_json::{json, Value};
 use std::net::SocketAddr;
@@ -70,6 +72,7 @@ fn copied_trees_predict_what_the_library_predicts() {
     let b = fit_booster(&refs, &y, &opts).unwrap();
     let forest = forest_of(&b).unwrap();
     assert_eq!(forest.roots.len(), opts.iterations);
+    let compiled = Compiled::of(&forest).expect("default trees compile");
     let (test, test_y) = sample(2000, 77);
     let trefs: Vec<&[f32]> = test.iter().map(|r| &r[..]).collect();
     let want = booster_predict(&b, &trefs);
@@ -78,6 +81,9 @@ fn copied_trees_predict_what_the_library_predicts() {
         missing += usize::from(x[5].is_nan());
         let got = forest.predict(x);
         assert!((got - w).abs() < 1e-9, "hodos {got} vs forust-ml {w}");
+        // The compiled layout the service applies predicts the same.
+        let fast = forest.base + compiled.sum(x);
+        assert!((fast - w).abs() < 1e-9, "compiled {fast} vs forust-ml {w}");
     }
     assert!(missing > 100, "the check covers missing values ({missing})");
     // And the fit is a fit: the held-out error is near the noise.
@@ -167,6 +173,7 @@ fn doubling_model(version: u64) -> CorrectionModel {
                 [(0.95f64).ln(), (1.05f64).ln()],
             ],
         },
+        compiled: Default::default(),
     }
 }
 

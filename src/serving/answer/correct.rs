@@ -4,7 +4,7 @@
 
 use super::{Answer, MatrixAnswer};
 use crate::engine::geo::LatLon;
-use crate::serving::correction::{correct, Query};
+use crate::serving::correction::{correct, CorrectionModel, Query};
 use crate::serving::snapshot::RegionHandle;
 use std::sync::Arc;
 
@@ -29,16 +29,35 @@ pub(super) fn trip(handle: Option<&Arc<RegionHandle>>, from: LatLon, to: LatLon,
     a.correction = Some(c);
 }
 
+/// Matrices with more cells are corrected on the blocking pool: a model
+/// costs about a microsecond per cell, and a request worker must not be
+/// held for milliseconds.
+const INLINE_CELLS: usize = 256;
+
 /// Corrects every cell of `m` (rows `from`, columns `to`).
-pub(super) fn matrix(
+pub(super) async fn matrix(
     handle: Option<&Arc<RegionHandle>>,
     from: &[LatLon],
     to: &[LatLon],
-    m: &mut MatrixAnswer,
-) {
-    let Some(h) = handle else { return };
-    let guard = h.correction.guard();
-    let Some(model) = guard.as_ref() else { return };
+    mut m: MatrixAnswer,
+) -> MatrixAnswer {
+    let Some(model) = handle.and_then(|h| h.correction.current()) else {
+        return m;
+    };
+    if m.cells.len() <= INLINE_CELLS {
+        cells(&model, from, to, &mut m);
+        return m;
+    }
+    let (from, to) = (from.to_vec(), to.to_vec());
+    tokio::task::spawn_blocking(move || {
+        cells(&model, &from, &to, &mut m);
+        m
+    })
+    .await
+    .expect("correcting cells does not panic (the model was checked on load)")
+}
+
+fn cells(model: &CorrectionModel, from: &[LatLon], to: &[LatLon], m: &mut MatrixAnswer) {
     let cols = to.len();
     for (k, cell) in m.cells.iter_mut().enumerate() {
         let c = correct(

@@ -156,8 +156,8 @@ async fn region_matrix(
     deadline: Instant,
     admitted: bool,
 ) -> MatrixAnswer {
-    let mut m = region_matrix_inner(cat, handle, from, to, depart, deadline, admitted).await;
-    super::correct::matrix(handle, from, to, &mut m);
+    let m = region_matrix_inner(cat, handle, from, to, depart, deadline, admitted).await;
+    let mut m = super::correct::matrix(handle, from, to, m).await;
     if let Some(idx) = handle.and_then(|h| cat.index_of(h)) {
         for c in &mut m.cells {
             c.region = Some(idx);
