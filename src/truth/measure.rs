@@ -296,7 +296,11 @@ fn pair(o: &TripOutcome, e: Estimate) -> Pair {
     Pair {
         estimate_s: e.of(o),
         actual_s: o.actual_s,
-        interval_s: o.interval_s,
+        // An interval lies around the served ETA, not the graph answer.
+        interval_s: match e {
+            Estimate::Served => o.interval_s,
+            Estimate::Graph => None,
+        },
     }
 }
 

@@ -213,7 +213,11 @@ pub fn figures(outcomes: &[TripOutcome], estimate: Estimate) -> Figures {
         grid: grid(&p),
         calibration: calibration_deciles(&p),
         by_hour: by_hour(outcomes, estimate),
-        coverage: coverage(outcomes),
+        // The intervals lie around the served (corrected) ETA.
+        coverage: match estimate {
+            Estimate::Served => coverage(outcomes),
+            Estimate::Graph => Vec::new(),
+        },
     }
 }
 
