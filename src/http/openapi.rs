@@ -239,7 +239,7 @@ pub fn admin_document() -> Value {
         "info": {
             "title": "hodos admin API",
             "version": env!("CARGO_PKG_VERSION"),
-            "description": "Operator API on the admin listener: upload historical tables, post live observations, reload a region, read per-region status. Every operation needs `Authorization: Bearer <token>`.",
+            "description": "Operator API on the admin listener: upload historical tables and correction models, post live observations and completed trips, reload a region, read per-region status. Every operation needs `Authorization: Bearer <token>`.",
             "license": {"name": LICENSE, "identifier": LICENSE}
         },
         "security": admin_auth(),
