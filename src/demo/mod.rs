@@ -19,7 +19,6 @@ use crate::config::Config;
 use crate::engine::build::{build, Progress, Source};
 use crate::engine::graph::{RoadClass, RoadGraph};
 use crate::engine::import::synthetic::{generate_with_info, CityInfo};
-use crate::serving::snapshot::RegionHandle;
 use chrono::Utc;
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
@@ -59,6 +58,9 @@ pub struct DemoFiles {
     pub historical: PathBuf,
     /// Completed trips of the last four weeks (our trips CSV).
     pub trips: PathBuf,
+    /// The hidden world the trips are driven in (the live feed's probes
+    /// and trips come from it too).
+    pub truth: Arc<trips::Truth>,
     pub config: Config,
     /// The bridge the live feed slows down: its name and directed edges as
     /// (tail, head) external node ids.
@@ -135,8 +137,10 @@ pub fn prepare(
     art.save(&artifact)?;
     let historical = dir.join("quellhaven-historical.csv");
     crate::serving::speeds::write_atomic(&historical, historical_csv(&art.graph).as_bytes())?;
+    let bridge = central_bridge(&raw, &info);
+    let truth = trips::Truth::new(&art, &bridge.1, DEMO_SEED);
     let trips = dir.join("quellhaven-trips.csv");
-    let csv = trips::completed_trips_csv(&art, trips::DEMO_TRIPS, 28, Utc::now(), DEMO_SEED);
+    let csv = trips::completed_trips_csv(&truth, trips::DEMO_TRIPS, 28, Utc::now(), DEMO_SEED);
     crate::serving::speeds::write_atomic(&trips, csv.as_bytes())?;
     let (lo, hi) = art.graph.bbox();
     let pad = 0.01;
@@ -164,13 +168,13 @@ coverage = {{ bbox = [{a}, {b}, {c}, {d}] }}
         d = hi.lon + pad,
     );
     let config = Config::parse(&text).map_err(DemoError::Config)?;
-    let bridge = central_bridge(&raw, &info);
     let (south, north) = banks(&art.graph, &info);
     Ok(DemoFiles {
         dir: dir.to_path_buf(),
         artifact,
         historical,
         trips,
+        truth: Arc::new(truth),
         config,
         bridge,
         south,
@@ -220,28 +224,93 @@ fn banks(
     (south.1, north.1)
 }
 
+/// Probe vehicles observe this share of the segments each round.
+const PROBE_SHARE: f64 = 0.25;
+/// Trips completed each round.
+const TRIPS_PER_ROUND: usize = 40;
+
 /// Posts a simulated live feed until `stop` resolves: every 2 s, the bridge
-/// at 8 km/h for a minute, then at its free-flow speed for a minute.
+/// at 8 km/h for a minute, then at its free-flow speed for a minute; every
+/// 10 s, probe vehicles' true speeds on a quarter of the segments (the
+/// live tier), and 40 trips completed in the hidden world
+/// ([`trips::Truth`]), leaving now, answered and scored as
+/// `POST /admin/trips` scores them (`hodos_trip_*` by tier).
 pub async fn live_feed(
-    region: Arc<RegionHandle>,
+    catalog: Arc<crate::serving::answer::Catalog>,
+    truth: Arc<trips::Truth>,
     bridge: Vec<(u64, u64)>,
     stop: impl std::future::Future<Output = ()>,
 ) {
+    use rand::{Rng, SeedableRng};
     tokio::pin!(stop);
+    let Some(region) = catalog.regions.first().cloned() else {
+        return;
+    };
     let started = std::time::Instant::now();
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(DEMO_SEED);
+    let mut round = 0u64;
     loop {
         let jammed = (started.elapsed().as_secs() / 60) % 2 == 0;
-        let speed = if jammed { 8.0 } else { 45.0 };
-        let now = Utc::now().to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
+        let speed = if jammed { trips::JAM_KMH } else { 45.0 };
+        let now = Utc::now();
+        let stamp = now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
         let batch: Vec<serde_json::Value> = bridge
             .iter()
-            .map(|(a, b)| serde_json::json!({"tail": a, "head": b, "kmh": speed, "observed_at": now, "samples": 5}))
+            .map(|(a, b)| serde_json::json!({"tail": a, "head": b, "kmh": speed, "observed_at": stamp, "samples": 5}))
             .collect();
         if let Ok(body) = serde_json::to_vec(&batch) {
             if let Err(e) = region.put_live(&body, false).await {
                 tracing::warn!(error = %e, "demo live feed batch refused");
             }
         }
+        if round % 5 == 0 {
+            let speeds = truth.speeds_at(now, jammed);
+            let mut probes: Vec<serde_json::Value> = Vec::new();
+            for (e, &v) in speeds.iter().enumerate() {
+                if rng.random::<f64>() >= PROBE_SHARE {
+                    continue;
+                }
+                let noise = 1.0 + 0.1 * (rng.random::<f64>() - 0.5);
+                let kmh = (f64::from(v) * noise).max(1.0);
+                probes.push(serde_json::json!({"segment": e, "kmh": (kmh * 10.0).round() / 10.0, "observed_at": stamp, "samples": 2}));
+            }
+            if let Ok(body) = serde_json::to_vec(&probes) {
+                if let Err(e) = region.put_live(&body, false).await {
+                    tracing::warn!(error = %e, "demo probe batch refused");
+                }
+            }
+            let done = {
+                let truth = truth.clone();
+                let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(DEMO_SEED + round);
+                tokio::task::spawn_blocking(move || {
+                    let mut q = truth.query();
+                    let mut out = Vec::new();
+                    while out.len() < TRIPS_PER_ROUND {
+                        let (a, b) = truth.ends(&mut rng);
+                        if let Some((duration_s, meters)) =
+                            truth.drive(&mut q, &mut rng, a, b, now, jammed)
+                        {
+                            out.push(crate::truth::trips::TripRecord {
+                                trip_id: None,
+                                from: a,
+                                to: b,
+                                leaving: now.fixed_offset(),
+                                duration_s,
+                                distance_m: Some(meters),
+                                vehicle: None,
+                                served: None,
+                            });
+                        }
+                    }
+                    out
+                })
+                .await
+            };
+            if let Ok(done) = done {
+                crate::http::trips::record(&catalog, &done).await;
+            }
+        }
+        round += 1;
         tokio::select! {
             _ = &mut stop => break,
             _ = tokio::time::sleep(Duration::from_secs(2)) => {},

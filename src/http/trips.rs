@@ -12,10 +12,13 @@
 
 use super::problem::ApiError;
 use super::AppState;
+use crate::serving::answer::Catalog;
 use crate::serving::metrics::{NO_REGION, TRIPS_RECORDED, TRIP_ABS_PCT_ERROR, TRIP_LOG_ERROR};
 use crate::truth::measure::{summarize, Pair};
 use crate::truth::replay::replay_trip;
-use crate::truth::trips::{read_trips, ReadOptions, TripFormat, TripReport, TripRowError};
+use crate::truth::trips::{
+    read_trips, ReadOptions, TripFormat, TripRecord, TripReport, TripRowError,
+};
 use axum::body::Body;
 use axum::extract::{Request, State};
 use axum::http::header;
@@ -41,7 +44,7 @@ pub struct TripsRecorded {
     pub coverage: Option<f64>,
 }
 
-fn record(region: &str, tier: &'static str, source: &'static str, estimate: f64, actual: f64) {
+fn record_one(region: &str, tier: &'static str, source: &'static str, estimate: f64, actual: f64) {
     if !(estimate > 0.0 && actual > 0.0) {
         return;
     }
@@ -52,6 +55,30 @@ fn record(region: &str, tier: &'static str, source: &'static str, estimate: f64,
     ];
     metrics::histogram!(TRIP_LOG_ERROR, &labels).record((estimate / actual).ln());
     metrics::histogram!(TRIP_ABS_PCT_ERROR, &labels).record((estimate - actual).abs() / actual);
+}
+
+/// Answers each trip at its departure through `cat` and records its
+/// error (and that of the ETA the caller kept, if any); returns each
+/// answer beside its actual duration.
+pub async fn record(cat: &Catalog, trips: &[TripRecord]) -> Vec<Pair> {
+    let mut pairs = Vec::with_capacity(trips.len());
+    for t in trips {
+        let o = replay_trip(cat, t).await;
+        let region = o.region.as_deref().unwrap_or(NO_REGION);
+        metrics::counter!(TRIPS_RECORDED, "region" => region.to_string(), "outcome" => "recorded")
+            .increment(1);
+        record_one(region, o.tier.as_str(), "replayed", o.eta_s, o.actual_s);
+        if let Some(s) = &t.served {
+            let tier = s.tier.map_or("unknown", |t| t.as_str());
+            record_one(region, tier, "served", s.eta_s, o.actual_s);
+        }
+        pairs.push(Pair {
+            estimate_s: o.eta_s,
+            actual_s: o.actual_s,
+            interval_s: o.interval_s,
+        });
+    }
+    pairs
 }
 
 pub(super) async fn post_trips(
@@ -86,23 +113,7 @@ pub(super) async fn post_trips(
     .await
     .map_err(|_| ApiError::Internal)?
     .map_err(|e| ApiError::Malformed(e.to_string()))?;
-    let mut pairs = Vec::with_capacity(trips.len());
-    for t in &trips {
-        let o = replay_trip(&state.catalog, t).await;
-        let region = o.region.as_deref().unwrap_or(NO_REGION);
-        metrics::counter!(TRIPS_RECORDED, "region" => region.to_string(), "outcome" => "recorded")
-            .increment(1);
-        record(region, o.tier.as_str(), "replayed", o.eta_s, o.actual_s);
-        if let Some(s) = &t.served {
-            let tier = s.tier.map_or("unknown", |t| t.as_str());
-            record(region, tier, "served", s.eta_s, o.actual_s);
-        }
-        pairs.push(Pair {
-            estimate_s: o.eta_s,
-            actual_s: o.actual_s,
-            interval_s: o.interval_s,
-        });
-    }
+    let pairs = record(&state.catalog, &trips).await;
     if report.refused > 0 {
         metrics::counter!(TRIPS_RECORDED, "region" => NO_REGION, "outcome" => "refused")
             .increment(report.refused);
