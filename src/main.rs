@@ -34,6 +34,19 @@ enum Command {
     Build(BuildArgs),
     /// Describe an artifact.
     Info { file: PathBuf },
+    /// Write every directed road segment of an artifact (hodos segment id,
+    /// way and end node ids, length, class, default speed, geometry), the
+    /// ids a speed table names, as CSV or GeoJSON (RFC 7946).
+    Segments {
+        file: PathBuf,
+        /// Output file; `.geojson` or `.json` writes GeoJSON, anything else
+        /// CSV (unless --format says).
+        #[arg(long)]
+        out: PathBuf,
+        /// csv or geojson.
+        #[arg(long)]
+        format: Option<String>,
+    },
     /// Travel time between two coordinates on an artifact (free-flow).
     Eta {
         file: PathBuf,
@@ -241,6 +254,7 @@ fn main() -> ExitCode {
     }) {
         Command::Build(args) => cmd_build(args),
         Command::Info { file } => cmd_info(&file),
+        Command::Segments { file, out, format } => cmd_segments(&file, &out, format.as_deref()),
         Command::Eta {
             file,
             from,
@@ -339,6 +353,40 @@ fn print_summary(art: &Artifact) {
             b.lo_km, hi, b.circuity, b.speed_kmh, b.count
         );
     }
+}
+
+fn cmd_segments(
+    file: &std::path::Path,
+    out: &std::path::Path,
+    format: Option<&str>,
+) -> anyhow::Result<()> {
+    use hodos::engine::segments::{write_csv, write_geojson};
+    let ext = out
+        .extension()
+        .and_then(|e| e.to_str())
+        .unwrap_or("")
+        .to_ascii_lowercase();
+    let geojson = match format {
+        Some("geojson") => true,
+        Some("csv") => false,
+        Some(other) => anyhow::bail!("--format {other:?}: expected csv or geojson"),
+        None => ext == "geojson" || ext == "json",
+    };
+    let art = Artifact::load(file)?;
+    let f = std::fs::File::create(out).with_context(|| format!("creating {}", out.display()))?;
+    let w = std::io::BufWriter::with_capacity(1 << 20, f);
+    let n = if geojson {
+        write_geojson(&art.graph, w)
+    } else {
+        write_csv(&art.graph, w)
+    }
+    .with_context(|| format!("writing {}", out.display()))?;
+    println!(
+        "wrote {n} segments to {} ({})",
+        out.display(),
+        if geojson { "GeoJSON" } else { "CSV" }
+    );
+    Ok(())
 }
 
 fn cmd_info(file: &std::path::Path) -> anyhow::Result<()> {

@@ -15,6 +15,8 @@
 //! - [`region`]: the query front door: coordinates → ETAs, routes and
 //!   coordinate matrices for one metric.
 //! - [`build`], [`artifact`]: the offline pipeline and its file format.
+//! - [`segments`]: every directed segment as CSV or GeoJSON, for speed
+//!   tables to name (written to any writer).
 //! - `testing` (unit tests only): a small synthetic city and petgraph's
 //!   Dijkstra as the reference.
 //!
@@ -32,6 +34,7 @@ pub mod import;
 pub mod metric;
 pub mod order;
 pub mod region;
+pub mod segments;
 pub mod snap;
 #[cfg(test)]
 pub(crate) mod testing;
