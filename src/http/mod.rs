@@ -26,6 +26,7 @@
 
 pub mod admin;
 pub mod body_deadline;
+pub mod dashboard;
 pub mod dto;
 pub mod exporter;
 pub mod handlers;

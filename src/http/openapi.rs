@@ -128,6 +128,26 @@ pub fn metrics() -> Value {
         "responses": {"200": {"description": "Metrics", "content": {"text/plain": {"schema": {"type": "string"}}}}}})
 }
 
+pub fn dashboard() -> Value {
+    json!({"operationId": "dashboard", "summary": "The live dashboard (an HTML page that polls /dashboard/data)",
+        "responses": {"200": {"description": "The page", "content": {"text/html": {"schema": {"type": "string"}}}}}})
+}
+
+pub fn dashboard_data() -> Value {
+    json!({"operationId": "dashboardData", "summary": "The counters the dashboard polls: running totals since start, read from the registry /metrics renders",
+        "responses": {"200": json_response("A snapshot", "DashboardSnapshot")}})
+}
+
+pub fn dashboard_uplot_js() -> Value {
+    json!({"operationId": "dashboardUplotJs", "summary": "The dashboard's chart library (uPlot 1.6.32, MIT), vendored",
+        "responses": {"200": {"description": "Script", "content": {"text/javascript": {"schema": {"type": "string"}}}}}})
+}
+
+pub fn dashboard_uplot_css() -> Value {
+    json!({"operationId": "dashboardUplotCss", "summary": "The chart library's style sheet",
+        "responses": {"200": {"description": "Style sheet", "content": {"text/css": {"schema": {"type": "string"}}}}}})
+}
+
 pub fn openapi() -> Value {
     json!({"operationId": "openapi", "summary": "This document",
         "responses": {"200": {"description": "OpenAPI 3.1", "content": {"application/json": {"schema": {"type": "object"}}}}}})
@@ -370,6 +390,18 @@ fn schemas() -> Value {
         "HistoricalAccepted": {"type": "object", "required": ["generation", "outcome", "report", "version"],
             "properties": {"generation": {"type": "integer"}, "outcome": {"const": "accepted"},
                            "report": {"$ref": "#/components/schemas/TableReport"}, "version": {"type": ["string", "null"]}}},
+        "DashboardSnapshot": {"type": "object", "required": ["at_ms", "answers", "fallbacks", "latency", "live_age_s", "region_ready", "reloads", "trips"],
+            "properties": {"at_ms": {"type": "integer"},
+                           "answers": {"type": "object", "additionalProperties": {"type": "object", "additionalProperties": {"type": "number"}}, "description": "by region, then tier"},
+                           "fallbacks": {"type": "object", "additionalProperties": {"type": "object", "additionalProperties": {"type": "number"}}, "description": "by region, then reason"},
+                           "latency": {"type": "object", "required": ["count", "sum_s", "buckets"],
+                               "properties": {"count": {"type": "number"}, "sum_s": {"type": "number"},
+                                              "buckets": {"type": "array", "items": {"type": "array", "minItems": 2, "maxItems": 2, "prefixItems": [{"type": ["number", "null"]}, {"type": "number"}]}}}},
+                           "live_age_s": {"type": "object", "additionalProperties": {"type": "number"}},
+                           "region_ready": {"type": "object", "additionalProperties": {"type": "number"}},
+                           "reloads": {"type": "object", "additionalProperties": {"type": "number"}},
+                           "trips": {"type": "object", "additionalProperties": {"type": "object", "required": ["count", "ape_sum"],
+                               "properties": {"count": {"type": "number"}, "ape_sum": {"type": "number"}}}}}},
         "TripsRecorded": {"type": "object", "required": ["rows", "recorded", "refused", "errors", "mape", "median_ape", "rmsle", "coverage"],
             "properties": {"rows": {"type": "integer", "minimum": 0}, "recorded": {"type": "integer", "minimum": 0}, "refused": {"type": "integer", "minimum": 0},
                            "errors": {"type": "array", "items": {"type": "object", "required": ["line", "kind", "message"],

@@ -16,7 +16,7 @@
 //! the served document, the router's answers and `Allow` headers, and the
 //! scraped metric labels.
 
-use super::{admin, handlers, openapi, trips, AppState};
+use super::{admin, dashboard, handlers, openapi, trips, AppState};
 use axum::routing::{on, MethodFilter, MethodRouter};
 use serde_json::Value;
 
@@ -155,6 +155,42 @@ pub static PUBLIC: &[Route] = &[
             verb: Verb::Get,
             handler: |f| on(f, handlers::metrics_text),
             doc: openapi::metrics,
+        }],
+    },
+    Route {
+        path: "/dashboard",
+        answers: false,
+        ops: &[Operation {
+            verb: Verb::Get,
+            handler: |f| on(f, dashboard::page),
+            doc: openapi::dashboard,
+        }],
+    },
+    Route {
+        path: "/dashboard/data",
+        answers: false,
+        ops: &[Operation {
+            verb: Verb::Get,
+            handler: |f| on(f, dashboard::data),
+            doc: openapi::dashboard_data,
+        }],
+    },
+    Route {
+        path: "/dashboard/uplot.js",
+        answers: false,
+        ops: &[Operation {
+            verb: Verb::Get,
+            handler: |f| on(f, dashboard::uplot_js),
+            doc: openapi::dashboard_uplot_js,
+        }],
+    },
+    Route {
+        path: "/dashboard/uplot.css",
+        answers: false,
+        ops: &[Operation {
+            verb: Verb::Get,
+            handler: |f| on(f, dashboard::uplot_css),
+            doc: openapi::dashboard_uplot_css,
         }],
     },
     Route {
