@@ -16,6 +16,8 @@ pub const REQUEST_DURATION: &str = "hodos_request_duration_seconds";
 pub const ANSWERS: &str = "hodos_answers_total";
 pub const FALLBACKS: &str = "hodos_fallbacks_total";
 pub const LIVE_AGE: &str = "hodos_live_data_age_seconds";
+/// Age of the serving historical table (since it was loaded or uploaded).
+pub const HISTORICAL_AGE: &str = "hodos_historical_data_age_seconds";
 pub const SNAPSHOT_GENERATION: &str = "hodos_snapshot_generation";
 pub const CUSTOMIZATION: &str = "hodos_customization_seconds";
 pub const RELOADS: &str = "hodos_reloads_total";
@@ -46,6 +48,10 @@ pub fn describe() {
     describe_counter!(
         FALLBACKS,
         "Answers below the live tier, by route and fallback reason."
+    );
+    describe_gauge!(
+        HISTORICAL_AGE,
+        "Seconds since the serving historical table was loaded or uploaded, by region."
     );
     describe_gauge!(
         LIVE_AGE,

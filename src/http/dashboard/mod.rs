@@ -95,6 +95,8 @@ pub struct Snapshot {
     pub latency: Latency,
     /// Age of the newest live observation, seconds, by region.
     pub live_age_s: BTreeMap<String, f64>,
+    /// Age of the serving historical table, seconds, by region.
+    pub historical_age_s: BTreeMap<String, f64>,
     /// 1 when the region serves from a graph.
     pub region_ready: BTreeMap<String, f64>,
     /// Table and reload outcomes (accepted, rejected, failed, unchanged).
@@ -168,6 +170,9 @@ pub fn snapshot(text: &str) -> Snapshot {
             ),
             n if n == m::LIVE_AGE => {
                 s.live_age_s.insert(region.into(), v);
+            }
+            n if n == m::HISTORICAL_AGE => {
+                s.historical_age_s.insert(region.into(), v);
             }
             n if n == m::REGION_READY => {
                 s.region_ready.insert(region.into(), v);

@@ -327,9 +327,14 @@ impl RegionHandle {
         }
     }
 
-    /// Sets the live-age gauge from the serving blend's newest observation.
+    /// Sets the live-age gauge from the serving blend's newest observation,
+    /// and the historical-age gauge from when the serving table was taken.
     fn record_live_age(&self) {
         if let Some(snap) = self.snapshot() {
+            if let Some(t) = snap.historical_at {
+                metrics::gauge!(m::HISTORICAL_AGE, "region" => self.name.clone())
+                    .set(age_s(Utc::now(), t));
+            }
             if let Some(l) = &snap.live {
                 if let Some(n) = l.newest_observed_at {
                     metrics::gauge!(m::LIVE_AGE, "region" => self.name.clone())
