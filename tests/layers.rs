@@ -34,7 +34,7 @@ fn engine_rank(module: &str) -> Option<u8> {
     Some(match module {
         "geo" => 0,
         "graph" => 1,
-        "import" | "order" | "snap" => 2,
+        "import" | "order" | "snap" | "segments" => 2,
         "cch" => 3,
         "metric" => 4,
         "calibration" => 5,
