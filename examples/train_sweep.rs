@@ -6,44 +6,12 @@
 //!
 //! `cargo run --release --example train_sweep` (needs `$HODOS_DATA_DIR`).
 
-use hodos::engine::build::{build_from_graph, Quiet};
-use hodos::engine::import::dimacs;
-use hodos::testkit::{tlc_trip_files, DimacsNy};
-use hodos::truth::replay::{open_catalog, replay_all, replay_settings, ReplayRegion};
+use hodos::testkit::replayed_tlc_on_ny;
 use hodos::truth::train::{split_by_time, train, TrainOptions};
-use hodos::truth::trips::{read_trips_file, ReadOptions, TripFormat};
 
 fn main() {
-    let ny = DimacsNy::find().expect("NY data");
-    let raw = dimacs::read(&ny.distance_gr, &ny.coordinates).expect("read NY");
-    let art = build_from_graph("dimacs:NY".into(), raw, 0.0, &mut Quiet).expect("build");
     let dir = tempfile::tempdir().unwrap();
-    let artifact = dir.path().join("ny.hodos");
-    art.save(&artifact).unwrap();
-    drop(art);
-    let mut trips = Vec::new();
-    for f in tlc_trip_files().expect("trips") {
-        trips.extend(
-            read_trips_file(&f, TripFormat::Tlc, &ReadOptions::default())
-                .unwrap()
-                .0,
-        );
-    }
-    let region = ReplayRegion {
-        name: "ny".into(),
-        artifact,
-        historical: None,
-        time_zone: "America/New_York".into(),
-        coverage: None,
-        model: None,
-    };
-    let rt = tokio::runtime::Runtime::new().unwrap();
-    let outcomes = rt.block_on(async {
-        let cat = open_catalog(&[region], replay_settings(), &dir.path().join("state"))
-            .await
-            .unwrap();
-        replay_all(&cat, &trips, |_| {}).await
-    });
+    let outcomes = replayed_tlc_on_ny(dir.path()).expect("the NY data and trips");
     let d = TrainOptions::default();
     let split = split_by_time(&outcomes, d.test_share, d.calibration_share);
     let mut window: Vec<_> = split

@@ -565,7 +565,7 @@ fn cmd_eval(args: EvalArgs) -> anyhow::Result<()> {
 fn cmd_train(args: TrainArgs) -> anyhow::Result<()> {
     use hodos::serving::correction::file;
     use hodos::truth::report::Report;
-    use hodos::truth::train::{corrected, split_by_time, train, TrainOptions};
+    use hodos::truth::train::{corrected, train, TrainOptions};
     let levels: Vec<f64> = args
         .interval
         .split(',')
@@ -629,7 +629,7 @@ fn cmd_train(args: TrainArgs) -> anyhow::Result<()> {
         bytes.len()
     );
     if let Some(dir) = &args.report {
-        let split = split_by_time(&outcomes, opts.test_share, opts.calibration_share);
+        let split = &rep.split;
         anyhow::ensure!(
             !split.test.is_empty(),
             "--report needs test trips (--test-share above 0)"

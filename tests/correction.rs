@@ -16,10 +16,9 @@
 
 mod common;
 
+use common::running::{client, start, Running};
 use common::service::{at, city, config_text, TOKEN};
 use common::SplitMix64;
-use hodos::config::Config;
-use hodos::http::{bind, serve, AppState};
 use hodos::serving::correction::features::{N, NAMES};
 use hodos::serving::correction::file;
 use hodos::serving::correction::model::{
@@ -27,8 +26,6 @@ use hodos::serving::correction::model::{
 };
 use hodos::truth::train::{booster_predict, conformal, fit_booster, forest_of, TrainOptions};
 use serde_json::{json, Value};
-use std::net::SocketAddr;
-use std::time::Duration;
 
 /// A uniform draw in [0, 1) (the top 53 bits).
 fn unit(rng: &mut SplitMix64) -> f64 {
@@ -177,54 +174,15 @@ fn doubling_model(version: u64) -> CorrectionModel {
     }
 }
 
-struct Server {
-    public: SocketAddr,
-    admin: SocketAddr,
-    stop: Option<tokio::sync::oneshot::Sender<()>>,
-    task: tokio::task::JoinHandle<()>,
+/// The calls these tests make of a running service.
+trait Calls {
+    async fn eta(&self, body: Value) -> Value;
+    async fn matrix(&self, body: Value) -> Value;
+    async fn put_model(&self, bytes: Vec<u8>) -> (u16, Value);
+    async fn status(&self) -> Value;
 }
 
-async fn start(text: &str) -> Server {
-    let cfg = Config::parse(text).unwrap();
-    cfg.validate().unwrap();
-    let state = AppState::open(cfg).await;
-    let p = bind("127.0.0.1:0".parse().unwrap()).await.unwrap();
-    let a = bind("127.0.0.1:0".parse().unwrap()).await.unwrap();
-    let (public, admin) = (p.local_addr().unwrap(), a.local_addr().unwrap());
-    let (tx, rx) = tokio::sync::oneshot::channel::<()>();
-    let task = tokio::spawn(async move {
-        serve(state, p, a, async move {
-            let _ = rx.await;
-        })
-        .await
-        .unwrap();
-    });
-    Server {
-        public,
-        admin,
-        stop: Some(tx),
-        task,
-    }
-}
-
-fn client() -> reqwest::Client {
-    reqwest::Client::builder()
-        .timeout(Duration::from_secs(30))
-        .build()
-        .unwrap()
-}
-
-impl Server {
-    async fn stop(mut self) {
-        if let Some(tx) = self.stop.take() {
-            let _ = tx.send(());
-        }
-        tokio::time::timeout(Duration::from_secs(20), self.task)
-            .await
-            .expect("drains in time")
-            .unwrap();
-    }
-
+impl Calls for Running {
     async fn eta(&self, body: Value) -> Value {
         let r = client()
             .post(format!("http://{}/v1/eta", self.public))

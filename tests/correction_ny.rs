@@ -19,57 +19,17 @@
 //!
 //! The figures are printed for BENCHMARKS.md.
 
-mod common;
-
-use common::dimacs_ny;
-use hodos::engine::build::{build_from_graph, Quiet};
-use hodos::engine::import::dimacs;
-use hodos::testkit::{skipped, tlc_trip_files};
-use hodos::truth::replay::{open_catalog, replay_all, replay_settings, ReplayRegion};
+use hodos::testkit::{replayed_tlc_on_ny, skipped};
 use hodos::truth::train::{train, TrainOptions};
-use hodos::truth::trips::{read_trips_file, ReadOptions, TripFormat};
 
 #[test]
 fn ny_correction_meets_its_goals_on_held_out_trips() {
-    let Some(ny) = dimacs_ny() else {
-        return;
-    };
-    let files = match tlc_trip_files() {
-        Ok(f) => f,
+    let dir = tempfile::tempdir().unwrap();
+    let outcomes = match replayed_tlc_on_ny(dir.path()) {
+        Ok(o) => o,
         Err(why) => return skipped(why),
     };
-    let raw = dimacs::read(&ny.distance_gr, &ny.coordinates).expect("read NY");
-    let art = build_from_graph("dimacs:NY".into(), raw, 0.0, &mut Quiet).expect("build");
-    let dir = tempfile::tempdir().unwrap();
-    let artifact = dir.path().join("ny.hodos");
-    art.save(&artifact).unwrap();
-    drop(art);
-
-    let mut trips = Vec::new();
-    for f in &files {
-        let (t, _) = read_trips_file(f, TripFormat::Tlc, &ReadOptions::default()).unwrap();
-        trips.extend(t);
-    }
-    assert!(trips.len() > 7000, "{} trips", trips.len());
-    let region = ReplayRegion {
-        name: "ny".into(),
-        artifact,
-        historical: None,
-        time_zone: "America/New_York".into(),
-        coverage: None,
-        model: None,
-    };
-    let rt = tokio::runtime::Builder::new_multi_thread()
-        .worker_threads(2)
-        .enable_all()
-        .build()
-        .unwrap();
-    let outcomes = rt.block_on(async {
-        let cat = open_catalog(&[region], replay_settings(), &dir.path().join("state"))
-            .await
-            .unwrap();
-        replay_all(&cat, &trips, |_| {}).await
-    });
+    assert!(outcomes.len() > 7000, "{} trips", outcomes.len());
     let opts = TrainOptions::default();
     let (model, rep) = train(&outcomes, &opts).unwrap();
     for f in &rep.figures {

@@ -12,34 +12,17 @@
 
 mod common;
 
+use common::running::{client, start};
 use common::service::{at, city, config_text, TOKEN};
-use hodos::config::Config;
-use hodos::http::{bind, serve, AppState};
 use serde_json::json;
 use std::path::Path;
-use std::process::Command;
 use std::time::Duration;
 
-const CHROMIUM: &str = "/usr/bin/chromium";
-
+/// Chromium with a few seconds of virtual time, for the page to poll.
 fn chromium(args: &[&str], profile: &Path) -> std::process::Output {
-    Command::new(CHROMIUM)
-        .args([
-            "--headless",
-            "--no-sandbox",
-            "--disable-gpu",
-            "--disable-quic",
-            "--no-first-run",
-            "--disable-background-networking",
-            "--disable-component-update",
-            "--disable-sync",
-            "--hide-scrollbars",
-            "--virtual-time-budget=7000",
-        ])
-        .arg(format!("--user-data-dir={}", profile.display()))
-        .args(args)
-        .output()
-        .expect("run chromium")
+    let mut all = vec!["--virtual-time-budget=7000"];
+    all.extend_from_slice(args);
+    common::chromium::run(&all, profile)
 }
 
 /// The text of the element with `id` in `dom`.
@@ -61,35 +44,18 @@ fn number(s: &str) -> f64 {
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn the_dashboard_shows_what_metrics_says() {
-    if !Path::new(CHROMIUM).exists() {
-        let required = std::env::var("HODOS_REQUIRE_CHROMIUM").is_ok_and(|v| v == "1");
-        assert!(!required, "{CHROMIUM} is required here");
-        return hodos::testkit::skipped(format!("{CHROMIUM} not installed"));
+    if !common::chromium::available() {
+        return;
     }
     let dir = tempfile::tempdir().unwrap();
-    let cfg = Config::parse(&config_text(
+    let server = start(&config_text(
         &city().artifact,
         &dir.path().join("state"),
         "",
     ))
-    .unwrap();
-    cfg.validate().unwrap();
-    let state = AppState::open(cfg).await;
-    let p = bind("127.0.0.1:0".parse().unwrap()).await.unwrap();
-    let a = bind("127.0.0.1:0".parse().unwrap()).await.unwrap();
-    let (public, admin) = (p.local_addr().unwrap(), a.local_addr().unwrap());
-    let (tx, rx) = tokio::sync::oneshot::channel::<()>();
-    let task = tokio::spawn(async move {
-        serve(state, p, a, async move {
-            let _ = rx.await;
-        })
-        .await
-        .unwrap();
-    });
-    let client = reqwest::Client::builder()
-        .timeout(Duration::from_secs(30))
-        .build()
-        .unwrap();
+    .await;
+    let (public, admin) = (server.public, server.admin);
+    let client = client();
     let pt = |p: hodos::engine::geo::LatLon| json!({"lat": p.lat, "lon": p.lon});
     for k in 0..24 {
         let from = at(0.1 + 0.03 * k as f64, 0.2);
@@ -206,11 +172,7 @@ async fn the_dashboard_shows_what_metrics_says() {
 
     stop.store(true, std::sync::atomic::Ordering::Relaxed);
     load.await.unwrap();
-    let _ = tx.send(());
-    tokio::time::timeout(Duration::from_secs(20), task)
-        .await
-        .unwrap()
-        .unwrap();
+    server.stop().await;
     let scrape = prometheus_parse::Scrape::parse(text.lines().map(|l| Ok(l.to_string()))).unwrap();
     let total = |name: &str, keep: &dyn Fn(&prometheus_parse::Sample) -> bool| -> f64 {
         scrape

@@ -13,9 +13,8 @@
 
 mod common;
 
+use common::running::{client, start};
 use common::service::{at, city, config_text, TOKEN};
-use hodos::config::Config;
-use hodos::http::{bind, serve, AppState};
 use serde_json::{json, Value};
 use std::collections::BTreeSet;
 use std::time::Duration;
@@ -43,29 +42,14 @@ fn root(p: &str) -> std::path::PathBuf {
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn rules_and_dashboard_name_exported_series() {
     let dir = tempfile::tempdir().unwrap();
-    let cfg = Config::parse(&config_text(
+    let server = start(&config_text(
         &city().artifact,
         &dir.path().join("state"),
         "",
     ))
-    .unwrap();
-    cfg.validate().unwrap();
-    let state = AppState::open(cfg).await;
-    let p = bind("127.0.0.1:0".parse().unwrap()).await.unwrap();
-    let a = bind("127.0.0.1:0".parse().unwrap()).await.unwrap();
-    let (public, admin) = (p.local_addr().unwrap(), a.local_addr().unwrap());
-    let (tx, rx) = tokio::sync::oneshot::channel::<()>();
-    let task = tokio::spawn(async move {
-        serve(state, p, a, async move {
-            let _ = rx.await;
-        })
-        .await
-        .unwrap();
-    });
-    let client = reqwest::Client::builder()
-        .timeout(Duration::from_secs(30))
-        .build()
-        .unwrap();
+    .await;
+    let (public, admin) = (server.public, server.admin);
+    let client = client();
     let (x, y) = (at(0.2, 0.2), at(0.7, 0.8));
     let pt = |p: hodos::engine::geo::LatLon| json!({"lat": p.lat, "lon": p.lon});
     let r = client
@@ -122,11 +106,7 @@ async fn rules_and_dashboard_name_exported_series() {
         }
         tokio::time::sleep(Duration::from_millis(100)).await;
     }
-    let _ = tx.send(());
-    tokio::time::timeout(Duration::from_secs(20), task)
-        .await
-        .unwrap()
-        .unwrap();
+    server.stop().await;
 
     let scrape = prometheus_parse::Scrape::parse(text.lines().map(|l| Ok(l.to_string()))).unwrap();
     let mut exported: BTreeSet<String> = BTreeSet::new();

@@ -17,33 +17,14 @@
 //! `HODOS_SCREENSHOT_DIR` keeps the screenshot for a person to look at.
 
 use hodos::serving::answer::Catalog;
+mod common;
+
+use common::chromium::run as chromium;
 use hodos::serving::tier::Tier;
 use hodos::truth::replay::{replay_all, replay_settings};
 use hodos::truth::report::{Inputs, Report};
 use hodos::truth::trips::{read_trips_file, ReadOptions, TripFormat};
 use std::path::Path;
-use std::process::Command;
-
-const CHROMIUM: &str = "/usr/bin/chromium";
-
-fn chromium(args: &[&str], profile: &Path) -> std::process::Output {
-    Command::new(CHROMIUM)
-        .args([
-            "--headless",
-            "--no-sandbox",
-            "--disable-gpu",
-            "--disable-quic",
-            "--no-first-run",
-            "--disable-background-networking",
-            "--disable-component-update",
-            "--disable-sync",
-            "--hide-scrollbars",
-        ])
-        .arg(format!("--user-data-dir={}", profile.display()))
-        .args(args)
-        .output()
-        .expect("run chromium")
-}
 
 #[test]
 fn the_report_renders_with_its_plots() {
@@ -87,12 +68,8 @@ fn the_report_renders_with_its_plots() {
         assert!(!text.contains(bad), "the page refers out: {bad}");
     }
 
-    if !Path::new(CHROMIUM).exists() {
-        let required = std::env::var("HODOS_REQUIRE_CHROMIUM").is_ok_and(|v| v == "1");
-        assert!(!required, "{CHROMIUM} is required here");
-        return hodos::testkit::skipped(format!(
-            "{CHROMIUM} not installed (apt-get install -y chromium)"
-        ));
+    if !common::chromium::available() {
+        return;
     }
     let url = format!("file://{}", html.display());
     let profile = tempfile::tempdir().unwrap();

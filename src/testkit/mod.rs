@@ -15,15 +15,18 @@
 //!   observations as JSON values.
 //! - [`config_text`]: the `[[region]]` table of a configuration file.
 //! - [`weekly`]: a 168-hour historical table with daily patterns and noise.
+//! - [`ny_trips`]: the shared NYC trips replayed on USA-road-d.NY.
 
 pub mod config_text;
 pub mod data;
+pub mod ny_trips;
 pub mod splitmix;
 pub mod tables;
 pub mod weekly;
 
 pub use config_text::region_table;
 pub use data::{data_dir, skipped, tlc_trip_files, DimacsNy, DATA_DIR_ENV};
+pub use ny_trips::replayed_tlc_on_ny;
 pub use splitmix::{node_pairs, nodes, SplitMix64};
 pub use tables::{
     observation, segment_observation, HistoricalCsv, LiveCsv, HISTORICAL_HEADER, LIVE_HEADER,

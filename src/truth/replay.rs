@@ -14,7 +14,7 @@ use super::trips::TripRecord;
 use crate::engine::artifact::{Artifact, ArtifactError};
 use crate::engine::geo::haversine_m;
 use crate::serving::answer::{trip, Catalog};
-use crate::serving::correction::{features, Query};
+use crate::serving::correction::features;
 use crate::serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
 use crate::serving::snapshot::{RegionHandle, UpdateSettings};
 use chrono::Utc;
@@ -156,15 +156,7 @@ pub async fn replay_trip(cat: &Catalog, t: &TripRecord) -> TripOutcome {
     .await;
     let (hour_of_week, weekend) = local_hour_of_week(&t.leaving);
     let graph_s = a.graph_s();
-    let x = features(&Query {
-        from: t.from,
-        to: t.to,
-        graph_s,
-        graph_m: a.meters,
-        hour_of_week: a.hour_of_week,
-        tier: a.tier,
-        sources: a.sources,
-    });
+    let x = features(&a.query(t.from, t.to));
     TripOutcome {
         trip_id: t.trip_id.clone(),
         leaving: t.leaving,

@@ -324,6 +324,9 @@ pub struct TrainReport {
     pub trees: usize,
     pub nodes: usize,
     pub fit_seconds: f64,
+    /// Which outcomes went to which set.
+    #[serde(skip)]
+    pub split: Split,
 }
 
 impl TrainReport {
@@ -486,6 +489,7 @@ pub fn train(
         trees: model.forest.roots.len(),
         nodes: model.forest.nodes.len(),
         fit_seconds,
+        split,
     };
     Ok((model, report))
 }

@@ -8,13 +8,18 @@
 //! - [`graphs`]: the petgraph reference Dijkstra, exactness checks, grids
 //!   and hierarchies, sampled points and metrics.
 //! - [`http`]: one request through a router, read back.
+//! - [`running`]: a service on 127.0.0.1 port 0 with its stop, and a
+//!   bounded client.
+//! - [`chromium`]: headless Chromium, or SKIPPED without it.
 //! - [`service`]: a synthetic-city artifact and configuration for service
 //!   tests.
 //! - [`tables`]: speed tables over that city's edges.
 #![allow(dead_code, unused_imports)]
 
+pub mod chromium;
 pub mod graphs;
 pub mod http;
+pub mod running;
 pub mod service;
 pub mod tables;
 

@@ -13,18 +13,7 @@ pub(super) fn trip(handle: Option<&Arc<RegionHandle>>, from: LatLon, to: LatLon,
     let Some(h) = handle else { return };
     let guard = h.correction.guard();
     let Some(model) = guard.as_ref() else { return };
-    let c = correct(
-        model,
-        &Query {
-            from,
-            to,
-            graph_s: a.eta_s,
-            graph_m: a.meters,
-            hour_of_week: a.hour_of_week,
-            tier: a.tier,
-            sources: a.sources,
-        },
-    );
+    let c = correct(model, &a.query(from, to));
     a.eta_s = c.eta_s;
     a.correction = Some(c);
 }

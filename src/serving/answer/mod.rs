@@ -57,7 +57,7 @@ pub use trip::trip;
 use crate::engine::calibration::Calibration;
 use crate::engine::geo::LatLon;
 use crate::serving::admission::Admission;
-use crate::serving::correction::Corrected;
+use crate::serving::correction::{Corrected, Query};
 use crate::serving::settings::ServingSettings;
 use crate::serving::snapshot::{ProfileUsed, RegionHandle, Snapshot};
 use crate::serving::tier::{FallbackReason, Sources, Tier};
@@ -209,6 +209,20 @@ impl Answer {
     /// The tier's uncorrected time.
     pub fn graph_s(&self) -> f64 {
         self.correction.map_or(self.eta_s, |c| c.graph_s)
+    }
+
+    /// What the correction model is given for this answer (from `from` to
+    /// `to`): its uncorrected time and what it stands on.
+    pub fn query(&self, from: LatLon, to: LatLon) -> Query {
+        Query {
+            from,
+            to,
+            graph_s: self.graph_s(),
+            graph_m: self.meters,
+            hour_of_week: self.hour_of_week,
+            tier: self.tier,
+            sources: self.sources,
+        }
     }
 }
 

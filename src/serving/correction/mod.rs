@@ -59,8 +59,10 @@ impl ModelSlot {
         self.write.lock().unwrap_or_else(|p| p.into_inner())
     }
 
-    /// Serves `m` from now on.
+    /// Serves `m` from now on (its trees laid out first, off the answer
+    /// path).
     pub fn install(&self, m: CorrectionModel) {
+        let _ = m.compile();
         self.current.store(Some(Arc::new(m)));
         self.refused.store(None);
     }

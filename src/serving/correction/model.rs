@@ -380,10 +380,16 @@ impl CorrectionModel {
     }
 
     /// Corrects an answer of `graph_s` seconds with features `x`.
+    /// Lays the trees out for speed now (done before a model serves, so no
+    /// answer pays for it; [`Self::apply`] does it itself otherwise).
+    pub fn compile(&self) -> &Option<Compiled> {
+        self.compiled.get_or_init(|| Compiled::of(&self.forest))
+    }
+
     #[inline]
     pub fn apply(&self, graph_s: f64, x: &Features) -> Corrected {
         let lim = MAX_FACTOR.ln();
-        let raw = match self.compiled.get_or_init(|| Compiled::of(&self.forest)) {
+        let raw = match self.compile() {
             Some(c) => self.forest.base + c.sum(x),
             None => self.forest.predict(x),
         };
