@@ -15,6 +15,7 @@ mod common;
 use criterion::{criterion_group, criterion_main, Criterion};
 use hodos::engine::build::{build_from_graph, Quiet};
 use hodos::engine::geo::LatLon;
+use hodos::learn::train::{conformal, fit_booster, forest_of, TrainOptions};
 use hodos::serving::answer::{matrix_trip, trip, Catalog};
 use hodos::serving::correction::features::N;
 use hodos::serving::correction::model::CorrectionModel;
@@ -22,8 +23,7 @@ use hodos::serving::correction::{correct, Query};
 use hodos::serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
 use hodos::serving::snapshot::{RegionHandle, UpdateSettings};
 use hodos::serving::tier::Tier;
-use hodos::testkit::SplitMix64;
-use hodos::truth::train::{conformal, fit_booster, forest_of, TrainOptions};
+use hodos_testkit::SplitMix64;
 use std::hint::black_box;
 use std::sync::OnceLock;
 

@@ -16,7 +16,7 @@ use hodos::engine::geo::{LatLon, LocalProjection};
 use hodos::engine::graph::RoadGraph;
 use hodos::engine::order::{nested_dissection, UndirectedGraph};
 use hodos::engine::region::Region;
-use hodos::testkit::node_pairs;
+use hodos_testkit::node_pairs;
 use petgraph::graph::{DiGraph, NodeIndex};
 use std::hint::black_box;
 use std::path::PathBuf;

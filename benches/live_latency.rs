@@ -10,7 +10,8 @@ mod common;
 
 use hodos::engine::build::{build_from_graph, Quiet};
 use hodos::http::{bind, serve, AppState};
-use hodos::testkit::{observation, region_table};
+use hodos_test_support::region_table;
+use hodos_testkit::observation;
 use serde_json::{json, Value};
 use std::time::{Duration, Instant};
 

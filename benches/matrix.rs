@@ -17,7 +17,7 @@ use hodos::engine::cch::CchQuery;
 use hodos::engine::geo::LatLon;
 use hodos::engine::region::matrix::{matrix, MatrixLimits, PointMatrix};
 use hodos::engine::region::Region;
-use hodos::testkit::nodes;
+use hodos_testkit::nodes;
 use std::hint::black_box;
 use std::sync::OnceLock;
 

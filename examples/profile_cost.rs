@@ -16,7 +16,8 @@ use hodos::serving::settings::{
 };
 use hodos::serving::snapshot::{RegionHandle, UpdateSettings};
 use hodos::serving::tier::Tier;
-use hodos::testkit::{weekly_table, DimacsNy, SplitMix64};
+use hodos_test_support::weekly_table;
+use hodos_testkit::{DimacsNy, SplitMix64};
 use std::path::PathBuf;
 use std::time::Instant;
 
@@ -45,7 +46,7 @@ fn main() {
     let Ok(dir) = std::env::var("PROFILE_COST_DIR") else {
         let ny = match DimacsNy::find() {
             Ok(ny) => ny,
-            Err(e) => return hodos::testkit::skipped(e),
+            Err(e) => return hodos_testkit::skipped(e),
         };
         let raw = dimacs::read(&ny.distance_gr, &ny.coordinates).expect("read NY");
         let art = build_from_graph("dimacs:NY".into(), raw, 0.0, &mut Quiet).expect("build");

@@ -10,7 +10,7 @@ use hodos::engine::geo::LatLon;
 use hodos::engine::import::dimacs;
 use hodos::engine::region::matrix::{matrix, MatrixLimits, PointMatrix};
 use hodos::engine::region::{Metric, Region, DEFAULT_MAX_SNAP_M};
-use hodos::testkit::{DimacsNy, SplitMix64};
+use hodos_testkit::{DimacsNy, SplitMix64};
 use std::time::Instant;
 
 fn median(mut v: Vec<f64>) -> f64 {
@@ -21,7 +21,7 @@ fn median(mut v: Vec<f64>) -> f64 {
 fn main() {
     let ny = match DimacsNy::find() {
         Ok(ny) => ny,
-        Err(why) => return hodos::testkit::skipped(why),
+        Err(why) => return hodos_testkit::skipped(why),
     };
     let raw = dimacs::read(&ny.distance_gr, &ny.coordinates).expect("read NY");
     let art = build_from_graph("dimacs:NY".into(), raw, 0.0, &mut Quiet).expect("build");

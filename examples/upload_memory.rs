@@ -15,7 +15,7 @@
 //! batch's size, and memory given back afterwards.
 use hodos::engine::artifact::Artifact;
 use hodos::engine::build::{build, Quiet, Source};
-use hodos::testkit::region_table;
+use hodos_test_support::region_table;
 use std::io::{BufRead, BufReader, Write};
 use std::net::SocketAddr;
 use std::path::{Path, PathBuf};

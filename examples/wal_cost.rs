@@ -6,7 +6,8 @@
 use hodos::config::Config;
 use hodos::engine::build::{build, Quiet, Source};
 use hodos::serving::speeds::wal::{self, BatchKind};
-use hodos::testkit::{observation, region_table};
+use hodos_test_support::region_table;
+use hodos_testkit::observation;
 use std::time::Instant;
 
 fn median_ms(mut v: Vec<f64>) -> f64 {

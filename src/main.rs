@@ -563,9 +563,9 @@ fn cmd_eval(args: EvalArgs) -> anyhow::Result<()> {
 }
 
 fn cmd_train(args: TrainArgs) -> anyhow::Result<()> {
+    use hodos::learn::train::{corrected, train, TrainOptions};
     use hodos::serving::correction::file;
     use hodos::truth::report::Report;
-    use hodos::truth::train::{corrected, train, TrainOptions};
     let levels: Vec<f64> = args
         .interval
         .split(',')
@@ -744,61 +744,10 @@ fn shutdown_signal() -> impl std::future::Future<Output = ()> {
     }
 }
 
-/// Makes glibc's allocator give memory back. By default glibc raises its
-/// mmap threshold after a large block is freed (up to 32 MiB), so the
-/// per-arc arrays of every later customization (tens of MB each) come from
-/// arenas that are never returned to the OS, and each thread that allocates
-/// may get an arena of its own. A fixed threshold keeps large arrays in
-/// mmap (returned on free); two arenas bound the rest. Measured on NY in
-/// BENCHMARKS.md. Skipped when GLIBC_TUNABLES is set (experiments).
-fn tune_allocator() {
-    #[cfg(all(target_os = "linux", target_env = "gnu"))]
-    if std::env::var_os("GLIBC_TUNABLES").is_none() {
-        // SAFETY: mallopt only changes allocator parameters; called before
-        // the runtime starts any thread.
-        unsafe {
-            libc::mallopt(libc::M_MMAP_THRESHOLD, 256 * 1024);
-            libc::mallopt(libc::M_TRIM_THRESHOLD, 1024 * 1024);
-            libc::mallopt(libc::M_ARENA_MAX, 2);
-        }
-    }
-}
-
-/// Raises the soft limit on open file descriptors to the hard limit: each
-/// connection is a descriptor, and the usual soft default (1,024, or 256 on
-/// some systems) is far below what a busy listener holds. Logs both.
-fn raise_nofile() {
-    let mut lim = libc::rlimit {
-        rlim_cur: 0,
-        rlim_max: 0,
-    };
-    // SAFETY: getrlimit/setrlimit read and write the struct we pass.
-    if unsafe { libc::getrlimit(libc::RLIMIT_NOFILE, &mut lim) } != 0 {
-        tracing::warn!(error = %std::io::Error::last_os_error(), "cannot read the file-descriptor limit");
-        return;
-    }
-    let before = lim.rlim_cur;
-    if lim.rlim_cur < lim.rlim_max {
-        lim.rlim_cur = lim.rlim_max;
-        // SAFETY: as above; raising the soft limit up to the hard one needs no privilege.
-        if unsafe { libc::setrlimit(libc::RLIMIT_NOFILE, &lim) } != 0 {
-            tracing::warn!(soft = before, hard = lim.rlim_max, error = %std::io::Error::last_os_error(),
-                "cannot raise the file-descriptor soft limit");
-            return;
-        }
-    }
-    tracing::info!(
-        soft_was = before,
-        soft = lim.rlim_cur,
-        hard = lim.rlim_max,
-        "file-descriptor limit"
-    );
-}
-
 fn cmd_serve(config: &std::path::Path, strict: bool) -> anyhow::Result<()> {
-    tune_allocator();
+    hodos::serving::os::tune_allocator();
     init_tracing();
-    raise_nofile();
+    hodos::serving::os::raise_nofile();
     let cfg = hodos::config::Config::load(config)?;
     if cfg.admin.token.is_empty() {
         tracing::warn!(
@@ -836,9 +785,9 @@ fn cmd_serve(config: &std::path::Path, strict: bool) -> anyhow::Result<()> {
 }
 
 fn cmd_demo(port: u16) -> anyhow::Result<()> {
-    tune_allocator();
+    hodos::serving::os::tune_allocator();
     init_tracing();
-    raise_nofile();
+    hodos::serving::os::raise_nofile();
     // A folder of this run's own (artifact, table, state), removed at
     // exit: a demo always starts clean, never serving what an earlier one
     // was sent.

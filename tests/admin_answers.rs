@@ -11,7 +11,7 @@ use common::http::send;
 use common::service::{at, city, config_text, TOKEN};
 use hodos::config::Config;
 use hodos::http::{admin_app, app, AppState};
-use hodos::testkit::LiveCsv;
+use hodos_testkit::LiveCsv;
 use serde_json::json;
 use std::path::Path;
 use std::sync::{Arc, Mutex};

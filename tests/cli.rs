@@ -169,7 +169,7 @@ fn serve_strict_refuses_a_broken_region() {
         &cfg,
         format!(
             "[server]\nlisten = \"127.0.0.1:0\"\n[admin]\nlisten = \"127.0.0.1:0\"\n{}",
-            hodos::testkit::region_table(
+            hodos_test_support::region_table(
                 "r",
                 &broken,
                 &dir.path().join("state"),
@@ -313,7 +313,7 @@ fn logs_off_a_terminal_are_plain_text() {
         &cfg,
         format!(
             "[server]\nlisten = \"127.0.0.1:0\"\n[admin]\nlisten = \"127.0.0.1:0\"\n{}",
-            hodos::testkit::region_table(
+            hodos_test_support::region_table(
                 "r",
                 &broken,
                 &dir.path().join("state"),

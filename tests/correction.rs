@@ -19,12 +19,12 @@ mod common;
 use common::running::{client, start, Running};
 use common::service::{at, city, config_text, TOKEN};
 use common::SplitMix64;
+use hodos::learn::train::{booster_predict, conformal, fit_booster, forest_of, TrainOptions};
 use hodos::serving::correction::features::{N, NAMES};
 use hodos::serving::correction::file;
 use hodos::serving::correction::model::{
     Compiled, CorrectionModel, Forest, Interval, ModelMeta, Node,
 };
-use hodos::truth::train::{booster_predict, conformal, fit_booster, forest_of, TrainOptions};
 use serde_json::{json, Value};
 
 /// A uniform draw in [0, 1) (the top 53 bits).

@@ -19,8 +19,9 @@
 //!
 //! The figures are printed for BENCHMARKS.md.
 
-use hodos::testkit::{replayed_tlc_on_ny, skipped};
-use hodos::truth::train::{train, TrainOptions};
+use hodos::learn::train::{train, TrainOptions};
+use hodos_test_support::replayed_tlc_on_ny;
+use hodos_testkit::skipped;
 
 #[test]
 fn ny_correction_meets_its_goals_on_held_out_trips() {

@@ -13,7 +13,7 @@ use common::write;
 use hodos::engine::geo::{haversine_m, LatLon};
 use hodos::engine::graph::{RoadClass, NONE};
 use hodos::engine::import::{dimacs, ImportError};
-use hodos::testkit::{skipped, DimacsNy};
+use hodos_testkit::{skipped, DimacsNy};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::sync::OnceLock;

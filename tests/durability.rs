@@ -13,7 +13,7 @@ mod common;
 
 use common::service::{city, config_text, TOKEN};
 use common::tables::every_edge_at_ten;
-use hodos::testkit::observation;
+use hodos_testkit::observation;
 use serde_json::Value;
 use std::io::{BufRead, BufReader};
 use std::net::SocketAddr;

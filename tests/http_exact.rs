@@ -24,7 +24,8 @@ use hodos::engine::build::{build, Quiet, Source};
 use hodos::engine::graph::RoadGraph;
 use hodos::engine::metric::{free_flow, from_speeds};
 use hodos::http::{admin_app, app, AppState};
-use hodos::testkit::{region_table, HistoricalCsv};
+use hodos_test_support::region_table;
+use hodos_testkit::HistoricalCsv;
 use serde_json::{json, Value};
 use std::collections::HashMap;
 

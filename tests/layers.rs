@@ -1,31 +1,154 @@
-//! The dependency arrows DEVELOPERS.md promises, checked on the source
-//! text: every `crate::` path in a layer's (non-test) code names only a
-//! layer below it, and the engine's modules only modules below them.
+//! The dependency arrows DEVELOPERS.md promises. The layers are crates, so
+//! Cargo refuses a cycle; this test checks what Cargo does not:
 //!
-//! Layers, bottom to top: `engine` → `serving` → `truth` → `http` → the top
-//! (`config`, `demo`, `testkit`, `lib.rs`; the binary uses `hodos::`).
-//! Inside `engine`: `geo` → `graph` → {`import`, `order`, `snap`} → `cch`
-//! → `metric` → `calibration` → `artifact` → {`region`, `build`} →
-//! `testing` (test-only fixtures).
+//! - each layer crate depends only on the layer crates below it, and on no
+//!   external crate its layer must not know (the engine no runtime, HTTP or
+//!   metrics; serving, truth and learn no HTTP stack), read from each
+//!   crate's `Cargo.toml`;
+//! - the dev-only crates (`hodos-testkit`, `hodos-test-support`) are never a
+//!   normal dependency of a layer;
+//! - every crate root forbids `unsafe`, except serving's, which denies it
+//!   everywhere but its `os` module;
+//! - inside `hodos-engine`, modules name only modules below them (`geo` →
+//!   `graph` → {`import`, `order`, `snap`, `segments`} → `cch` → `metric` →
+//!   `calibration` → `artifact` → {`region`, `build`} → `testing`), checked
+//!   on the source text.
 //!
 //! Lines that are comments are skipped, and so is everything from the
 //! first `#[cfg(test)]` of a file on, and files named `tests.rs` or
-//! `testing.rs` (unit tests and their fixtures kept in a file of their
-//! own): unit tests may reach anywhere.
+//! `testing.rs`: unit tests may reach anywhere inside their crate.
 
+use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
-/// Rank of a top-level layer; a file may name only layers of lower rank
-/// (or its own).
-fn layer_rank(layer: &str) -> Option<u8> {
-    Some(match layer {
-        "engine" => 0,
-        "serving" => 1,
-        "truth" => 2,
-        "http" => 3,
-        "config" | "demo" | "testkit" => 4,
-        _ => return None,
-    })
+/// The layer crates, bottom first, with the hodos crates each may depend on.
+const LAYERS: &[(&str, &str, &[&str])] = &[
+    ("hodos-engine", "src/engine", &[]),
+    ("hodos-serving", "src/serving", &["hodos-engine"]),
+    (
+        "hodos-truth",
+        "src/truth",
+        &["hodos-engine", "hodos-serving"],
+    ),
+    (
+        "hodos-learn",
+        "src/learn",
+        &["hodos-engine", "hodos-serving", "hodos-truth"],
+    ),
+    (
+        "hodos-http",
+        "src/http",
+        &["hodos-engine", "hodos-serving", "hodos-truth"],
+    ),
+    (
+        "hodos",
+        ".",
+        &[
+            "hodos-engine",
+            "hodos-serving",
+            "hodos-truth",
+            "hodos-learn",
+            "hodos-http",
+        ],
+    ),
+];
+
+/// External crates a layer must not depend on.
+fn forbidden_crates(krate: &str) -> &'static [&'static str] {
+    const HTTP: &[&str] = &["axum", "tower", "tower-http", "hyper", "hyper-util"];
+    match krate {
+        // The engine is pure computation: no runtime, no HTTP, no metrics.
+        "hodos-engine" => &[
+            "tokio",
+            "axum",
+            "tower",
+            "tower-http",
+            "hyper",
+            "metrics",
+            "arc-swap",
+        ],
+        // Serving records metrics but knows nothing of HTTP; nor do
+        // measuring and learning.
+        "hodos-serving" | "hodos-truth" | "hodos-learn" => HTTP,
+        _ => &[],
+    }
+}
+
+/// Dev-only crates: tests, benches, examples and the load generator.
+const DEV_ONLY: &[&str] = &["hodos-testkit", "hodos-test-support"];
+
+fn root() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}
+
+/// `[dependencies]` and `[dev-dependencies]` names of a manifest.
+fn deps(manifest: &str) -> (Vec<String>, Vec<String>) {
+    let v: toml::Table = toml::from_str(manifest).expect("manifest parses");
+    let names = |k: &str| -> Vec<String> {
+        v.get(k)
+            .and_then(|t| t.as_table())
+            .map(|t| t.keys().cloned().collect())
+            .unwrap_or_default()
+    };
+    (names("dependencies"), names("dev-dependencies"))
+}
+
+/// Every violation of the crate rules, given each crate's manifest text and
+/// the text of its root source file.
+fn crate_violations(crates: &BTreeMap<String, (String, String)>) -> Vec<String> {
+    let mut bad = Vec::new();
+    for (i, (name, _, allowed)) in LAYERS.iter().enumerate() {
+        let Some((manifest, root_src)) = crates.get(*name) else {
+            bad.push(format!("{name}: crate missing"));
+            continue;
+        };
+        let (normal, dev) = deps(manifest);
+        for d in &normal {
+            if d.starts_with("hodos") && !allowed.contains(&d.as_str()) {
+                let above = LAYERS[i..].iter().any(|(n, _, _)| n == d);
+                let what = if DEV_ONLY.contains(&d.as_str()) {
+                    "a dev-only crate"
+                } else if above {
+                    "a layer at or above it"
+                } else {
+                    "a crate outside the layers"
+                };
+                bad.push(format!("{name} depends on {d} ({what})"));
+            }
+            if forbidden_crates(name).contains(&d.as_str()) {
+                bad.push(format!(
+                    "{name} depends on {d}, which its layer must not know"
+                ));
+            }
+        }
+        for d in &dev {
+            if d.starts_with("hodos")
+                && !DEV_ONLY.contains(&d.as_str())
+                && !allowed.contains(&d.as_str())
+            {
+                bad.push(format!("{name}'s tests depend on {d}, a layer above it"));
+            }
+        }
+        let forbids = root_src.contains("#![forbid(unsafe_code)]");
+        let denies = root_src.contains("#![deny(unsafe_code)]");
+        match (*name, forbids, denies) {
+            (_, true, _) => {}
+            ("hodos-serving", false, true) => {}
+            _ => bad.push(format!("{name}: crate root does not forbid unsafe code")),
+        }
+    }
+    bad
+}
+
+fn rust_files(dir: &Path, out: &mut Vec<PathBuf>) {
+    for e in std::fs::read_dir(dir).expect("read src") {
+        let p = e.expect("dir entry").path();
+        if p.is_dir() {
+            rust_files(&p, out);
+        } else if p.extension().is_some_and(|x| x == "rs") {
+            out.push(p);
+        }
+    }
 }
 
 /// Rank of an engine module; a module may name only modules of lower rank
@@ -47,47 +170,6 @@ fn engine_rank(module: &str) -> Option<u8> {
     })
 }
 
-/// External crates a layer must not use, as path prefixes.
-fn forbidden_crates(layer: &str) -> &'static [&'static str] {
-    match layer {
-        // The engine is pure computation: no runtime, no HTTP, no metrics.
-        "engine" => &["tokio::", "axum::", "tower::", "tower_http::", "metrics::"],
-        // Serving records metrics but knows nothing of HTTP.
-        "serving" => &["axum::", "tower::", "tower_http::", "hyper::"],
-        // Completed trips and their measurement know nothing of HTTP either.
-        "truth" => &["axum::", "tower::", "tower_http::", "hyper::"],
-        _ => &[],
-    }
-}
-
-fn rust_files(dir: &Path, out: &mut Vec<PathBuf>) {
-    for e in std::fs::read_dir(dir).expect("read src") {
-        let p = e.expect("dir entry").path();
-        if p.is_dir() {
-            rust_files(&p, out);
-        } else if p.extension().is_some_and(|x| x == "rs") {
-            out.push(p);
-        }
-    }
-}
-
-/// `(layer, engine module)` of a file under src/.
-fn place(rel: &Path) -> (String, Option<String>) {
-    let parts: Vec<String> = rel
-        .components()
-        .map(|c| {
-            c.as_os_str()
-                .to_string_lossy()
-                .trim_end_matches(".rs")
-                .to_string()
-        })
-        .collect();
-    let layer = parts[0].clone();
-    let module =
-        (layer == "engine" && parts.len() > 1 && parts[1] != "mod").then(|| parts[1].clone());
-    (layer, module)
-}
-
 /// The identifiers that follow each `prefix` on a line.
 fn paths_after<'a>(line: &'a str, prefix: &str) -> Vec<&'a str> {
     let mut out = Vec::new();
@@ -106,82 +188,78 @@ fn paths_after<'a>(line: &'a str, prefix: &str) -> Vec<&'a str> {
     out
 }
 
-/// Every violation in the tree, as `file:line: message`.
-fn violations(src: &Path) -> Vec<String> {
+/// The non-test code lines of a file, numbered from 1.
+fn code_lines(text: &str) -> Vec<(usize, &str)> {
+    let lines: Vec<&str> = text.lines().collect();
+    let mut out = Vec::new();
+    for (n, line) in lines.iter().enumerate() {
+        let code = line.trim_start();
+        if code.starts_with("#[cfg(test)]") {
+            // `#[cfg(test)] mod tests;` names a file (skipped) and the code
+            // after it is still checked; an inline test module runs to the
+            // end of the file by convention.
+            let next = lines.get(n + 1).map(|l| l.trim()).unwrap_or("");
+            if next.starts_with("mod ") && next.ends_with(';') {
+                continue;
+            }
+            break;
+        }
+        if code.starts_with("//") {
+            continue;
+        }
+        out.push((n + 1, code));
+    }
+    out
+}
+
+fn is_test_file(rel: &Path) -> bool {
+    rel.file_name()
+        .is_some_and(|f| f == "tests.rs" || f == "testing.rs")
+}
+
+/// Violations of the engine's module ranks under `engine` (its source folder).
+fn engine_violations(engine: &Path) -> Vec<String> {
     let mut files = Vec::new();
-    rust_files(src, &mut files);
+    rust_files(engine, &mut files);
     files.sort();
     let mut bad = Vec::new();
     for f in files {
-        let rel = f.strip_prefix(src).expect("under src");
-        if rel == Path::new("main.rs") || rel == Path::new("lib.rs") {
+        let rel = f.strip_prefix(engine).expect("under engine");
+        if rel == Path::new("lib.rs") || is_test_file(rel) {
             continue;
         }
-        if rel
-            .file_name()
-            .is_some_and(|f| f == "tests.rs" || f == "testing.rs")
-        {
-            // A `#[cfg(test)] mod tests;` / `mod testing;` file (unit tests
-            // and their fixtures); the declaration is checked where it
-            // stands, and the engine rank of `testing` keeps other engine
-            // code from using it.
-            continue;
-        }
-        let (layer, module) = place(rel);
-        let Some(rank) = layer_rank(&layer) else {
+        let m = rel
+            .components()
+            .next()
+            .unwrap()
+            .as_os_str()
+            .to_string_lossy()
+            .trim_end_matches(".rs")
+            .to_string();
+        let Some(own) = engine_rank(&m) else {
             bad.push(format!(
-                "{}: file outside every known layer (add it to tests/layers.rs and DEVELOPERS.md)",
+                "engine/{}: module {m} unranked (add it to tests/layers.rs)",
                 rel.display()
             ));
             continue;
         };
         let text = std::fs::read_to_string(&f).expect("read file");
-        let lines: Vec<&str> = text.lines().collect();
-        for (n, line) in lines.iter().enumerate() {
-            let code = line.trim_start();
-            if code.starts_with("#[cfg(test)]") {
-                // `#[cfg(test)] mod tests;` names a file (skipped above) and
-                // the code after it is still checked; an inline test module
-                // runs to the end of the file by convention.
-                let next = lines.get(n + 1).map(|l| l.trim()).unwrap_or("");
-                if next.starts_with("mod ") && next.ends_with(';') {
-                    continue;
-                }
-                break;
-            }
-            if code.starts_with("//") {
-                continue;
-            }
-            let at = format!("{}:{}", rel.display(), n + 1);
+        for (n, code) in code_lines(&text) {
+            let at = format!("engine/{}:{n}", rel.display());
             for target in paths_after(code, "crate::") {
-                match layer_rank(target) {
-                    Some(r) if r > rank => {
-                        bad.push(format!("{at}: {layer} reaches up to {target}"))
+                match engine_rank(target) {
+                    Some(r) if r > own || (r == own && target != m) => {
+                        bad.push(format!("{at}: engine::{m} reaches up to engine::{target}"))
                     }
                     Some(_) => {}
-                    None => bad.push(format!("{at}: crate::{target} is not a known layer")),
+                    None => bad.push(format!("{at}: crate::{target} is not a ranked module")),
                 }
             }
-            if let Some(m) = &module {
-                let own = engine_rank(m).unwrap_or_else(|| panic!("engine module {m} unranked"));
-                for target in paths_after(code, "crate::engine::") {
-                    let r = engine_rank(target)
-                        .unwrap_or_else(|| panic!("{at}: engine module {target} unranked"));
-                    if r > own || (r == own && target != m) {
-                        bad.push(format!("{at}: engine::{m} reaches up to engine::{target}"));
-                    }
-                }
-                for target in paths_after(code, "super::") {
-                    // `super::x` from engine/<m>/<file>.rs stays inside <m>;
-                    // from engine/<m>.rs it would name a sibling module.
-                    if rel.components().count() == 2 && engine_rank(target).is_some() {
-                        bad.push(format!("{at}: engine::{m} names super::{target}"));
-                    }
-                }
-            }
-            for krate in forbidden_crates(&layer) {
-                if !paths_after(code, krate).is_empty() {
-                    bad.push(format!("{at}: {layer} uses {krate}"));
+            for target in paths_after(code, "super::") {
+                // `super::x` from <m>/<file>.rs stays inside <m>; from
+                // <m>.rs it would name a sibling module.
+                if rel.components().count() == 1 && engine_rank(target).is_some() {
+                    bad.push(format!("{at}: engine::{m} names super::{target}"));
                 }
             }
         }
@@ -189,16 +267,64 @@ fn violations(src: &Path) -> Vec<String> {
     bad
 }
 
+fn workspace_crates() -> BTreeMap<String, (String, String)> {
+    let mut out = BTreeMap::new();
+    for (name, dir, _) in LAYERS {
+        let dir = root().join(dir);
+        let manifest = std::fs::read_to_string(dir.join("Cargo.toml")).expect("manifest");
+        let lib = if *name == "hodos" {
+            "src/lib.rs"
+        } else {
+            "lib.rs"
+        };
+        let src = std::fs::read_to_string(dir.join(lib)).expect("crate root");
+        out.insert(name.to_string(), (manifest, src));
+    }
+    out
+}
+
 #[test]
-fn dependency_arrows_point_down() {
-    let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("src");
-    let bad = violations(&src);
+fn crates_depend_only_downward() {
+    let bad = crate_violations(&workspace_crates());
+    assert!(bad.is_empty(), "crate rules broken:\n{}", bad.join("\n"));
+}
+
+#[test]
+fn engine_modules_point_down() {
+    let bad = engine_violations(&root().join("src/engine"));
     assert!(bad.is_empty(), "upward imports:\n{}", bad.join("\n"));
 }
 
-/// The checker itself finds an upward import (so the test above can fail).
+/// The checkers themselves find planted violations (so the tests above can
+/// fail).
 #[test]
-fn checker_catches_an_upward_import() {
+fn checkers_catch_planted_violations() {
+    let mut crates = workspace_crates();
+    let plant = |crates: &mut BTreeMap<String, (String, String)>, name: &str, dep: &str| {
+        let c = crates.get_mut(name).unwrap();
+        c.0 = c.0.replacen(
+            "[dependencies]\n",
+            &format!("[dependencies]\n{dep} = {{ workspace = true }}\n"),
+            1,
+        );
+    };
+    plant(&mut crates, "hodos-serving", "hodos-http");
+    plant(&mut crates, "hodos-engine", "metrics");
+    plant(&mut crates, "hodos-truth", "axum");
+    plant(&mut crates, "hodos-http", "hodos-testkit");
+    plant(&mut crates, "hodos-truth", "hodos-learn");
+    let http = crates.get_mut("hodos-http").unwrap();
+    http.1 = http.1.replace("#![forbid(unsafe_code)]", "");
+    let bad = crate_violations(&crates);
+    assert_eq!(bad.len(), 6, "{bad:#?}");
+    let has = |s: &str| assert!(bad.iter().any(|b| b.contains(s)), "{s} not in {bad:#?}");
+    has("hodos-engine depends on metrics");
+    has("hodos-serving depends on hodos-http (a layer at or above it)");
+    has("hodos-truth depends on hodos-learn (a layer at or above it)");
+    has("hodos-truth depends on axum");
+    has("hodos-http depends on hodos-testkit (a dev-only crate)");
+    has("hodos-http: crate root does not forbid unsafe code");
+
     let dir = tempfile::tempdir().unwrap();
     let write = |rel: &str, text: &str| {
         let p = dir.path().join(rel);
@@ -206,33 +332,19 @@ fn checker_catches_an_upward_import() {
         std::fs::write(p, text).unwrap();
     };
     write(
-        "engine/cch/matrix.rs",
-        "use crate::engine::region::Region;\n// crate::http in a comment is fine\n",
+        "cch/matrix.rs",
+        "use crate::region::Region;\n// crate::build in a comment is fine\n",
     );
+    write("geo.rs", "use crate::graph::RoadGraph;\n");
     write(
-        "serving/answer.rs",
-        "use crate::http::dto::X;\nuse axum::Json;\n",
+        "graph.rs",
+        "#[cfg(test)]\nmod t { use crate::region::X; }\n",
     );
-    write("engine/geo.rs", "fn f() { metrics::counter!(\"x\"); }\n");
-    write(
-        "http/mod.rs",
-        "use crate::serving::answer::Catalog;\n#[cfg(test)]\nmod t { use crate::demo::X; }\n",
-    );
-    write(
-        "serving/snapshot/mod.rs",
-        "#[cfg(test)]\nmod tests;\nuse crate::http::Y;\n",
-    );
-    write("serving/snapshot/tests.rs", "use crate::testkit::Z;\n");
-    write(
-        "truth/replay.rs",
-        "use crate::serving::answer::trip;\nuse crate::http::dto::Y;\n",
-    );
-    let bad = violations(dir.path());
-    assert_eq!(bad.len(), 6, "{bad:#?}");
-    assert!(bad[0].contains("engine::cch reaches up to engine::region"));
-    assert!(bad[1].contains("engine uses metrics::"));
-    assert!(bad[2].contains("serving reaches up to http"));
-    assert!(bad[3].contains("serving uses axum::"));
-    assert!(bad[4].contains("serving/snapshot/mod.rs:3: serving reaches up to http"));
-    assert!(bad[5].contains("truth/replay.rs:2: truth reaches up to http"));
+    write("snap.rs", "use super::cch::Cch;\n");
+    write("cch/tests.rs", "use crate::testing::city;\n");
+    let bad = engine_violations(dir.path());
+    assert_eq!(bad.len(), 3, "{bad:#?}");
+    assert!(bad[0].contains("cch/matrix.rs:1: engine::cch reaches up to engine::region"));
+    assert!(bad[1].contains("geo.rs:1: engine::geo reaches up to engine::graph"));
+    assert!(bad[2].contains("snap.rs:1: engine::snap names super::cch"));
 }

@@ -26,7 +26,7 @@ use hodos::serving::answer::{trip, Catalog};
 use hodos::serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
 use hodos::serving::snapshot::{RegionHandle, UpdateSettings};
 use hodos::serving::tier::Tier;
-use hodos::testkit::{weekly_table, WeeklyTable};
+use hodos_test_support::{weekly_table, WeeklyTable};
 use std::collections::BTreeMap;
 use std::time::Instant;
 

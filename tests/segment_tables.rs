@@ -11,7 +11,7 @@ use hodos::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
 use hodos::engine::import::synthetic::generate;
 use hodos::engine::metric::from_speeds;
 use hodos::serving::speeds::*;
-use hodos::testkit::{observation, segment_observation, HistoricalCsv, LiveCsv, SplitMix64};
+use hodos_testkit::{observation, segment_observation, HistoricalCsv, LiveCsv, SplitMix64};
 use std::collections::HashMap;
 
 const A: u64 = 1001;

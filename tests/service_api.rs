@@ -11,7 +11,7 @@ use common::http::{send, Resp};
 use common::service::{at, city, config, TOKEN};
 use common::tables;
 use hodos::http::{admin_app, app, AppState};
-use hodos::testkit::{HistoricalCsv, LiveCsv};
+use hodos_testkit::{HistoricalCsv, LiveCsv};
 use serde_json::{json, Value};
 
 async fn post_json(app: &Router, uri: &str, v: &Value) -> Resp {

@@ -7,7 +7,7 @@ use chrono_tz::Tz;
 use hodos::engine::geo::LatLon;
 use hodos::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
 use hodos::serving::speeds::*;
-use hodos::testkit::HistoricalCsv;
+use hodos_testkit::HistoricalCsv;
 use std::time::Duration;
 
 /// A historical header naming segments by their ends only (a valid shape:

@@ -11,8 +11,8 @@
 //! `HODOS_REQUIRE_NUMPY=1` (set by `.ci/run`, which installs numpy), when
 //! it fails instead.
 
-use hodos::testkit::SplitMix64;
 use hodos::truth::measure::{quantile, summarize, Pair};
+use hodos_testkit::SplitMix64;
 use std::process::Command;
 
 #[test]
@@ -58,7 +58,7 @@ fn metrics_agree_with_numpy() {
         Ok(o) => o,
         Err(e) => {
             assert!(!required, "python3 not runnable: {e}");
-            hodos::testkit::skipped(format!("python3 not runnable: {e}"));
+            hodos_testkit::skipped(format!("python3 not runnable: {e}"));
             return;
         }
     };
@@ -66,7 +66,7 @@ fn metrics_agree_with_numpy() {
     let err = String::from_utf8_lossy(&out.stderr);
     if out.status.code() == Some(3) {
         assert!(!required, "numpy is required here: {err}");
-        hodos::testkit::skipped(format!("numpy not installed ({})", err.trim()));
+        hodos_testkit::skipped(format!("numpy not installed ({})", err.trim()));
         return;
     }
     eprintln!("{text}{err}");

@@ -27,9 +27,9 @@ use common::{petgraph_of, reference_dists, SplitMix64};
 use geographiclib_rs::{Geodesic, InverseGeodesic};
 use hodos::engine::build::{build, Quiet, Source};
 use hodos::serving::tier::Tier;
-use hodos::testkit::{weekly_table, WeeklyTable};
 use hodos::truth::replay::{open_catalog, replay_all, replay_settings, ReplayRegion};
 use hodos::truth::trips::{read_trips_file, ReadOptions, TripFormat};
+use hodos_test_support::{weekly_table, WeeklyTable};
 use std::fmt::Write as _;
 
 const TRIPS: usize = 300;

@@ -28,9 +28,9 @@ use std::path::Path;
 
 #[test]
 fn the_report_renders_with_its_plots() {
-    let files = match hodos::testkit::tlc_trip_files() {
+    let files = match hodos_testkit::tlc_trip_files() {
         Ok(f) => f,
-        Err(why) => return hodos::testkit::skipped(why),
+        Err(why) => return hodos_testkit::skipped(why),
     };
     let (trips, read) =
         read_trips_file(&files[1], TripFormat::Tlc, &ReadOptions::default()).unwrap();

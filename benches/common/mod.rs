@@ -1,9 +1,9 @@
 //! The graph every benchmark runs on: USA-road-d.NY from `$HODOS_DATA_DIR`
-//! (default ../shared/data, see `hodos::testkit::data`), or a 300,000-node
+//! (default ../shared/data, see `hodos_testkit::data`), or a 300,000-node
 //! synthetic city when the data is absent (said on stderr).
 
 use hodos::engine::graph::RoadGraph;
-use hodos::testkit::DimacsNy;
+use hodos_testkit::DimacsNy;
 
 /// `(name, graph before the SCC filter)`.
 pub fn bench_graph() -> (String, RoadGraph) {
@@ -17,7 +17,7 @@ pub fn bench_graph() -> (String, RoadGraph) {
     } else {
         eprintln!(
             "NOTE: DIMACS NY not found under {}; benchmarking a 300,000-node synthetic city",
-            hodos::testkit::data_dir().display()
+            hodos_testkit::data_dir().display()
         );
         (
             "synthetic-300k".into(),

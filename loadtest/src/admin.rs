@@ -11,7 +11,7 @@ use crate::workload::EdgeRef;
 use bytes::Bytes;
 use chrono::{SecondsFormat, Utc};
 use hdrhistogram::Histogram;
-use hodos::testkit::HistoricalCsv;
+use hodos_testkit::HistoricalCsv;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use serde::Serialize;

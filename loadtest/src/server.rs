@@ -170,7 +170,7 @@ pub fn config_text(
     time_zone: &str,
     live_ttl_s: f64,
 ) -> String {
-    let region = hodos::testkit::region_table(REGION, artifact, state_dir, lo, hi, 0.01);
+    let region = hodos_test_support::region_table(REGION, artifact, state_dir, lo, hi, 0.01);
     format!(
         r#"# Written by hodos-load for one run; defaults everywhere else.
 [server]

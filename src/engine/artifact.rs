@@ -16,9 +16,9 @@
 //! wrong, so a truncated copy, a file of another kind, an artifact from a
 //! newer hodos and a flipped bit each get their own message.
 
-use crate::engine::calibration::Calibration;
-use crate::engine::cch::Cch;
-use crate::engine::graph::{RoadGraph, SccReport};
+use crate::calibration::Calibration;
+use crate::cch::Cch;
+use crate::graph::{RoadGraph, SccReport};
 use serde::{Deserialize, Serialize};
 use std::io::{Read, Write};
 use std::path::{Path, PathBuf};

@@ -5,14 +5,14 @@
 //! Progress is reported through the [`Progress`] trait so the library prints
 //! nothing; the binary draws progress bars.
 
-use crate::engine::artifact::{Artifact, Metadata};
-use crate::engine::calibration::{calibrate, Calibration};
-use crate::engine::cch::{Cch, CustomizedMetric};
-use crate::engine::geo::LocalProjection;
-use crate::engine::graph::RoadGraph;
-use crate::engine::import::{self, ImportError};
-use crate::engine::order::{nested_dissection, NodeOrder, UndirectedGraph};
-use crate::engine::snap::SnapIndex;
+use crate::artifact::{Artifact, Metadata};
+use crate::calibration::{calibrate, Calibration};
+use crate::cch::{Cch, CustomizedMetric};
+use crate::geo::LocalProjection;
+use crate::graph::RoadGraph;
+use crate::import::{self, ImportError};
+use crate::order::{nested_dissection, NodeOrder, UndirectedGraph};
+use crate::snap::SnapIndex;
 use std::path::PathBuf;
 use std::time::Instant;
 
@@ -122,7 +122,7 @@ pub fn build_from_graph(
     lap("contraction", &mut phases);
 
     progress.start("calibration", None);
-    let weights = crate::engine::metric::free_flow(&graph);
+    let weights = crate::metric::free_flow(&graph);
     let metric = CustomizedMetric::new(&cch, &weights, &graph.edge_len_m);
     let snap = SnapIndex::new(&graph);
     let calibration = calibrate(&graph, &cch, &metric, &snap, 0x00CA_11B2);
@@ -174,7 +174,7 @@ fn order_of(graph: &RoadGraph, progress: &mut dyn FnMut(usize)) -> NodeOrder {
 
 /// An artifact over `graph` exactly as given: no strongly connected filter
 /// and no calibration run (`calibration` is kept). For graphs the pipeline
-/// would trim, such as [`crate::engine::import::synthetic::islands`] in
+/// would trim, such as [`crate::import::synthetic::islands`] in
 /// tests of unreachable pairs.
 pub fn assemble(source: String, graph: RoadGraph, calibration: Calibration) -> Artifact {
     let order = order_of(&graph, &mut |_| {});

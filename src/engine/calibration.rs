@@ -8,10 +8,10 @@
 //! kept as medians per great-circle band, with the sample count, because
 //! short trips wind more and drive slower than long ones.
 
-use crate::engine::cch::{Cch, CchQuery, CustomizedMetric};
-use crate::engine::geo::{haversine_m, LatLon, EARTH_RADIUS_M};
-use crate::engine::graph::RoadGraph;
-use crate::engine::snap::SnapIndex;
+use crate::cch::{Cch, CchQuery, CustomizedMetric};
+use crate::geo::{haversine_m, LatLon, EARTH_RADIUS_M};
+use crate::graph::RoadGraph;
+use crate::snap::SnapIndex;
 use rand::{Rng, SeedableRng};
 use serde::{Deserialize, Serialize};
 

@@ -9,7 +9,7 @@
 //! The layout is struct-of-arrays indexed by `u32` ids: the hierarchy, the
 //! metric and the snapping index all refer to edges and nodes by index.
 
-use crate::engine::geo::{haversine_m, LatLon};
+use crate::geo::{haversine_m, LatLon};
 use serde::{Deserialize, Serialize};
 
 /// Marker for "no such id" in `u32` index arrays.

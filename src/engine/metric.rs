@@ -5,17 +5,17 @@
 //! vector (historical bucket, live blend) into a metric the hierarchy can be
 //! customized with.
 
-use crate::engine::graph::RoadGraph;
+use crate::graph::RoadGraph;
 
 /// Travel time in milliseconds for `len_m` metres at `speed_kmh`, at least 1
 /// (a zero weight would make ties between different paths arbitrary).
 #[inline]
 pub fn travel_ms(len_m: f64, speed_kmh: f64) -> u32 {
     if speed_kmh <= 0.0 || !speed_kmh.is_finite() {
-        return crate::engine::cch::customize::MAX_EDGE_WEIGHT;
+        return crate::cch::customize::MAX_EDGE_WEIGHT;
     }
     let ms = len_m * 3600.0 / speed_kmh;
-    (ms.round() as u64).clamp(1, crate::engine::cch::customize::MAX_EDGE_WEIGHT as u64) as u32
+    (ms.round() as u64).clamp(1, crate::cch::customize::MAX_EDGE_WEIGHT as u64) as u32
 }
 
 /// Free-flow metric of a graph.

@@ -16,7 +16,7 @@
 //!
 //! Pure computation: no I/O.
 
-use crate::engine::graph::NONE;
+use crate::graph::NONE;
 
 /// Pieces this small are not cut further. Cutting down to 4 instead of 16
 /// gave 17% fewer hierarchy arcs on USA-road-d.NY (1.49 M vs 1.80 M).
@@ -96,7 +96,7 @@ struct Piece {
 }
 
 /// Computes a nested-dissection order. `xy` are planar coordinates (metres;
-/// see [`crate::engine::geo::LocalProjection`]). `progress` is called with the number
+/// see [`crate::geo::LocalProjection`]). `progress` is called with the number
 /// of nodes ranked so far.
 pub fn nested_dissection(
     g: &UndirectedGraph,

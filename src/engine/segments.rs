@@ -7,7 +7,7 @@
 //! GIS. Both are streamed to any writer: nothing the size of the output is
 //! held in memory.
 
-use crate::engine::graph::RoadGraph;
+use crate::graph::RoadGraph;
 use std::io::{self, Write};
 
 /// The CSV header, in column order.

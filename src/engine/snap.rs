@@ -7,8 +7,8 @@
 //! along it (metres from its tail), the share of the edge's polyline before
 //! the point, the snapped point and the snap distance.
 
-use crate::engine::geo::{haversine_m, lerp, LatLon, LocalProjection};
-use crate::engine::graph::{RoadGraph, NONE};
+use crate::geo::{haversine_m, lerp, LatLon, LocalProjection};
+use crate::graph::{RoadGraph, NONE};
 use rstar::primitives::{GeomWithData, Line};
 use rstar::RTree;
 

@@ -16,12 +16,12 @@ use super::dto::{
 use super::problem::ApiError;
 use super::upload::{self, BodyReader, Pumped};
 use super::{routes, AppState};
-use crate::serving::snapshot::{RegionHandle, Reloaded, UpdateError, UpdateFailure};
 use axum::extract::{Path, Request, State};
 use axum::http::{header, HeaderMap};
 use axum::middleware::Next;
 use axum::response::{IntoResponse, Response};
 use axum::{Json, Router};
+use hodos_serving::snapshot::{RegionHandle, Reloaded, UpdateError, UpdateFailure};
 use std::sync::Arc;
 use subtle::ConstantTimeEq;
 
@@ -203,7 +203,7 @@ pub(super) async fn put_model(
     Path(name): Path<String>,
     req: Request,
 ) -> Result<Json<ModelAccepted>, ApiError> {
-    use crate::serving::snapshot::ModelUpdateError;
+    use hodos_serving::snapshot::ModelUpdateError;
     use std::io::Read;
     let r = region(&state, &name)?;
     let outcome = streamed(

@@ -1,7 +1,7 @@
 //! The Prometheus exporter: the process-wide recorder that renders the
-//! series [`crate::serving::metrics`] names and records, for `GET /metrics`.
+//! series [`hodos_serving::metrics`] names and records, for `GET /metrics`.
 
-use crate::serving::metrics::{
+use hodos_serving::metrics::{
     describe, CUSTOMIZATION, REQUEST_DURATION, TRIP_ABS_PCT_ERROR, TRIP_LOG_ERROR,
 };
 use metrics_exporter_prometheus::{Matcher, PrometheusBuilder, PrometheusHandle};

@@ -1,5 +1,5 @@
 //! Public API handlers: parse and validate into DTOs, answer through
-//! [`crate::serving::answer`], convert back ([`super::dto`]), count.
+//! [`hodos_serving::answer`], convert back ([`super::dto`]), count.
 
 use super::dto::{
     parse_eta_query, parse_json, EtaRequest, EtaResponse, HealthResponse, MatrixRequest,
@@ -8,13 +8,13 @@ use super::dto::{
 use super::problem::ApiError;
 use super::routes;
 use super::{AnswerLabels, AppState};
-use crate::serving::answer::{self, CellAnswer};
-use crate::serving::tier::{FallbackReason, Tier};
 use axum::body::Bytes;
 use axum::extract::{RawQuery, Request, State};
 use axum::http::{header, StatusCode};
 use axum::response::{IntoResponse, Response};
 use axum::Json;
+use hodos_serving::answer::{self, CellAnswer};
+use hodos_serving::tier::{FallbackReason, Tier};
 use metrics::SharedString;
 
 /// Reads a JSON request body up to the configured limit.
@@ -74,7 +74,7 @@ async fn answer_trip(
     let region = state
         .catalog
         .region_label_of(a.snapshot.as_ref().map(|(r, _)| r.as_str()));
-    crate::serving::metrics::answer(route, region.clone(), a.tier, a.reason, 1);
+    hodos_serving::metrics::answer(route, region.clone(), a.tier, a.reason, 1);
     let resp = if geometry {
         Json(RouteResponse::new(&a, trip.from, trip.to)).into_response()
     } else {
@@ -127,7 +127,7 @@ fn count_cells(state: &AppState, cells: &[CellAnswer]) -> &'static str {
     }
     for (g, t, r, n) in counts {
         let region = state.catalog.region_label(g);
-        crate::serving::metrics::answer(routes::MATRIX, region, t, r, n);
+        hodos_serving::metrics::answer(routes::MATRIX, region, t, r, n);
     }
     best.map(|t| t.as_str()).unwrap_or("none")
 }

@@ -45,18 +45,7 @@ pub struct ConnLimits {
     pub max_connections: usize,
 }
 
-/// The soft limit on open file descriptors (`RLIMIT_NOFILE`), if known.
-pub fn nofile_soft_limit() -> Option<u64> {
-    let mut lim = libc::rlimit {
-        rlim_cur: 0,
-        rlim_max: 0,
-    };
-    // SAFETY: getrlimit writes into the struct we pass.
-    let rc = unsafe { libc::getrlimit(libc::RLIMIT_NOFILE, &mut lim) };
-    // `rlim_t` is u64 on Linux but not on every target.
-    #[allow(clippy::unnecessary_cast)]
-    (rc == 0).then_some(lim.rlim_cur as u64)
-}
+pub use hodos_serving::os::nofile_soft_limit;
 
 /// Serves `router` on `listener` until `stop` turns true, then waits for
 /// the open connections to finish their current request and close.

@@ -274,7 +274,7 @@ pub fn admin_document() -> Value {
 /// The component schemas, one per DTO of [`super::dto`]. Tiers and
 /// reasons are the serving layer's closed sets.
 fn schemas() -> Value {
-    use crate::serving::tier::{FallbackReason, Tier};
+    use hodos_serving::tier::{FallbackReason, Tier};
     let tiers: Vec<Value> = Tier::ALL.iter().map(|t| json!(t.as_str())).collect();
     let mut reasons: Vec<Value> = FallbackReason::ALL
         .iter()

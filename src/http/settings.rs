@@ -2,12 +2,12 @@
 //! sections of the configuration file, and [`Settings`], everything
 //! [`super::AppState::open`] needs.
 
-use crate::serving::settings::{CustomizePriority, RegionConfig, ServingSettings};
+use hodos_serving::settings::{CustomizePriority, RegionConfig, ServingSettings};
 use serde::Deserialize;
 use std::net::SocketAddr;
 
 /// Everything the service needs to open: its own sections, the serving
-/// layer's, and the regions. [`crate::config::Config`] converts into it.
+/// layer's, and the regions. [`hodos_config::Config`] converts into it.
 #[derive(Debug, Clone, Default)]
 pub struct Settings {
     pub server: ServerConfig,

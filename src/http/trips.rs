@@ -6,23 +6,23 @@
 //! (`served_eta_s`) is recorded beside it as `source="served"`. The answer
 //! summarizes the batch and lists refused rows by line.
 //!
-//! Trips are read by [`crate::truth::trips`] (our CSV with a header, or
+//! Trips are read by [`hodos_truth::trips`] (our CSV with a header, or
 //! JSON lines with `Content-Type: application/x-ndjson`) and answered by
-//! [`crate::truth::replay::replay_trip`]; this file only records.
+//! [`hodos_truth::replay::replay_trip`]; this file only records.
 
 use super::problem::ApiError;
 use super::AppState;
-use crate::serving::answer::Catalog;
-use crate::serving::metrics::{NO_REGION, TRIPS_RECORDED, TRIP_ABS_PCT_ERROR, TRIP_LOG_ERROR};
-use crate::truth::measure::{summarize, Pair};
-use crate::truth::replay::replay_trip;
-use crate::truth::trips::{
-    read_trips, ReadOptions, TripFormat, TripRecord, TripReport, TripRowError,
-};
 use axum::body::Body;
 use axum::extract::{Request, State};
 use axum::http::header;
 use axum::Json;
+use hodos_serving::answer::Catalog;
+use hodos_serving::metrics::{NO_REGION, TRIPS_RECORDED, TRIP_ABS_PCT_ERROR, TRIP_LOG_ERROR};
+use hodos_truth::measure::{summarize, Pair};
+use hodos_truth::replay::replay_trip;
+use hodos_truth::trips::{
+    read_trips, ReadOptions, TripFormat, TripRecord, TripReport, TripRowError,
+};
 use serde::Serialize;
 
 /// The answer to a batch of completed trips.

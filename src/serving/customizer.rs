@@ -20,7 +20,7 @@
 //! [`Customizer::spawn`] fires and forgets. A job that panics is reported
 //! as `None` to its waiter and the thread goes on.
 
-use crate::serving::settings::CustomizePriority;
+use crate::settings::CustomizePriority;
 use std::panic::AssertUnwindSafe;
 use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::{mpsc, Arc};
@@ -62,7 +62,7 @@ impl Customizer {
         std::thread::Builder::new()
             .name(name.into())
             .spawn(move || {
-                a2.store(lower_priority(priority), Ordering::SeqCst);
+                a2.store(crate::os::lower_thread_priority(priority), Ordering::SeqCst);
                 let _ = ready_tx.send(());
                 while let Ok(job) = rx.recv() {
                     // A panicking job drops its result sender: its waiter
@@ -126,40 +126,11 @@ pub async fn run_on_own_thread<R: Send + 'static>(
     std::thread::Builder::new()
         .name(name.into())
         .spawn(move || {
-            lower_priority(priority);
+            crate::os::lower_thread_priority(priority);
             let _ = tx.send(f());
         })
         .ok()?;
     rx.await.ok()
-}
-
-/// Lowers the calling thread's CPU priority; true if it took effect.
-#[cfg(target_os = "linux")]
-fn lower_priority(p: CustomizePriority) -> bool {
-    match p {
-        CustomizePriority::Normal => true,
-        CustomizePriority::Idle => {
-            let param = libc::sched_param { sched_priority: 0 };
-            // SAFETY: pid 0 is the calling thread; `param` is a valid
-            // sched_param for SCHED_IDLE (priority must be 0).
-            let r = unsafe { libc::sched_setscheduler(0, libc::SCHED_IDLE, &param) };
-            r == 0 || lower_priority(CustomizePriority::Low)
-        }
-        CustomizePriority::Low => {
-            // SAFETY: on Linux PRIO_PROCESS with who = gettid() sets the nice
-            // value of that one thread; raising it needs no privilege.
-            let r = unsafe {
-                let tid = libc::syscall(libc::SYS_gettid) as libc::id_t;
-                libc::setpriority(libc::PRIO_PROCESS, tid, 19)
-            };
-            r == 0
-        }
-    }
-}
-
-#[cfg(not(target_os = "linux"))]
-fn lower_priority(p: CustomizePriority) -> bool {
-    p == CustomizePriority::Normal
 }
 
 #[cfg(test)]
@@ -203,8 +174,7 @@ mod tests {
         let rt = tokio::runtime::Builder::new_current_thread()
             .build()
             .unwrap();
-        // SAFETY: querying the calling thread's policy has no preconditions.
-        let policy = rt.block_on(c.run(|| unsafe { libc::sched_getscheduler(0) }));
+        let policy = rt.block_on(c.run(crate::os::thread_policy));
         assert_eq!(policy, Some(libc::SCHED_IDLE));
     }
 }

@@ -9,7 +9,7 @@
 //! renders the series is the HTTP layer's business
 //! (its `exporter` module).
 
-use crate::serving::tier::{FallbackReason, Tier};
+use crate::tier::{FallbackReason, Tier};
 use metrics::SharedString;
 
 pub const REQUEST_DURATION: &str = "hodos_request_duration_seconds";

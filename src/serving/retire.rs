@@ -9,7 +9,7 @@
 //!
 //! So the update paths never let go of the last reference themselves: they
 //! [`retire`](RetireBin::retire) it here, and a sweep on a background thread
-//! (see [`crate::serving::customizer`]) drops whatever no request holds any more.
+//! (see [`crate::customizer`]) drops whatever no request holds any more.
 //! Nothing is freed early: an item leaves the bin only when the bin's
 //! reference is the only one left.
 //!
@@ -19,18 +19,7 @@
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::{Arc, Mutex};
 
-/// Returns free heap memory to the kernel (glibc `malloc_trim`; nothing
-/// elsewhere). Called on the `updates` thread after a large upload: its
-/// freed blocks lie below the heap top and between arenas, where glibc's
-/// automatic trim (`M_TRIM_THRESHOLD`, set in `main.rs`) does not reach.
-pub fn trim_heap() {
-    #[cfg(all(target_os = "linux", target_env = "gnu"))]
-    // SAFETY: malloc_trim only releases free memory of the allocator's
-    // arenas; it may be called from any thread at any time.
-    unsafe {
-        libc::malloc_trim(0);
-    }
-}
+pub use crate::os::trim_heap;
 
 /// Something superseded whose memory should be freed in the background.
 pub trait Retiree: Send + Sync {

@@ -6,7 +6,7 @@
 //! [`crate::config`]'s job; this module knows no file format and no
 //! HTTP setting.
 
-use crate::engine::geo::LatLon;
+use hodos_engine::geo::LatLon;
 use serde::Deserialize;
 use std::path::PathBuf;
 
@@ -54,13 +54,13 @@ pub struct QueryConfig {
     /// Hard cap on answer requests (ETA, matrix, route) in flight at once,
     /// counted from the moment their body is read: a bound on memory, not a
     /// load signal (admission is by deadline, see
-    /// [`crate::serving::admission`]). Beyond it a request is still parsed
+    /// [`crate::admission`]). Beyond it a request is still parsed
     /// and validated, then answered at once from the heuristic tier with
     /// reason `overloaded`.
     pub max_in_flight: usize,
     /// Accepted for old configuration files and ignored: the scheduling
     /// lag now counts against each request's own budget instead of a fixed
-    /// bound (see [`crate::serving::admission`]).
+    /// bound (see [`crate::admission`]).
     pub max_queue_ms: u64,
     /// Accepted for old configuration files and ignored: admission no
     /// longer reads the CPU wait of the request threads (it also rose when

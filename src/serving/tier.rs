@@ -78,10 +78,10 @@ pub struct Sources {
 
 impl Sources {
     /// Shares from milliseconds per source class (indexed by
-    /// [`crate::serving::speeds::sources`]' classes). All zero (a trip of no
+    /// [`crate::speeds::sources`]' classes). All zero (a trip of no
     /// time) counts wholly in `zero_class`.
     pub fn from_class_ms(ms: &[u32], zero_class: u8) -> Sources {
-        use crate::serving::speeds::sources::{FREE_FLOW, HISTORICAL, LIVE};
+        use crate::speeds::sources::{FREE_FLOW, HISTORICAL, LIVE};
         let at = |c: u8| f64::from(ms.get(c as usize).copied().unwrap_or(0));
         let total = at(LIVE) + at(HISTORICAL) + at(FREE_FLOW);
         if total <= 0.0 {
@@ -176,7 +176,7 @@ impl FallbackReason {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::serving::speeds::sources::{FREE_FLOW, HISTORICAL, LIVE};
+    use crate::speeds::sources::{FREE_FLOW, HISTORICAL, LIVE};
 
     /// The documented rule, by hand: largest share wins, ties to the better
     /// source, no live share → never live, all live → live; shares add up.

@@ -9,12 +9,12 @@ use std::path::{Path, PathBuf};
 /// The environment variable naming the datasets directory.
 pub const DATA_DIR_ENV: &str = "HODOS_DATA_DIR";
 
-/// `$HODOS_DATA_DIR`, else `../shared/data` next to the crate. Not checked:
+/// `$HODOS_DATA_DIR`, else `shared/data` beside the repository. Not checked:
 /// callers test for the files they need.
 pub fn data_dir() -> PathBuf {
     std::env::var_os(DATA_DIR_ENV)
         .map(PathBuf::from)
-        .unwrap_or_else(|| Path::new(env!("CARGO_MANIFEST_DIR")).join("../shared/data"))
+        .unwrap_or_else(|| Path::new(env!("CARGO_MANIFEST_DIR")).join("../../../shared/data"))
 }
 
 /// Prints the line a check prints when it passes without running.

@@ -1,8 +1,8 @@
 //! [`TripOutcome`]: one completed trip's answer, as hodos would have given
 //! it at the trip's departure, beside what the trip really took.
 
-use crate::serving::tier::{FallbackReason, Tier};
 use chrono::{DateTime, Datelike, FixedOffset, Timelike};
+use hodos_serving::tier::{FallbackReason, Tier};
 use serde::Serialize;
 
 /// One replayed trip.

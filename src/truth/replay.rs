@@ -4,20 +4,20 @@
 //! the same artifact and historical table (one region per
 //! [`ReplayRegion`], default serving settings, its own state folder), and
 //! [`replay_trip`] asks it each trip through
-//! [`crate::serving::answer::trip`] with `leaving` = the trip's departure,
+//! [`hodos_serving::answer::trip`] with `leaving` = the trip's departure,
 //! so the hour-of-week profile of that departure answers (or the region's
 //! free-flow metric without a table). A departure in the past is never
 //! "now", so live data never applies to a replayed trip.
 
 use super::outcome::{local_hour_of_week, TripOutcome};
 use super::trips::TripRecord;
-use crate::engine::artifact::{Artifact, ArtifactError};
-use crate::engine::geo::haversine_m;
-use crate::serving::answer::{trip, Catalog};
-use crate::serving::correction::features;
-use crate::serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
-use crate::serving::snapshot::{RegionHandle, UpdateSettings};
 use chrono::Utc;
+use hodos_engine::artifact::{Artifact, ArtifactError};
+use hodos_engine::geo::haversine_m;
+use hodos_serving::answer::{trip, Catalog};
+use hodos_serving::correction::features;
+use hodos_serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
+use hodos_serving::snapshot::{RegionHandle, UpdateSettings};
 use std::path::{Path, PathBuf};
 
 /// One region to replay against.

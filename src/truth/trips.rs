@@ -61,10 +61,10 @@
 //! Readers take any [`std::io::Read`]; [`read_trips_file`] opens a path
 //! and decompresses it when its name ends in `.gz`.
 
-use crate::engine::geo::LatLon;
-use crate::serving::tier::Tier;
 use chrono::{DateTime, FixedOffset, LocalResult, NaiveDateTime, TimeZone};
 use chrono_tz::Tz;
+use hodos_engine::geo::LatLon;
+use hodos_serving::tier::Tier;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 use std::io::{BufRead, BufReader, Read};

@@ -16,7 +16,7 @@ pub fn available() -> bool {
         !required,
         "{CHROMIUM} is required here (HODOS_REQUIRE_CHROMIUM=1)"
     );
-    hodos::testkit::skipped(format!("{CHROMIUM} not installed"));
+    hodos_testkit::skipped(format!("{CHROMIUM} not installed"));
     false
 }
 

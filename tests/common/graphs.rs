@@ -9,35 +9,22 @@ use hodos::engine::geo::{LatLon, LocalProjection};
 use hodos::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
 use hodos::engine::order::{nested_dissection, UndirectedGraph};
 use hodos::engine::region::{Metric, Region};
-use petgraph::graph::{DiGraph, NodeIndex};
+use hodos_testkit::ReferenceGraph;
 
 /// A region built from `source` (artifact built in memory).
 pub fn region_of(source: Source) -> Region {
     Region::from_artifact(build(&source, &mut Quiet).expect("build"))
 }
 
-/// petgraph graph with one weighted arc per road edge.
-pub fn petgraph_of(g: &RoadGraph, weights: &[u32]) -> DiGraph<(), u32> {
-    let mut pg = DiGraph::with_capacity(g.num_nodes(), g.num_edges());
-    for _ in 0..g.num_nodes() {
-        pg.add_node(());
-    }
-    for ((&t, &h), &w) in g.edge_tail.iter().zip(&g.edge_head).zip(weights) {
-        pg.add_edge(NodeIndex::new(t as usize), NodeIndex::new(h as usize), w);
-    }
-    pg
+/// petgraph graph with one weighted arc per road edge (`hodos_testkit`'s
+/// reference, the one copy of petgraph's Dijkstra).
+pub fn petgraph_of(g: &RoadGraph, weights: &[u32]) -> ReferenceGraph {
+    ReferenceGraph::new(g.num_nodes(), &g.edge_tail, &g.edge_head, weights)
 }
 
 /// Reference one-to-all distances from `s` with petgraph's Dijkstra.
-pub fn reference_dists(pg: &DiGraph<(), u32>, s: u32) -> Vec<Option<u64>> {
-    let m = petgraph::algo::dijkstra(pg, NodeIndex::new(s as usize), None, |e| {
-        u64::from(*e.weight())
-    });
-    let mut out = vec![None; pg.node_count()];
-    for (k, v) in m {
-        out[k.index()] = Some(v);
-    }
-    out
+pub fn reference_dists(pg: &ReferenceGraph, s: u32) -> Vec<Option<u64>> {
+    pg.dists(s)
 }
 
 /// Checks `pairs` node-to-node queries (sources × targets) against petgraph's

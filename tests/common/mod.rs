@@ -1,5 +1,5 @@
 //! Shared helpers for the integration tests. What benchmarks and the load
-//! generator need as well lives in `hodos::testkit` and is re-exported here.
+//! generator need as well lives in `hodos_testkit` and is re-exported here.
 //!
 //! # Layout
 //!
@@ -24,13 +24,13 @@ pub mod service;
 pub mod tables;
 
 pub use graphs::{assert_exact, petgraph_of, random_speeds, reference_dists};
-pub use hodos::testkit::{DimacsNy, SplitMix64};
+pub use hodos_testkit::{DimacsNy, SplitMix64};
 
 use std::path::{Path, PathBuf};
 
 /// The DIMACS NY files, or `None` after printing why the check is skipped.
 pub fn dimacs_ny() -> Option<DimacsNy> {
-    DimacsNy::find().map_err(hodos::testkit::skipped).ok()
+    DimacsNy::find().map_err(hodos_testkit::skipped).ok()
 }
 
 /// The OSM fixtures copied into tests/data.

@@ -4,7 +4,7 @@
 use hodos::config::Config;
 use hodos::engine::build::{build, Quiet, Source};
 use hodos::engine::geo::LatLon;
-use hodos::testkit::region_table;
+use hodos_test_support::region_table;
 use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
 

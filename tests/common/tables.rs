@@ -1,8 +1,8 @@
 //! Speed tables over the service fixture's edges ([`super::service::city`]),
-//! written with `hodos::testkit`'s CSV and JSON writers.
+//! written with `hodos_testkit`'s CSV and JSON writers.
 
 use super::service::city;
-use hodos::testkit::{observation, HistoricalCsv};
+use hodos_testkit::{observation, HistoricalCsv};
 use serde_json::Value;
 
 /// A historical table setting every edge to `speed` at every weekday 10:00.

@@ -10,7 +10,7 @@
 //! point query ([`super::query`]) and by the many-to-many walks
 //! ([`super::matrix`]).
 
-use crate::engine::graph::NONE;
+use crate::graph::NONE;
 
 /// The union of up to `N` ancestor chains, walked in increasing rank.
 #[derive(Debug, Clone, Copy)]

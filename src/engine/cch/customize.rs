@@ -17,7 +17,7 @@
 
 use super::classes::{arc_class_times, ClassTimes};
 use super::Cch;
-use crate::engine::graph::NONE;
+use crate::graph::NONE;
 
 /// Weight of an arc with no path (one-way pair, or a pure fill-in arc that
 /// no triangle improves). Sums of two stay below `u32::MAX`.
@@ -589,14 +589,14 @@ fn upper_triangles(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::engine::geo::LocalProjection;
-    use crate::engine::order::{nested_dissection, UndirectedGraph};
+    use crate::geo::LocalProjection;
+    use crate::order::{nested_dissection, UndirectedGraph};
 
     /// The two-thread customization gives exactly the sequential result
     /// (weights, middle nodes, lengths and pruned arcs).
     #[test]
     fn parallel_equals_sequential() {
-        let (g, _) = crate::engine::import::synthetic::generate(40_000, 3).keep_largest_scc();
+        let (g, _) = crate::import::synthetic::generate(40_000, 3).keep_largest_scc();
         let ug = UndirectedGraph::from_edges(
             g.num_nodes(),
             g.edge_tail.iter().copied().zip(g.edge_head.iter().copied()),
@@ -608,7 +608,7 @@ mod tests {
         let cch = Cch::build(&g, nested_dissection(&ug, &xy, &mut |_| {}).rank);
         let split = Split::find(&cch).expect("a 40,000-node city branches");
         assert!(split.mid > 0 && split.mid < split.top);
-        let w = crate::engine::metric::free_flow(&g);
+        let w = crate::metric::free_flow(&g);
         let mut a = CustomizedMetric::new(&cch, &w, &g.edge_len_m);
         let b = a.clone();
         a.customize_with(&cch, &w, &g.edge_len_m, false);

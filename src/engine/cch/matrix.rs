@@ -34,14 +34,14 @@
 //! [`ManyToMany`] owns all scratch; after a warm-up call of the same size a
 //! call allocates nothing. Its endpoints are road nodes with partial costs;
 //! the coordinate front end (snapping, trips along one road) is
-//! [`crate::engine::region::matrix`].
+//! [`crate::region::matrix`].
 
 use super::chains::Chains;
 use super::classes::{add, single, ClassTimes, CLASSES};
 use super::customize::{CustomizedMetric, PrunedArc, PrunedArcs, INFINITY};
 use super::query::{Endpoint, MAX_ENDPOINTS};
 use super::Cch;
-use crate::engine::graph::NONE;
+use crate::graph::NONE;
 use std::time::Instant;
 
 /// Why a matrix could not be computed at all.
@@ -741,8 +741,8 @@ fn scan(d: u32, x: u32, bucket: &[u32], row: &mut [u32], meet: &mut [u32]) {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::engine::cch::CchQuery;
-    use crate::engine::testing::{city, reference_dists, Rng};
+    use crate::cch::CchQuery;
+    use crate::testing::{city, reference_dists, Rng};
 
     /// Many-to-many with class times on random edge classes: every cell's
     /// time equals petgraph's Dijkstra (the reference), its class times add
@@ -757,7 +757,7 @@ mod tests {
         let speeds: Vec<f32> = (0..g.num_edges())
             .map(|_| 5.0 + rng.below(116) as f32)
             .collect();
-        let weights = crate::engine::metric::from_speeds(g, &speeds);
+        let weights = crate::metric::from_speeds(g, &speeds);
         let classes: Vec<u8> = (0..g.num_edges()).map(|_| rng.below(3) as u8).collect();
         let mut metric = CustomizedMetric::new(cch, &weights, &g.edge_len_m);
         metric.set_classes(cch, &weights, &classes);

@@ -3,7 +3,7 @@
 //!
 //! Three phases:
 //! 1. **Contraction** ([`Cch::build`], metric-independent, in `hodos build`):
-//!    given a nested-dissection order ([`crate::engine::order`]), eliminate nodes in
+//!    given a nested-dissection order ([`crate::order`]), eliminate nodes in
 //!    rank order and add every fill-in arc. The result is a chordal
 //!    supergraph of the road graph in which each node keeps only its
 //!    higher-ranked ("upper") neighbours. Its shape never depends on speeds.
@@ -31,7 +31,7 @@
 //! **Architecture Invariant:** this module does no I/O and knows nothing about
 //! HTTP, files or speed tables: it maps `&[u32]` edge weights to answers. It
 //! never imports the region (coordinates, snapping): that front end sits on
-//! top, in [`crate::engine::region`].
+//! top, in [`crate::region`].
 
 mod chains;
 pub mod classes;
@@ -39,7 +39,7 @@ pub mod customize;
 pub mod matrix;
 pub mod query;
 
-use crate::engine::graph::{RoadGraph, NONE};
+use crate::graph::{RoadGraph, NONE};
 use serde::{Deserialize, Serialize};
 
 pub use customize::CustomizedMetric;

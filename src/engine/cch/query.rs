@@ -21,7 +21,7 @@ use super::chains::Chains;
 use super::classes::{add, single, ClassTimes, CLASSES};
 use super::customize::{CustomizedMetric, PrunedArc, INFINITY, VIA_EDGE, VIA_NONE};
 use super::Cch;
-use crate::engine::graph::NONE;
+use crate::graph::NONE;
 
 /// Most start nodes per side.
 pub const MAX_ENDPOINTS: usize = 2;
@@ -348,8 +348,8 @@ impl CchQuery {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::engine::graph::RoadGraph;
-    use crate::engine::testing::{city, reference_dists, Rng};
+    use crate::graph::RoadGraph;
+    use crate::testing::{city, reference_dists, Rng};
 
     /// The road edges of the last path form a walk from endpoint `a`'s node
     /// to `b`'s whose weights add up to the time less both partial costs,
@@ -397,8 +397,8 @@ mod tests {
             .map(|_| 5.0 + rng.below(116) as f32)
             .collect();
         for weights in [
-            crate::engine::metric::free_flow(g),
-            crate::engine::metric::from_speeds(g, &speeds),
+            crate::metric::free_flow(g),
+            crate::metric::from_speeds(g, &speeds),
         ] {
             let metric = CustomizedMetric::new(cch, &weights, &g.edge_len_m);
             let mut q = CchQuery::new(cch);
@@ -466,7 +466,7 @@ mod tests {
         let speeds: Vec<f32> = (0..g.num_edges())
             .map(|_| 5.0 + rng.below(116) as f32)
             .collect();
-        let weights = crate::engine::metric::from_speeds(g, &speeds);
+        let weights = crate::metric::from_speeds(g, &speeds);
         let classes: Vec<u8> = (0..g.num_edges()).map(|_| rng.below(3) as u8).collect();
         let mut metric = CustomizedMetric::new(cch, &weights, &g.edge_len_m);
         metric.set_classes(cch, &weights, &classes);

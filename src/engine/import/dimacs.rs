@@ -33,8 +33,8 @@
 //!   shortest path); [`read_arc_weights`] still returns them, in file order.
 
 use super::ImportError;
-use crate::engine::geo::LatLon;
-use crate::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
+use crate::geo::LatLon;
+use crate::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
 use flate2::read::MultiGzDecoder;
 use std::fs::File;
 use std::io::{BufRead, BufReader};
@@ -48,7 +48,7 @@ pub const DEFAULT_SPEED_KMH: f32 = 40.0;
 /// Distance-graph weight units per metre (the `-d` graphs are in decimetres).
 pub const WEIGHT_UNITS_PER_METRE: f64 = 10.0;
 
-/// Largest node count accepted: node ids are `u32` and [`crate::engine::graph::NONE`]
+/// Largest node count accepted: node ids are `u32` and [`crate::graph::NONE`]
 /// is reserved.
 const MAX_NODES: u64 = u32::MAX as u64 - 1;
 

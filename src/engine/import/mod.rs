@@ -1,4 +1,4 @@
-//! Importers: turn an input source into a [`RoadGraph`](crate::engine::graph::RoadGraph).
+//! Importers: turn an input source into a [`RoadGraph`](crate::graph::RoadGraph).
 //!
 //! - [`osm`]: OpenStreetMap PBF extracts (drivable roads, tags → speeds and
 //!   directions; the tag rules live in [`osm_tags`]).

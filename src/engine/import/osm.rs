@@ -30,8 +30,8 @@
 
 use super::osm_tags::{car_way, Direction, TagView};
 use super::ImportError;
-use crate::engine::geo::LatLon;
-use crate::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph, NONE};
+use crate::geo::LatLon;
+use crate::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph, NONE};
 use osmpbf::{BlobDecode, BlobReader, HeaderBlock, PrimitiveBlock};
 use std::collections::HashMap;
 use std::fs::File;

@@ -12,7 +12,7 @@
 //! give (default speeds, zone speeds) are marked "common practice / from
 //! memory": they are choices, not facts.
 
-use crate::engine::graph::RoadClass;
+use crate::graph::RoadClass;
 
 /// The handful of tags the car rules look at, read from a way in one scan.
 ///

@@ -56,8 +56,8 @@
 //! nodes). Below roughly 300 nodes the smallest layout (7×7 downtown) is used,
 //! so the result is larger than asked.
 
-use crate::engine::geo::{LatLon, EARTH_RADIUS_M};
-use crate::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph, NONE};
+use crate::geo::{LatLon, EARTH_RADIUS_M};
+use crate::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph, NONE};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 
@@ -440,7 +440,7 @@ impl Lattice {
 /// island `k` has id `k·side² + i·side + j` and external id one more.
 /// (`hodos build` keeps only the largest strongly connected component, so
 /// an artifact over this graph is put together with
-/// [`crate::engine::build::assemble`].)
+/// [`crate::build::assemble`].)
 pub fn islands(side: u32, origin: LatLon, gap_deg: f64) -> RoadGraph {
     let mut b = GraphBuilder::default();
     let mut way = 0;

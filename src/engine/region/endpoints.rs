@@ -7,9 +7,9 @@
 //! between the two. The ETA, the route and every matrix cell go through
 //! these three, so they give the same answer for the same pair.
 
-use crate::engine::cch::query::Endpoint;
-use crate::engine::graph::{RoadGraph, NONE};
-use crate::engine::snap::Snap;
+use crate::cch::query::Endpoint;
+use crate::graph::{RoadGraph, NONE};
+use crate::snap::Snap;
 
 /// Search starts (origin) or ends (destination) for a snapped point:
 /// endpoint 0 runs along the snapped edge, endpoint 1 along its twin. On a
@@ -134,11 +134,8 @@ pub(crate) struct Direct {
 impl Direct {
     /// The trip's time in the class of its edge.
     #[inline]
-    pub(crate) fn classes(
-        &self,
-        metric: &super::Metric,
-    ) -> crate::engine::cch::classes::ClassTimes {
-        crate::engine::cch::classes::single(metric.class_of(self.edge), self.time_ms as u32)
+    pub(crate) fn classes(&self, metric: &super::Metric) -> crate::cch::classes::ClassTimes {
+        crate::cch::classes::single(metric.class_of(self.edge), self.time_ms as u32)
     }
 }
 

@@ -8,13 +8,13 @@
 
 use super::endpoints::{choose, direct_stretch, snap_endpoints, Choice};
 use super::{End, EtaError, Metric, Region};
-use crate::engine::cch::classes::{ClassTimes, CLASSES};
-use crate::engine::cch::customize::INFINITY;
-use crate::engine::cch::matrix::{ManyToMany, MatrixError, NodeCells, Points};
-use crate::engine::cch::query::Endpoint;
-use crate::engine::geo::LatLon;
-use crate::engine::graph::NONE;
-use crate::engine::snap::Snap;
+use crate::cch::classes::{ClassTimes, CLASSES};
+use crate::cch::customize::INFINITY;
+use crate::cch::matrix::{ManyToMany, MatrixError, NodeCells, Points};
+use crate::cch::query::Endpoint;
+use crate::geo::LatLon;
+use crate::graph::NONE;
+use crate::snap::Snap;
 use std::time::Instant;
 
 /// One cell of a coordinate matrix.

@@ -7,7 +7,7 @@
 //! A metric made with per-edge classes ([`Region::metric_with_classes`])
 //! also reports, per answer, the milliseconds spent on edges of each class
 //! (partial first/last edges with their partial time; see
-//! [`crate::engine::cch::classes`]).
+//! [`crate::cch::classes`]).
 //!
 //! # Layout
 //!
@@ -17,19 +17,19 @@
 //!   the trip along one shared road, and the rule choosing between that and
 //!   the graph answer.
 //! - [`matrix`]: coordinate matrices (every point snapped once, one bucket
-//!   many-to-many over [`crate::engine::cch::matrix`]), each cell equal to
+//!   many-to-many over [`crate::cch::matrix`]), each cell equal to
 //!   [`Region::eta`] for the same pair.
 
 pub(crate) mod endpoints;
 pub mod matrix;
 
-use crate::engine::artifact::{Artifact, Metadata};
-use crate::engine::calibration::Calibration;
-use crate::engine::cch::classes::ClassTimes;
-use crate::engine::cch::{Cch, CchQuery, CustomizedMetric};
-use crate::engine::geo::LatLon;
-use crate::engine::graph::{RoadGraph, NONE};
-use crate::engine::snap::{Snap, SnapIndex};
+use crate::artifact::{Artifact, Metadata};
+use crate::calibration::Calibration;
+use crate::cch::classes::ClassTimes;
+use crate::cch::{Cch, CchQuery, CustomizedMetric};
+use crate::geo::LatLon;
+use crate::graph::{RoadGraph, NONE};
+use crate::snap::{Snap, SnapIndex};
 use endpoints::{choose, direct_stretch, snap_endpoints, Choice, Direct};
 
 /// Largest snap distance accepted by default, in metres.
@@ -152,7 +152,7 @@ impl Region {
 
     /// The free-flow metric.
     pub fn free_flow(&self) -> Metric {
-        self.metric(crate::engine::metric::free_flow(&self.graph))
+        self.metric(crate::metric::free_flow(&self.graph))
     }
 
     /// Snaps a coordinate, enforcing the maximum snap distance.
@@ -289,7 +289,7 @@ enum Via {
 /// Appends the part of edge `e`'s polyline between the shares `from..to`
 /// of its (haversine) length, measured from its tail.
 fn push_sub_polyline(g: &RoadGraph, e: u32, from: f64, to: f64, out: &mut Vec<LatLon>) {
-    use crate::engine::geo::{haversine_m, lerp};
+    use crate::geo::{haversine_m, lerp};
     let poly = g.edge_polyline(e);
     let total: f64 = poly.windows(2).map(|w| haversine_m(w[0], w[1])).sum();
     let from_m = from.clamp(0.0, 1.0) * total;
@@ -325,7 +325,7 @@ fn push_sub_polyline(g: &RoadGraph, e: u32, from: f64, to: f64, out: &mut Vec<La
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::engine::testing::{city, reference_dists, Rng};
+    use crate::testing::{city, reference_dists, Rng};
 
     fn region() -> Region {
         Region::from_artifact(city(3_000, 21))
@@ -442,8 +442,8 @@ mod tests {
             let twin = g.edge_twin[ei];
             let (tail, head) = (g.node_pos(g.edge_tail[ei]), g.node_pos(g.edge_head[ei]));
             let (p30, p70) = (
-                crate::engine::geo::lerp(tail, head, 0.3),
-                crate::engine::geo::lerp(tail, head, 0.7),
+                crate::geo::lerp(tail, head, 0.3),
+                crate::geo::lerp(tail, head, 0.7),
             );
             // Forward along e (or, if two-way, backward along its twin).
             for (from, to, forward) in [(p30, p70, true), (p70, p30, false)] {

@@ -142,7 +142,7 @@ fn label<'a>(labels: &[(&str, &'a str)], key: &str) -> &'a str {
 
 /// The snapshot of an exposition text.
 pub fn snapshot(text: &str) -> Snapshot {
-    use crate::serving::metrics as m;
+    use hodos_serving::metrics as m;
     let mut s = Snapshot {
         at_ms: chrono::Utc::now().timestamp_millis(),
         ..Snapshot::default()

@@ -7,9 +7,9 @@
 //! alphabetical order: the answers were first built as `serde_json::Value`s,
 //! whose keys serialize sorted, and keeping that order keeps the bytes.
 
-use crate::serving::snapshot::{ProfilesStatus, RegionStatus, ReloadOutcome};
-use crate::serving::speeds::{RowError, TableReport};
 use chrono::{DateTime, Utc};
+use hodos_serving::snapshot::{ProfilesStatus, RegionStatus, ReloadOutcome};
+use hodos_serving::speeds::{RowError, TableReport};
 use serde::Serialize;
 use std::collections::BTreeMap;
 
@@ -236,11 +236,11 @@ pub struct ModelAccepted {
     pub train_window: [String; 2],
     pub test_window: Option<[String; 2]>,
     /// What `hodos train` measured (MAPE, RMSLE, coverage per set).
-    pub figures: Vec<crate::serving::correction::model::Figure>,
+    pub figures: Vec<hodos_serving::correction::model::Figure>,
 }
 
-impl From<&crate::serving::correction::CorrectionModel> for ModelAccepted {
-    fn from(m: &crate::serving::correction::CorrectionModel) -> Self {
+impl From<&hodos_serving::correction::CorrectionModel> for ModelAccepted {
+    fn from(m: &hodos_serving::correction::CorrectionModel) -> Self {
         ModelAccepted {
             outcome: "accepted",
             model_version: m.meta.model_version,
@@ -279,7 +279,7 @@ pub struct ReloadResponse {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::serving::speeds::ErrorKind;
+    use hodos_serving::speeds::ErrorKind;
 
     /// The wire form is byte for byte the one the service sent before the
     /// DTOs existed (then the serving types' own serde form put through a

@@ -5,8 +5,8 @@
 //! as `serde_json::Value`s, whose keys serialize sorted, and keeping that
 //! order keeps the bytes.
 
-use crate::http::settings::ReadyWhen;
-use crate::serving::snapshot::RegionStatus;
+use crate::settings::ReadyWhen;
+use hodos_serving::snapshot::RegionStatus;
 use serde::Serialize;
 
 /// `GET /healthz`: the process answers.

@@ -6,9 +6,9 @@
 //! the shares of their travel time on live, historical and free-flow speeds
 //! (rounded to 1e-6; `null` for heuristic answers).
 
-use crate::engine::geo::LatLon;
-use crate::serving::answer::{Answer, MatrixAnswer};
-use crate::serving::tier::Sources;
+use hodos_engine::geo::LatLon;
+use hodos_serving::answer::{Answer, MatrixAnswer};
+use hodos_serving::tier::Sources;
 use serde::Serialize;
 
 /// Rounds to three decimals (metres → millimetres, seconds → milliseconds).

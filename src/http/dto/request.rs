@@ -12,9 +12,9 @@
 //! field is refused like any unknown field, with a rule that names
 //! `leaving` ([`RENAMED`]).
 
-use crate::engine::geo::LatLon;
-use crate::http::problem::ApiError;
+use crate::problem::ApiError;
 use chrono::{DateTime, Utc};
+use hodos_engine::geo::LatLon;
 use serde::de::{self, DeserializeOwned, Deserializer, MapAccess, SeqAccess, Visitor};
 use serde::{Deserialize, Serialize};
 use std::fmt;

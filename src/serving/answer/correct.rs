@@ -3,9 +3,9 @@
 //! regions without a model, keep their uncorrected time.
 
 use super::{Answer, MatrixAnswer};
-use crate::engine::geo::LatLon;
-use crate::serving::correction::{correct, CorrectionModel, Query};
-use crate::serving::snapshot::RegionHandle;
+use crate::correction::{correct, CorrectionModel, Query};
+use crate::snapshot::RegionHandle;
+use hodos_engine::geo::LatLon;
 use std::sync::Arc;
 
 /// Corrects `a` (from `from` to `to`) with `handle`'s model, if it has one.

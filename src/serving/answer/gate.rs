@@ -1,7 +1,7 @@
 //! The gate every answer passes before graph work, in this order: a region
 //! covers the request → it has a snapshot → the request was admitted → a
 //! graph permit comes in time for its deadline (admission by deadline,
-//! [`crate::serving::admission::Admission::permit`]) → the metric (live if "now" and fresh, else the
+//! [`crate::admission::Admission::permit`]) → the metric (live if "now" and fresh, else the
 //! metric of the departure hour's profile, always customized). The first
 //! check that fails names the fallback reason; passing them all yields the
 //! snapshot, the chosen metric and the permit. The tier is not decided here:
@@ -10,12 +10,12 @@
 //! that hour's factor.
 
 use super::{Catalog, Estimator};
-use crate::engine::region::Metric;
-use crate::serving::admission::GraphPermit;
-use crate::serving::metrics as m;
-use crate::serving::snapshot::{LiveMetric, ProfileUsed, RegionHandle, Snapshot};
-use crate::serving::tier::{FallbackReason, Sources, Tier};
+use crate::admission::GraphPermit;
+use crate::metrics as m;
+use crate::snapshot::{LiveMetric, ProfileUsed, RegionHandle, Snapshot};
+use crate::tier::{FallbackReason, Sources, Tier};
 use chrono::{DateTime, Utc};
+use hodos_engine::region::Metric;
 use std::sync::Arc;
 use std::time::Instant;
 
@@ -52,7 +52,7 @@ pub(super) enum LiveState {
 
 impl Chosen {
     /// Tier, reason and data age of a graph answer that used `sources`
-    /// (the rules in [`crate::serving::tier`]).
+    /// (the rules in [`crate::tier`]).
     pub fn label(&self, sources: &Sources) -> (Tier, Option<FallbackReason>, Option<f64>) {
         let tier = sources.tier();
         let reason = match (tier, self.live) {
@@ -166,7 +166,7 @@ pub(super) async fn gate(
             tag: None,
         });
     };
-    let hour = crate::serving::speeds::hour_of_week(depart.unwrap_or_else(Utc::now), handle.tz);
+    let hour = crate::speeds::hour_of_week(depart.unwrap_or_else(Utc::now), handle.tz);
     let Some(snap) = handle.snapshot() else {
         return Err(Fallback {
             snap: None,

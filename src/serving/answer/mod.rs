@@ -9,7 +9,7 @@
 //! 3. the request was not admitted (over the hard cap on requests in
 //!    flight) or no graph permit would come in time for its graph answer
 //!    within its budget (admission by deadline, see
-//!    [`crate::serving::admission`]) → heuristic (region calibration),
+//!    [`crate::admission`]) → heuristic (region calibration),
 //!    `overloaded`;
 //! 4. pick the metric: live if the departure is "now" (within the TTL) and
 //!    the region holds fresh live data; otherwise the metric of the
@@ -21,7 +21,7 @@
 //! 6. label: the route's sources (time shares on live, historical and
 //!    free-flow edges) give its tier, and with the live state of step 4
 //!    its reason (`no_live_data`, `live_stale`, `no_live_on_route`,
-//!    `live_minority`; see [`crate::serving::tier`]);
+//!    `live_minority`; see [`crate::tier`]);
 //! 7. correct: when the region serves a correction model, every answer it
 //!    covers (estimates included) gets the model's ETA and interval, and
 //!    keeps its uncorrected time beside them.
@@ -54,13 +54,13 @@ mod trip;
 pub use matrix::matrix_trip;
 pub use trip::trip;
 
-use crate::engine::calibration::Calibration;
-use crate::engine::geo::LatLon;
-use crate::serving::admission::Admission;
-use crate::serving::correction::{Corrected, Query};
-use crate::serving::settings::ServingSettings;
-use crate::serving::snapshot::{ProfileUsed, RegionHandle, Snapshot};
-use crate::serving::tier::{FallbackReason, Sources, Tier};
+use crate::admission::Admission;
+use crate::correction::{Corrected, Query};
+use crate::settings::ServingSettings;
+use crate::snapshot::{ProfileUsed, RegionHandle, Snapshot};
+use crate::tier::{FallbackReason, Sources, Tier};
+use hodos_engine::calibration::Calibration;
+use hodos_engine::geo::LatLon;
 use std::sync::Arc;
 use std::time::Duration;
 use tokio::sync::Semaphore;
@@ -103,9 +103,7 @@ impl Catalog {
         region
             .and_then(|i| self.labels.get(usize::from(i)))
             .cloned()
-            .unwrap_or(metrics::SharedString::const_str(
-                crate::serving::metrics::NO_REGION,
-            ))
+            .unwrap_or(metrics::SharedString::const_str(crate::metrics::NO_REGION))
     }
 
     /// The `region` metric label of a region named in an answer's tag.

@@ -13,14 +13,14 @@
 //! - unreachable pairs: petgraph's Dijkstra reaches no distance.
 
 use super::{matrix_trip, trip, Catalog};
-use crate::engine::build::{assemble, build_from_graph, Quiet};
-use crate::engine::calibration::Calibration;
-use crate::engine::geo::LatLon;
-use crate::engine::graph::RoadGraph;
-use crate::serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
-use crate::serving::snapshot::{RegionHandle, UpdateError, UpdateSettings};
-use crate::serving::tier::{FallbackReason as R, Tier};
+use crate::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
+use crate::snapshot::{RegionHandle, UpdateError, UpdateSettings};
+use crate::tier::{FallbackReason as R, Tier};
 use chrono::{Duration as Days, Utc};
+use hodos_engine::build::{assemble, build_from_graph, Quiet};
+use hodos_engine::calibration::Calibration;
+use hodos_engine::geo::LatLon;
+use hodos_engine::graph::RoadGraph;
 use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
 
@@ -35,7 +35,7 @@ fn city() -> &'static City {
     static C: OnceLock<City> = OnceLock::new();
     C.get_or_init(|| {
         let dir = tempfile::tempdir().unwrap();
-        let raw = crate::engine::import::synthetic::generate(600, 11);
+        let raw = hodos_engine::import::synthetic::generate(600, 11);
         let art = build_from_graph("synthetic:quellhaven".into(), raw, 0.0, &mut Quiet).unwrap();
         let artifact = dir.path().join("quellhaven.hodos");
         art.save(&artifact).unwrap();
@@ -108,7 +108,7 @@ fn region_estimate(cal: &Calibration, a: LatLon, b: LatLon) -> (f64, f64) {
 
 /// petgraph Dijkstra travel time (ms) from node `s` to `t` over `w`.
 fn dijkstra_ms(g: &RoadGraph, w: &[u32], s: u32, t: u32) -> Option<u64> {
-    crate::engine::testing::reference_dists(g, w, s)[t as usize]
+    hodos_testkit::reference_dists(g.num_nodes(), &g.edge_tail, &g.edge_head, w, s)[t as usize]
 }
 
 /// Free-flow weights in ms, by hand: length ÷ speed.
@@ -292,8 +292,8 @@ async fn gate_fallbacks_and_graph_tiers() {
 
     // A table of one speed (20 km/h) for next week's hour: historical, and
     // the time is petgraph's Dijkstra on length ÷ 20 km/h.
-    let hour = crate::serving::speeds::hour_of_week(later, region.tz);
-    let mut csv = crate::testkit::HistoricalCsv::with_header();
+    let hour = crate::speeds::hour_of_week(later, region.tz);
+    let mut csv = hodos_testkit::HistoricalCsv::with_header();
     for e in 0..g.num_edges() {
         let (u, v) = (
             g.node_ext[g.edge_tail[e] as usize],
@@ -484,7 +484,7 @@ async fn unavailable_region_answers_from_the_defaults() {
 /// keeps only the largest strongly connected component, so the artifact
 /// is assembled as it is).
 fn islands(dir: &Path) -> (PathBuf, RoadGraph) {
-    let g = crate::engine::import::synthetic::islands(4, LatLon::new(0.01, 0.01), 0.02);
+    let g = hodos_engine::import::synthetic::islands(4, LatLon::new(0.01, 0.01), 0.02);
     let art = assemble(
         "test:islands".into(),
         g.clone(),
@@ -610,7 +610,7 @@ async fn a_held_profile_metric_keeps_its_snapshot_retired() {
     let region = cat.regions[0].clone();
     let held = region.snapshot().unwrap().profiles.metrics[0].clone();
     let g = &c.graph;
-    let mut csv = crate::testkit::HistoricalCsv::with_header();
+    let mut csv = hodos_testkit::HistoricalCsv::with_header();
     for e in 0..g.num_edges() {
         let (u, v) = (
             g.node_ext[g.edge_tail[e] as usize],
@@ -638,7 +638,7 @@ async fn a_held_profile_metric_keeps_its_snapshot_retired() {
 /// A straight road 0–1–2–3 of known lengths (200, 300, 400 m, two-way,
 /// 36 km/h free-flow) with a spur 1–4 (150 m), node ids 1..=5 outside.
 fn line(dir: &Path) -> (PathBuf, RoadGraph) {
-    use crate::engine::graph::{EdgeSpec, GraphBuilder, RoadClass};
+    use hodos_engine::graph::{EdgeSpec, GraphBuilder, RoadClass};
     let mut b = GraphBuilder::default();
     for (k, lon) in [0.010, 0.012, 0.015, 0.019].into_iter().enumerate() {
         b.add_node(LatLon::new(0.01, lon), k as u64 + 1);
@@ -670,7 +670,7 @@ fn line(dir: &Path) -> (PathBuf, RoadGraph) {
 /// Fresh live observations (stamped 5 s ahead: within the allowed skew,
 /// so age 0 and live weight exactly 1) at `kmh` on the directed roads
 /// `(from, to)` (outside node ids).
-async fn observe(region: &crate::serving::snapshot::RegionHandle, roads: &[(u64, u64)], kmh: f64) {
+async fn observe(region: &crate::snapshot::RegionHandle, roads: &[(u64, u64)], kmh: f64) {
     let at = (Utc::now() + Days::seconds(5)).to_rfc3339();
     let batch: Vec<serde_json::Value> = roads
         .iter()
@@ -718,7 +718,7 @@ async fn sources_name_the_speeds_the_route_used() {
 
     // A table row for 1→2 in every hour: 20 + 45 + 40 = 105 s; free-flow
     // carries 60/105, so the tier is free_flow, by the largest share.
-    let mut csv = crate::testkit::HistoricalCsv::with_header();
+    let mut csv = hodos_testkit::HistoricalCsv::with_header();
     for hour in 0..168 {
         csv.row(2, 3, hour, 24);
     }

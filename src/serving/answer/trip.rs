@@ -2,17 +2,17 @@
 //! with this thread's query scratch; off-road and unreachable ends fall
 //! back to the heuristic tier from the region's calibration. A graph
 //! answer's tier, reason and age follow from the sources its route used
-//! ([`crate::serving::tier`]).
+//! ([`crate::tier`]).
 
 use super::gate::{gate, Granted, Tag};
 use super::scratch::{with_scratch, ScratchCache};
 use super::{Answer, Catalog, Estimator};
-use crate::engine::cch::CchQuery;
-use crate::engine::geo::LatLon;
-use crate::engine::region::{End, EtaError};
-use crate::serving::snapshot::RegionHandle;
-use crate::serving::tier::{FallbackReason, Sources, Tier};
+use crate::snapshot::RegionHandle;
+use crate::tier::{FallbackReason, Sources, Tier};
 use chrono::{DateTime, Utc};
+use hodos_engine::cch::CchQuery;
+use hodos_engine::geo::LatLon;
+use hodos_engine::region::{End, EtaError};
 use std::cell::RefCell;
 use std::sync::Arc;
 use std::time::Instant;

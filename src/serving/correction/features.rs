@@ -11,8 +11,8 @@
 //! The order of [`NAMES`] is part of the model file: a model names the
 //! features it was trained on and is refused unless they are these.
 
-use crate::engine::geo::LatLon;
-use crate::serving::tier::{Sources, Tier};
+use crate::tier::{Sources, Tier};
+use hodos_engine::geo::LatLon;
 
 /// Number of features.
 pub const N: usize = 15;

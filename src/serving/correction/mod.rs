@@ -2,7 +2,7 @@
 //! of an answer (any tier, the estimate included) into a calibrated ETA
 //! with an interval, hot-swapped like the speed tables.
 //!
-//! The trees are fitted offline (`hodos train`, [`crate::truth::train`])
+//! The trees are fitted offline (`hodos train`, [`hodos_truth::train`])
 //! on completed trips; here they only predict. Applying a model costs one
 //! feature vector on the stack and a walk down each tree: nothing is
 //! allocated per answer.

@@ -1,6 +1,6 @@
 //! The historical tier's metrics: the hours of the week grouped into at most
 //! `query.profiles` representative profiles
-//! ([`HourGrouping`](crate::serving::speeds::HourGrouping)), one customized
+//! ([`HourGrouping`](crate::speeds::HourGrouping)), one customized
 //! metric per profile, all made on the customizer thread before the
 //! snapshot that holds them is published. A request maps its departure
 //! hour to a profile and finds the metric ready: no departure time waits
@@ -9,10 +9,10 @@
 
 use super::error::{UpdateError, UpdateFailure};
 use super::{RegionHandle, Snapshot};
-use crate::engine::region::{Metric, Region};
-use crate::serving::metrics as m;
-use crate::serving::retire::Retiree;
-use crate::serving::speeds::{sources, HistoricalProfile, HourGrouping};
+use crate::metrics as m;
+use crate::retire::Retiree;
+use crate::speeds::{sources, HistoricalProfile, HourGrouping};
+use hodos_engine::region::{Metric, Region};
 use std::sync::Arc;
 use std::time::Instant;
 
@@ -77,7 +77,7 @@ pub(super) fn profile_metric(
     // Each edge's source class (historical where the hour has a row,
     // free-flow elsewhere) so answers report the sources of their time.
     let classes = sources::hour_classes(hist, speeds.len(), hour);
-    let weights = crate::engine::metric::from_speeds(&region.graph, &speeds);
+    let weights = hodos_engine::metric::from_speeds(&region.graph, &speeds);
     region.metric_with_classes(weights, classes)
 }
 

@@ -3,8 +3,8 @@
 //! take effect. Their `Display` text is what `/admin/status`, the admin
 //! API and the logs show, unchanged from when they were strings.
 
-use crate::engine::artifact::ArtifactError;
-use crate::serving::speeds::{PersistError, SpeedsError};
+use crate::speeds::{PersistError, SpeedsError};
+use hodos_engine::artifact::ArtifactError;
 use std::path::PathBuf;
 use std::sync::Arc;
 
@@ -86,7 +86,7 @@ pub enum UpdateFailure {
     /// An accepted live batch could not be logged durably: it is applied
     /// but not acknowledged (the caller sees a failure and may resend).
     #[error("{0}")]
-    Wal(crate::serving::speeds::wal::WalError),
+    Wal(crate::speeds::wal::WalError),
 }
 
 /// Why an update did not take effect.

@@ -8,18 +8,18 @@
 //! thread, the watched folder's `std::fs` calls on tokio's blocking pool.
 //!
 //! A blend labels each edge live (fresh observation), else as the bucket it
-//! blends into ([`crate::serving::speeds::sources`]); the live metric
+//! blends into ([`crate::speeds::sources`]); the live metric
 //! carries those classes so answers report how much of their time is live.
 
 use super::load::{live_state_path, live_wal_path};
 use super::{age_s, LiveMetric, RegionHandle, Snapshot};
-use crate::engine::region::{Metric, Region};
-use crate::serving::metrics as m;
-use crate::serving::speeds::{
+use crate::metrics as m;
+use crate::speeds::{
     blend_into, save_live, sources, BlendStats, EdgeIndex, HistoricalProfile, LiveLayer,
     SpeedsError,
 };
 use chrono::{DateTime, Utc};
+use hodos_engine::region::{Metric, Region};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::Ordering;
 use std::sync::Arc;
@@ -58,7 +58,7 @@ fn blend_layer(
 ) -> Result<Blended, SpeedsError> {
     layer.expire(now, p.ttl);
     let newest = layer.newest_observed_at();
-    let hour = crate::serving::speeds::hour_of_week(now, p.tz);
+    let hour = crate::speeds::hour_of_week(now, p.tz);
     let base = match &snap.historical {
         Some(h) => h.speeds_for_hour(&snap.free_flow_kmh, hour),
         None => snap.free_flow_kmh.to_vec(),
@@ -80,7 +80,7 @@ fn save_layer(path: &Path, log: &Path, layer: &LiveLayer, index: &EdgeIndex, nam
     }
     match save_live(path, layer, index) {
         Ok(()) => {
-            if let Err(e) = crate::serving::speeds::wal::clear(log) {
+            if let Err(e) = crate::speeds::wal::clear(log) {
                 // Harmless: the logged batches are replayed over the saved
                 // layer again, and newest per edge wins.
                 tracing::warn!(region = %name, error = %e, "live write-ahead log not emptied");
@@ -175,7 +175,7 @@ impl RegionHandle {
         self.settings
             .customizer
             .run(move || {
-                let weights = crate::engine::metric::from_speeds(&region.graph, &blended);
+                let weights = hodos_engine::metric::from_speeds(&region.graph, &blended);
                 region.metric_with_classes(weights, classes)
             })
             .await

@@ -22,16 +22,16 @@
 
 use super::error::{HistoricalNote, LoadError, TableReadError};
 use super::{TableSource, UpdateSettings};
-use crate::engine::artifact::Artifact;
-use crate::engine::region::Region;
-use crate::serving::metrics as m;
-use crate::serving::settings::RegionConfig;
-use crate::serving::speeds::wal::{self, BatchKind};
-use crate::serving::speeds::{
+use crate::metrics as m;
+use crate::settings::RegionConfig;
+use crate::speeds::wal::{self, BatchKind};
+use crate::speeds::{
     load_live, open_historical, Batch, EdgeIndex, HistoricalProfile, LiveLayer, SpeedsError,
     ValidationConfig,
 };
 use chrono::{DateTime, Utc};
+use hodos_engine::artifact::Artifact;
+use hodos_engine::region::Region;
 use std::path::{Path, PathBuf};
 use std::time::SystemTime;
 
@@ -181,7 +181,7 @@ pub(super) fn choose_historical(
                 true
             }
             Err(source) => {
-                let e = crate::serving::speeds::PersistError::Invalid {
+                let e = crate::speeds::PersistError::Invalid {
                     path: saved_path.clone(),
                     cause: source,
                 };

@@ -46,17 +46,17 @@ pub use error::{Degraded, HistoricalNote, LoadError, TableReadError, UpdateError
 pub use load::FileStamp;
 pub use model::ModelUpdateError;
 
-use crate::engine::region::{Metric, Region};
-use crate::serving::correction::ModelSlot;
-use crate::serving::customizer::Customizer;
-use crate::serving::metrics as m;
-use crate::serving::retire::RetireBin;
-use crate::serving::settings::{CustomizePriority, LiveConfig, RegionConfig, ServingSettings};
-use crate::serving::speeds::{
+use crate::correction::ModelSlot;
+use crate::customizer::Customizer;
+use crate::metrics as m;
+use crate::retire::RetireBin;
+use crate::settings::{CustomizePriority, LiveConfig, RegionConfig, ServingSettings};
+use crate::speeds::{
     BlendStats, EdgeIndex, HistoricalProfile, LiveLayer, TableReport, ValidationConfig,
 };
 use arc_swap::{ArcSwap, ArcSwapOption};
 use chrono::{DateTime, Utc};
+use hodos_engine::region::{Metric, Region};
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::Arc;
 use std::time::Instant;
@@ -286,7 +286,7 @@ pub struct RegionHandle {
     /// Why the region serves no graph (typed; the status shows its text).
     degraded: ArcSwapOption<LoadError>,
     /// Superseded snapshots (with their profile metrics), freed on the `updates`
-    /// thread once no request holds them (see [`crate::serving::retire`]).
+    /// thread once no request holds them (see [`crate::retire`]).
     retired: Arc<RetireBin>,
     live_dirty: AtomicBool,
     wake: Notify,

@@ -6,13 +6,13 @@
 //! An accepted upload is saved as `correction.model` in the region's
 //! `state_dir` before it serves, so it survives a restart. At start the
 //! saved file serves if it decodes; otherwise the configured `model` file
-//! (if any). A file that fails its checks ([`crate::serving::correction::file`])
+//! (if any). A file that fails its checks ([`crate::correction::file`])
 //! never serves: the model before it keeps serving (or none), and the
 //! reason is kept in the region's model slot and logged.
 
 use super::RegionHandle;
-use crate::serving::correction::{file, CorrectionModel, ModelFileError};
-use crate::serving::speeds::persist::write_atomic;
+use crate::correction::{file, CorrectionModel, ModelFileError};
+use crate::speeds::persist::write_atomic;
 use std::path::PathBuf;
 use std::sync::Arc;
 

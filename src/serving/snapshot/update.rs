@@ -22,12 +22,12 @@ use super::load::{
     Loaded, TableChoice,
 };
 use super::{LiveMetric, RegionHandle, ReloadOutcome, Reloaded, Snapshot, TableSource, Writer};
-use crate::serving::customizer::run_on_own_thread;
-use crate::serving::metrics as m;
-use crate::serving::retire::trim_heap;
-use crate::serving::speeds::persist::Saving;
-use crate::serving::speeds::wal::{self, BatchKind};
-use crate::serving::speeds::{
+use crate::customizer::run_on_own_thread;
+use crate::metrics as m;
+use crate::retire::trim_heap;
+use crate::speeds::persist::Saving;
+use crate::speeds::wal::{self, BatchKind};
+use crate::speeds::{
     read_csv, read_json, Batch, HistoricalProfile, LiveLayer, PendingTable, SpeedsError,
     TableReport,
 };
@@ -444,7 +444,7 @@ impl RegionHandle {
     }
 
     /// [`put_live`](Self::put_live) from a stream, parsed as it arrives
-    /// into the batch's compact form ([`crate::serving::speeds::batch`]):
+    /// into the batch's compact form ([`crate::speeds::batch`]):
     /// memory is about 30 bytes per valid observation, not the batch's
     /// text. The writer lock is taken once the batch is read; if the graph
     /// was replaced meanwhile nothing is applied

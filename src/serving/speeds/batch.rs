@@ -461,8 +461,8 @@ impl<'de> Deserialize<'de> for Element {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::engine::import::synthetic;
-    use crate::serving::speeds::LiveLayer;
+    use crate::speeds::LiveLayer;
+    use hodos_engine::import::synthetic;
 
     /// Hands out its input a few bytes per read (1 to 7, cycling), as a
     /// network stream would.

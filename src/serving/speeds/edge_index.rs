@@ -30,7 +30,7 @@
 //! same name.
 
 use super::report::ErrorKind;
-use crate::engine::graph::{RoadGraph, NONE};
+use hodos_engine::graph::{RoadGraph, NONE};
 
 /// Lookup from external end ids to edge ids.
 #[derive(Debug, Clone, Default)]

@@ -342,12 +342,12 @@ mod tests {
     //! hand computation of the length-weighted factor.
 
     use super::*;
-    use crate::engine::graph::RoadGraph;
-    use crate::serving::speeds::{EdgeIndex, ValidationConfig};
-    use crate::testkit::{HistoricalCsv, SplitMix64};
+    use crate::speeds::{EdgeIndex, ValidationConfig};
+    use hodos_engine::graph::RoadGraph;
+    use hodos_testkit::{HistoricalCsv, SplitMix64};
 
     fn graph() -> RoadGraph {
-        crate::engine::import::synthetic::generate(400, 7)
+        hodos_engine::import::synthetic::generate(400, 7)
     }
 
     /// A table over every edge: `speed(edge, hour)`, skipping `None`.

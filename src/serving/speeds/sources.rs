@@ -1,5 +1,5 @@
 //! Where each edge's speed came from: the per-edge source class the engine
-//! carries along every path ([`crate::engine::cch::classes`]), so an answer
+//! carries along every path ([`hodos_engine::cch::classes`]), so an answer
 //! can say which share of its time lies on which kind of speed.
 //!
 //! - [`FREE_FLOW`]: the edge's default free-flow speed (no historical row

@@ -9,15 +9,15 @@
 //! - **estimate vs actual**: a 2-D histogram of (log10 estimate, log10
 //!   actual) seconds over [`GRID`]² square cells between the 0.5 % and
 //!   99.5 % quantiles of both (cells beyond hold the clipped ends).
-//! - **calibration by decile** ([`crate::truth::measure::calibration_deciles`]).
+//! - **calibration by decile** ([`crate::measure::calibration_deciles`]).
 //! - **by hour of week**: median ratio and MAPE per hour 0..167.
 //! - **interval coverage** per tier and per distance band, when intervals
 //!   exist.
 
-use crate::truth::measure::{
+use crate::measure::{
     calibration_deciles, pairs, quantile, summarize, Decile, Estimate, Grouping, Pair,
 };
-use crate::truth::outcome::TripOutcome;
+use crate::outcome::TripOutcome;
 use serde::Serialize;
 
 pub const LOG_RATIO_MIN: f64 = -3.0;
@@ -132,8 +132,8 @@ fn grid(p: &[Pair]) -> Grid2d {
         (1.0, 4.0)
     } else {
         (
-            crate::truth::measure::quantile_sorted(&all, 0.005),
-            crate::truth::measure::quantile_sorted(&all, 0.995),
+            crate::measure::quantile_sorted(&all, 0.005),
+            crate::measure::quantile_sorted(&all, 0.995),
         )
     };
     // Round out to tenths of a decade; at least one decade wide.

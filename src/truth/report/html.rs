@@ -4,7 +4,7 @@
 
 use super::figures::Figures;
 use super::{plots, Report, ReportError};
-use crate::truth::measure::{band_label, ErrorSummary, Estimate, Grouping, DISTANCE_BANDS_KM};
+use crate::measure::{band_label, ErrorSummary, Estimate, Grouping, DISTANCE_BANDS_KM};
 use std::fmt::Write as _;
 
 const STYLE: &str = r#"
@@ -128,7 +128,7 @@ fn figures_section(out: &mut String, r: &Report, f: &Figures) -> Result<(), Repo
         )?,
         "Trips per cell of a 40 × 40 grid on log axes (darker: more trips); cells above the diagonal are trips that took longer than estimated.",
     );
-    let cal: Vec<(&str, &[crate::truth::measure::Decile])> = r
+    let cal: Vec<(&str, &[crate::measure::Decile])> = r
         .figures
         .iter()
         .map(|x| (estimate_name(x.estimate), x.calibration.as_slice()))

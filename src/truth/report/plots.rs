@@ -3,7 +3,7 @@
 //! [`super::figures`]; none computes a statistic of its own.
 
 use super::figures::{CoverageBar, Densities, Grid2d, HourPoint};
-use crate::truth::measure::Decile;
+use crate::measure::Decile;
 use plotters::prelude::*;
 
 /// Line colours, in order (a palette of our own, distinct in print and for

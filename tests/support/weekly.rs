@@ -4,8 +4,8 @@
 //! weekend daytime 8–19 at 85 %) times ±3 % noise per (edge, hour), on
 //! every `step`-th (tail, head) pair of a graph. Deterministic by seed.
 
-use super::{HistoricalCsv, SplitMix64};
-use crate::engine::graph::RoadGraph;
+use hodos_engine::graph::RoadGraph;
+use hodos_testkit::{HistoricalCsv, SplitMix64};
 use std::collections::HashMap;
 
 /// Share of free-flow speed by pattern (see [`pattern`]).

@@ -1,3 +1,6 @@
+// `unsafe` is denied everywhere but `os` (libc calls the standard
+// library does not offer), which allows it and says why.
+#![deny(unsafe_code)]
 //! Serving: per-region state behind `arc-swap`, speed tables, the answer
 //! to a trip or matrix with its tier, admission control and the background
 //! threads that do update work.
@@ -15,6 +18,8 @@
 //! - [`admission`]: shedding by deadline under overload.
 //! - [`metrics`]: metric names and their recording (the exporter is the
 //!   HTTP layer's).
+//! - [`os`]: thread priority, allocator settings and trim, the open-file
+//!   limit: the one module with `unsafe` (libc calls), each call justified.
 //! - [`settings`]: the serving knobs as plain `serde` types (the file that
 //!   holds them is `config`'s business).
 //!
@@ -27,6 +32,7 @@ pub mod answer;
 pub mod correction;
 pub mod customizer;
 pub mod metrics;
+pub mod os;
 pub mod retire;
 pub mod settings;
 pub mod snapshot;

@@ -2,7 +2,7 @@
 //! region: the `[[region]]` table, with the coverage box padded around
 //! the graph's bounding box.
 
-use crate::engine::geo::LatLon;
+use hodos_engine::geo::LatLon;
 use std::path::Path;
 
 /// A `[[region]]` table named `name` on `artifact` with its own

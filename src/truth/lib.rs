@@ -1,8 +1,9 @@
+#![forbid(unsafe_code)]
 //! Accuracy from completed trips: reading the trips callers completed,
 //! answering each one as hodos would have at its departure, and measuring
 //! the error of those answers against what the trips really took.
 //!
-//! This layer sits above `serving` (it asks the same [`crate::serving::answer`]
+//! This layer sits above `serving` (it asks the same `hodos_serving::answer`
 //! code the service answers from) and below `http`; it knows nothing of
 //! HTTP.
 //!
@@ -13,19 +14,18 @@
 //!   with a line-numbered report of refused rows;
 //! - `outcome`: [`outcome::TripOutcome`], one trip's answer beside its
 //!   actual duration;
-//! - `replay`: opens a [`crate::serving::answer::Catalog`] from an artifact
+//! - `replay`: opens a `hodos_serving::answer::Catalog` from an artifact
 //!   (and a historical table) and answers each trip with `leaving` = its
 //!   departure;
 //! - `measure`: the error metrics (MAPE, median and p90 absolute percentage
 //!   error, median ratio, RMSLE, MAE, shares within ±10 % / ±20 %,
 //!   interval coverage), overall and per group;
-//! - `report/`: the HTML page with its plots and the same figures as JSON;
-//! - `train`: fitting a correction model on replayed trips (time split,
-//!   gradient-boosted trees, conformal intervals) and its figures.
+//! - `report/`: the HTML page with its plots and the same figures as JSON.
+//!
+//! Fitting a correction model on replayed trips is `hodos-learn`'s job.
 
 pub mod measure;
 pub mod outcome;
 pub mod replay;
 pub mod report;
-pub mod train;
 pub mod trips;

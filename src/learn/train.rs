@@ -14,7 +14,7 @@
 //! few hundred comparisons to apply, which the serving path can afford
 //! per answer. `forust-ml` is a pure-Rust histogram booster (no C++
 //! toolchain, no system library), with its trees in public fields, so
-//! hodos copies them into its own flat format ([`crate::serving::correction`])
+//! hodos copies them into its own flat format ([`hodos_serving::correction`])
 //! and the service never depends on the training library's layout. Cost:
 //! training on 6,000 trips takes well under a second on one core. The
 //! default size (120 trees of depth 5) was set before any test figure was
@@ -37,14 +37,14 @@
 //!   interval), [`best_constant`] (the baseline to beat), and [`train`]
 //!   that runs them all into a [`CorrectionModel`] and a [`TrainReport`].
 
-use super::measure::{summarize, Pair};
-use super::outcome::TripOutcome;
-use crate::serving::correction::features::{N, NAMES};
-use crate::serving::correction::model::{
-    CorrectionModel, Figure, Forest, Interval, ModelMeta, Node,
-};
 use forust_ml::objective::ObjectiveType;
 use forust_ml::{GradientBooster, Matrix};
+use hodos_serving::correction::features::{N, NAMES};
+use hodos_serving::correction::model::{
+    CorrectionModel, Figure, Forest, Interval, ModelMeta, Node,
+};
+use hodos_truth::measure::{summarize, Pair};
+use hodos_truth::outcome::TripOutcome;
 use serde::Serialize;
 
 /// How to train.
@@ -225,7 +225,7 @@ fn order_stat(sorted: &[f64], k: i64) -> f64 {
 }
 
 /// Mondrian split-conformal residual quantiles (the rule in
-/// [`crate::serving::correction::model`]): `graph_s`, the log residuals
+/// [`hodos_serving::correction::model`]): `graph_s`, the log residuals
 /// `ln(actual) − ln(eta)` of the calibration trips, the levels and the
 /// wanted number of bands.
 pub fn conformal(graph_s: &[f64], residuals: &[f64], levels: [f64; 2], bands: usize) -> Interval {

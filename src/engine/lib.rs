@@ -1,3 +1,4 @@
+#![forbid(unsafe_code)]
 //! The engine: road graphs, their hierarchy and the exact answers computed
 //! on them, plus the offline pipeline and file format that produce a region.
 //!

@@ -1,3 +1,5 @@
+#![forbid(unsafe_code)]
+#![recursion_limit = "256"]
 //! The HTTP service: public API and admin API (axum on tokio).
 //!
 //! - [`app`] builds the public router from [`routes::PUBLIC`] (`/v1/eta`,
@@ -9,7 +11,7 @@
 //!   requests.
 //!
 //! **Architecture Invariant:** handlers parse into [`dto`] types, call
-//! [`crate::serving::answer`] / [`crate::serving::snapshot`], and convert the results back to
+//! [`hodos_serving::answer`] / [`hodos_serving::snapshot`], and convert the results back to
 //! DTOs; engine and serving types never reach the wire.
 //!
 //! # Layout
@@ -38,12 +40,12 @@ pub mod settings;
 pub mod trips;
 pub mod upload;
 
-use crate::serving::answer::Catalog;
-use crate::serving::snapshot::{RegionHandle, UpdateSettings};
 use axum::extract::{MatchedPath, Request, State};
 use axum::middleware::Next;
 use axum::response::{IntoResponse, Response};
 use axum::Router;
+use hodos_serving::answer::Catalog;
+use hodos_serving::snapshot::{RegionHandle, UpdateSettings};
 use metrics_exporter_prometheus::PrometheusHandle;
 use std::future::Future;
 use std::net::SocketAddr;
@@ -81,7 +83,7 @@ impl AppState {
             .map(|r| RegionHandle::new(r.clone(), update.clone()))
             .collect();
         let names: Vec<String> = regions.iter().map(|r| r.name.clone()).collect();
-        crate::serving::metrics::register_zero(&routes::answer_paths(), &names);
+        hodos_serving::metrics::register_zero(&routes::answer_paths(), &names);
         AppState {
             catalog: Arc::new(Catalog::new(settings.serving.clone(), regions)),
             settings: Arc::new(settings),
@@ -133,12 +135,12 @@ async fn track(matched: Option<MatchedPath>, req: Request, next: Next) -> Respon
     };
     let start = Instant::now();
     let resp = next.run(req).await;
-    let none = ::metrics::SharedString::const_str(crate::serving::metrics::NO_REGION);
+    let none = ::metrics::SharedString::const_str(hodos_serving::metrics::NO_REGION);
     let (tier, region) = match resp.extensions().get::<AnswerLabels>() {
         Some(l) => (l.tier, l.region.clone()),
         None => ("none", none),
     };
-    ::metrics::histogram!(crate::serving::metrics::REQUEST_DURATION, "route" => route, "tier" => tier, "region" => region)
+    ::metrics::histogram!(hodos_serving::metrics::REQUEST_DURATION, "route" => route, "tier" => tier, "region" => region)
         .record(start.elapsed().as_secs_f64());
     resp
 }
@@ -147,7 +149,7 @@ async fn track(matched: Option<MatchedPath>, req: Request, next: Next) -> Respon
 /// by `server.max_body_bytes`; a GET has none), so a caller that stalls
 /// mid-body holds no place; then counts the request in flight until its
 /// response is built, and tells the handler whether it may go on to a graph
-/// permit (the deadline rule is in [`crate::serving::admission`]).
+/// permit (the deadline rule is in [`hodos_serving::admission`]).
 async fn admit(State(state): State<AppState>, req: Request, next: Next) -> Response {
     let limit = state.settings.server.max_body_bytes;
     let (parts, body) = req.into_parts();

@@ -4,15 +4,15 @@
 //! historical table and no model. What `tests/correction_ny.rs` and
 //! `examples/train_sweep.rs` train and measure on.
 
-use super::data::{tlc_trip_files, DimacsNy};
-use crate::engine::build::{build_from_graph, Quiet};
-use crate::engine::import::dimacs;
-use crate::truth::outcome::TripOutcome;
-use crate::truth::replay::{open_catalog, replay_all, replay_settings, ReplayRegion};
-use crate::truth::trips::{read_trips_file, ReadOptions, TripFormat};
+use hodos_engine::build::{build_from_graph, Quiet};
+use hodos_engine::import::dimacs;
+use hodos_testkit::{tlc_trip_files, DimacsNy};
+use hodos_truth::outcome::TripOutcome;
+use hodos_truth::replay::{open_catalog, replay_all, replay_settings, ReplayRegion};
+use hodos_truth::trips::{read_trips_file, ReadOptions, TripFormat};
 
 /// The replayed trips (working files in `dir`), or why the data is not
-/// here (for [`super::skipped`]).
+/// here (for [`hodos_testkit::skipped`]).
 pub fn replayed_tlc_on_ny(dir: &std::path::Path) -> Result<Vec<TripOutcome>, String> {
     let ny = DimacsNy::find()?;
     let files = tlc_trip_files()?;
