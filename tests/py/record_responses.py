@@ -330,7 +330,8 @@ def live_json(city, at, which):
             key = {"tail": s["tail"], "head": s["head"]}
         else:
             key = {"segment": s["segment"]}
-        obs.append(dict(key, kmh=round(s["kmh"] * 0.5, 1), observed_at=at, samples=1 + s["segment"] % 4))
+        obs.append(dict(key, kmh=round(s["kmh"] * 0.5, 1), observed_at=at,
+                        samples=1 + s["segment"] % 4))
     return obs
 
 
@@ -813,7 +814,8 @@ def record(args):
             f.write(varied_table(city, bad_rows=False))
         trips_path = os.path.join(tmp, "trips.csv")
         with open(trips_path, "w") as f:
-            f.write(trips_csv(city, 600, 11, dt.datetime(2025, 10, 6, 4, 0, tzinfo=dt.timezone.utc)))
+            first = dt.datetime(2025, 10, 6, 4, 0, tzinfo=dt.timezone.utc)
+            f.write(trips_csv(city, 600, 11, first))
         model = os.path.join(tmp, "city.model")
         if args.model:
             shutil.copyfile(args.model, model)
