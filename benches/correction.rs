@@ -21,7 +21,7 @@ use hodos::serving::correction::features::N;
 use hodos::serving::correction::model::CorrectionModel;
 use hodos::serving::correction::{correct, Query};
 use hodos::serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
-use hodos::serving::snapshot::{RegionHandle, UpdateSettings};
+use hodos::serving::snapshot::{RegionUpdater, UpdateSettings};
 use hodos::serving::tier::Tier;
 use hodos_testkit::SplitMix64;
 use std::hint::black_box;
@@ -112,16 +112,18 @@ fn fixture() -> &'static Fixture {
                 model: None,
                 state_dir: dir.path().join(sub),
             };
-            let h = rt.block_on(RegionHandle::open(
+            let h = rt.block_on(RegionUpdater::open(
                 cfg,
                 UpdateSettings::from_settings(&settings),
             ));
-            Catalog::new(settings.clone(), vec![h])
+            (Catalog::new(settings.clone(), vec![h.reader().clone()]), h)
         };
-        let plain = open("plain");
-        let corrected = open("corrected");
+        let (plain, _plain_region) = open("plain");
+        let (corrected, region) = open("corrected");
         let model = model();
-        corrected.regions[0].correction.install(model.clone());
+        // Installed as an upload is: checked, saved, then served.
+        rt.block_on(region.put_model(hodos::serving::correction::file::encode(&model)))
+            .expect("model accepted");
         // Points in the middle 60 % of the box: most snap to a road.
         let mut rng = SplitMix64::new(11);
         let points = (0..400)

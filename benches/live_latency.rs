@@ -9,7 +9,8 @@
 mod common;
 
 use hodos::engine::build::{build_from_graph, Quiet};
-use hodos::http::{bind, serve, AppState};
+use hodos::http::{bind, AppState};
+use hodos::server::run as serve;
 use hodos_test_support::region_table;
 use hodos_testkit::observation;
 use serde_json::{json, Value};

@@ -14,7 +14,7 @@ use hodos::serving::answer::{trip, Catalog};
 use hodos::serving::settings::{
     Coverage, CustomizePriority, QueryConfig, RegionConfig, ServingSettings,
 };
-use hodos::serving::snapshot::{RegionHandle, UpdateSettings};
+use hodos::serving::snapshot::{RegionUpdater, UpdateSettings};
 use hodos::serving::tier::Tier;
 use hodos_test_support::weekly_table;
 use hodos_testkit::{DimacsNy, SplitMix64};
@@ -95,11 +95,11 @@ fn main() {
         .expect("runtime");
     let before = status_kb("VmRSS:");
     let t = Instant::now();
-    let handle = rt.block_on(RegionHandle::open(cfg, UpdateSettings::from_settings(&s)));
+    let handle = rt.block_on(RegionUpdater::open(cfg, UpdateSettings::from_settings(&s)));
     let open_s = t.elapsed().as_secs_f64();
     let after = status_kb("VmRSS:");
     let hwm = status_kb("VmHWM:");
-    let cat = Catalog::new(s, vec![handle]);
+    let cat = Catalog::new(s, vec![handle.reader().clone()]);
     let mut rng = SplitMix64::new(7);
     let week = Utc.with_ymd_and_hms(2027, 1, 4, 0, 0, 0).unwrap();
     let mut run = |random_departure: bool| {

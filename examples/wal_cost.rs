@@ -1,5 +1,5 @@
 //! What the write-ahead log costs a live upload: the median time of
-//! `RegionHandle::put_live` (parse, apply, log with `fdatasync`) and of the
+//! `RegionUpdater::put_live` (parse, apply, log with `fdatasync`) and of the
 //! log append alone with and without the sync, on the same batch, in a
 //! state directory on the file system of the current directory.
 //! `cargo run --release --example wal_cost -- [BATCH_ROWS] [RUNS]`.
@@ -51,7 +51,7 @@ fn main() {
     let rt = tokio::runtime::Runtime::new().unwrap();
     let uploads: Vec<f64> = rt.block_on(async {
         let st = hodos::http::AppState::open(cfg).await;
-        let region = st.catalog.regions[0].clone();
+        let region = st.service.regions[0].clone();
         let mut out = Vec::new();
         for _ in 0..runs {
             let t = Instant::now();

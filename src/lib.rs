@@ -23,7 +23,8 @@
 //!   OpenAPI document, admin API and Prometheus exporter.
 //! - this crate, on top: [`config`], the TOML configuration file, which
 //!   composes the settings each layer declares; [`demo`], the demo city's
-//!   files and feed; and the `hodos` binary.
+//!   files and feed; [`server`], running the service and its listeners
+//!   together; and the `hodos` binary.
 //!
 //! The layer crates are re-exported under their short names, so
 //! `hodos::engine::…` names the same item as `hodos_engine::…`.
@@ -36,3 +37,4 @@ pub use hodos_truth as truth;
 
 pub mod config;
 pub mod demo;
+pub mod server;

@@ -761,8 +761,8 @@ fn cmd_serve(config: &std::path::Path, strict: bool) -> anyhow::Result<()> {
         // behind them: /healthz answers and /readyz says `loading`.
         let state = hodos::http::AppState::unloaded(cfg);
         if strict {
-            state.load_regions().await;
-            let degraded = state.degraded();
+            state.service.load_regions().await;
+            let degraded = state.service.degraded();
             if !degraded.is_empty() {
                 anyhow::bail!("--strict: {} region(s) failed to load: {}", degraded.len(),
                     degraded.iter().map(|(n, w)| format!("{n} ({w})")).collect::<Vec<_>>().join("; "));
@@ -773,13 +773,13 @@ fn cmd_serve(config: &std::path::Path, strict: bool) -> anyhow::Result<()> {
         tracing::info!(public = %public.local_addr()?, admin = %admin_l.local_addr()?, "serving");
         let loading = state.clone();
         tokio::spawn(async move {
-            loading.load_regions().await;
-            for (name, why) in loading.degraded() {
+            loading.service.load_regions().await;
+            for (name, why) in loading.service.degraded() {
                 tracing::warn!(region = %name, reason = %why, "region degraded: answering from the heuristic tier");
             }
             tracing::info!("regions loaded");
         });
-        hodos::http::serve(state, public, admin_l, shutdown_signal()).await?;
+        hodos::server::run(state, public, admin_l, shutdown_signal()).await?;
         Ok(())
     })
 }
@@ -827,13 +827,13 @@ fn cmd_demo(port: u16) -> anyhow::Result<()> {
             .await??
         };
         let state = hodos::http::AppState::open(files.config.clone()).await;
-        if let Some((name, why)) = state.degraded().first() {
+        if let Some((name, why)) = state.service.degraded().first() {
             anyhow::bail!("demo region {name} failed to load: {why}");
         }
         let (tx, rx) = tokio::sync::watch::channel(false);
         let mut rx2 = rx.clone();
         let feed = tokio::spawn(hodos::demo::live_feed(
-            state.catalog.clone(),
+            state.service.clone(),
             files.truth.clone(),
             files.bridge.1.clone(),
             async move {
@@ -853,7 +853,7 @@ fn cmd_demo(port: u16) -> anyhow::Result<()> {
         println!("Ctrl-C to stop. Try:");
         println!();
         print!("{}", hodos::demo::curl_lines(&files, pa, aa, &token));
-        hodos::http::serve(state, public, admin, async move {
+        hodos::server::run(state, public, admin, async move {
             stop.await;
             let _ = tx.send(true);
         })

@@ -115,7 +115,11 @@ async fn failed_reloads_answer_an_error_status() {
         &format!("historical = \"{}\"", configured.display()),
     )
     .await;
-    assert!(st.degraded().is_empty(), "{:?}", st.degraded());
+    assert!(
+        st.service.degraded().is_empty(),
+        "{:?}",
+        st.service.degraded()
+    );
     let admin = admin_app(st.clone());
     let reload = || async {
         send(
@@ -135,7 +139,7 @@ async fn failed_reloads_answer_an_error_status() {
         "{}",
         r.text
     );
-    let generation = st.catalog.regions[0].status().generation;
+    let generation = st.service.regions[0].status().generation;
 
     // Every historical candidate refused: 422, the table serving stays.
     std::thread::sleep(std::time::Duration::from_millis(20));
@@ -145,7 +149,7 @@ async fn failed_reloads_answer_an_error_status() {
     assert_eq!(r.content_type, "application/problem+json");
     let detail = r.json()["detail"].as_str().unwrap().to_string();
     assert!(detail.contains("historical.csv"), "{detail}");
-    assert_eq!(st.catalog.regions[0].status().generation, generation);
+    assert_eq!(st.service.regions[0].status().generation, generation);
 
     // The artifact no longer loads: 500 with the reason, snapshot kept.
     std::fs::write(&artifact, b"not an artifact any more").unwrap();
@@ -157,7 +161,7 @@ async fn failed_reloads_answer_an_error_status() {
         p["detail"].as_str().unwrap().contains("city.hodos"),
         "names the artifact: {p}"
     );
-    assert_eq!(st.catalog.regions[0].status().generation, generation);
+    assert_eq!(st.service.regions[0].status().generation, generation);
 }
 
 /// An empty batch carries no observation, so by the live tier's own rule
@@ -188,7 +192,7 @@ async fn an_empty_live_batch_changes_nothing() {
     };
     let before = eta().await;
     assert_eq!(before["tier"], "free_flow", "{before}");
-    let generation = st.catalog.regions[0].status().generation;
+    let generation = st.service.regions[0].status().generation;
     for (ct, body) in [
         ("application/json", b"[]".to_vec()),
         (
@@ -209,15 +213,15 @@ async fn an_empty_live_batch_changes_nothing() {
         let v = r.json();
         assert_eq!(v["report"]["rows"], 0, "{v}");
         assert_eq!(v["report"]["accepted"], 0, "{v}");
-        st.catalog.regions[0].refresh_live(true).await;
+        st.service.regions[0].refresh_live(true).await;
         let after = eta().await;
         assert_eq!(
             (&after["tier"], &after["fallback_reason"]),
             (&before["tier"], &before["fallback_reason"]),
             "{ct}: {after}"
         );
-        assert_eq!(st.catalog.regions[0].status().generation, generation);
-        assert_eq!(st.catalog.regions[0].status().live_edges, 0);
+        assert_eq!(st.service.regions[0].status().generation, generation);
+        assert_eq!(st.service.regions[0].status().live_edges, 0);
     }
     assert!(
         !dir.path().join("s").join("live.wal").exists()
@@ -266,7 +270,9 @@ async fn a_rejected_watched_file_is_logged() {
         .with_max_level(tracing::Level::WARN)
         .finish();
     let _guard = tracing::subscriber::set_default(subscriber);
-    st.catalog.regions[0].scan_live_dir().await;
+    hodos::serving::snapshot::LiveLoop::new(st.service.regions[0].clone())
+        .scan_dir()
+        .await;
     assert!(incoming.join("bad-batch.rejected").exists());
     let log = String::from_utf8(buf.0.lock().unwrap().clone()).unwrap();
     let line = log

@@ -569,7 +569,7 @@ async fn readiness_reports_loading_until_loaded() {
     assert_eq!(r.json()["regions"][0]["state"], "loading");
     let h = common::http::send(&a, "GET", "/healthz", None, vec![], None).await;
     assert_eq!(h.status, 200);
-    st.load_regions().await;
+    st.service.load_regions().await;
     let r = common::http::send(&a, "GET", "/readyz", None, vec![], None).await;
     assert_eq!(r.status, 200, "{}", r.text);
     assert_eq!(r.json()["regions"][0]["state"], "serving");

@@ -14,6 +14,12 @@
 //!   `calibration` → `artifact` → {`region`, `build`} → `testing`), checked
 //!   on the source text.
 //!
+//! - inside `hodos-serving`, answer code (`answer/`) names no write side
+//!   of a region (`RegionUpdater`, `LiveLoop`, `ModelUpdater`, the
+//!   `Service`): answers read through `RegionReader` only;
+//! - `hodos-http` sees only truth's public face for the service: its online
+//!   scoring and the trip types (`hodos_truth::online`, `hodos_truth::trips`).
+//!
 //! Lines that are comments are skipped, and so is everything from the
 //! first `#[cfg(test)]` of a file on, and files named `tests.rs` or
 //! `testing.rs`: unit tests may reach anywhere inside their crate.
@@ -267,6 +273,87 @@ fn engine_violations(engine: &Path) -> Vec<String> {
     bad
 }
 
+/// Names answer code must not use: every write side of a region.
+const WRITE_SIDE: &[&str] = &[
+    "RegionUpdater",
+    "LiveLoop",
+    "ModelUpdater",
+    "Service",
+    "snapshot::updater",
+    "crate::service",
+];
+
+/// Violations under serving's `answer/` folder (`serving` is serving's
+/// source folder).
+fn answer_violations(serving: &Path) -> Vec<String> {
+    let mut files = Vec::new();
+    rust_files(&serving.join("answer"), &mut files);
+    files.sort();
+    let mut bad = Vec::new();
+    for f in files {
+        let rel = f.strip_prefix(serving).expect("under serving");
+        if is_test_file(rel) {
+            continue;
+        }
+        let text = std::fs::read_to_string(&f).expect("read file");
+        for (n, code) in code_lines(&text) {
+            for name in WRITE_SIDE {
+                let word = code.match_indices(name).any(|(i, _)| {
+                    let before = code[..i].chars().last();
+                    let after = code[i + name.len()..].chars().next();
+                    !before.is_some_and(|c| c.is_ascii_alphanumeric() || c == '_')
+                        && !after.is_some_and(|c| c.is_ascii_alphanumeric() || c == '_')
+                });
+                if word {
+                    bad.push(format!(
+                        "serving/{}:{n}: answer code names {name}, a write side",
+                        rel.display()
+                    ));
+                }
+            }
+        }
+    }
+    bad
+}
+
+/// The truth modules HTTP may name.
+const TRUTH_FACE: &[&str] = &["online", "trips"];
+
+/// Violations under the HTTP crate's folder: truth reached past its face.
+fn http_violations(http: &Path) -> Vec<String> {
+    let mut files = Vec::new();
+    rust_files(http, &mut files);
+    files.sort();
+    let mut bad = Vec::new();
+    for f in files {
+        let rel = f.strip_prefix(http).expect("under http");
+        if is_test_file(rel) {
+            continue;
+        }
+        let text = std::fs::read_to_string(&f).expect("read file");
+        for (n, code) in code_lines(&text) {
+            for m in paths_after(code, "hodos_truth::") {
+                if !TRUTH_FACE.contains(&m) {
+                    bad.push(format!(
+                        "http/{}:{n}: HTTP reaches into hodos_truth::{m}",
+                        rel.display()
+                    ));
+                }
+            }
+        }
+    }
+    bad
+}
+
+#[test]
+fn answers_reach_no_write_and_http_only_truths_face() {
+    let bad: Vec<String> = answer_violations(&root().join("src/serving"))
+        .into_iter()
+        .chain(http_violations(&root().join("src/http")))
+        .collect();
+    assert!(bad.is_empty(), "{}", bad.join("\n"));
+}
+
 fn workspace_crates() -> BTreeMap<String, (String, String)> {
     let mut out = BTreeMap::new();
     for (name, dir, _) in LAYERS {
@@ -347,4 +434,36 @@ fn checkers_catch_planted_violations() {
     assert!(bad[0].contains("cch/matrix.rs:1: engine::cch reaches up to engine::region"));
     assert!(bad[1].contains("geo.rs:1: engine::geo reaches up to engine::graph"));
     assert!(bad[2].contains("snap.rs:1: engine::snap names super::cch"));
+}
+
+/// The serving and HTTP checkers find planted violations.
+#[test]
+fn answer_and_http_checkers_catch_planted_violations() {
+    let dir = tempfile::tempdir().unwrap();
+    let write = |rel: &str, text: &str| {
+        let p = dir.path().join(rel);
+        std::fs::create_dir_all(p.parent().unwrap()).unwrap();
+        std::fs::write(p, text).unwrap();
+    };
+    write(
+        "serving/answer/trip.rs",
+        "use crate::snapshot::RegionReader;\nuse crate::snapshot::RegionUpdater;\n// LiveLoop in a comment is fine\n",
+    );
+    write(
+        "serving/answer/gate.rs",
+        "fn f(s: &crate::service::Service) {}\n",
+    );
+    write("serving/answer/tests.rs", "use crate::service::Service;\n");
+    write(
+        "http/admin.rs",
+        "use hodos_truth::online::score_batch;\nuse hodos_truth::replay::replay_trip;\n",
+    );
+    let bad = answer_violations(&dir.path().join("serving"));
+    assert_eq!(bad.len(), 3, "{bad:#?}");
+    assert!(bad[0].contains("answer/gate.rs:1: answer code names Service"));
+    assert!(bad[1].contains("answer/gate.rs:1: answer code names crate::service"));
+    assert!(bad[2].contains("answer/trip.rs:2: answer code names RegionUpdater"));
+    let bad = http_violations(&dir.path().join("http"));
+    assert_eq!(bad.len(), 1, "{bad:#?}");
+    assert!(bad[0].contains("http/admin.rs:2: HTTP reaches into hodos_truth::replay"));
 }

@@ -24,7 +24,7 @@ use hodos::engine::build::{build_from_graph, Quiet};
 use hodos::engine::import::dimacs;
 use hodos::serving::answer::{trip, Catalog};
 use hodos::serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
-use hodos::serving::snapshot::{RegionHandle, UpdateSettings};
+use hodos::serving::snapshot::{RegionUpdater, UpdateSettings};
 use hodos::serving::tier::Tier;
 use hodos_test_support::{weekly_table, WeeklyTable};
 use std::collections::BTreeMap;
@@ -82,7 +82,7 @@ fn ny_every_departure_hour_answers_from_its_profile() {
         .build()
         .unwrap();
     let t1 = Instant::now();
-    let handle = rt.block_on(RegionHandle::open(cfg, UpdateSettings::from_settings(&s)));
+    let handle = rt.block_on(RegionUpdater::open(cfg, UpdateSettings::from_settings(&s)));
     let status = handle.status();
     let prof = status.profiles.clone().expect("profiles in the status");
     eprintln!(
@@ -100,7 +100,7 @@ fn ny_every_departure_hour_answers_from_its_profile() {
     assert!(status.ready);
     assert_eq!(prof.count, 4, "default query.profiles");
     assert!(!prof.exact, "noise makes every hour distinct");
-    let cat = Catalog::new(s, vec![handle]);
+    let cat = Catalog::new(s, vec![handle.reader().clone()]);
 
     // Departures: sources × random targets among nodes with a position of
     // their own (a coordinate there snaps onto the node).

@@ -28,7 +28,11 @@ async fn send(app: &Router, method: &str, uri: &str, body: Vec<u8>, token: bool)
 async fn state(extra: &str) -> (AppState, tempfile::TempDir) {
     let dir = tempfile::tempdir().unwrap();
     let st = AppState::open(config(dir.path(), extra)).await;
-    assert!(st.degraded().is_empty(), "{:?}", st.degraded());
+    assert!(
+        st.service.degraded().is_empty(),
+        "{:?}",
+        st.service.degraded()
+    );
     (st, dir)
 }
 

@@ -14,7 +14,7 @@ mod common;
 use common::service::city;
 use hodos::engine::artifact::Artifact;
 use hodos::serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
-use hodos::serving::snapshot::{RegionHandle, UpdateSettings};
+use hodos::serving::snapshot::{RegionUpdater, UpdateSettings};
 use std::fmt::Write as _;
 use std::process::Command;
 
@@ -111,7 +111,7 @@ fn exported_segments_open_as_geojson_and_name_table_rows() {
     };
     let rt = tokio::runtime::Runtime::new().unwrap();
     let report = rt.block_on(async {
-        let h = RegionHandle::open(cfg, UpdateSettings::from_settings(&settings)).await;
+        let h = RegionUpdater::open(cfg, UpdateSettings::from_settings(&settings)).await;
         h.put_historical(table.into_bytes()).await.unwrap()
     });
     assert_eq!(report.rows, n);

@@ -33,7 +33,11 @@ fn coord(p: hodos::engine::geo::LatLon) -> Value {
 async fn state(extra: &str) -> (AppState, tempfile::TempDir) {
     let dir = tempfile::tempdir().unwrap();
     let st = AppState::open(config(dir.path(), extra)).await;
-    assert!(st.degraded().is_empty(), "{:?}", st.degraded());
+    assert!(
+        st.service.degraded().is_empty(),
+        "{:?}",
+        st.service.degraded()
+    );
     (st, dir)
 }
 
@@ -346,7 +350,7 @@ async fn the_former_departure_field_is_refused_naming_leaving() {
 #[tokio::test]
 async fn every_tier_and_reason() {
     let (st, _d) = state("").await;
-    let region = st.catalog.regions[0].clone();
+    let region = st.service.regions[0].clone();
     let pub_app = app(st.clone());
     let admin = admin_app(st.clone());
     let (a, b) = (at(0.25, 0.3), at(0.75, 0.7));
@@ -436,7 +440,7 @@ async fn every_tier_and_reason() {
     // live_stale.
     let old = (chrono::Utc::now() - chrono::Duration::seconds(3600)).to_rfc3339();
     let (st2, _d2) = state("").await;
-    let r2 = st2.catalog.regions[0].clone();
+    let r2 = st2.service.regions[0].clone();
     let stale = tables::observations(50, 20.0, &old, 1);
     r2.put_live(&serde_json::to_vec(&stale).unwrap(), false)
         .await
@@ -453,7 +457,7 @@ async fn every_tier_and_reason() {
     // the route is (almost) all free-flow, so never live, and the reason
     // does not claim the region has no live data.
     let (st3, _d3) = state("").await;
-    let r3 = st3.catalog.regions[0].clone();
+    let r3 = st3.service.regions[0].clone();
     let one = tables::observations(1, 20.0, &chrono::Utc::now().to_rfc3339(), 1);
     r3.put_live(&serde_json::to_vec(&one).unwrap(), false)
         .await
@@ -649,7 +653,7 @@ async fn unreachable_pair_and_degraded_region() {
     std::fs::write(&broken, b"not an artifact").unwrap();
     let text = common::service::config_text(&broken, &dir.path().join("state2"), "");
     let st = AppState::open(hodos::config::Config::parse(&text).unwrap()).await;
-    assert_eq!(st.degraded().len(), 1);
+    assert_eq!(st.service.degraded().len(), 1);
     let a = app(st);
     let r = post_json(&a, "/v1/eta", &json!({"from": coord(p), "to": coord(q)})).await;
     assert_eq!(r.status, 200);
@@ -730,7 +734,7 @@ async fn rejected_table_is_reported_and_never_served() {
         csv.row(f, t, 10, v);
     }
     let csv = csv.into_string();
-    let before = st.catalog.regions[0].status().generation;
+    let before = st.service.regions[0].status().generation;
     let r = send(
         &admin,
         "PUT",
@@ -750,7 +754,7 @@ async fn rejected_table_is_reported_and_never_served() {
     assert_eq!(s["regions"][0]["last_reload"]["outcome"], "rejected");
     assert!(s["regions"][0]["last_reload"]["error"].as_str().is_some());
     assert_eq!(
-        st.catalog.regions[0].status().generation,
+        st.service.regions[0].status().generation,
         before,
         "a rejected table never replaces serving data"
     );
@@ -973,7 +977,7 @@ async fn watched_directory_applies_and_marks_files() {
     let mut cfg = config(dir.path(), "");
     cfg.regions[0].live_dir = Some(incoming.clone());
     let st = AppState::open(cfg).await;
-    let region = st.catalog.regions[0].clone();
+    let region = st.service.regions[0].clone();
     let now = chrono::Utc::now().to_rfc3339();
     let mut good = LiveCsv::with_header();
     for (f, t) in city().edges.iter().take(40) {
@@ -986,7 +990,9 @@ async fn watched_directory_applies_and_marks_files() {
     bad.row(999999991, 999999992, 15, &now, 1);
     std::fs::write(incoming.join("002-bad.csv"), bad.into_string()).unwrap();
     std::fs::write(incoming.join("notes.txt"), "ignored").unwrap();
-    region.scan_live_dir().await;
+    hodos::serving::snapshot::LiveLoop::new(region.clone())
+        .scan_dir()
+        .await;
     assert!(incoming.join("001-good.done").exists());
     assert!(incoming.join("002-bad.rejected").exists());
     assert!(

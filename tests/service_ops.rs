@@ -7,7 +7,8 @@ mod common;
 
 use common::service::{at, config, TOKEN};
 use common::tables;
-use hodos::http::{bind, serve, AppState};
+use hodos::http::{bind, AppState};
+use hodos::server::run as serve;
 use serde_json::{json, Value};
 use std::net::SocketAddr;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
@@ -172,7 +173,7 @@ async fn fifty_hot_swaps_under_load_fail_nothing() {
     // Every swap retired the snapshot it replaced (src/retire.rs), and with
     // the query tasks gone the background sweeps free them all: nothing
     // superseded is kept, and no request had to free one.
-    let region = srv.state.catalog.regions[0].clone();
+    let region = srv.state.service.regions[0].clone();
     let (_, retired) = region.retired();
     assert!(
         retired >= good_swaps,
@@ -261,26 +262,26 @@ async fn live_post_reaches_answers_and_restart_restores_data() {
         .json()
         .await
         .unwrap();
-    let version = srv.state.catalog.regions[0]
+    let version = srv.state.service.regions[0]
         .status()
         .historical_version
         .clone();
-    let live_edges = srv.state.catalog.regions[0].status().live_edges;
+    let live_edges = srv.state.service.regions[0].status().live_edges;
     assert!(live_edges > 0);
     assert!(version.is_some());
     // Give the live loop time to save the layer (at most every 2 s).
     tokio::time::sleep(Duration::from_millis(2500)).await;
-    srv.state.catalog.regions[0].refresh_live(true).await;
+    srv.state.service.regions[0].refresh_live(true).await;
     srv.stop().await;
 
     // Restart on the same state directory: both tables come back.
     let st = AppState::open(config(dir.path(), "")).await;
     assert_eq!(
-        st.catalog.regions[0].status().historical_version,
+        st.service.regions[0].status().historical_version,
         version,
         "historical table restored"
     );
-    st.catalog.regions[0].refresh_live(true).await;
+    st.service.regions[0].refresh_live(true).await;
     let srv = start(st).await;
     let v: Value = http
         .post(format!("http://{}/v1/eta", srv.public))
@@ -304,7 +305,7 @@ async fn live_post_reaches_answers_and_restart_restores_data() {
         "after restart {v} vs before {live_answer}"
     );
     assert_eq!(
-        srv.state.catalog.regions[0].status().live_edges,
+        srv.state.service.regions[0].status().live_edges,
         live_edges,
         "every live observation restored"
     );

@@ -17,7 +17,8 @@ mod common;
 
 use common::service::{city, config_text, TOKEN};
 use hodos::config::Config;
-use hodos::http::{bind, serve, AppState};
+use hodos::http::{bind, AppState};
+use hodos::server::run as serve;
 use serde_json::{json, Value};
 use std::net::SocketAddr;
 use std::time::Duration;
@@ -40,7 +41,11 @@ async fn start(state_dir: &std::path::Path) -> Server {
     let cfg = Config::parse(&text).unwrap();
     cfg.validate().unwrap();
     let state = AppState::open(cfg).await;
-    assert!(state.degraded().is_empty(), "{:?}", state.degraded());
+    assert!(
+        state.service.degraded().is_empty(),
+        "{:?}",
+        state.service.degraded()
+    );
     let p = bind("127.0.0.1:0".parse().unwrap()).await.unwrap();
     let a = bind("127.0.0.1:0".parse().unwrap()).await.unwrap();
     let admin = a.local_addr().unwrap();

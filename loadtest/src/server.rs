@@ -335,7 +335,7 @@ pub async fn start_in_process(
 ) -> anyhow::Result<InProcess> {
     let ttl = cfg.live.ttl_s;
     let state = hodos::http::AppState::open(cfg).await;
-    if let Some((name, why)) = state.degraded().first() {
+    if let Some((name, why)) = state.service.degraded().first() {
         bail!("region {name} failed to load: {why}");
     }
     let region = state
@@ -349,7 +349,7 @@ pub async fn start_in_process(
     let (public, admin) = (p.local_addr()?, a.local_addr()?);
     let (tx, rx) = tokio::sync::oneshot::channel::<()>();
     let task = tokio::spawn(async move {
-        let _ = hodos::http::serve(state, p, a, async move {
+        let _ = hodos::server::run(state, p, a, async move {
             let _ = rx.await;
         })
         .await;

@@ -236,14 +236,14 @@ const TRIPS_PER_ROUND: usize = 40;
 /// ([`trips::Truth`]), leaving now, answered and scored as
 /// `POST /admin/trips` scores them (`hodos_trip_*` by tier).
 pub async fn live_feed(
-    catalog: Arc<crate::serving::answer::Catalog>,
+    service: Arc<crate::serving::service::Service>,
     truth: Arc<trips::Truth>,
     bridge: Vec<(u64, u64)>,
     stop: impl std::future::Future<Output = ()>,
 ) {
     use rand::{Rng, SeedableRng};
     tokio::pin!(stop);
-    let Some(region) = catalog.regions.first().cloned() else {
+    let Some(region) = service.regions.first().cloned() else {
         return;
     };
     let started = std::time::Instant::now();
@@ -307,7 +307,7 @@ pub async fn live_feed(
                 .await
             };
             if let Ok(done) = done {
-                crate::http::trips::record(&catalog, &done).await;
+                crate::truth::online::record(&service.catalog, &done).await;
             }
         }
         round += 1;

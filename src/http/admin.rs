@@ -21,7 +21,7 @@ use axum::http::{header, HeaderMap};
 use axum::middleware::Next;
 use axum::response::{IntoResponse, Response};
 use axum::{Json, Router};
-use hodos_serving::snapshot::{RegionHandle, Reloaded, UpdateError, UpdateFailure};
+use hodos_serving::snapshot::{RegionUpdater, Reloaded, UpdateError, UpdateFailure};
 use std::sync::Arc;
 use subtle::ConstantTimeEq;
 
@@ -74,12 +74,10 @@ async fn require_token(State(state): State<AppState>, req: Request, next: Next) 
     next.run(req).await
 }
 
-fn region(state: &AppState, name: &str) -> Result<Arc<RegionHandle>, ApiError> {
+fn region(state: &AppState, name: &str) -> Result<Arc<RegionUpdater>, ApiError> {
     state
-        .catalog
-        .regions
-        .iter()
-        .find(|r| r.name == name)
+        .service
+        .region(name)
         .cloned()
         .ok_or_else(|| ApiError::NotFound(format!("no region named {name:?}")))
 }

@@ -6,9 +6,10 @@
 //!   `/v1/eta/matrix`, `/v1/route`, `/healthz`, `/readyz`, `/metrics`,
 //!   `/openapi.json`) so tests can drive it with `oneshot`; [`admin_app`]
 //!   builds the admin router from [`routes::ADMIN`] for its own listener.
-//! - [`serve`] binds both listeners, starts each region's live loop, and
-//!   runs until the `shutdown` future resolves, then drains in-flight
-//!   requests.
+//! - [`serve`] runs both listeners until the `shutdown` future resolves,
+//!   then drains in-flight requests. It starts no background task of the
+//!   service: [`hodos_serving::service::Service::start`] does, and the
+//!   caller runs both.
 //!
 //! **Architecture Invariant:** handlers parse into [`dto`] types, call
 //! [`hodos_serving::answer`] / [`hodos_serving::snapshot`], and convert the results back to
@@ -45,7 +46,7 @@ use axum::middleware::Next;
 use axum::response::{IntoResponse, Response};
 use axum::Router;
 use hodos_serving::answer::Catalog;
-use hodos_serving::snapshot::{RegionHandle, UpdateSettings};
+use hodos_serving::service::Service;
 use metrics_exporter_prometheus::PrometheusHandle;
 use std::future::Future;
 use std::net::SocketAddr;
@@ -55,7 +56,10 @@ use std::time::Instant;
 /// Shared state: a cheap `Clone` handle of `Arc`s.
 #[derive(Clone)]
 pub struct AppState {
+    /// What the answer routes read (the regions' read sides).
     pub catalog: Arc<Catalog>,
+    /// The service: the regions' updaters, for the admin routes.
+    pub service: Arc<Service>,
     /// The `[server]` and `[admin]` sections (body limits, drain, token).
     pub settings: Arc<settings::Settings>,
     pub prometheus: PrometheusHandle,
@@ -65,54 +69,25 @@ impl AppState {
     /// Opens every configured region (degraded ones included).
     pub async fn open(settings: impl Into<settings::Settings>) -> AppState {
         let state = Self::unloaded(settings);
-        state.load_regions().await;
+        state.service.load_regions().await;
         state
     }
 
-    /// The state with every region created but not loaded: each reports
-    /// `loading` on `/readyz` until [`Self::load_regions`] has loaded it,
-    /// so a server can listen (and answer its probes) while regions load.
+    /// The state with every region created but not loaded (see
+    /// [`Service::new`]); load them with [`Service::load_regions`].
     pub fn unloaded(settings: impl Into<settings::Settings>) -> AppState {
         let settings: settings::Settings = settings.into();
         // The recorder first: loading a region already records series.
         let prometheus = exporter::handle();
-        let update = UpdateSettings::from_settings(&settings.serving);
-        let regions: Vec<_> = settings
-            .regions
-            .iter()
-            .map(|r| RegionHandle::new(r.clone(), update.clone()))
-            .collect();
-        let names: Vec<String> = regions.iter().map(|r| r.name.clone()).collect();
+        let service = Arc::new(Service::new(settings.serving.clone(), &settings.regions));
+        let names: Vec<String> = service.regions.iter().map(|r| r.name.clone()).collect();
         hodos_serving::metrics::register_zero(&routes::answer_paths(), &names);
         AppState {
-            catalog: Arc::new(Catalog::new(settings.serving.clone(), regions)),
+            catalog: service.catalog.clone(),
+            service,
             settings: Arc::new(settings),
             prometheus,
         }
-    }
-
-    /// Loads every region that has not been loaded, one after another.
-    pub async fn load_regions(&self) {
-        for r in &self.catalog.regions {
-            if !r.loaded() {
-                r.load_first().await;
-            }
-        }
-    }
-
-    /// Regions that are configured but serve no graph.
-    pub fn degraded(&self) -> Vec<(String, String)> {
-        self.catalog
-            .regions
-            .iter()
-            .filter(|r| r.loaded() && r.snapshot().is_none())
-            .map(|r| {
-                (
-                    r.name.clone(),
-                    r.status().degraded_reason.unwrap_or_default(),
-                )
-            })
-            .collect()
     }
 }
 
@@ -226,8 +201,9 @@ pub fn admin_app(state: AppState) -> Router {
     ))
 }
 
-/// Runs both listeners until `shutdown` resolves, then drains. Returns the
-/// bound public and admin addresses through `bound` once listening.
+/// Runs both listeners (and the exporter's upkeep) until `shutdown`
+/// resolves, then drains. The service's own background tasks are not
+/// started here: the caller starts them ([`Service::start`]) beside this.
 pub async fn serve(
     state: AppState,
     public: tokio::net::TcpListener,
@@ -243,13 +219,6 @@ pub async fn serve(
         }
     };
     let mut loops = Vec::new();
-    // Run-queue lag probe for admission by deadline (see `admission`).
-    loops.push(tokio::spawn(
-        state.catalog.admission.clone().run_probe(stop()),
-    ));
-    for r in &state.catalog.regions {
-        loops.push(tokio::spawn(r.clone().run_live_loop(stop())));
-    }
     // The exporter keeps histogram samples until upkeep folds them in; run it
     // every few seconds so memory does not grow between scrapes.
     {

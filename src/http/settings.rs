@@ -7,7 +7,7 @@ use serde::Deserialize;
 use std::net::SocketAddr;
 
 /// Everything the service needs to open: its own sections, the serving
-/// layer's, and the regions. [`hodos_config::Config`] converts into it.
+/// layer's, and the regions. The configuration file (`hodos::config::Config`) converts into it.
 #[derive(Debug, Clone, Default)]
 pub struct Settings {
     pub server: ServerConfig,

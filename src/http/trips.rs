@@ -1,14 +1,8 @@
-//! `POST /admin/trips`: completed trips posted in batches. Each trip is
-//! answered as hodos would answer it now for its departure (the region's
-//! current snapshot and correction model, `leaving` = the trip's
-//! departure), and the error against its actual duration is recorded as
-//! Prometheus histograms by region and tier; an ETA the caller kept
-//! (`served_eta_s`) is recorded beside it as `source="served"`. The answer
-//! summarizes the batch and lists refused rows by line.
-//!
-//! Trips are read by [`hodos_truth::trips`] (our CSV with a header, or
-//! JSON lines with `Content-Type: application/x-ndjson`) and answered by
-//! [`hodos_truth::replay::replay_trip`]; this file only records.
+//! `POST /admin/trips`: completed trips posted in batches, our CSV with a
+//! header or JSON lines (`Content-Type: application/x-ndjson`). Reading,
+//! answering and recording them is truth's online scoring
+//! (`hodos_truth::online::score_batch`); this file checks the media type
+//! and size, and converts the scored batch to its answer ([`TripsRecorded`]).
 
 use super::problem::ApiError;
 use super::AppState;
@@ -16,13 +10,8 @@ use axum::body::Body;
 use axum::extract::{Request, State};
 use axum::http::header;
 use axum::Json;
-use hodos_serving::answer::Catalog;
-use hodos_serving::metrics::{NO_REGION, TRIPS_RECORDED, TRIP_ABS_PCT_ERROR, TRIP_LOG_ERROR};
-use hodos_truth::measure::{summarize, Pair};
-use hodos_truth::replay::replay_trip;
-use hodos_truth::trips::{
-    read_trips, ReadOptions, TripFormat, TripRecord, TripReport, TripRowError,
-};
+use hodos_truth::online::{score_batch, ScoreError};
+use hodos_truth::trips::{TripFormat, TripRowError};
 use serde::Serialize;
 
 /// The answer to a batch of completed trips.
@@ -33,7 +22,7 @@ pub struct TripsRecorded {
     pub recorded: u64,
     pub refused: u64,
     /// The first refused rows, by line.
-    pub errors: Vec<TripRowError>,
+    pub errors: Vec<TripRowErrorDto>,
     /// The recorded trips' error, as hodos answers them now (null when
     /// none was recorded).
     pub mape: Option<f64>,
@@ -44,41 +33,24 @@ pub struct TripsRecorded {
     pub coverage: Option<f64>,
 }
 
-fn record_one(region: &str, tier: &'static str, source: &'static str, estimate: f64, actual: f64) {
-    if !(estimate > 0.0 && actual > 0.0) {
-        return;
-    }
-    let labels = [
-        ("region", region.to_string()),
-        ("tier", tier.to_string()),
-        ("source", source.to_string()),
-    ];
-    metrics::histogram!(TRIP_LOG_ERROR, &labels).record((estimate / actual).ln());
-    metrics::histogram!(TRIP_ABS_PCT_ERROR, &labels).record((estimate - actual).abs() / actual);
+/// One refused row of a posted batch.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct TripRowErrorDto {
+    /// Line in the input (the CSV header is line 1).
+    pub line: u64,
+    /// Why, from a closed set (`malformed`, `missing_field`, `bad_time`, ...).
+    pub kind: &'static str,
+    pub message: String,
 }
 
-/// Answers each trip at its departure through `cat` and records its
-/// error (and that of the ETA the caller kept, if any); returns each
-/// answer beside its actual duration.
-pub async fn record(cat: &Catalog, trips: &[TripRecord]) -> Vec<Pair> {
-    let mut pairs = Vec::with_capacity(trips.len());
-    for t in trips {
-        let o = replay_trip(cat, t).await;
-        let region = o.region.as_deref().unwrap_or(NO_REGION);
-        metrics::counter!(TRIPS_RECORDED, "region" => region.to_string(), "outcome" => "recorded")
-            .increment(1);
-        record_one(region, o.tier.as_str(), "replayed", o.eta_s, o.actual_s);
-        if let Some(s) = &t.served {
-            let tier = s.tier.map_or("unknown", |t| t.as_str());
-            record_one(region, tier, "served", s.eta_s, o.actual_s);
+impl From<&TripRowError> for TripRowErrorDto {
+    fn from(e: &TripRowError) -> Self {
+        TripRowErrorDto {
+            line: e.line,
+            kind: e.kind.as_str(),
+            message: e.message.clone(),
         }
-        pairs.push(Pair {
-            estimate_s: o.eta_s,
-            actual_s: o.actual_s,
-            interval_s: o.interval_s,
-        });
     }
-    pairs
 }
 
 pub(super) async fn post_trips(
@@ -107,23 +79,18 @@ pub(super) async fn post_trips(
             limit,
             setting: "admin.max_upload_bytes",
         })?;
-    let (trips, report): (_, TripReport) = tokio::task::spawn_blocking(move || {
-        read_trips(&bytes[..], format, &ReadOptions::default())
-    })
-    .await
-    .map_err(|_| ApiError::Internal)?
-    .map_err(|e| ApiError::Malformed(e.to_string()))?;
-    let pairs = record(&state.catalog, &trips).await;
-    if report.refused > 0 {
-        metrics::counter!(TRIPS_RECORDED, "region" => NO_REGION, "outcome" => "refused")
-            .increment(report.refused);
-    }
-    let s = summarize(&pairs);
+    let scored = score_batch(&state.catalog, bytes, format)
+        .await
+        .map_err(|e| match e {
+            ScoreError::Read(e) => ApiError::Malformed(e.to_string()),
+            ScoreError::ReadTask => ApiError::Internal,
+        })?;
+    let s = scored.summary;
     Ok(Json(TripsRecorded {
-        rows: report.rows,
-        recorded: pairs.len() as u64,
-        refused: report.refused,
-        errors: report.first_errors,
+        rows: scored.report.rows,
+        recorded: scored.recorded,
+        refused: scored.report.refused,
+        errors: scored.report.first_errors.iter().map(Into::into).collect(),
         mape: s.as_ref().map(|s| s.mape),
         median_ape: s.as_ref().map(|s| s.median_ape),
         rmsle: s.as_ref().map(|s| s.rmsle),

@@ -20,6 +20,8 @@
 //!   HTTP layer's).
 //! - [`os`]: thread priority, allocator settings and trim, the open-file
 //!   limit: the one module with `unsafe` (libc calls), each call justified.
+//! - [`service`]: [`service::Service`], every region opened and every
+//!   background task started and stopped in one place.
 //! - [`settings`]: the serving knobs as plain `serde` types (the file that
 //!   holds them is `config`'s business).
 //!
@@ -34,6 +36,7 @@ pub mod customizer;
 pub mod metrics;
 pub mod os;
 pub mod retire;
+pub mod service;
 pub mod settings;
 pub mod snapshot;
 pub mod speeds;

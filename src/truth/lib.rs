@@ -20,11 +20,14 @@
 //! - `measure`: the error metrics (MAPE, median and p90 absolute percentage
 //!   error, median ratio, RMSLE, MAE, shares within ±10 % / ±20 %,
 //!   interval coverage), overall and per group;
+//! - `online`: completed trips scored while the service runs (posted, or
+//!   the demo's), their error recorded as metrics by region and tier;
 //! - `report/`: the HTML page with its plots and the same figures as JSON.
 //!
 //! Fitting a correction model on replayed trips is `hodos-learn`'s job.
 
 pub mod measure;
+pub mod online;
 pub mod outcome;
 pub mod replay;
 pub mod report;

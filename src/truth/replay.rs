@@ -17,7 +17,7 @@ use hodos_engine::geo::haversine_m;
 use hodos_serving::answer::{trip, Catalog};
 use hodos_serving::correction::features;
 use hodos_serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
-use hodos_serving::snapshot::{RegionHandle, UpdateSettings};
+use hodos_serving::snapshot::{RegionUpdater, UpdateSettings};
 use std::path::{Path, PathBuf};
 
 /// One region to replay against.
@@ -100,7 +100,7 @@ pub async fn open_catalog(
             model: r.model.clone(),
             state_dir: state_dir.join(&r.name),
         };
-        let h = RegionHandle::open(cfg, UpdateSettings::from_settings(&settings)).await;
+        let h = RegionUpdater::open(cfg, UpdateSettings::from_settings(&settings)).await;
         let status = h.status();
         if let Some(reason) = status.degraded_reason.clone() {
             return Err(ReplayError::Degraded {
@@ -134,7 +134,7 @@ pub async fn open_catalog(
                     .unwrap_or_else(|| "no reason given".into()),
             });
         }
-        handles.push(h);
+        handles.push(h.reader().clone());
     }
     Ok(Catalog::new(settings, handles))
 }

@@ -3,7 +3,8 @@
 //! bounded timeout.
 
 use hodos::config::Config;
-use hodos::http::{bind, serve, AppState};
+use hodos::http::{bind, AppState};
+use hodos::server::run as serve;
 use std::net::SocketAddr;
 use std::time::Duration;
 

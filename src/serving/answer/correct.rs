@@ -4,12 +4,12 @@
 
 use super::{Answer, MatrixAnswer};
 use crate::correction::{correct, CorrectionModel, Query};
-use crate::snapshot::RegionHandle;
+use crate::snapshot::RegionReader;
 use hodos_engine::geo::LatLon;
 use std::sync::Arc;
 
 /// Corrects `a` (from `from` to `to`) with `handle`'s model, if it has one.
-pub(super) fn trip(handle: Option<&Arc<RegionHandle>>, from: LatLon, to: LatLon, a: &mut Answer) {
+pub(super) fn trip(handle: Option<&Arc<RegionReader>>, from: LatLon, to: LatLon, a: &mut Answer) {
     let Some(h) = handle else { return };
     let guard = h.correction.guard();
     let Some(model) = guard.as_ref() else { return };
@@ -25,7 +25,7 @@ const INLINE_CELLS: usize = 256;
 
 /// Corrects every cell of `m` (rows `from`, columns `to`).
 pub(super) async fn matrix(
-    handle: Option<&Arc<RegionHandle>>,
+    handle: Option<&Arc<RegionReader>>,
     from: &[LatLon],
     to: &[LatLon],
     mut m: MatrixAnswer,

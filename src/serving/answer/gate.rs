@@ -12,7 +12,7 @@
 use super::{Catalog, Estimator};
 use crate::admission::GraphPermit;
 use crate::metrics as m;
-use crate::snapshot::{LiveMetric, ProfileUsed, RegionHandle, Snapshot};
+use crate::snapshot::{LiveMetric, ProfileUsed, RegionReader, Snapshot};
 use crate::tier::{FallbackReason, Sources, Tier};
 use chrono::{DateTime, Utc};
 use hodos_engine::region::Metric;
@@ -153,7 +153,7 @@ impl Fallback {
 /// Runs the gate for a request that `handle` (if any) covers.
 pub(super) async fn gate(
     cat: &Catalog,
-    handle: Option<&Arc<RegionHandle>>,
+    handle: Option<&Arc<RegionReader>>,
     depart: Option<DateTime<Utc>>,
     deadline: Instant,
     admitted: bool,

@@ -7,7 +7,7 @@
 use super::gate::{gate, Chosen, Granted, MetricRef};
 use super::scratch::{with_scratch, ScratchCache};
 use super::{Catalog, CellAnswer, Estimator, MatrixAnswer};
-use crate::snapshot::{RegionHandle, Snapshot};
+use crate::snapshot::{RegionReader, Snapshot};
 use crate::tier::{FallbackReason, Sources, Tier};
 use chrono::{DateTime, Utc};
 use hodos_engine::cch::classes::ClassTimes;
@@ -74,7 +74,7 @@ pub async fn matrix_trip(
     admitted: bool,
 ) -> MatrixAnswer {
     let deadline = Instant::now() + cat.budget(budget_ms);
-    let covers = |r: &RegionHandle, p: &LatLon| r.cfg.coverage.contains(*p);
+    let covers = |r: &RegionReader, p: &LatLon| r.cfg.coverage.contains(*p);
     let whole = cat
         .regions
         .iter()
@@ -149,7 +149,7 @@ pub async fn matrix_trip(
 /// region's correction per cell.
 async fn region_matrix(
     cat: &Catalog,
-    handle: Option<&Arc<RegionHandle>>,
+    handle: Option<&Arc<RegionReader>>,
     from: &[LatLon],
     to: &[LatLon],
     depart: Option<DateTime<Utc>>,
@@ -169,7 +169,7 @@ async fn region_matrix(
 /// [`region_matrix`] before its cells are marked with the region.
 async fn region_matrix_inner(
     cat: &Catalog,
-    handle: Option<&Arc<RegionHandle>>,
+    handle: Option<&Arc<RegionReader>>,
     from: &[LatLon],
     to: &[LatLon],
     depart: Option<DateTime<Utc>>,

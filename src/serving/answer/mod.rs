@@ -57,7 +57,7 @@ pub use trip::trip;
 use crate::admission::Admission;
 use crate::correction::{Corrected, Query};
 use crate::settings::ServingSettings;
-use crate::snapshot::{ProfileUsed, RegionHandle, Snapshot};
+use crate::snapshot::{ProfileUsed, RegionReader, Snapshot};
 use crate::tier::{FallbackReason, Sources, Tier};
 use hodos_engine::calibration::Calibration;
 use hodos_engine::geo::LatLon;
@@ -68,7 +68,7 @@ use tokio::sync::Semaphore;
 /// All regions plus the shared limits.
 #[derive(Debug)]
 pub struct Catalog {
-    pub regions: Vec<Arc<RegionHandle>>,
+    pub regions: Vec<Arc<RegionReader>>,
     pub cfg: ServingSettings,
     pub permits: Arc<Semaphore>,
     /// Answer requests in flight (entered by the HTTP layer once their
@@ -82,7 +82,7 @@ pub struct Catalog {
 }
 
 impl Catalog {
-    pub fn new(cfg: ServingSettings, regions: Vec<Arc<RegionHandle>>) -> Self {
+    pub fn new(cfg: ServingSettings, regions: Vec<Arc<RegionReader>>) -> Self {
         let outside = Calibration::fixed(cfg.fallback.circuity, cfg.fallback.speed_kmh);
         Catalog {
             permits: Arc::new(Semaphore::new(cfg.query.graph_concurrency)),
@@ -113,7 +113,7 @@ impl Catalog {
     }
 
     /// Index of a region handle in [`Catalog::regions`].
-    fn index_of(&self, handle: &Arc<RegionHandle>) -> Option<u16> {
+    fn index_of(&self, handle: &Arc<RegionReader>) -> Option<u16> {
         self.regions
             .iter()
             .position(|r| Arc::ptr_eq(r, handle))
@@ -121,7 +121,7 @@ impl Catalog {
     }
 
     /// The first region whose coverage holds both points.
-    pub fn region_for(&self, a: LatLon, b: LatLon) -> Option<&Arc<RegionHandle>> {
+    pub fn region_for(&self, a: LatLon, b: LatLon) -> Option<&Arc<RegionReader>> {
         self.regions
             .iter()
             .find(|r| r.cfg.coverage.contains(a) && r.cfg.coverage.contains(b))

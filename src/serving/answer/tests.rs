@@ -13,8 +13,9 @@
 //! - unreachable pairs: petgraph's Dijkstra reaches no distance.
 
 use super::{matrix_trip, trip, Catalog};
+use crate::service::Service;
 use crate::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
-use crate::snapshot::{RegionHandle, UpdateError, UpdateSettings};
+use crate::snapshot::{RegionUpdater, UpdateError, UpdateSettings};
 use crate::tier::{FallbackReason as R, Tier};
 use chrono::{Duration as Days, Utc};
 use hodos_engine::build::{assemble, build_from_graph, Quiet};
@@ -61,9 +62,9 @@ fn settings() -> ServingSettings {
     s
 }
 
-/// A catalog of one region on `artifact` (coverage: the graph's box with a
+/// A service of one region on `artifact` (coverage: the graph's box with a
 /// margin), with its own state directory.
-async fn catalog(artifact: &Path, g: &RoadGraph, state: &Path) -> Catalog {
+async fn catalog(artifact: &Path, g: &RoadGraph, state: &Path) -> Service {
     let (lo, hi) = g.bbox();
     let cfg = RegionConfig {
         name: "quellhaven".into(),
@@ -75,9 +76,7 @@ async fn catalog(artifact: &Path, g: &RoadGraph, state: &Path) -> Catalog {
         model: None,
         state_dir: state.to_path_buf(),
     };
-    let s = settings();
-    let h = RegionHandle::open(cfg, UpdateSettings::from_settings(&s)).await;
-    Catalog::new(s, vec![h])
+    Service::open(settings(), &[cfg]).await
 }
 
 /// Haversine distance (published formula, mean Earth radius in metres).
@@ -119,7 +118,7 @@ fn weights_at(g: &RoadGraph, kmh: impl Fn(usize) -> f64) -> Vec<u32> {
 }
 
 /// Profile index serving `hour` in the region's current snapshot.
-fn hour_profile(region: &RegionHandle, hour: u8) -> u8 {
+fn hour_profile(region: &RegionUpdater, hour: u8) -> u8 {
     region
         .snapshot()
         .unwrap()
@@ -154,8 +153,9 @@ async fn gate_fallbacks_and_graph_tiers() {
     let c = city();
     let g = &c.graph;
     let state = tempfile::tempdir().unwrap();
-    let cat = catalog(&c.artifact, g, state.path()).await;
-    let region = cat.regions[0].clone();
+    let svc = catalog(&c.artifact, g, state.path()).await;
+    let cat = &*svc.catalog;
+    let region = svc.regions[0].clone();
     let cal = region.snapshot().unwrap().region.calibration.clone();
     let gen = region.snapshot().unwrap().generation;
     let (s, t) = two_way_pair(g);
@@ -402,8 +402,9 @@ async fn stale_live_data_falls_back_to_historical() {
     let c = city();
     let g = &c.graph;
     let state = tempfile::tempdir().unwrap();
-    let cat = catalog(&c.artifact, g, state.path()).await;
-    let region = cat.regions[0].clone();
+    let svc = catalog(&c.artifact, g, state.path()).await;
+    let cat = &*svc.catalog;
+    let region = svc.regions[0].clone();
     let (s, t) = two_way_pair(g);
     // Observations an hour old, beyond the 600 s TTL.
     let old = (Utc::now() - Days::seconds(3600)).to_rfc3339();
@@ -452,8 +453,9 @@ async fn unavailable_region_answers_from_the_defaults() {
     let broken = dir.path().join("broken.hodos");
     std::fs::write(&broken, b"not an artifact").unwrap();
     let c = city();
-    let cat = catalog(&broken, &c.graph, &dir.path().join("state")).await;
-    let region = cat.regions[0].clone();
+    let svc = catalog(&broken, &c.graph, &dir.path().join("state")).await;
+    let cat = &*svc.catalog;
+    let region = svc.regions[0].clone();
     assert!(region.snapshot().is_none());
     let reason = region.status().degraded_reason.unwrap();
     assert!(reason.contains("broken.hodos"), "{reason}");
@@ -499,7 +501,8 @@ fn islands(dir: &Path) -> (PathBuf, RoadGraph) {
 async fn unreachable_pairs_fall_back_per_trip_and_per_cell() {
     let dir = tempfile::tempdir().unwrap();
     let (artifact, g) = islands(dir.path());
-    let cat = catalog(&artifact, &g, &dir.path().join("state")).await;
+    let svc = catalog(&artifact, &g, &dir.path().join("state")).await;
+    let cat = &*svc.catalog;
     let (s, t, u) = (0u32, 16u32, 5u32);
     // petgraph's Dijkstra agrees there is no path from island one to two.
     let ones = vec![1; g.num_edges()];
@@ -555,9 +558,9 @@ async fn matrix_cells_belong_to_the_region_holding_both_ends() {
     };
     let s = settings();
     let up = UpdateSettings::from_settings(&s);
-    let west = RegionHandle::open(half("west", lo.lon - 0.05, mid), up.clone()).await;
-    let east = RegionHandle::open(half("east", mid, hi.lon + 0.05), up).await;
-    let cat = Catalog::new(s, vec![west, east]);
+    let west = RegionUpdater::open(half("west", lo.lon - 0.05, mid), up.clone()).await;
+    let east = RegionUpdater::open(half("east", mid, hi.lon + 0.05), up).await;
+    let cat = Catalog::new(s, vec![west.reader().clone(), east.reader().clone()]);
     // Two nodes in each half, away from the middle.
     let pick = |west: bool| {
         let mut v = (0..g.num_nodes() as u32).filter(move |&n| {
@@ -606,8 +609,8 @@ async fn matrix_cells_belong_to_the_region_holding_both_ends() {
 async fn a_held_profile_metric_keeps_its_snapshot_retired() {
     let c = city();
     let state = tempfile::tempdir().unwrap();
-    let cat = catalog(&c.artifact, &c.graph, state.path()).await;
-    let region = cat.regions[0].clone();
+    let svc = catalog(&c.artifact, &c.graph, state.path()).await;
+    let region = svc.regions[0].clone();
     let held = region.snapshot().unwrap().profiles.metrics[0].clone();
     let g = &c.graph;
     let mut csv = hodos_testkit::HistoricalCsv::with_header();
@@ -670,7 +673,7 @@ fn line(dir: &Path) -> (PathBuf, RoadGraph) {
 /// Fresh live observations (stamped 5 s ahead: within the allowed skew,
 /// so age 0 and live weight exactly 1) at `kmh` on the directed roads
 /// `(from, to)` (outside node ids).
-async fn observe(region: &crate::snapshot::RegionHandle, roads: &[(u64, u64)], kmh: f64) {
+async fn observe(region: &crate::snapshot::RegionUpdater, roads: &[(u64, u64)], kmh: f64) {
     let at = (Utc::now() + Days::seconds(5)).to_rfc3339();
     let batch: Vec<serde_json::Value> = roads
         .iter()
@@ -693,8 +696,9 @@ async fn observe(region: &crate::snapshot::RegionHandle, roads: &[(u64, u64)], k
 async fn sources_name_the_speeds_the_route_used() {
     let dir = tempfile::tempdir().unwrap();
     let (artifact, g) = line(dir.path());
-    let cat = catalog(&artifact, &g, &dir.path().join("state")).await;
-    let region = cat.regions[0].clone();
+    let svc = catalog(&artifact, &g, &dir.path().join("state")).await;
+    let cat = &*svc.catalog;
+    let region = svc.regions[0].clone();
     let (a, b) = (g.node_pos(0), g.node_pos(3));
     let shares = |r: &super::Answer| {
         let s = r.sources.expect("graph answers carry sources");

@@ -7,7 +7,7 @@
 use super::gate::{gate, Granted, Tag};
 use super::scratch::{with_scratch, ScratchCache};
 use super::{Answer, Catalog, Estimator};
-use crate::snapshot::RegionHandle;
+use crate::snapshot::RegionReader;
 use crate::tier::{FallbackReason, Sources, Tier};
 use chrono::{DateTime, Utc};
 use hodos_engine::cch::CchQuery;
@@ -80,7 +80,7 @@ pub async fn trip(
 #[allow(clippy::too_many_arguments)]
 async fn uncorrected(
     cat: &Catalog,
-    handle: Option<&Arc<RegionHandle>>,
+    handle: Option<&Arc<RegionReader>>,
     from: LatLon,
     to: LatLon,
     depart: Option<DateTime<Utc>>,

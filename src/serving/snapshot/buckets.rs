@@ -8,7 +8,7 @@
 //! Superseded profile metrics leave with their snapshot through `retire`.
 
 use super::error::{UpdateError, UpdateFailure};
-use super::{RegionHandle, Snapshot};
+use super::{RegionUpdater, Snapshot};
 use crate::metrics as m;
 use crate::retire::Retiree;
 use crate::speeds::{sources, HistoricalProfile, HourGrouping};
@@ -91,7 +91,7 @@ impl Retiree for RetiredSnapshot {
     }
 }
 
-impl RegionHandle {
+impl RegionUpdater {
     /// Groups the hours of `hist` (or one free-flow profile without a
     /// table) and customizes every profile, each as its own job on the
     /// customizer thread (live blends can run between them). Returns once

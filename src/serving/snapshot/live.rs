@@ -1,7 +1,7 @@
-//! The live tier's upkeep: blending the held live layer over the current
-//! hour's historical speeds, customizing and publishing the blend, the
-//! background loop that does it (at most once per `recustomize_ms`), and
-//! the watched folder of live CSV files.
+//! The live tier's blend: the held live layer blended over the current
+//! hour's historical speeds, customized and published (the updater's
+//! methods the live loop and a reload call; the loop itself is
+//! `live_loop`).
 //!
 //! Blending, saving and all file work run off the request workers: blends
 //! and saves on the `updates` thread, customizations on the customizer
@@ -12,7 +12,7 @@
 //! carries those classes so answers report how much of their time is live.
 
 use super::load::{live_state_path, live_wal_path};
-use super::{age_s, LiveMetric, RegionHandle, Snapshot};
+use super::{age_s, LiveMetric, RegionUpdater, Snapshot};
 use crate::metrics as m;
 use crate::speeds::{
     blend_into, save_live, sources, BlendStats, EdgeIndex, HistoricalProfile, LiveLayer,
@@ -20,7 +20,7 @@ use crate::speeds::{
 };
 use chrono::{DateTime, Utc};
 use hodos_engine::region::{Metric, Region};
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::sync::atomic::Ordering;
 use std::sync::Arc;
 use std::time::{Duration, Instant};
@@ -94,27 +94,7 @@ fn save_layer(path: &Path, log: &Path, layer: &LiveLayer, index: &EdgeIndex, nam
     }
 }
 
-/// The `*.csv` files of the watched folder, sorted; `None` if it cannot be
-/// read.
-fn list_csv(dir: &Path) -> Option<Vec<PathBuf>> {
-    let entries = std::fs::read_dir(dir).ok()?;
-    let mut files: Vec<PathBuf> = entries
-        .flatten()
-        .map(|e| e.path())
-        .filter(|p| p.extension().map(|x| x == "csv").unwrap_or(false))
-        .collect();
-    files.sort();
-    Some(files)
-}
-
-/// Renames an applied file to `.done` or `.rejected`.
-fn mark(f: &Path, ext: &str) {
-    if let Err(e) = std::fs::rename(f, f.with_extension(ext)) {
-        tracing::warn!(file = %f.display(), error = %e, "could not mark live file");
-    }
-}
-
-impl RegionHandle {
+impl RegionUpdater {
     fn blend_params(&self) -> BlendParams {
         BlendParams {
             ttl: Duration::from_secs_f64(self.settings.live.ttl_s),
@@ -254,7 +234,7 @@ impl RegionHandle {
             guard.live_saved_at = Some(Instant::now());
             guard.live_changed = false;
             // The saved layer replaced whatever the last load refused.
-            if !self.status.load().live_problems.is_empty() {
+            if !self.recorded_status().live_problems.is_empty() {
                 self.set_status(|s| s.live_problems.clear());
             }
         }
@@ -292,95 +272,5 @@ impl RegionHandle {
             metrics::gauge!(m::LIVE_AGE, "region" => self.name.clone()).set(age_s(Utc::now(), n));
         }
         true
-    }
-
-    /// Runs the live loop until `shutdown` resolves: re-customizes at most
-    /// every `recustomize_ms` when observations arrived, and scans the
-    /// watched directory.
-    pub async fn run_live_loop(self: Arc<Self>, shutdown: impl std::future::Future<Output = ()>) {
-        tokio::pin!(shutdown);
-        let interval = Duration::from_millis(self.settings.live.recustomize_ms);
-        let watch_every = Duration::from_secs_f64(self.settings.live.watch_interval_s);
-        let mut last_scan = Instant::now() - watch_every;
-        loop {
-            tokio::select! {
-                _ = &mut shutdown => break,
-                _ = self.wake.notified() => {},
-                _ = tokio::time::sleep(interval) => {},
-            }
-            let started = Instant::now();
-            self.refresh_live(false).await;
-            self.sweep_retired();
-            self.record_live_age();
-            if self.cfg.live_dir.is_some() && last_scan.elapsed() >= watch_every {
-                last_scan = Instant::now();
-                self.scan_live_dir().await;
-            }
-            // At most one re-customization per interval.
-            let spent = started.elapsed();
-            if spent < interval {
-                tokio::select! {
-                    _ = &mut shutdown => break,
-                    _ = tokio::time::sleep(interval - spent) => {},
-                }
-            }
-        }
-    }
-
-    /// Sets the live-age gauge from the serving blend's newest observation,
-    /// and the historical-age gauge from when the serving table was taken.
-    fn record_live_age(&self) {
-        if let Some(snap) = self.snapshot() {
-            if let Some(t) = snap.historical_at {
-                metrics::gauge!(m::HISTORICAL_AGE, "region" => self.name.clone())
-                    .set(age_s(Utc::now(), t));
-            }
-            if let Some(l) = &snap.live {
-                if let Some(n) = l.newest_observed_at {
-                    metrics::gauge!(m::LIVE_AGE, "region" => self.name.clone())
-                        .set(age_s(Utc::now(), n));
-                }
-            }
-        }
-    }
-
-    /// Applies every `*.csv` file in the watched directory, then renames it
-    /// to `.done` or `.rejected` so nothing is applied twice or lost. The
-    /// listing, reading and renaming run on tokio's blocking pool.
-    pub async fn scan_live_dir(&self) {
-        let Some(dir) = self.cfg.live_dir.clone() else {
-            return;
-        };
-        if !self.loaded() {
-            // Files wait for the first load rather than be refused.
-            return;
-        }
-        let Ok(Some(files)) = tokio::task::spawn_blocking(move || list_csv(&dir)).await else {
-            return;
-        };
-        for f in files {
-            let path = f.clone();
-            let Ok(Ok(file)) =
-                tokio::task::spawn_blocking(move || std::fs::File::open(&path)).await
-            else {
-                continue;
-            };
-            // Read as a stream, like an upload.
-            let outcome = self.put_live_from(file, true).await;
-            let ext = match &outcome {
-                Ok(_) => "done",
-                Err(e) => {
-                    // The operator finds the file renamed; the log says why.
-                    tracing::warn!(
-                        region = %self.name,
-                        file = %f.display(),
-                        reason = %e,
-                        "live file rejected (renamed to .rejected)"
-                    );
-                    "rejected"
-                }
-            };
-            let _ = tokio::task::spawn_blocking(move || mark(&f, ext)).await;
-        }
     }
 }

@@ -2,7 +2,7 @@
 //! historical tier's hour-of-week profile metrics, and every update path (historical
 //! table, live observations, artifact reload).
 //!
-//! Readers call [`RegionHandle::snapshot`] and get an `Arc<Snapshot>`: a
+//! Readers call [`RegionReader::snapshot`] and get an `Arc<Snapshot>`: a
 //! consistent set of graph, hierarchy, metrics, calibration and data
 //! versions that stays valid for as long as they hold it. They never take a
 //! lock. Writers build a complete new snapshot off to the side and publish
@@ -14,21 +14,32 @@
 //!
 //! # Layout
 //!
+//! A region has two sides. [`RegionReader`] is what answers see: the
+//! published snapshot, the status and the correction model, and no write.
+//! [`RegionUpdater`] is the one way to change a region: every write
+//! (reload, historical upload, live batch, model upload) goes through it,
+//! is checked, persisted and then published on its reader. The live loop
+//! ([`LiveLoop`]) drives the updater's live blend and the watched folder.
+//!
+//! # Layout
+//!
 //! - this file: [`Snapshot`], [`LiveMetric`], [`RegionStatus`],
-//!   [`ReloadOutcome`], [`UpdateSettings`], the [`RegionHandle`] itself,
-//!   opening a region, reading and publishing snapshots, recording
-//!   outcomes;
+//!   [`ReloadOutcome`], [`UpdateSettings`];
+//! - `reader`: [`RegionReader`], the read side (its writes are
+//!   `pub(super)`: only this module's update paths make them);
+//! - `updater`: [`RegionUpdater`]: opening a region, the three update
+//!   paths ([`RegionUpdater::reload`], [`RegionUpdater::put_historical`],
+//!   [`RegionUpdater::put_live`]), the model upload (delegated to
+//!   [`crate::correction::ModelUpdater`]), publishing, recording outcomes;
 //! - `buckets`: the historical tier's metrics, one per hour-of-week
 //!   profile, all customized before their snapshot is published
 //!   ([`Profiles`]), and the retirement of superseded snapshots;
-//! - `update`: the three update paths ([`RegionHandle::reload`],
-//!   [`RegionHandle::put_historical`], [`RegionHandle::put_live`]);
-//! - `live`: blending and publishing the live tier, the live loop and the
-//!   watched folder;
+//! - `live`: blending, customizing and publishing the live tier;
+//! - `live_loop`: [`LiveLoop`], the background loop (at most one
+//!   re-customization per `recustomize_ms`) and the watched folder;
 //! - `load`: the file work of a load (artifact, the rule choosing the
 //!   historical table, refusing damaged saved files, the saved live layer
 //!   with its write-ahead log replayed), run on tokio's blocking pool;
-//! - `model`: the correction model's update path (at start, on upload);
 //! - `error`: the typed errors ([`UpdateError`], [`LoadError`], ...).
 //!
 //! **Architecture Invariant:** nothing here knows about HTTP; the service
@@ -37,30 +48,25 @@
 mod buckets;
 mod error;
 mod live;
+mod live_loop;
 mod load;
-mod model;
-mod update;
+mod reader;
+mod updater;
 
+pub use crate::correction::ModelUpdateError;
 pub use buckets::{metric_bytes, ProfileUsed, Profiles};
 pub use error::{Degraded, HistoricalNote, LoadError, TableReadError, UpdateError, UpdateFailure};
+pub use live_loop::LiveLoop;
 pub use load::FileStamp;
-pub use model::ModelUpdateError;
+pub use reader::RegionReader;
+pub use updater::RegionUpdater;
 
-use crate::correction::ModelSlot;
 use crate::customizer::Customizer;
-use crate::metrics as m;
-use crate::retire::RetireBin;
-use crate::settings::{CustomizePriority, LiveConfig, RegionConfig, ServingSettings};
-use crate::speeds::{
-    BlendStats, EdgeIndex, HistoricalProfile, LiveLayer, TableReport, ValidationConfig,
-};
-use arc_swap::{ArcSwap, ArcSwapOption};
+use crate::settings::{CustomizePriority, LiveConfig, ServingSettings};
+use crate::speeds::{BlendStats, EdgeIndex, HistoricalProfile, TableReport, ValidationConfig};
 use chrono::{DateTime, Utc};
 use hodos_engine::region::{Metric, Region};
-use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::Arc;
-use std::time::Instant;
-use tokio::sync::Notify;
 
 /// Everything a request needs, frozen.
 #[derive(Debug)]
@@ -267,171 +273,6 @@ impl UpdateSettings {
     }
 }
 
-/// Writer-side state: only update paths touch it, one at a time.
-struct Writer {
-    live: Option<LiveLayer>,
-    live_saved_at: Option<Instant>,
-    live_changed: bool,
-}
-
-/// One configured region for the life of the process.
-pub struct RegionHandle {
-    pub name: String,
-    pub cfg: RegionConfig,
-    pub tz: chrono_tz::Tz,
-    settings: UpdateSettings,
-    current: ArcSwapOption<Snapshot>,
-    status: ArcSwap<RegionStatus>,
-    writer: tokio::sync::Mutex<Writer>,
-    /// Why the region serves no graph (typed; the status shows its text).
-    degraded: ArcSwapOption<LoadError>,
-    /// Superseded snapshots (with their profile metrics), freed on the `updates`
-    /// thread once no request holds them (see [`crate::retire`]).
-    retired: Arc<RetireBin>,
-    live_dirty: AtomicBool,
-    wake: Notify,
-    generation: AtomicU64,
-    loads: AtomicU64,
-    /// Set once the first load finished (served or degraded).
-    loaded: AtomicBool,
-    /// The correction model this region's answers go through (none until
-    /// one is configured or uploaded). Independent of snapshots: a new
-    /// table or artifact keeps the model, a new model keeps the snapshot.
-    pub correction: ModelSlot,
-}
-
-impl std::fmt::Debug for RegionHandle {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.debug_struct("RegionHandle")
-            .field("name", &self.name)
-            .finish()
-    }
-}
-
-impl RegionHandle {
-    /// Creates the handle and loads the region (see [`Self::load_first`]).
-    pub async fn open(cfg: RegionConfig, settings: UpdateSettings) -> Arc<RegionHandle> {
-        let h = Self::new(cfg, settings);
-        h.load_first().await;
-        h
-    }
-
-    /// Creates the handle without loading anything: it reports itself
-    /// loading (and answers come from the heuristic tier) until
-    /// [`Self::load_first`] finishes.
-    pub fn new(cfg: RegionConfig, settings: UpdateSettings) -> Arc<RegionHandle> {
-        let tz = cfg.time_zone.parse().unwrap_or(chrono_tz::UTC);
-        Arc::new(RegionHandle {
-            name: cfg.name.clone(),
-            cfg,
-            tz,
-            settings,
-            current: ArcSwapOption::empty(),
-            status: ArcSwap::from_pointee(RegionStatus::default()),
-            writer: tokio::sync::Mutex::new(Writer {
-                live: None,
-                live_saved_at: None,
-                live_changed: false,
-            }),
-            degraded: ArcSwapOption::empty(),
-            retired: Arc::default(),
-            live_dirty: AtomicBool::new(false),
-            wake: Notify::new(),
-            generation: AtomicU64::new(0),
-            loads: AtomicU64::new(0),
-            loaded: AtomicBool::new(false),
-            correction: ModelSlot::default(),
-        })
-    }
-
-    /// The first load: the artifact, then the historical table (by the
-    /// rule in `load`), then the saved live layer with its write-ahead log
-    /// replayed. A failed artifact leaves the region degraded; the error
-    /// is in its status.
-    pub async fn load_first(self: &Arc<Self>) {
-        let h = self;
-        if let Err(e) = h.reload().await {
-            tracing::warn!(region = %h.name, error = %e, "region starts degraded");
-        }
-        h.load_model_at_start();
-        // Ready means ready to answer from the graph for any departure:
-        // `reload` publishes the first snapshot only once every profile is
-        // customized (a bounded amount of work: `query.profiles` metrics).
-        h.loaded.store(true, Ordering::SeqCst);
-    }
-
-    /// Whether the first load has finished.
-    pub fn loaded(&self) -> bool {
-        self.loaded.load(Ordering::SeqCst)
-    }
-
-    /// The serving snapshot, or `None` while degraded.
-    pub fn snapshot(&self) -> Option<Arc<Snapshot>> {
-        self.current.load_full()
-    }
-
-    pub fn status(&self) -> RegionStatus {
-        let mut s = (**self.status.load()).clone();
-        s.loading = !self.loaded();
-        let now = Utc::now();
-        if let Some(snap) = self.snapshot() {
-            s.ready = true;
-            s.generation = snap.generation;
-            s.historical_version = snap.historical.as_ref().map(|h| h.version().to_string());
-            s.historical_rows = snap.historical.as_ref().map(|h| h.rows());
-            s.historical_age_s = snap.historical_at.map(|t| age_s(now, t));
-            s.historical_source = snap.historical_source.as_ref().map(|x| x.kind());
-            s.historical_path = snap
-                .historical_source
-                .as_ref()
-                .map(|x| x.path().display().to_string());
-            if let Some(l) = &snap.live {
-                s.live_edges = l.stats.fresh_edges;
-                s.live_newest_age_s = l.newest_observed_at.map(|t| age_s(now, t));
-            }
-            s.profiles = Some(ProfilesStatus::of(&snap.profiles));
-        }
-        s
-    }
-
-    fn set_status(&self, f: impl FnOnce(&mut RegionStatus)) {
-        let mut s = (**self.status.load()).clone();
-        f(&mut s);
-        self.status.store(Arc::new(s));
-    }
-
-    fn record(&self, outcome: ReloadOutcome) {
-        metrics::counter!(m::RELOADS, "region" => self.name.clone(), "table" => outcome.table, "outcome" => outcome.outcome)
-            .increment(1);
-        if let Some(r) = &outcome.report {
-            for (kind, n) in &r.bad_by_kind {
-                metrics::counter!(m::REJECTED_ROWS, "region" => self.name.clone(), "table" => outcome.table, "kind" => kind.clone())
-                    .increment(*n);
-            }
-        }
-        let is_live = outcome.table == "live";
-        self.set_status(|s| {
-            if is_live {
-                s.last_live_batch = Some(outcome);
-            } else {
-                s.last_reload = Some(outcome);
-            }
-        });
-    }
-
-    fn publish(&self, build: impl FnOnce(u64) -> Snapshot) -> Arc<Snapshot> {
-        let g = self.generation.fetch_add(1, Ordering::SeqCst) + 1;
-        let snap = Arc::new(build(g));
-        if let Some(old) = self.current.swap(Some(snap.clone())) {
-            self.retired.retire(buckets::RetiredSnapshot(old));
-            self.sweep_retired();
-        }
-        metrics::gauge!(m::SNAPSHOT_GENERATION, "region" => self.name.clone()).set(g as f64);
-        metrics::gauge!(m::REGION_READY, "region" => self.name.clone()).set(1.0);
-        snap
-    }
-}
-
-fn age_s(now: DateTime<Utc>, t: DateTime<Utc>) -> f64 {
+pub(crate) fn age_s(now: DateTime<Utc>, t: DateTime<Utc>) -> f64 {
     ((now - t).num_milliseconds() as f64 / 1000.0).max(0.0)
 }

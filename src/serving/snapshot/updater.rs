@@ -1,6 +1,10 @@
-//! The three update paths: an artifact reload, a historical table upload
-//! and a batch of live observations. Each takes the writer lock, does its
-//! heavy work off the request workers (the load on tokio's blocking pool,
+//! The write side of a region: [`RegionUpdater`], through which every
+//! write is checked, persisted and then published on the region's
+//! [`RegionReader`]. Opening a region (the first load) and the three
+//! update paths: an artifact reload, a historical table upload and a batch
+//! of live observations; a model upload goes to the region's
+//! [`ModelUpdater`]. Each takes the writer lock, does its heavy work off
+//! the request workers (the load on tokio's blocking pool,
 //! parsing/applying/saving on the `updates` thread, customization on the
 //! customizer thread), then publishes a new snapshot or records why not.
 //!
@@ -21,10 +25,15 @@ use super::load::{
     choose_historical, file_stamp, historical_state_path, live_wal_path, load_region, Chosen,
     Loaded, TableChoice,
 };
-use super::{LiveMetric, RegionHandle, ReloadOutcome, Reloaded, Snapshot, TableSource, Writer};
+use super::{
+    buckets, LiveMetric, RegionReader, ReloadOutcome, Reloaded, Snapshot, TableSource,
+    UpdateSettings,
+};
+use crate::correction::{CorrectionModel, ModelUpdateError, ModelUpdater};
 use crate::customizer::run_on_own_thread;
 use crate::metrics as m;
-use crate::retire::trim_heap;
+use crate::retire::{trim_heap, RetireBin};
+use crate::settings::RegionConfig;
 use crate::speeds::persist::Saving;
 use crate::speeds::wal::{self, BatchKind};
 use crate::speeds::{
@@ -33,10 +42,161 @@ use crate::speeds::{
 };
 use chrono::{DateTime, Utc};
 use std::io::Read;
-use std::sync::atomic::Ordering;
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::Arc;
+use std::time::Instant;
+use tokio::sync::Notify;
 
-impl RegionHandle {
+/// Writer-side state: only update paths touch it, one at a time.
+pub(super) struct Writer {
+    pub(super) live: Option<LiveLayer>,
+    pub(super) live_saved_at: Option<Instant>,
+    pub(super) live_changed: bool,
+}
+
+/// One configured region's write side, for the life of the process.
+pub struct RegionUpdater {
+    /// The read side this updater publishes on (answers hold only this).
+    reader: Arc<RegionReader>,
+    pub(super) settings: UpdateSettings,
+    pub(super) writer: tokio::sync::Mutex<Writer>,
+    /// Superseded snapshots (with their profile metrics), freed on the `updates`
+    /// thread once no request holds them (see [`crate::retire`]).
+    pub(super) retired: Arc<RetireBin>,
+    /// Observations arrived or their base changed: the live loop re-blends.
+    pub(super) live_dirty: AtomicBool,
+    /// Wakes the live loop early.
+    pub(super) wake: Notify,
+    generation: AtomicU64,
+    loads: AtomicU64,
+    /// The correction model's update path (the slot is the reader's).
+    model: Arc<ModelUpdater>,
+}
+
+impl std::fmt::Debug for RegionUpdater {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("RegionUpdater")
+            .field("name", &self.reader.name)
+            .finish()
+    }
+}
+
+/// The updater reads what it publishes: every read of the region
+/// ([`RegionReader::snapshot`], [`RegionReader::status`], its name and
+/// configuration) is there on the write side too. Nothing leads back from
+/// a reader to its updater.
+impl std::ops::Deref for RegionUpdater {
+    type Target = RegionReader;
+    fn deref(&self) -> &RegionReader {
+        &self.reader
+    }
+}
+
+impl RegionUpdater {
+    /// Creates the region and loads it (see [`Self::load_first`]).
+    pub async fn open(cfg: RegionConfig, settings: UpdateSettings) -> Arc<RegionUpdater> {
+        let h = Self::new(cfg, settings);
+        h.load_first().await;
+        h
+    }
+
+    /// Creates the region without loading anything: it reports itself
+    /// loading (and answers come from the heuristic tier) until
+    /// [`Self::load_first`] finishes.
+    pub fn new(cfg: RegionConfig, settings: UpdateSettings) -> Arc<RegionUpdater> {
+        let reader = Arc::new(RegionReader::new(cfg));
+        let model = Arc::new(ModelUpdater::new(
+            reader.name.clone(),
+            reader.cfg.state_dir.clone(),
+            reader.cfg.model.clone(),
+            reader.correction.clone(),
+        ));
+        Arc::new(RegionUpdater {
+            reader,
+            settings,
+            writer: tokio::sync::Mutex::new(Writer {
+                live: None,
+                live_saved_at: None,
+                live_changed: false,
+            }),
+            retired: Arc::default(),
+            live_dirty: AtomicBool::new(false),
+            wake: Notify::new(),
+            generation: AtomicU64::new(0),
+            loads: AtomicU64::new(0),
+            model,
+        })
+    }
+
+    /// The read side, for the answer path.
+    pub fn reader(&self) -> &Arc<RegionReader> {
+        &self.reader
+    }
+
+    /// The first load: the artifact, then the historical table (by the
+    /// rule in `load`), then the saved live layer with its write-ahead log
+    /// replayed, then the correction model. A failed artifact leaves the
+    /// region degraded; the error is in its status.
+    pub async fn load_first(self: &Arc<Self>) {
+        if let Err(e) = self.reload().await {
+            tracing::warn!(region = %self.name, error = %e, "region starts degraded");
+        }
+        self.model.load_at_start();
+        // Ready means ready to answer from the graph for any departure:
+        // `reload` publishes the first snapshot only once every profile is
+        // customized (a bounded amount of work: `query.profiles` metrics).
+        self.reader.set_loaded();
+    }
+
+    /// Where an accepted model upload is kept.
+    pub fn model_state_path(&self) -> std::path::PathBuf {
+        self.model.model_state_path()
+    }
+
+    /// Checks, saves and serves an uploaded model file; returns the model
+    /// now serving. A refused or unsaved file changes nothing.
+    pub async fn put_model(
+        &self,
+        bytes: Vec<u8>,
+    ) -> Result<Arc<CorrectionModel>, ModelUpdateError> {
+        self.model.put_model(bytes).await
+    }
+
+    pub(super) fn set_status(&self, f: impl FnOnce(&mut super::RegionStatus)) {
+        self.reader.set_status(f)
+    }
+
+    pub(super) fn record(&self, outcome: ReloadOutcome) {
+        metrics::counter!(m::RELOADS, "region" => self.name.clone(), "table" => outcome.table, "outcome" => outcome.outcome)
+            .increment(1);
+        if let Some(r) = &outcome.report {
+            for (kind, n) in &r.bad_by_kind {
+                metrics::counter!(m::REJECTED_ROWS, "region" => self.name.clone(), "table" => outcome.table, "kind" => kind.clone())
+                    .increment(*n);
+            }
+        }
+        let is_live = outcome.table == "live";
+        self.set_status(|s| {
+            if is_live {
+                s.last_live_batch = Some(outcome);
+            } else {
+                s.last_reload = Some(outcome);
+            }
+        });
+    }
+
+    pub(super) fn publish(&self, build: impl FnOnce(u64) -> Snapshot) -> Arc<Snapshot> {
+        let g = self.generation.fetch_add(1, Ordering::SeqCst) + 1;
+        let snap = Arc::new(build(g));
+        if let Some(old) = self.reader.swap(snap.clone()) {
+            self.retired.retire(buckets::RetiredSnapshot(old));
+            self.sweep_retired();
+        }
+        metrics::gauge!(m::SNAPSHOT_GENERATION, "region" => self.name.clone()).set(g as f64);
+        metrics::gauge!(m::REGION_READY, "region" => self.name.clone()).set(1.0);
+        snap
+    }
+
     /// Reloads the artifact (unless its file is unchanged) and chooses the
     /// historical table afresh (the newer of the configured file and the
     /// last upload). On failure the serving snapshot, if any, stays as it
@@ -105,7 +265,7 @@ impl RegionHandle {
             generation: g,
             ..fresh
         });
-        self.degraded.store(None);
+        self.reader.set_degraded(None);
         self.set_status(|s| s.degraded_reason = None);
         self.record(ReloadOutcome {
             table: "artifact",
@@ -247,7 +407,7 @@ impl RegionHandle {
             report: None,
         });
         if degraded {
-            self.degraded.store(Some(e.clone()));
+            self.reader.set_degraded(Some(e.clone()));
             self.set_status(|s| s.degraded_reason = Some(msg));
             metrics::gauge!(m::REGION_READY, "region" => self.name.clone()).set(0.0);
         }
@@ -279,11 +439,11 @@ impl RegionHandle {
     /// The serving snapshot, or why there is none.
     fn current_or_unavailable(&self) -> Result<Arc<Snapshot>, UpdateError> {
         self.snapshot()
-            .ok_or_else(|| UpdateError::Unavailable(Degraded(self.degraded.load_full())))
+            .ok_or_else(|| UpdateError::Unavailable(Degraded(self.reader.degraded())))
     }
 
     /// Observations arrived or their base changed: the live loop re-blends.
-    fn mark_live_dirty(&self) {
+    pub(super) fn mark_live_dirty(&self) {
         self.live_dirty.store(true, Ordering::SeqCst);
         self.wake.notify_one();
     }
