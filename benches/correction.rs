@@ -16,7 +16,8 @@ use criterion::{criterion_group, criterion_main, Criterion};
 use hodos::engine::build::{build_from_graph, Quiet};
 use hodos::engine::geo::LatLon;
 use hodos::learn::train::{conformal, fit_booster, forest_of, TrainOptions};
-use hodos::serving::answer::{matrix_trip, trip, Catalog};
+use hodos::serving::admission::Admit;
+use hodos::serving::answer::{matrix_trip, trip, Catalog, MatrixQuery, TripQuery};
 use hodos::serving::correction::features::N;
 use hodos::serving::correction::model::CorrectionModel;
 use hodos::serving::correction::{correct, Query};
@@ -182,7 +183,17 @@ fn bench_correction(c: &mut Criterion) {
             b.iter(|| {
                 k = (k + 2) % (f.points.len() - 1);
                 let (a, z) = (f.points[k], f.points[k + 1]);
-                black_box(f.rt.block_on(trip(cat, a, z, None, None, false, true)))
+                black_box(f.rt.block_on(trip(
+                    cat,
+                    &TripQuery {
+                        from: a,
+                        to: z,
+                        depart: None,
+                        budget_ms: None,
+                        geometry: false,
+                    },
+                    Admit::Uncounted,
+                )))
             })
         });
     }
@@ -195,11 +206,13 @@ fn bench_correction(c: &mut Criterion) {
             b.iter(|| {
                 black_box(f.rt.block_on(matrix_trip(
                     cat,
-                    from.clone(),
-                    to.clone(),
-                    None,
-                    Some(60_000),
-                    true,
+                    MatrixQuery {
+                        from: from.clone(),
+                        to: to.clone(),
+                        depart: None,
+                        budget_ms: Some(60_000),
+                    },
+                    Admit::Uncounted,
                 )))
             })
         });

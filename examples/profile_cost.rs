@@ -10,7 +10,8 @@
 use chrono::{Duration, TimeZone, Utc};
 use hodos::engine::build::{build_from_graph, Quiet};
 use hodos::engine::import::dimacs;
-use hodos::serving::answer::{trip, Catalog};
+use hodos::serving::admission::Admit;
+use hodos::serving::answer::{trip, Catalog, TripQuery};
 use hodos::serving::settings::{
     Coverage, CustomizePriority, QueryConfig, RegionConfig, ServingSettings,
 };
@@ -110,7 +111,17 @@ fn main() {
             let depart =
                 random_departure.then(|| week + Duration::seconds(rng.below(7 * 24 * 3600) as i64));
             let t = Instant::now();
-            let ans = rt.block_on(trip(&cat, a, b, depart, None, false, true));
+            let ans = rt.block_on(trip(
+                &cat,
+                &TripQuery {
+                    from: a,
+                    to: b,
+                    depart: depart,
+                    budget_ms: None,
+                    geometry: false,
+                },
+                Admit::Uncounted,
+            ));
             lat.push(t.elapsed().as_secs_f64() * 1e6);
             heuristic += usize::from(ans.tier == Tier::Heuristic);
         }

@@ -22,7 +22,8 @@ use common::graphs::distinct_nodes;
 use common::{dimacs_ny, petgraph_of, reference_dists, SplitMix64};
 use hodos::engine::build::{build_from_graph, Quiet};
 use hodos::engine::import::dimacs;
-use hodos::serving::answer::{trip, Catalog};
+use hodos::serving::admission::Admit;
+use hodos::serving::answer::{trip, Catalog, TripQuery};
 use hodos::serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
 use hodos::serving::snapshot::{RegionUpdater, UpdateSettings};
 use hodos::serving::tier::Tier;
@@ -119,12 +120,14 @@ fn ny_every_departure_hour_answers_from_its_profile() {
         let depart = week + Duration::seconds(rng.below(7 * 24 * 3600) as i64);
         let a = rt.block_on(trip(
             &cat,
-            g.node_pos(s_node),
-            g.node_pos(t_node),
-            Some(depart),
-            None,
-            false,
-            true,
+            &TripQuery {
+                from: g.node_pos(s_node),
+                to: g.node_pos(t_node),
+                depart: Some(depart),
+                budget_ms: None,
+                geometry: false,
+            },
+            Admit::Uncounted,
         ));
         // The hour of week by chrono: days since Monday × 24 + hour (UTC).
         let hour = (depart.weekday().num_days_from_monday() * 24 + depart.hour()) as u8;

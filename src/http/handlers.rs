@@ -9,19 +9,39 @@ use super::problem::ApiError;
 use super::routes;
 use super::{AnswerLabels, AppState};
 use axum::body::Bytes;
-use axum::extract::{RawQuery, Request, State};
+use axum::extract::{Request, State};
+use axum::http::request::Parts;
 use axum::http::{header, StatusCode};
 use axum::response::{IntoResponse, Response};
 use axum::Json;
-use hodos_serving::answer::{self, CellAnswer};
+use hodos_serving::admission::{Admit, Ticket};
+use hodos_serving::answer::{self, CellAnswer, MatrixQuery, TripQuery};
 use hodos_serving::tier::{FallbackReason, Tier};
 use metrics::SharedString;
 
-/// Reads a JSON request body up to the configured limit.
-async fn body_bytes(state: &AppState, req: Request) -> Result<Bytes, ApiError> {
+/// Admission of an answer request, its one point: the body is read
+/// first (bounded by `server.max_body_bytes`; a GET has none), so a caller
+/// that stalls mid-body holds no place; then the request is counted in
+/// flight ([`Ticket`], until its response is built) and the ticket goes
+/// with it to the gate, which decides its graph permit (the hard cap, then
+/// the deadline rule of [`hodos_serving::admission`]).
+async fn enter(state: &AppState, req: Request) -> Result<(Parts, Bytes, Ticket), ApiError> {
     let limit = state.settings.server.max_body_bytes;
-    let ct = req
-        .headers()
+    let (parts, body) = req.into_parts();
+    let bytes = axum::body::to_bytes(body, limit)
+        .await
+        .map_err(|_| ApiError::TooLarge {
+            limit,
+            setting: "server.max_body_bytes",
+        })?;
+    Ok((parts, bytes, state.catalog.admission.enter()))
+}
+
+/// Refuses a body that is not JSON (an absent content type is taken as
+/// JSON).
+fn json_only(parts: &Parts) -> Result<(), ApiError> {
+    let ct = parts
+        .headers
         .get(header::CONTENT_TYPE)
         .and_then(|v| v.to_str().ok())
         .unwrap_or("")
@@ -31,12 +51,7 @@ async fn body_bytes(state: &AppState, req: Request) -> Result<Bytes, ApiError> {
             "send the body as application/json, not {ct}"
         )));
     }
-    axum::body::to_bytes(req.into_body(), limit)
-        .await
-        .map_err(|_| ApiError::TooLarge {
-            limit,
-            setting: "server.max_body_bytes",
-        })
+    Ok(())
 }
 
 fn with_labels(mut resp: Response, tier: &'static str, region: SharedString) -> Response {
@@ -44,33 +59,21 @@ fn with_labels(mut resp: Response, tier: &'static str, region: SharedString) -> 
     resp
 }
 
-/// Whether admission control let this request go on to a graph permit (set
-/// by the `admit` middleware on the answer routes once the body is read;
-/// absent means admitted).
-#[derive(Debug, Clone, Copy)]
-pub struct Admitted(pub bool);
-
-fn admitted(ext: &axum::http::Extensions) -> bool {
-    ext.get::<Admitted>().map(|a| a.0).unwrap_or(true)
-}
-
 async fn answer_trip(
     state: &AppState,
     trip: Trip,
     route: &'static str,
     geometry: bool,
-    admitted: bool,
+    ticket: &Ticket,
 ) -> Response {
-    let a = answer::trip(
-        &state.catalog,
-        trip.from,
-        trip.to,
-        trip.depart_at,
-        trip.budget_ms,
+    let q = TripQuery {
+        from: trip.from,
+        to: trip.to,
+        depart: trip.depart_at,
+        budget_ms: trip.budget_ms,
         geometry,
-        admitted,
-    )
-    .await;
+    };
+    let a = answer::trip(&state.catalog, &q, Admit::Counted(ticket)).await;
     let region = state
         .catalog
         .region_label_of(a.snapshot.as_ref().map(|(r, _)| r.as_str()));
@@ -83,28 +86,24 @@ async fn answer_trip(
     with_labels(resp, a.tier.as_str(), region)
 }
 
-pub async fn eta_get(
-    State(state): State<AppState>,
-    RawQuery(q): RawQuery,
-    admission: Option<axum::Extension<Admitted>>,
-) -> Result<Response, ApiError> {
-    let trip = parse_eta_query(q.as_deref())?;
-    let ok = admission.map(|a| a.0 .0).unwrap_or(true);
-    Ok(answer_trip(&state, trip, routes::ETA, false, ok).await)
+pub async fn eta_get(State(state): State<AppState>, req: Request) -> Result<Response, ApiError> {
+    let (parts, _, ticket) = enter(&state, req).await?;
+    let trip = parse_eta_query(parts.uri.query())?;
+    Ok(answer_trip(&state, trip, routes::ETA, false, &ticket).await)
 }
 
 pub async fn eta_post(State(state): State<AppState>, req: Request) -> Result<Response, ApiError> {
-    let ok = admitted(req.extensions());
-    let body = body_bytes(&state, req).await?;
+    let (parts, body, ticket) = enter(&state, req).await?;
+    json_only(&parts)?;
     let trip = parse_json::<EtaRequest>(&body)?.validate()?;
-    Ok(answer_trip(&state, trip, routes::ETA, false, ok).await)
+    Ok(answer_trip(&state, trip, routes::ETA, false, &ticket).await)
 }
 
 pub async fn route(State(state): State<AppState>, req: Request) -> Result<Response, ApiError> {
-    let ok = admitted(req.extensions());
-    let body = body_bytes(&state, req).await?;
+    let (parts, body, ticket) = enter(&state, req).await?;
+    json_only(&parts)?;
     let trip = parse_json::<EtaRequest>(&body)?.validate()?;
-    Ok(answer_trip(&state, trip, routes::ROUTE, true, ok).await)
+    Ok(answer_trip(&state, trip, routes::ROUTE, true, &ticket).await)
 }
 
 /// Counts a matrix's cells per (region, tier, reason), recording each count
@@ -133,11 +132,17 @@ fn count_cells(state: &AppState, cells: &[CellAnswer]) -> &'static str {
 }
 
 pub async fn matrix(State(state): State<AppState>, req: Request) -> Result<Response, ApiError> {
-    let ok = admitted(req.extensions());
-    let body = body_bytes(&state, req).await?;
+    let (parts, body, ticket) = enter(&state, req).await?;
+    json_only(&parts)?;
     let m =
         parse_json::<MatrixRequest>(&body)?.validate(state.catalog.cfg.query.max_matrix_cells)?;
-    let a = answer::matrix_trip(&state.catalog, m.from, m.to, m.depart_at, m.budget_ms, ok).await;
+    let q = MatrixQuery {
+        from: m.from,
+        to: m.to,
+        depart: m.depart_at,
+        budget_ms: m.budget_ms,
+    };
+    let a = answer::matrix_trip(&state.catalog, q, Admit::Counted(&ticket)).await;
     let tier = count_cells(&state, &a.cells[..a.rows * a.cols]);
     // Latency is labelled with the region that answered the most cells.
     let region = state

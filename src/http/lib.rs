@@ -41,9 +41,9 @@ pub mod settings;
 pub mod trips;
 pub mod upload;
 
-use axum::extract::{MatchedPath, Request, State};
+use axum::extract::{MatchedPath, Request};
 use axum::middleware::Next;
-use axum::response::{IntoResponse, Response};
+use axum::response::Response;
 use axum::Router;
 use hodos_serving::answer::Catalog;
 use hodos_serving::service::Service;
@@ -120,50 +120,15 @@ async fn track(matched: Option<MatchedPath>, req: Request, next: Next) -> Respon
     resp
 }
 
-/// Admission control on the answer routes: reads the body first (bounded
-/// by `server.max_body_bytes`; a GET has none), so a caller that stalls
-/// mid-body holds no place; then counts the request in flight until its
-/// response is built, and tells the handler whether it may go on to a graph
-/// permit (the deadline rule is in [`hodos_serving::admission`]).
-async fn admit(State(state): State<AppState>, req: Request, next: Next) -> Response {
-    let limit = state.settings.server.max_body_bytes;
-    let (parts, body) = req.into_parts();
-    let bytes = match axum::body::to_bytes(body, limit).await {
-        Ok(b) => b,
-        Err(_) => {
-            return problem::ApiError::TooLarge {
-                limit,
-                setting: "server.max_body_bytes",
-            }
-            .into_response()
-        }
-    };
-    let mut req = Request::from_parts(parts, axum::body::Body::from(bytes));
-    let ticket = state.catalog.admission.enter();
-    req.extensions_mut()
-        .insert(handlers::Admitted(ticket.admitted()));
-    let resp = next.run(req).await;
-    drop(ticket);
-    resp
-}
-
-/// The public router, built from [`routes::PUBLIC`]; answer routes sit
-/// behind admission control.
+/// The public router, built from [`routes::PUBLIC`]. Answer handlers
+/// admit their requests themselves, once their body is read (one
+/// admission point: `handlers::enter`).
 pub fn app(state: AppState) -> Router {
-    let (answers, others) =
-        routes::PUBLIC
-            .iter()
-            .fold((Router::new(), Router::new()), |(answers, others), r| {
-                if r.answers {
-                    (answers.route(r.path, r.method_router()), others)
-                } else {
-                    (answers, others.route(r.path, r.method_router()))
-                }
-            });
-    let answers = answers.route_layer(axum::middleware::from_fn_with_state(state.clone(), admit));
-    Router::new()
-        .merge(answers)
-        .merge(others)
+    routes::PUBLIC
+        .iter()
+        .fold(Router::new(), |router, r| {
+            router.route(r.path, r.method_router())
+        })
         .fallback(handlers::not_found)
         .layer(axum::middleware::map_response(problem::method_not_allowed))
         .layer(axum::extract::DefaultBodyLimit::disable())

@@ -86,6 +86,16 @@ pub struct Ticket {
     admitted: bool,
 }
 
+/// How an answer entered the service: counted in flight by its caller's
+/// [`Ticket`] (the HTTP answer routes take one once the body is read), or
+/// uncounted (a batch replay of recorded trips, tests), which only the
+/// deadline rule of [`Admission::permit`] applies to.
+#[derive(Debug, Clone, Copy)]
+pub enum Admit<'a> {
+    Counted(&'a Ticket),
+    Uncounted,
+}
+
 /// A graph permit that records how long it was held when dropped (the
 /// service time of the queue estimate).
 #[derive(Debug)]
@@ -131,6 +141,24 @@ impl Admission {
             admission: self.clone(),
             admitted,
         }
+    }
+
+    /// The one admission decision of an answer: `None` (shed, answered
+    /// `overloaded` from the heuristic tier) if its ticket was over the
+    /// hard cap on requests in flight, else [`Self::permit`]'s.
+    pub async fn admit(
+        self: &Arc<Self>,
+        admit: Admit<'_>,
+        permits: &Arc<Semaphore>,
+        total: usize,
+        deadline: Instant,
+    ) -> Option<GraphPermit> {
+        if let Admit::Counted(t) = admit {
+            if !t.admitted {
+                return None;
+            }
+        }
+        self.permit(permits, total, deadline).await
     }
 
     /// A graph permit from `permits` (of `total` in all) in time for

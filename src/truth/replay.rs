@@ -14,7 +14,8 @@ use super::trips::TripRecord;
 use chrono::Utc;
 use hodos_engine::artifact::{Artifact, ArtifactError};
 use hodos_engine::geo::haversine_m;
-use hodos_serving::answer::{trip, Catalog};
+use hodos_serving::admission::Admit;
+use hodos_serving::answer::{trip, Catalog, TripQuery};
 use hodos_serving::correction::features;
 use hodos_serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
 use hodos_serving::snapshot::{RegionUpdater, UpdateSettings};
@@ -146,12 +147,14 @@ pub async fn replay_trip(cat: &Catalog, t: &TripRecord) -> TripOutcome {
     let budget = Some(cat.cfg.query.max_budget_ms);
     let a = trip(
         cat,
-        t.from,
-        t.to,
-        Some(t.leaving.with_timezone(&Utc)),
-        budget,
-        false,
-        true,
+        &TripQuery {
+            from: t.from,
+            to: t.to,
+            depart: Some(t.leaving.with_timezone(&Utc)),
+            budget_ms: budget,
+            geometry: false,
+        },
+        Admit::Uncounted,
     )
     .await;
     let (hour_of_week, weekend) = local_hour_of_week(&t.leaving);

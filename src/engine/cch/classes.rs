@@ -16,7 +16,7 @@
 //! Memory: `2 × CLASSES × 4` bytes per arc (24 with three classes), only in
 //! metrics built with classes.
 
-use super::customize::{MAX_EDGE_WEIGHT, VIA_EDGE, VIA_NONE};
+use super::arc::{MAX_EDGE_WEIGHT, VIA_EDGE, VIA_NONE};
 use super::Cch;
 
 /// Number of edge classes the engine tracks.

@@ -21,6 +21,8 @@
 //! # Layout
 //!
 //! - this file: [`Cch`], the contraction (topology only).
+//! - `arc`: the encoding of an arc's weight and origin (no-path weight,
+//!   largest edge weight, `via` markers), shared by all below.
 //! - [`customize`]: [`CustomizedMetric`], weights of every hierarchy arc.
 //! - [`classes`]: per-arc milliseconds per caller-given edge class.
 //! - `chains`: the walk over elimination-tree ancestor chains shared by
@@ -33,6 +35,7 @@
 //! never imports the region (coordinates, snapping): that front end sits on
 //! top, in [`crate::region`].
 
+mod arc;
 mod chains;
 pub mod classes;
 pub mod customize;

@@ -10,7 +10,7 @@
 //! that hour's factor.
 
 use super::{Catalog, Estimator};
-use crate::admission::GraphPermit;
+use crate::admission::{Admit, GraphPermit};
 use crate::metrics as m;
 use crate::snapshot::{LiveMetric, ProfileUsed, RegionReader, Snapshot};
 use crate::tier::{FallbackReason, Sources, Tier};
@@ -156,7 +156,7 @@ pub(super) async fn gate(
     handle: Option<&Arc<RegionReader>>,
     depart: Option<DateTime<Utc>>,
     deadline: Instant,
-    admitted: bool,
+    admit: Admit<'_>,
 ) -> Result<Granted, Fallback> {
     let Some(handle) = handle else {
         return Err(Fallback {
@@ -184,13 +184,15 @@ pub(super) async fn gate(
             tag,
         })
     };
-    if !admitted {
-        return stop(snap, FallbackReason::Overloaded, tag);
-    }
-    // A free permit at once; else a wait only as long as the answer can
-    // still come within the budget (see `admission`).
+    // Over the hard cap: shed. Else a free permit at once, or a wait only
+    // as long as the answer can still come within the budget (see
+    // `admission`).
     let total = cat.cfg.query.graph_concurrency;
-    let Some(permit) = cat.admission.permit(&cat.permits, total, deadline).await else {
+    let Some(permit) = cat
+        .admission
+        .admit(admit, &cat.permits, total, deadline)
+        .await
+    else {
         return stop(snap, FallbackReason::Overloaded, tag);
     };
     let in_flight = InFlight::start();

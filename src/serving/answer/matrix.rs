@@ -6,7 +6,8 @@
 
 use super::gate::{gate, Chosen, Granted, MetricRef};
 use super::scratch::{with_scratch, ScratchCache};
-use super::{Catalog, CellAnswer, Estimator, MatrixAnswer};
+use super::{Catalog, CellAnswer, Estimator, MatrixAnswer, MatrixQuery};
+use crate::admission::Admit;
 use crate::snapshot::{RegionReader, Snapshot};
 use crate::tier::{FallbackReason, Sources, Tier};
 use chrono::{DateTime, Utc};
@@ -65,14 +66,13 @@ fn heuristic_cells(
 /// an `outside_regions` estimate, so one stray point degrades only its own
 /// row or column. The answer's snapshot is that of the region answering
 /// the most cells.
-pub async fn matrix_trip(
-    cat: &Catalog,
-    from: Vec<LatLon>,
-    to: Vec<LatLon>,
-    depart: Option<DateTime<Utc>>,
-    budget_ms: Option<u64>,
-    admitted: bool,
-) -> MatrixAnswer {
+pub async fn matrix_trip(cat: &Catalog, q: MatrixQuery, admit: Admit<'_>) -> MatrixAnswer {
+    let MatrixQuery {
+        from,
+        to,
+        depart,
+        budget_ms,
+    } = q;
     let deadline = Instant::now() + cat.budget(budget_ms);
     let covers = |r: &RegionReader, p: &LatLon| r.cfg.coverage.contains(*p);
     let whole = cat
@@ -80,7 +80,7 @@ pub async fn matrix_trip(
         .iter()
         .find(|r| from.iter().chain(&to).all(|p| covers(r, p)));
     if whole.is_some() || cat.regions.is_empty() {
-        return region_matrix(cat, whole, &from, &to, depart, deadline, admitted).await;
+        return region_matrix(cat, whole, &from, &to, depart, deadline, admit).await;
     }
     let (rows, cols) = (from.len(), to.len());
     let mut cells: Vec<Option<CellAnswer>> = vec![None; rows * cols];
@@ -105,7 +105,7 @@ pub async fn matrix_trip(
             &sub_to,
             depart,
             deadline,
-            admitted,
+            admit,
         )
         .await;
         for (a, &i) in held_rows.iter().enumerate() {
@@ -154,9 +154,9 @@ async fn region_matrix(
     to: &[LatLon],
     depart: Option<DateTime<Utc>>,
     deadline: Instant,
-    admitted: bool,
+    admit: Admit<'_>,
 ) -> MatrixAnswer {
-    let m = region_matrix_inner(cat, handle, from, to, depart, deadline, admitted).await;
+    let m = region_matrix_inner(cat, handle, from, to, depart, deadline, admit).await;
     let mut m = super::correct::matrix(handle, from, to, m).await;
     if let Some(idx) = handle.and_then(|h| cat.index_of(h)) {
         for c in &mut m.cells {
@@ -174,7 +174,7 @@ async fn region_matrix_inner(
     to: &[LatLon],
     depart: Option<DateTime<Utc>>,
     deadline: Instant,
-    admitted: bool,
+    admit: Admit<'_>,
 ) -> MatrixAnswer {
     let (rows, cols) = (from.len(), to.len());
     let all_heuristic = |est: Estimator<'_>, reason, snapshot| MatrixAnswer {
@@ -184,7 +184,7 @@ async fn region_matrix_inner(
         snapshot,
         hour_of_week: est.hour,
     };
-    let g = match gate(cat, handle, depart, deadline, admitted).await {
+    let g = match gate(cat, handle, depart, deadline, admit).await {
         Ok(g) => g,
         Err(f) => return f.answer(cat, all_heuristic),
     };

@@ -32,7 +32,8 @@
 //!
 //! # Layout
 //!
-//! - this file: [`Catalog`], [`Answer`], [`CellAnswer`], [`MatrixAnswer`];
+//! - this file: [`Catalog`], the requests ([`TripQuery`], [`MatrixQuery`]),
+//!   [`Answer`], [`CellAnswer`], [`MatrixAnswer`];
 //! - `gate`: steps 1–4, written once for trips and matrices;
 //! - `trip`: [`trip`], step 5 for one trip; `matrix`: [`matrix_trip`],
 //!   step 5 per cell;
@@ -59,6 +60,7 @@ use crate::correction::{Corrected, Query};
 use crate::settings::ServingSettings;
 use crate::snapshot::{ProfileUsed, RegionReader, Snapshot};
 use crate::tier::{FallbackReason, Sources, Tier};
+use chrono::{DateTime, Utc};
 use hodos_engine::calibration::Calibration;
 use hodos_engine::geo::LatLon;
 use std::sync::Arc;
@@ -135,6 +137,41 @@ impl Catalog {
                 .min(q.max_budget_ms),
         )
     }
+}
+
+/// One trip to answer: its ends, its departure (`None`: leaving now), its
+/// budget (`None`: `query.default_budget_ms`) and whether the answer
+/// carries the route's geometry.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct TripQuery {
+    pub from: LatLon,
+    pub to: LatLon,
+    pub depart: Option<DateTime<Utc>>,
+    pub budget_ms: Option<u64>,
+    pub geometry: bool,
+}
+
+impl TripQuery {
+    /// From `from` to `to`, leaving now, the default budget, no geometry.
+    pub fn new(from: LatLon, to: LatLon) -> Self {
+        TripQuery {
+            from,
+            to,
+            depart: None,
+            budget_ms: None,
+            geometry: false,
+        }
+    }
+}
+
+/// A matrix to answer: every origin to every destination, one departure
+/// and budget for all cells.
+#[derive(Debug, Clone, PartialEq)]
+pub struct MatrixQuery {
+    pub from: Vec<LatLon>,
+    pub to: Vec<LatLon>,
+    pub depart: Option<DateTime<Utc>>,
+    pub budget_ms: Option<u64>,
 }
 
 /// The heuristic tier for one departure: a calibration (fitted on

@@ -12,7 +12,8 @@
 //!   written out here;
 //! - unreachable pairs: petgraph's Dijkstra reaches no distance.
 
-use super::{matrix_trip, trip, Catalog};
+use super::{matrix_trip, trip, Catalog, MatrixQuery, TripQuery};
+use crate::admission::{Admission, Admit, Ticket};
 use crate::service::Service;
 use crate::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
 use crate::snapshot::{RegionUpdater, UpdateError, UpdateSettings};
@@ -60,6 +61,12 @@ fn settings() -> ServingSettings {
     s.query.max_queue_ms = 0;
     s.query.max_cpu_wait = 0.0;
     s
+}
+
+/// A ticket over the hard cap on requests in flight (an admission of
+/// limit 0): the request it admits is shed.
+fn shed_ticket() -> Ticket {
+    Admission::new(0).enter()
 }
 
 /// A service of one region on `artifact` (coverage: the graph's box with a
@@ -163,7 +170,18 @@ async fn gate_fallbacks_and_graph_tiers() {
 
     // Outside every region: configured defaults (1.3, 30 km/h), no tag.
     let (p, q) = (LatLon::new(10.0, 10.0), LatLon::new(10.1, 10.1));
-    let r = trip(&cat, p, q, None, None, false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: p,
+            to: q,
+            depart: None,
+            budget_ms: None,
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!(
         (r.tier, r.reason, r.snapshot.clone()),
         (Tier::Heuristic, Some(R::OutsideRegions), None)
@@ -175,7 +193,18 @@ async fn gate_fallbacks_and_graph_tiers() {
     );
 
     // Not admitted → overloaded, from the region's calibration.
-    let r = trip(&cat, a, b, None, Some(2000), false, false).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: None,
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Counted(&shed_ticket()),
+    )
+    .await;
     assert_eq!((r.tier, r.reason), (Tier::Heuristic, Some(R::Overloaded)));
     assert_eq!(r.snapshot, Some(("quellhaven".into(), gen)));
     let (m, secs) = region_estimate(&cal, a, b); // haversine × factors
@@ -187,9 +216,30 @@ async fn gate_fallbacks_and_graph_tiers() {
     let n = cat.cfg.query.graph_concurrency as u32;
     let held = cat.permits.clone().try_acquire_many_owned(n).unwrap();
     let t0 = std::time::Instant::now();
-    let r = trip(&cat, a, b, None, Some(50), false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: None,
+            budget_ms: Some(50),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!((r.tier, r.reason), (Tier::Heuristic, Some(R::Overloaded)));
-    let mx = matrix_trip(&cat, vec![a], vec![b], None, Some(50), true).await;
+    let mx = matrix_trip(
+        &cat,
+        MatrixQuery {
+            from: vec![a],
+            to: vec![b],
+            depart: None,
+            budget_ms: Some(50),
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!(
         (mx.cells[0].tier, mx.cells[0].reason),
         (Tier::Heuristic, Some(R::Overloaded))
@@ -201,7 +251,18 @@ async fn gate_fallbacks_and_graph_tiers() {
         tokio::time::sleep(std::time::Duration::from_millis(30)).await;
         drop(held);
     });
-    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: None,
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_ne!(r.tier, Tier::Heuristic, "{r:?}");
     release.await.unwrap();
 
@@ -209,7 +270,18 @@ async fn gate_fallbacks_and_graph_tiers() {
     // time is petgraph's Dijkstra on free-flow weights.
     let free = weights_at(g, |e| f64::from(g.edge_speed_kmh[e]));
     let want = dijkstra_ms(g, &free, s, t).unwrap() as f64 / 1000.0;
-    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: None,
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!(
         (r.tier, r.reason),
         (Tier::FreeFlow, Some(R::NoLiveData)),
@@ -222,24 +294,67 @@ async fn gate_fallbacks_and_graph_tiers() {
     );
     assert!(r.from_snap_m.unwrap() < 1e-3 && r.to_snap_m.unwrap() < 1e-3);
     // Routes take the same path and time.
-    let r = trip(&cat, a, b, None, Some(2000), true, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: None,
+            budget_ms: Some(2000),
+            geometry: true,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert!((r.eta_s - want).abs() < 1e-6 && r.geometry.is_some());
 
     // A departure next week is not "now": free_flow (no table), no reason.
     let later = Utc::now() + Days::days(7);
-    let r = trip(&cat, a, b, Some(later), Some(2000), false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: Some(later),
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!((r.tier, r.reason), (Tier::FreeFlow, None));
 
     // Far off-road but inside the coverage → off_network.
     let (lo, _) = g.bbox();
     let corner = LatLon::new(lo.lat - 0.04, lo.lon - 0.04);
-    let r = trip(&cat, corner, b, None, Some(2000), false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: corner,
+            to: b,
+            depart: None,
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!((r.tier, r.reason), (Tier::Heuristic, Some(R::OffNetwork)));
     let (m, secs) = region_estimate(&cal, corner, b);
     assert!(close(r.meters, m) && close(r.eta_s, secs), "{r:?}");
 
     // Matrix: graph cells from petgraph, the off-road row per cell.
-    let mx = matrix_trip(&cat, vec![a, corner], vec![b, a], None, Some(2000), true).await;
+    let mx = matrix_trip(
+        &cat,
+        MatrixQuery {
+            from: vec![a, corner],
+            to: vec![b, a],
+            depart: None,
+            budget_ms: Some(2000),
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!(
         (mx.rows, mx.cols, mx.snapshot.clone()),
         (2, 2, Some(("quellhaven".into(), gen)))
@@ -263,7 +378,17 @@ async fn gate_fallbacks_and_graph_tiers() {
     let (_, secs) = region_estimate(&cal, corner, b);
     assert!(close(mx.cells[2].eta_s, secs));
     // Matrix outside every region.
-    let mx = matrix_trip(&cat, vec![p], vec![q], None, None, true).await;
+    let mx = matrix_trip(
+        &cat,
+        MatrixQuery {
+            from: vec![p],
+            to: vec![q],
+            depart: None,
+            budget_ms: None,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!(
         (mx.cells[0].tier, mx.cells[0].reason, mx.snapshot),
         (Tier::Heuristic, Some(R::OutsideRegions), None)
@@ -273,8 +398,29 @@ async fn gate_fallbacks_and_graph_tiers() {
     // the cell whose ends share the region is the graph's answer (the trip
     // between the same points, petgraph-checked above), the others are
     // estimates from the configured defaults (haversine × 1.3 ÷ 30 km/h).
-    let mx = matrix_trip(&cat, vec![a, p], vec![b, q], None, Some(2000), true).await;
-    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    let mx = matrix_trip(
+        &cat,
+        MatrixQuery {
+            from: vec![a, p],
+            to: vec![b, q],
+            depart: None,
+            budget_ms: Some(2000),
+        },
+        Admit::Uncounted,
+    )
+    .await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: None,
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!(
         (mx.cells[0].tier, mx.cells[0].reason, mx.cells[0].eta_s),
         (r.tier, r.reason, r.eta_s)
@@ -307,7 +453,18 @@ async fn gate_fallbacks_and_graph_tiers() {
         .unwrap();
     let slow = weights_at(g, |_| 20.0);
     let want20 = dijkstra_ms(g, &slow, s, t).unwrap() as f64 / 1000.0;
-    let r = trip(&cat, a, b, Some(later), Some(2000), false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: Some(later),
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!((r.tier, r.reason), (Tier::Historical, None));
     assert!(
         (r.eta_s - want20).abs() < 1e-6,
@@ -326,7 +483,18 @@ async fn gate_fallbacks_and_graph_tiers() {
     // table names no edge in that hour, so the time is petgraph's
     // free-flow Dijkstra, and the answer is labelled free_flow.
     let cold = later + Days::hours(5);
-    let r = trip(&cat, a, b, Some(cold), Some(0), false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: Some(cold),
+            budget_ms: Some(0),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!((r.tier, r.reason), (Tier::FreeFlow, None), "{r:?}");
     assert!(
         (r.eta_s - want).abs() < 1e-6,
@@ -347,7 +515,18 @@ async fn gate_fallbacks_and_graph_tiers() {
         .map(|e| g.edge_len_m[e] / f64::from(g.edge_speed_kmh[e]))
         .sum();
     let (_, ff_secs) = region_estimate(&cal, a, b);
-    let r = trip(&cat, a, b, Some(later), None, false, false).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: Some(later),
+            budget_ms: None,
+            geometry: false,
+        },
+        Admit::Counted(&shed_ticket()),
+    )
+    .await;
     assert_eq!((r.tier, r.reason), (Tier::Heuristic, Some(R::Overloaded)));
     assert!(
         close(r.eta_s, ff_secs * num / den),
@@ -357,12 +536,33 @@ async fn gate_fallbacks_and_graph_tiers() {
     );
     assert!(num / den > 1.0, "20 km/h is slower than the city's roads");
     assert_eq!(r.hour_of_week, Some(hour));
-    let r = trip(&cat, a, b, Some(cold), None, false, false).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: Some(cold),
+            budget_ms: None,
+            geometry: false,
+        },
+        Admit::Counted(&shed_ticket()),
+    )
+    .await;
     assert!(close(r.eta_s, ff_secs), "{} vs {ff_secs}", r.eta_s);
 
     // A matrix with no budget still stops before its many-to-many.
     let cold2 = later + Days::hours(9);
-    let mx = matrix_trip(&cat, vec![a], vec![b], Some(cold2), Some(0), true).await;
+    let mx = matrix_trip(
+        &cat,
+        MatrixQuery {
+            from: vec![a],
+            to: vec![b],
+            depart: Some(cold2),
+            budget_ms: Some(0),
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!(
         (mx.cells[0].tier, mx.cells[0].reason),
         (Tier::Heuristic, Some(R::BudgetExceeded))
@@ -385,11 +585,32 @@ async fn gate_fallbacks_and_graph_tiers() {
         .await
         .unwrap();
     assert!(region.refresh_live(true).await);
-    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: None,
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!((r.tier, r.reason), (Tier::Live, None), "{r:?}");
     assert!(r.eta_s > want, "{} vs free-flow {want}", r.eta_s);
     assert!(r.speeds_age_s.unwrap() < 60.0);
-    let mx = matrix_trip(&cat, vec![a], vec![b], None, Some(2000), true).await;
+    let mx = matrix_trip(
+        &cat,
+        MatrixQuery {
+            from: vec![a],
+            to: vec![b],
+            depart: None,
+            budget_ms: Some(2000),
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!((mx.cells[0].tier, mx.cells[0].reason), (Tier::Live, None));
     assert!(
         (mx.cells[0].eta_s - r.eta_s).abs() < 1e-6,
@@ -424,12 +645,14 @@ async fn stale_live_data_falls_back_to_historical() {
     region.refresh_live(true).await;
     let r = trip(
         &cat,
-        g.node_pos(s),
-        g.node_pos(t),
-        None,
-        Some(2000),
-        false,
-        true,
+        &TripQuery {
+            from: g.node_pos(s),
+            to: g.node_pos(t),
+            depart: None,
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
     )
     .await;
     assert_eq!(
@@ -460,7 +683,18 @@ async fn unavailable_region_answers_from_the_defaults() {
     let reason = region.status().degraded_reason.unwrap();
     assert!(reason.contains("broken.hodos"), "{reason}");
     let (a, b) = (c.graph.node_pos(0), c.graph.node_pos(1));
-    let r = trip(&cat, a, b, None, None, false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: None,
+            budget_ms: None,
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!(
         (r.tier, r.reason),
         (Tier::Heuristic, Some(R::RegionUnavailable))
@@ -468,7 +702,17 @@ async fn unavailable_region_answers_from_the_defaults() {
     assert_eq!(r.snapshot, Some(("quellhaven".into(), 0)));
     let (m, secs) = by_hand(a, b, 1.3, 30.0); // haversine × 1.3 ÷ 30 km/h
     assert!(close(r.meters, m) && close(r.eta_s, secs), "{r:?}");
-    let mx = matrix_trip(&cat, vec![a], vec![b, a], None, None, true).await;
+    let mx = matrix_trip(
+        &cat,
+        MatrixQuery {
+            from: vec![a],
+            to: vec![b, a],
+            depart: None,
+            budget_ms: None,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert!(mx
         .cells
         .iter()
@@ -508,7 +752,18 @@ async fn unreachable_pairs_fall_back_per_trip_and_per_cell() {
     let ones = vec![1; g.num_edges()];
     assert_eq!(dijkstra_ms(&g, &ones, s, t), None);
     let (a, b, c) = (g.node_pos(s), g.node_pos(t), g.node_pos(u));
-    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: None,
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!(
         (r.tier, r.reason),
         (Tier::Heuristic, Some(R::Unreachable)),
@@ -520,7 +775,17 @@ async fn unreachable_pairs_fall_back_per_trip_and_per_cell() {
     assert!(close(r.meters, m) && close(r.eta_s, secs), "{r:?}");
     // Matrix: the reachable cell from the graph (petgraph Dijkstra), the
     // other per cell unreachable.
-    let mx = matrix_trip(&cat, vec![a], vec![b, c], None, Some(2000), true).await;
+    let mx = matrix_trip(
+        &cat,
+        MatrixQuery {
+            from: vec![a],
+            to: vec![b, c],
+            depart: None,
+            budget_ms: Some(2000),
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!(
         (mx.cells[0].tier, mx.cells[0].reason),
         (Tier::Heuristic, Some(R::Unreachable))
@@ -575,12 +840,33 @@ async fn matrix_cells_belong_to_the_region_holding_both_ends() {
     };
     let ((w1, w2), (e1, e2)) = (pick(true), pick(false));
     let pts: Vec<LatLon> = [w1, w2, e1, e2].iter().map(|&n| g.node_pos(n)).collect();
-    let mx = matrix_trip(&cat, pts.clone(), pts.clone(), None, Some(2000), true).await;
+    let mx = matrix_trip(
+        &cat,
+        MatrixQuery {
+            from: pts.clone(),
+            to: pts.clone(),
+            depart: None,
+            budget_ms: Some(2000),
+        },
+        Admit::Uncounted,
+    )
+    .await;
     for (i, &x) in pts.iter().enumerate() {
         for (j, &y) in pts.iter().enumerate() {
             let cell = mx.cells[i * 4 + j];
             if (i < 2) == (j < 2) {
-                let r = trip(&cat, x, y, None, Some(2000), false, true).await;
+                let r = trip(
+                    &cat,
+                    &TripQuery {
+                        from: x,
+                        to: y,
+                        depart: None,
+                        budget_ms: Some(2000),
+                        geometry: false,
+                    },
+                    Admit::Uncounted,
+                )
+                .await;
                 assert_eq!(
                     (cell.tier, cell.reason, cell.eta_s),
                     (r.tier, r.reason, r.eta_s),
@@ -710,14 +996,36 @@ async fn sources_name_the_speeds_the_route_used() {
     };
 
     // No table, no live data: all free-flow, 900 m at 36 km/h = 90 s.
-    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: None,
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!((r.tier, r.reason), (Tier::FreeFlow, Some(R::NoLiveData)));
     assert_eq!(
         (r.eta_s, shares(&r), r.speeds_age_s),
         (90.0, (0.0, 0.0, 1.0), None)
     );
     let later = Utc::now() + Days::days(7);
-    let r = trip(&cat, a, b, Some(later), Some(2000), false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: Some(later),
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!((r.tier, r.reason), (Tier::FreeFlow, None));
 
     // A table row for 1→2 in every hour: 20 + 45 + 40 = 105 s; free-flow
@@ -730,7 +1038,18 @@ async fn sources_name_the_speeds_the_route_used() {
         .put_historical(csv.into_string().into_bytes())
         .await
         .unwrap();
-    let r = trip(&cat, a, b, Some(later), Some(2000), false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: Some(later),
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!((r.tier, r.reason, r.eta_s), (Tier::FreeFlow, None, 105.0));
     assert!(near(shares(&r), (0.0, 45.0 / 105.0, 60.0 / 105.0)), "{r:?}");
 
@@ -738,7 +1057,18 @@ async fn sources_name_the_speeds_the_route_used() {
     // observation 1): same time, no live share, not live, no live age
     // (free-flow carries most, so no age at all).
     observe(&region, &[(2, 5)], 18.0).await;
-    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: None,
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!(
         (r.tier, r.reason, r.eta_s, r.speeds_age_s),
         (Tier::FreeFlow, Some(R::NoLiveOnRoute), 105.0, None),
@@ -751,7 +1081,18 @@ async fn sources_name_the_speeds_the_route_used() {
     // 0.32 / 0.36 / 0.32 → historical, with the table's age; the route is
     // partly live, so the reason is live_minority.
     observe(&region, &[(1, 2)], 18.0).await;
-    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: None,
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!(
         (r.tier, r.reason, r.eta_s),
         (Tier::Historical, Some(R::LiveMinority), 125.0),
@@ -760,9 +1101,30 @@ async fn sources_name_the_speeds_the_route_used() {
     assert!(near(shares(&r), (0.32, 0.36, 0.32)), "{r:?}");
     assert!(r.speeds_age_s.is_some_and(|s| s < 600.0));
     // The route answer and the matrix cell say the same.
-    let route = trip(&cat, a, b, None, Some(2000), true, true).await;
+    let route = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: None,
+            budget_ms: Some(2000),
+            geometry: true,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!((route.tier, route.sources), (r.tier, r.sources));
-    let mx = matrix_trip(&cat, vec![a], vec![b], None, Some(2000), true).await;
+    let mx = matrix_trip(
+        &cat,
+        MatrixQuery {
+            from: vec![a],
+            to: vec![b],
+            depart: None,
+            budget_ms: Some(2000),
+        },
+        Admit::Uncounted,
+    )
+    .await;
     let c = mx.cells[0];
     assert_eq!((c.tier, c.reason, c.eta_s), (r.tier, r.reason, r.eta_s));
     assert!(near(
@@ -774,7 +1136,18 @@ async fn sources_name_the_speeds_the_route_used() {
 
     // The whole road on fresh live data: 40 + 60 + 80 = 180 s, all live.
     observe(&region, &[(2, 3), (3, 4)], 18.0).await;
-    let r = trip(&cat, a, b, None, Some(2000), false, true).await;
+    let r = trip(
+        &cat,
+        &TripQuery {
+            from: a,
+            to: b,
+            depart: None,
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!(
         (r.tier, r.reason, r.eta_s),
         (Tier::Live, None, 180.0),
@@ -784,7 +1157,18 @@ async fn sources_name_the_speeds_the_route_used() {
     assert!(r.speeds_age_s.is_some_and(|s| s < 60.0));
     // The other way (outside ids 4→1) has no live data and no table row
     // (the table names 2→3 only): all free-flow.
-    let back = trip(&cat, b, a, None, Some(2000), false, true).await;
+    let back = trip(
+        &cat,
+        &TripQuery {
+            from: b,
+            to: a,
+            depart: None,
+            budget_ms: Some(2000),
+            geometry: false,
+        },
+        Admit::Uncounted,
+    )
+    .await;
     assert_eq!(
         (back.tier, back.reason, shares(&back)),
         (Tier::FreeFlow, Some(R::NoLiveOnRoute), (0.0, 0.0, 1.0))

@@ -6,10 +6,10 @@
 
 use super::gate::{gate, Granted, Tag};
 use super::scratch::{with_scratch, ScratchCache};
-use super::{Answer, Catalog, Estimator};
+use super::{Answer, Catalog, Estimator, TripQuery};
+use crate::admission::Admit;
 use crate::snapshot::RegionReader;
 use crate::tier::{FallbackReason, Sources, Tier};
-use chrono::{DateTime, Utc};
 use hodos_engine::cch::CchQuery;
 use hodos_engine::geo::LatLon;
 use hodos_engine::region::{End, EtaError};
@@ -48,48 +48,32 @@ fn heuristic(
     }
 }
 
-/// Answers one trip (ETA, or route when `with_geometry`). `admitted` is
-/// false when admission control shed the request. The region's correction
-/// model, if any, applies to the answer whatever its tier.
-pub async fn trip(
-    cat: &Catalog,
-    from: LatLon,
-    to: LatLon,
-    depart: Option<DateTime<Utc>>,
-    budget_ms: Option<u64>,
-    with_geometry: bool,
-    admitted: bool,
-) -> Answer {
-    let handle = cat.region_for(from, to);
-    let mut a = uncorrected(
-        cat,
-        handle,
-        from,
-        to,
-        depart,
-        budget_ms,
-        with_geometry,
-        admitted,
-    )
-    .await;
-    super::correct::trip(handle, from, to, &mut a);
+/// Answers one trip (ETA, or route when `q.geometry`). `admit` says how
+/// the request entered (its ticket may say it was shed). The region's
+/// correction model, if any, applies to the answer whatever its tier.
+pub async fn trip(cat: &Catalog, q: &TripQuery, admit: Admit<'_>) -> Answer {
+    let handle = cat.region_for(q.from, q.to);
+    let mut a = uncorrected(cat, handle, q, admit).await;
+    super::correct::trip(handle, q.from, q.to, &mut a);
     a
 }
 
 /// [`trip`] before its correction.
-#[allow(clippy::too_many_arguments)]
 async fn uncorrected(
     cat: &Catalog,
     handle: Option<&Arc<RegionReader>>,
-    from: LatLon,
-    to: LatLon,
-    depart: Option<DateTime<Utc>>,
-    budget_ms: Option<u64>,
-    with_geometry: bool,
-    admitted: bool,
+    q: &TripQuery,
+    admit: Admit<'_>,
 ) -> Answer {
+    let TripQuery {
+        from,
+        to,
+        depart,
+        budget_ms,
+        geometry: with_geometry,
+    } = *q;
     let deadline = Instant::now() + cat.budget(budget_ms);
-    let g = match gate(cat, handle, depart, deadline, admitted).await {
+    let g = match gate(cat, handle, depart, deadline, admit).await {
         Ok(g) => g,
         Err(f) => {
             return f.answer(cat, |est, reason, tag| {

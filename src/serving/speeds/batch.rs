@@ -25,7 +25,7 @@ use super::csv_input::{field, map_columns, parse_u64, reader, show};
 use super::edge_index::{EdgeIndex, SegmentKey};
 use super::error::SpeedsError;
 use super::historical::{check_speed, check_speed_value, speed_message};
-use super::live::{check_obs, At, Observation, COLUMNS};
+use super::observation::{check_obs, At, Observation, COLUMNS};
 use super::report::{ErrorKind, Loc, ReportBuilder, TableReport};
 use chrono::{DateTime, Utc};
 use csv::ByteRecord;

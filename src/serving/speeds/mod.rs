@@ -13,6 +13,8 @@
 //! - [`historical`]: the 168-hour profile parsed from CSV; missing rows fall
 //!   back to free-flow.
 //! - [`live`]: recent observations (JSON batch or CSV), newest per edge wins.
+//! - `observation`: one live observation as uploaded and its checks,
+//!   shared by `batch` and `live`.
 //! - [`batch`]: a live batch read as a stream (JSON element by element, CSV
 //!   record by record) into its compact form, which the log also records.
 //! - [`blend`](mod@blend): historical bucket + live layer → one speed vector, with
@@ -47,6 +49,7 @@ pub mod edge_index;
 pub mod error;
 pub mod historical;
 pub mod live;
+mod observation;
 pub mod persist;
 pub mod profiles;
 pub mod report;
