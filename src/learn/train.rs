@@ -214,7 +214,7 @@ pub fn forest_of(b: &GradientBooster) -> Result<Forest, TrainError> {
         roots,
         nodes,
     };
-    f.check().map_err(TrainError::Convert)?;
+    f.check().map_err(|e| TrainError::Convert(e.to_string()))?;
     Ok(f)
 }
 
