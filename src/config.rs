@@ -48,8 +48,11 @@ pub enum ConfigError {
         path: PathBuf,
         cause: std::io::Error,
     },
-    #[error("{}: {msg}", path.display())]
-    Parse { path: PathBuf, msg: String },
+    #[error("{}: {cause}", path.display())]
+    Parse {
+        path: PathBuf,
+        cause: ConfigParseError,
+    },
     #[error("{}: {key}: {msg}", path.display())]
     Invalid {
         path: PathBuf,
@@ -57,6 +60,14 @@ pub enum ConfigError {
         msg: String,
     },
 }
+
+/// Why a configuration's TOML text does not parse (its syntax, an unknown
+/// key, a value of the wrong type): the TOML reader's message.
+///
+/// The cause is written into the message and is not a `source()`.
+#[derive(Debug, thiserror::Error)]
+#[error("{0}")]
+pub struct ConfigParseError(toml::de::Error);
 
 impl Config {
     /// Reads, applies environment overrides, validates. Relative paths in
@@ -66,9 +77,9 @@ impl Config {
             path: path.to_path_buf(),
             cause: source,
         })?;
-        let mut cfg = Config::parse(&text).map_err(|msg| ConfigError::Parse {
+        let mut cfg = Config::parse(&text).map_err(|cause| ConfigError::Parse {
             path: path.to_path_buf(),
-            msg,
+            cause,
         })?;
         let base = path.parent().unwrap_or(Path::new("."));
         for r in &mut cfg.regions {
@@ -98,8 +109,8 @@ impl Config {
     }
 
     /// Parses TOML text (no env overrides, no validation).
-    pub fn parse(text: &str) -> Result<Config, String> {
-        toml::from_str(text).map_err(|e| e.to_string())
+    pub fn parse(text: &str) -> Result<Config, ConfigParseError> {
+        toml::from_str(text).map_err(ConfigParseError)
     }
 
     /// Environment overrides for secrets.

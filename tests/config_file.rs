@@ -61,7 +61,7 @@ coverage = { bbox = [1, 1, 2, 2] }
         ),
     ] {
         let err = match Config::parse(&text) {
-            Err(e) => e,
+            Err(e) => e.to_string(),
             Ok(c) => {
                 let (k, m) = c.validate().expect_err(&text);
                 format!("{k}: {m}")

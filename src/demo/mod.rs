@@ -41,7 +41,7 @@ pub enum DemoError {
     #[error("demo files: {0}")]
     Io(std::io::Error),
     #[error("demo configuration: {0}")]
-    Config(String),
+    Config(crate::config::ConfigParseError),
 }
 
 impl From<std::io::Error> for DemoError {

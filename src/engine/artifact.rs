@@ -81,6 +81,29 @@ pub enum ArtifactError {
     BadChecksum { path: PathBuf },
     #[error("{}: payload does not decode: {msg}", path.display())]
     Decode { path: PathBuf, msg: String },
+    /// Decodes, but its arrays do not fit together.
+    #[error("{}: payload does not decode: {cause}", path.display())]
+    Inconsistent { path: PathBuf, cause: Inconsistency },
+}
+
+/// How a decoded payload's arrays fail to fit together (a query over it
+/// would index out of bounds).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, thiserror::Error)]
+pub enum Inconsistency {
+    #[error("node arrays differ in length")]
+    NodeArrays,
+    #[error("edge arrays differ in length")]
+    EdgeArrays,
+    #[error("edge end out of range")]
+    EdgeEnd,
+    #[error("shape index out of range")]
+    ShapeIndex,
+    #[error("hierarchy arrays inconsistent")]
+    HierarchyArrays,
+    #[error("hierarchy index out of range")]
+    HierarchyIndex,
+    #[error("edge to arc map out of range")]
+    EdgeArcMap,
 }
 
 impl Artifact {
@@ -166,13 +189,13 @@ impl Artifact {
             msg: e.to_string(),
         })?;
         art.validate()
-            .map_err(|msg| ArtifactError::Decode { path: p(), msg })?;
+            .map_err(|cause| ArtifactError::Inconsistent { path: p(), cause })?;
         Ok(art)
     }
 
     /// Structural checks so a decodable but inconsistent payload cannot make
     /// a query index out of bounds.
-    fn validate(&self) -> Result<(), String> {
+    fn validate(&self) -> Result<(), Inconsistency> {
         let g = &self.graph;
         let (n, m) = (g.num_nodes(), g.num_edges());
         let node_arrays = [
@@ -183,7 +206,7 @@ impl Artifact {
             self.cch.parent.len(),
         ];
         if node_arrays.iter().any(|&l| l != n) {
-            return Err("node arrays differ in length".into());
+            return Err(Inconsistency::NodeArrays);
         }
         let edge_arrays = [
             g.edge_head.len(),
@@ -195,33 +218,33 @@ impl Artifact {
             self.cch.edge_arc.len(),
         ];
         if edge_arrays.iter().any(|&l| l != m) || g.edge_shape_first.len() != m + 1 {
-            return Err("edge arrays differ in length".into());
+            return Err(Inconsistency::EdgeArrays);
         }
         if g.edge_tail
             .iter()
             .chain(&g.edge_head)
             .any(|&v| v as usize >= n)
         {
-            return Err("edge end out of range".into());
+            return Err(Inconsistency::EdgeEnd);
         }
         if g.edge_shape_first.last().copied().unwrap_or(0) as usize != g.shape.len() {
-            return Err("shape index out of range".into());
+            return Err(Inconsistency::ShapeIndex);
         }
         let c = &self.cch;
         if c.first_out.len() != n + 1
             || c.first_out.last().copied().unwrap_or(0) as usize != c.head.len()
             || c.tail.len() != c.head.len()
         {
-            return Err("hierarchy arrays inconsistent".into());
+            return Err(Inconsistency::HierarchyArrays);
         }
         if c.rank.iter().any(|&r| r as usize >= n) || c.head.iter().any(|&h| h as usize >= n) {
-            return Err("hierarchy index out of range".into());
+            return Err(Inconsistency::HierarchyIndex);
         }
         if c.edge_arc
             .iter()
             .any(|&ea| (ea >> 1) as usize >= c.head.len())
         {
-            return Err("edge to arc map out of range".into());
+            return Err(Inconsistency::EdgeArcMap);
         }
         Ok(())
     }

@@ -36,27 +36,38 @@ impl std::fmt::Display for LatLon {
     }
 }
 
+/// Why a `LAT,LON` text is not a coordinate.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+pub enum LatLonParseError {
+    #[error("expected LAT,LON, got {0:?}")]
+    NoComma(String),
+    #[error("latitude {0:?} is not a number")]
+    Latitude(String),
+    #[error("longitude {0:?} is not a number")]
+    Longitude(String),
+    #[error("{0:?} is out of range (lat -90..90, lon -180..180)")]
+    OutOfRange(String),
+}
+
 impl std::str::FromStr for LatLon {
-    type Err = String;
+    type Err = LatLonParseError;
 
     /// Parses `LAT,LON` in degrees.
     fn from_str(s: &str) -> Result<Self, Self::Err> {
         let (a, b) = s
             .split_once(',')
-            .ok_or_else(|| format!("expected LAT,LON, got {s:?}"))?;
+            .ok_or_else(|| LatLonParseError::NoComma(s.to_string()))?;
         let lat: f64 = a
             .trim()
             .parse()
-            .map_err(|_| format!("latitude {a:?} is not a number"))?;
+            .map_err(|_| LatLonParseError::Latitude(a.to_string()))?;
         let lon: f64 = b
             .trim()
             .parse()
-            .map_err(|_| format!("longitude {b:?} is not a number"))?;
+            .map_err(|_| LatLonParseError::Longitude(b.to_string()))?;
         let p = LatLon::new(lat, lon);
         if !p.is_valid() {
-            return Err(format!(
-                "{s:?} is out of range (lat -90..90, lon -180..180)"
-            ));
+            return Err(LatLonParseError::OutOfRange(s.to_string()));
         }
         Ok(p)
     }

@@ -35,7 +35,8 @@
 //! - [`TrainOptions`], [`split_by_time`], [`fit_booster`] and
 //!   [`forest_of`] (the trees in hodos's format), [`conformal`] (the
 //!   interval), [`best_constant`] (the baseline to beat), and [`train`]
-//!   that runs them all into a [`CorrectionModel`] and a [`TrainReport`].
+//!   that runs them all into a [`CorrectionModel`] and a [`TrainReport`]
+//!   (with its text for a terminal, [`TrainReport::summary_text`]).
 
 use forust_ml::objective::ObjectiveType;
 use forust_ml::{GradientBooster, Matrix};
@@ -214,7 +215,7 @@ pub fn forest_of(b: &GradientBooster) -> Result<Forest, TrainError> {
         roots,
         nodes,
     };
-    f.check().map_err(TrainError::Convert)?;
+    f.check().map_err(|e| TrainError::Convert(e.to_string()))?;
     Ok(f)
 }
 
@@ -335,6 +336,49 @@ impl TrainReport {
         self.figures
             .iter()
             .find(|f| f.set == set && f.estimate == estimate)
+    }
+    /// The report as text for a terminal: the split, the constant
+    /// baselines, the trees, a blank line, then one row per set and
+    /// estimate (MAPE, RMSLE, interval coverage).
+    pub fn summary_text(&self) -> String {
+        use std::fmt::Write as _;
+        let mut out = String::new();
+        let _ = writeln!(
+            out,
+            "{} usable trips: {} fit the trees, {} calibrate the intervals, {} test (latest)",
+            self.trips_usable, self.n_fit, self.n_calibration, self.n_test
+        );
+        let _ = writeln!(
+            out,
+            "best constant factors on the training window: {:.3} (MAPE), {:.3} (RMSLE)",
+            self.constant_mape, self.constant_rmsle
+        );
+        let _ = writeln!(
+            out,
+            "{} trees, {} nodes, fitted in {:.2} s",
+            self.trees, self.nodes, self.fit_seconds
+        );
+        let _ = writeln!(out);
+        let _ = writeln!(
+            out,
+            "{:<12} {:<15} {:>6} {:>8} {:>7} {:>9}",
+            "set", "estimate", "n", "MAPE", "RMSLE", "coverage"
+        );
+        for f in &self.figures {
+            let _ = writeln!(
+                out,
+                "{:<12} {:<15} {:>6} {:>7.1}% {:>7.3} {:>9}",
+                f.set,
+                f.estimate,
+                f.n,
+                f.mape,
+                f.rmsle,
+                f.coverage
+                    .map(|c| format!("{:.1}%", c * 100.0))
+                    .unwrap_or_else(|| "-".into())
+            );
+        }
+        out
     }
 }
 

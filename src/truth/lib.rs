@@ -9,9 +9,13 @@
 //!
 //! # Layout
 //!
-//! - `trips`: [`trips::TripRecord`] and the readers (our CSV with a header,
-//!   JSON lines, the NYC TLC yellow-taxi CSV layout as a column mapping),
-//!   with a line-numbered report of refused rows;
+//! - `trips/`: [`trips::TripRecord`] and the readers (our CSV with a
+//!   header, JSON lines, the NYC TLC yellow-taxi CSV layout as a column
+//!   mapping), one file per format, with a line-numbered report of refused
+//!   rows;
+//! - `inputs`: a run's trip files read together ([`inputs::TripInputs`]:
+//!   the format named or guessed per file, the time zone, the duration
+//!   cut-off), their reports merged;
 //! - `outcome`: [`outcome::TripOutcome`], one trip's answer beside its
 //!   actual duration;
 //! - `replay`: opens a `hodos_serving::answer::Catalog` from an artifact
@@ -26,6 +30,7 @@
 //!
 //! Fitting a correction model on replayed trips is `hodos-learn`'s job.
 
+pub mod inputs;
 pub mod measure;
 pub mod online;
 pub mod outcome;

@@ -40,7 +40,7 @@ pub enum ModelFileError {
     #[error("the model payload does not decode: {0}")]
     Decode(String),
     #[error("the model is not usable: {0}")]
-    Invalid(String),
+    Invalid(super::model::ModelCheckError),
     #[error("reading {path}: {source}")]
     Io {
         path: String,

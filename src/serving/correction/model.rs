@@ -22,6 +22,42 @@
 use super::features::{Features, N, NAMES};
 use serde::{Deserialize, Serialize};
 
+/// Why a model may not serve: a structural fault of its trees or its
+/// interval, or features other than the ones this hodos computes.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum ModelCheckError {
+    #[error("the base score is not finite")]
+    BaseNotFinite,
+    #[error("tree {tree} has no nodes or lies outside the node array")]
+    TreeOutside { tree: usize },
+    #[error("tree {tree}: leaf {node} is not finite")]
+    LeafNotFinite { tree: usize, node: usize },
+    #[error("tree {tree}: node {node} splits on unknown feature {feature}")]
+    UnknownFeature {
+        tree: usize,
+        node: usize,
+        feature: u16,
+    },
+    #[error("tree {tree}: node {node} has a NaN threshold")]
+    NanThreshold { tree: usize, node: usize },
+    #[error("tree {tree}: node {node} points at node {child}, outside its subtree order")]
+    ChildOutOfOrder {
+        tree: usize,
+        node: usize,
+        child: usize,
+    },
+    #[error("interval bands and offsets disagree in number")]
+    BandCount,
+    #[error("interval band edges are not ascending")]
+    BandEdges,
+    #[error("interval levels {lo}..{hi} are not 0 < low < high < 1")]
+    Levels { lo: f64, hi: f64 },
+    #[error("interval offsets are not finite and ordered")]
+    Offsets,
+    #[error("the model expects features {found:?}; this hodos computes {NAMES:?}")]
+    Features { found: Vec<String> },
+}
+
 /// One tree node (a split or a leaf), in a flat array.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct Node {
@@ -72,42 +108,43 @@ impl Forest {
 
     /// Checks the structure: every child lies after its node and inside
     /// its tree, features are known, values finite.
-    pub fn check(&self) -> Result<(), String> {
+    pub fn check(&self) -> Result<(), ModelCheckError> {
         if !self.base.is_finite() {
-            return Err("the base score is not finite".into());
+            return Err(ModelCheckError::BaseNotFinite);
         }
         let total = self.nodes.len();
         for (t, &root) in self.roots.iter().enumerate() {
             let start = root as usize;
             let end = self.roots.get(t + 1).map_or(total, |&r| r as usize);
             if start >= end || end > total {
-                return Err(format!(
-                    "tree {t} has no nodes or lies outside the node array"
-                ));
+                return Err(ModelCheckError::TreeOutside { tree: t });
             }
             for i in start..end {
                 let n = &self.nodes[i];
                 if n.leaf {
                     if !n.value.is_finite() {
-                        return Err(format!("tree {t}: leaf {i} is not finite"));
+                        return Err(ModelCheckError::LeafNotFinite { tree: t, node: i });
                     }
                     continue;
                 }
                 if usize::from(n.feature) >= N {
-                    return Err(format!(
-                        "tree {t}: node {i} splits on unknown feature {}",
-                        n.feature
-                    ));
+                    return Err(ModelCheckError::UnknownFeature {
+                        tree: t,
+                        node: i,
+                        feature: n.feature,
+                    });
                 }
                 if n.threshold.is_nan() {
-                    return Err(format!("tree {t}: node {i} has a NaN threshold"));
+                    return Err(ModelCheckError::NanThreshold { tree: t, node: i });
                 }
                 for c in [n.left, n.right, n.missing] {
                     let c = c as usize;
                     if c <= i || c >= end {
-                        return Err(format!(
-                            "tree {t}: node {i} points at node {c}, outside its subtree order"
-                        ));
+                        return Err(ModelCheckError::ChildOutOfOrder {
+                            tree: t,
+                            node: i,
+                            child: c,
+                        });
                     }
                 }
             }
@@ -275,26 +312,24 @@ impl Interval {
         self.edges.partition_point(|&e| graph_s >= e)
     }
 
-    pub fn check(&self) -> Result<(), String> {
+    pub fn check(&self) -> Result<(), ModelCheckError> {
         if self.offsets.len() != self.edges.len() + 1 || self.counts.len() != self.offsets.len() {
-            return Err("interval bands and offsets disagree in number".into());
+            return Err(ModelCheckError::BandCount);
         }
         if !self.edges.windows(2).all(|w| w[0] < w[1]) || self.edges.iter().any(|e| !e.is_finite())
         {
-            return Err("interval band edges are not ascending".into());
+            return Err(ModelCheckError::BandEdges);
         }
         let [lo, hi] = self.levels;
         if !(0.0 < lo && lo < hi && hi < 1.0) {
-            return Err(format!(
-                "interval levels {lo}..{hi} are not 0 < low < high < 1"
-            ));
+            return Err(ModelCheckError::Levels { lo, hi });
         }
         if self
             .offsets
             .iter()
             .any(|[a, b]| !a.is_finite() || !b.is_finite() || a > b)
         {
-            return Err("interval offsets are not finite and ordered".into());
+            return Err(ModelCheckError::Offsets);
         }
         Ok(())
     }
@@ -366,14 +401,13 @@ pub const MAX_FACTOR: f64 = 20.0;
 
 impl CorrectionModel {
     /// Checks what a loaded model must satisfy before it may serve.
-    pub fn check(&self) -> Result<(), String> {
+    pub fn check(&self) -> Result<(), ModelCheckError> {
         if self.meta.features.len() != N
             || self.meta.features.iter().zip(NAMES).any(|(a, b)| a != b)
         {
-            return Err(format!(
-                "the model expects features {:?}; this hodos computes {:?}",
-                self.meta.features, NAMES
-            ));
+            return Err(ModelCheckError::Features {
+                found: self.meta.features.clone(),
+            });
         }
         self.forest.check()?;
         self.interval.check()
@@ -522,10 +556,18 @@ pub(crate) mod tests {
     fn a_child_before_its_node_is_refused() {
         let mut m = stump_model();
         m.forest.nodes[0].right = 0;
-        assert!(m.check().unwrap_err().contains("points at node 0"));
+        assert!(m
+            .check()
+            .unwrap_err()
+            .to_string()
+            .contains("points at node 0"));
         let mut m = stump_model();
         m.meta.features[3] = "other".into();
-        assert!(m.check().unwrap_err().contains("expects features"));
+        assert!(m
+            .check()
+            .unwrap_err()
+            .to_string()
+            .contains("expects features"));
         let mut m = stump_model();
         m.interval.offsets[0] = [0.5, -0.5];
         assert!(m.check().is_err());

@@ -23,7 +23,7 @@
 use super::config::ValidationConfig;
 use super::csv_input::{field, map_columns, parse_u64, reader, show};
 use super::edge_index::{EdgeIndex, SegmentKey};
-use super::error::SpeedsError;
+use super::error::{BatchFormError, SpeedsError};
 use super::historical::{check_speed, check_speed_value, speed_message};
 use super::observation::{check_obs, At, Observation, COLUMNS};
 use super::report::{ErrorKind, Loc, ReportBuilder, TableReport};
@@ -69,9 +69,9 @@ impl Batch {
 
     /// A batch from its compact form (a write-ahead log record), or why the
     /// bytes are not one. Its report has the counts, no row messages.
-    pub fn decode(data: Vec<u8>) -> Result<Batch, String> {
+    pub fn decode(data: Vec<u8>) -> Result<Batch, BatchFormError> {
         if data.len() < HEADER {
-            return Err("compact batch: header cut short".into());
+            return Err(BatchFormError::CompactHeaderCut);
         }
         let rows = u64::from_le_bytes(data[..8].try_into().expect("8 bytes"));
         let bad = u64::from_le_bytes(data[8..16].try_into().expect("8 bytes"));
@@ -85,9 +85,11 @@ impl Batch {
             n += 1;
         }
         if bad > rows || n != rows - bad {
-            return Err(format!(
-                "compact batch: {n} observations for {rows} rows with {bad} bad"
-            ));
+            return Err(BatchFormError::CompactCount {
+                observations: n,
+                rows,
+                bad,
+            });
         }
         let report = TableReport {
             rows,
@@ -117,19 +119,21 @@ struct Records<'d> {
 impl Records<'_> {
     /// The next record; `Ok(None)` at the end, `Err` if the bytes stop
     /// inside one.
-    fn next_checked(&mut self) -> Result<Option<Compact>, String> {
+    fn next_checked(&mut self) -> Result<Option<Compact>, BatchFormError> {
         if self.at >= self.data.len() {
             return Ok(None);
         }
-        let cut = || "compact batch: record cut short".to_string();
         let flags = self.data[self.at];
         self.at += 1;
-        let mut take = |n: usize| -> Result<&[u8], String> {
-            let b = self.data.get(self.at..self.at + n).ok_or_else(cut)?;
+        let mut take = |n: usize| -> Result<&[u8], BatchFormError> {
+            let b = self
+                .data
+                .get(self.at..self.at + n)
+                .ok_or(BatchFormError::CompactRecordCut)?;
             self.at += n;
             Ok(b)
         };
-        let mut id = |bit: u8| -> Result<Option<u64>, String> {
+        let mut id = |bit: u8| -> Result<Option<u64>, BatchFormError> {
             if flags & bit == 0 {
                 return Ok(None);
             }
@@ -265,8 +269,7 @@ pub fn read_json<R: Read>(
             Ok(())
         }
     }
-    let json_err =
-        |e: serde_json::Error| SpeedsError::Json(format!("expected an array of observations: {e}"));
+    let json_err = |e: serde_json::Error| SpeedsError::Json(BatchFormError::NotAnArray(e));
     let mut b = Builder::new(index, now, cfg);
     let mut de =
         serde_json::Deserializer::from_reader(std::io::BufReader::with_capacity(64 * 1024, input));
@@ -281,8 +284,8 @@ impl Builder<'_> {
         let loc = Loc::Index(i);
         let o = match e.observation() {
             Ok(o) => o,
-            Err(msg) => {
-                self.rb.bad(loc, ErrorKind::MalformedRow, || msg);
+            Err(e) => {
+                self.rb.bad(loc, ErrorKind::MalformedRow, || e.to_string());
                 return;
             }
         };
@@ -370,15 +373,26 @@ impl Element {
     /// The observation, or why the element is not one (an object
     /// without duplicate keys: serde's derive would also read an array of
     /// the fields in order, which the schema does not allow).
-    fn observation(&self) -> Result<Observation, String> {
+    fn observation(&self) -> Result<Observation, ElementError> {
         if let Some(k) = &self.duplicate {
-            return Err(format!("not an observation: duplicate key `{k}`"));
+            return Err(ElementError::DuplicateKey(k.clone()));
         }
         if !self.value.is_object() {
-            return Err("not an observation: must be a JSON object".to_string());
+            return Err(ElementError::NotAnObject);
         }
-        Observation::deserialize(&self.value).map_err(|e| format!("not an observation: {e}"))
+        Observation::deserialize(&self.value).map_err(ElementError::Fields)
     }
+}
+
+/// Why an element of a JSON batch is not an observation (a bad row).
+#[derive(Debug, thiserror::Error)]
+enum ElementError {
+    #[error("not an observation: duplicate key `{0}`")]
+    DuplicateKey(String),
+    #[error("not an observation: must be a JSON object")]
+    NotAnObject,
+    #[error("not an observation: {0}")]
+    Fields(serde_json::Error),
 }
 
 impl<'de> Deserialize<'de> for Element {

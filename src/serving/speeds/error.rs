@@ -1,9 +1,11 @@
 //! Typed errors of the speed-data layer.
 //!
 //! [`SpeedsError`] is about an uploaded table (its header, its bad-row share,
-//! a speed vector of the wrong length); [`PersistError`] about a saved file
-//! (I/O, corruption, a saved table that no longer validates).
+//! a speed vector of the wrong length), with [`BatchFormError`] for a live
+//! batch that is not one at all; [`PersistError`] about a saved file (I/O,
+//! corruption, a saved table that no longer validates).
 
+use super::persist::EnvelopeError;
 use super::report::TableReport;
 use std::path::PathBuf;
 
@@ -20,9 +22,11 @@ pub enum SpeedsError {
     /// The CSV reader itself failed (not a single bad row).
     #[error("CSV: {0}")]
     Csv(String),
-    /// A JSON batch that is not an array of objects.
+    /// A JSON batch that is not an array of objects (or a compact form
+    /// that does not decode: a write-ahead log record is applied as the
+    /// JSON batch it was).
     #[error("JSON batch: {0}")]
-    Json(String),
+    Json(BatchFormError),
     /// Per-edge vectors of different lengths: they belong to different graphs.
     #[error("{what} has {got} entries, expected {expected} (one per edge)")]
     LengthMismatch {
@@ -42,6 +46,25 @@ impl SpeedsError {
     }
 }
 
+/// Why a live batch's bytes are not a batch (rows are reported, not
+/// failed). A cause is written into the message and is not a `source()`.
+#[derive(Debug, thiserror::Error)]
+pub enum BatchFormError {
+    /// A JSON text that is not an array of values.
+    #[error("expected an array of observations: {0}")]
+    NotAnArray(serde_json::Error),
+    #[error("compact batch: header cut short")]
+    CompactHeaderCut,
+    #[error("compact batch: record cut short")]
+    CompactRecordCut,
+    #[error("compact batch: {observations} observations for {rows} rows with {bad} bad")]
+    CompactCount {
+        observations: u64,
+        rows: u64,
+        bad: u64,
+    },
+}
+
 /// Why a saved table could not be written or read back.
 ///
 /// A `cause` is written into the message and is not a `source()`: a
@@ -56,7 +79,10 @@ pub enum PersistError {
     /// The file exists but is not an intact saved table (truncated, damaged,
     /// another kind of file).
     #[error("{}: corrupt saved file: {reason}", path.display())]
-    Corrupt { path: PathBuf, reason: String },
+    Corrupt {
+        path: PathBuf,
+        reason: EnvelopeError,
+    },
     /// The file is intact but its table no longer validates against the
     /// current graph (for example after a map rebuild).
     #[error("{}: saved table no longer valid: {cause}", path.display())]

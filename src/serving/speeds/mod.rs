@@ -61,12 +61,12 @@ pub use blend::{blend, blend_into, live_weight, BlendStats};
 pub use clock::{hour_of_week, HOURS_PER_WEEK};
 pub use config::ValidationConfig;
 pub use edge_index::{EdgeIndex, Named, Refusal, SegmentKey};
-pub use error::{PersistError, SpeedsError};
+pub use error::{BatchFormError, PersistError, SpeedsError};
 pub use historical::HistoricalProfile;
 pub use live::{LiveEntry, LiveLayer, Observation};
 pub use persist::{
     load_historical, load_live, open_historical, save_historical, save_live, write_atomic,
-    PendingTable, SavedTable,
+    EnvelopeError, PendingTable, SavedTable,
 };
 pub use profiles::HourGrouping;
 pub use report::{ErrorKind, RowError, TableReport};

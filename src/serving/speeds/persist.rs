@@ -308,55 +308,81 @@ fn envelope(kind: &str, payload: &[u8]) -> Vec<u8> {
     out
 }
 
+/// Why a file is not an intact saved table of the expected kind (the
+/// reason of a [`PersistError::Corrupt`]). Text copied from the file is
+/// shown escaped.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+pub enum EnvelopeError {
+    #[error("empty file")]
+    Empty,
+    #[error("no header line (not a saved speed table)")]
+    NoHeader,
+    #[error("header is not text")]
+    HeaderNotText,
+    #[error("unrecognised header `{}`", .0.escape_debug())]
+    Unrecognised(String),
+    #[error("format version {} (this build reads {FORMAT_VERSION})", .0.escape_debug())]
+    Version(String),
+    #[error("holds a `{}` table, expected `{expected}`", .found.escape_debug())]
+    Kind {
+        found: String,
+        expected: &'static str,
+    },
+    #[error("bad length `{}`", .0.escape_debug())]
+    Length(String),
+    #[error("bad checksum field `{}`", .0.escape_debug())]
+    ChecksumField(String),
+    #[error("truncated or padded: header says {header} payload bytes, file holds {holds}")]
+    Truncated { header: usize, holds: usize },
+    #[error("checksum mismatch (stored {stored:08x}, computed {computed:08x})")]
+    Checksum { stored: u32, computed: u32 },
+}
+
 /// The payload of a saved file of `kind`, or why the file is not one.
-fn open_envelope<'a>(bytes: &'a [u8], kind: &str) -> Result<&'a [u8], String> {
+fn open_envelope<'a>(bytes: &'a [u8], kind: &'static str) -> Result<&'a [u8], EnvelopeError> {
     let nl = bytes
         .iter()
         .take(MAX_HEADER)
         .position(|&b| b == b'\n')
-        .ok_or_else(|| {
-            if bytes.is_empty() {
-                "empty file".to_string()
-            } else {
-                "no header line (not a saved speed table)".to_string()
-            }
+        .ok_or(if bytes.is_empty() {
+            EnvelopeError::Empty
+        } else {
+            EnvelopeError::NoHeader
         })?;
-    let header = std::str::from_utf8(&bytes[..nl]).map_err(|_| "header is not text".to_string())?;
+    let header = std::str::from_utf8(&bytes[..nl]).map_err(|_| EnvelopeError::HeaderNotText)?;
     let payload = &bytes[nl + 1..];
     let f: Vec<&str> = header.split(' ').collect();
     if f.len() != 5 || f[0] != MAGIC {
-        return Err(format!("unrecognised header `{}`", header.escape_debug()));
+        return Err(EnvelopeError::Unrecognised(header.to_string()));
     }
     if f[1] != FORMAT_VERSION.to_string() {
-        return Err(format!(
-            "format version {} (this build reads {FORMAT_VERSION})",
-            f[1].escape_debug()
-        ));
+        return Err(EnvelopeError::Version(f[1].to_string()));
     }
     if f[2] != kind {
-        return Err(format!(
-            "holds a `{}` table, expected `{kind}`",
-            f[2].escape_debug()
-        ));
+        return Err(EnvelopeError::Kind {
+            found: f[2].to_string(),
+            expected: kind,
+        });
     }
     let len: usize = f[3]
         .parse()
-        .map_err(|_| format!("bad length `{}`", f[3].escape_debug()))?;
+        .map_err(|_| EnvelopeError::Length(f[3].to_string()))?;
     let crc = u32::from_str_radix(f[4], 16)
         .ok()
         .filter(|_| f[4].len() == 8)
-        .ok_or_else(|| format!("bad checksum field `{}`", f[4].escape_debug()))?;
+        .ok_or_else(|| EnvelopeError::ChecksumField(f[4].to_string()))?;
     if payload.len() != len {
-        return Err(format!(
-            "truncated or padded: header says {len} payload bytes, file holds {}",
-            payload.len()
-        ));
+        return Err(EnvelopeError::Truncated {
+            header: len,
+            holds: payload.len(),
+        });
     }
     let got = crc32fast::hash(payload);
     if got != crc {
-        return Err(format!(
-            "checksum mismatch (stored {crc:08x}, computed {got:08x})"
-        ));
+        return Err(EnvelopeError::Checksum {
+            stored: crc,
+            computed: got,
+        });
     }
     Ok(payload)
 }
@@ -376,7 +402,7 @@ fn io_err(path: &Path, source: io::Error) -> PersistError {
     }
 }
 
-fn corrupt(path: &Path, reason: String) -> PersistError {
+fn corrupt(path: &Path, reason: EnvelopeError) -> PersistError {
     PersistError::Corrupt {
         path: PathBuf::from(path),
         reason,
@@ -393,16 +419,22 @@ mod tests {
         assert_eq!(open_envelope(&e, "live").unwrap(), b"[1,2]");
         assert!(open_envelope(&e, "historical")
             .unwrap_err()
+            .to_string()
             .contains("expected `historical`"));
         assert!(open_envelope(&e[..e.len() - 1], "live")
             .unwrap_err()
+            .to_string()
             .contains("truncated"));
         let mut flipped = e.clone();
         *flipped.last_mut().unwrap() ^= 1;
         assert!(open_envelope(&flipped, "live")
             .unwrap_err()
+            .to_string()
             .contains("checksum"));
-        assert!(open_envelope(b"", "live").unwrap_err().contains("empty"));
+        assert!(open_envelope(b"", "live")
+            .unwrap_err()
+            .to_string()
+            .contains("empty"));
         assert!(open_envelope(b"from_node,to_node\n", "live").is_err());
         // Cut inside the header line.
         assert!(open_envelope(&e[..10], "live").is_err());

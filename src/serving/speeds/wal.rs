@@ -93,7 +93,17 @@ pub enum WalError {
     #[error("{}: {cause}", path.display())]
     Io { path: PathBuf, cause: io::Error },
     #[error("{}: not a write-ahead log: {reason}", path.display())]
-    Corrupt { path: PathBuf, reason: String },
+    Corrupt { path: PathBuf, reason: WalFormError },
+}
+
+/// Why a log's header is not this build's (a torn record is not an
+/// error: [`Replay::torn`] reports it).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, thiserror::Error)]
+pub enum WalFormError {
+    #[error("unrecognised header")]
+    Header,
+    #[error("format version {0} (this build reads {VERSION})")]
+    Version(u32),
 }
 
 fn io_err(path: &Path) -> impl FnOnce(io::Error) -> WalError + '_ {
@@ -192,7 +202,7 @@ pub fn replay(path: &Path) -> Result<Replay, WalError> {
 }
 
 /// The records of a log image and the length of its intact prefix.
-fn parse(bytes: &[u8]) -> Result<(Replay, u64), String> {
+fn parse(bytes: &[u8]) -> Result<(Replay, u64), WalFormError> {
     let mut out = Replay::default();
     if bytes.is_empty() {
         return Ok((out, 0));
@@ -203,11 +213,11 @@ fn parse(bytes: &[u8]) -> Result<(Replay, u64), String> {
         return Ok((out, 0));
     }
     if &bytes[..12] != MAGIC {
-        return Err("unrecognised header".into());
+        return Err(WalFormError::Header);
     }
     let v = u32::from_le_bytes(bytes[12..16].try_into().expect("4 bytes"));
     if v != VERSION {
-        return Err(format!("format version {v} (this build reads {VERSION})"));
+        return Err(WalFormError::Version(v));
     }
     let mut at = HEADER_LEN as usize;
     while at < bytes.len() {

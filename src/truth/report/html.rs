@@ -3,7 +3,8 @@
 //! fetch. No script.
 
 use super::figures::Figures;
-use super::{plots, Report, ReportError};
+use super::plots::{self, PlotError};
+use super::{Report, ReportError};
 use crate::measure::{band_label, ErrorSummary, Estimate, Grouping, DISTANCE_BANDS_KM};
 use std::fmt::Write as _;
 
@@ -99,8 +100,8 @@ fn figure(out: &mut String, svg: String, caption: &str) {
     );
 }
 
-fn plot(r: Result<String, String>, figure: &'static str) -> Result<String, ReportError> {
-    r.map_err(|message| ReportError::Plot { figure, message })
+fn plot(r: Result<String, PlotError>, figure: &'static str) -> Result<String, ReportError> {
+    r.map_err(|cause| ReportError::Plot { figure, cause })
 }
 
 fn figures_section(out: &mut String, r: &Report, f: &Figures) -> Result<(), ReportError> {

@@ -60,10 +60,10 @@ pub struct Report {
 pub enum ReportError {
     #[error("no trip was answered: nothing to measure")]
     Empty,
-    #[error("drawing {figure}: {message}")]
+    #[error("drawing {figure}: {cause}")]
     Plot {
         figure: &'static str,
-        message: String,
+        cause: plots::PlotError,
     },
     #[error("writing {path}: {source}")]
     Write {

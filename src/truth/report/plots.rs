@@ -22,8 +22,14 @@ const W: u32 = 760;
 const H: u32 = 400;
 const FONT: &str = "sans-serif";
 
-fn e(x: impl std::fmt::Display) -> String {
-    x.to_string()
+/// Why a plot could not be drawn: the drawing backend's message (its
+/// error types are generic over the backend, so the text is kept).
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[error("{0}")]
+pub struct PlotError(String);
+
+fn e(x: impl std::fmt::Display) -> PlotError {
+    PlotError(x.to_string())
 }
 
 pub fn colour(i: usize) -> RGBColor {
@@ -31,7 +37,7 @@ pub fn colour(i: usize) -> RGBColor {
 }
 
 /// Density curves of the log ratio, one per group.
-pub fn density(d: &Densities, title: &str) -> Result<String, String> {
+pub fn density(d: &Densities, title: &str) -> Result<String, PlotError> {
     let mut buf = String::new();
     {
         let root = SVGBackend::with_string(&mut buf, (W, H)).into_drawing_area();
@@ -94,7 +100,7 @@ pub fn density(d: &Densities, title: &str) -> Result<String, String> {
 }
 
 /// The estimate-vs-actual histogram on log axes, with the diagonal.
-pub fn grid(g: &Grid2d, title: &str) -> Result<String, String> {
+pub fn grid(g: &Grid2d, title: &str) -> Result<String, PlotError> {
     let mut buf = String::new();
     {
         let root = SVGBackend::with_string(&mut buf, (560, 520)).into_drawing_area();
@@ -166,7 +172,7 @@ pub fn grid(g: &Grid2d, title: &str) -> Result<String, String> {
 }
 
 /// Mean actual against mean estimate per decile, one line per estimate.
-pub fn calibration(lines: &[(&str, &[Decile])], title: &str) -> Result<String, String> {
+pub fn calibration(lines: &[(&str, &[Decile])], title: &str) -> Result<String, PlotError> {
     let mut buf = String::new();
     {
         let root = SVGBackend::with_string(&mut buf, (560, 520)).into_drawing_area();
@@ -231,7 +237,7 @@ pub fn calibration(lines: &[(&str, &[Decile])], title: &str) -> Result<String, S
 }
 
 /// Median ratio per hour of week, one line per estimate, days marked.
-pub fn by_hour(lines: &[(&str, &[HourPoint])], title: &str) -> Result<String, String> {
+pub fn by_hour(lines: &[(&str, &[HourPoint])], title: &str) -> Result<String, PlotError> {
     let mut buf = String::new();
     {
         let root = SVGBackend::with_string(&mut buf, (W, H)).into_drawing_area();
@@ -306,7 +312,7 @@ pub fn by_hour(lines: &[(&str, &[HourPoint])], title: &str) -> Result<String, St
 }
 
 /// Interval coverage per group as bars, with the nominal level.
-pub fn coverage(bars: &[CoverageBar], nominal: f64, title: &str) -> Result<String, String> {
+pub fn coverage(bars: &[CoverageBar], nominal: f64, title: &str) -> Result<String, PlotError> {
     let mut buf = String::new();
     {
         let root = SVGBackend::with_string(&mut buf, (W, H)).into_drawing_area();
