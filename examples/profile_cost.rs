@@ -116,7 +116,7 @@ fn main() {
                 &TripQuery {
                     from: a,
                     to: b,
-                    depart: depart,
+                    depart,
                     budget_ms: None,
                     geometry: false,
                 },

@@ -161,7 +161,7 @@ async fn gate_fallbacks_and_graph_tiers() {
     let g = &c.graph;
     let state = tempfile::tempdir().unwrap();
     let svc = catalog(&c.artifact, g, state.path()).await;
-    let cat = &*svc.catalog;
+    let cat = svc.catalog.clone();
     let region = svc.regions[0].clone();
     let cal = region.snapshot().unwrap().region.calibration.clone();
     let gen = region.snapshot().unwrap().generation;
@@ -624,7 +624,7 @@ async fn stale_live_data_falls_back_to_historical() {
     let g = &c.graph;
     let state = tempfile::tempdir().unwrap();
     let svc = catalog(&c.artifact, g, state.path()).await;
-    let cat = &*svc.catalog;
+    let cat = svc.catalog.clone();
     let region = svc.regions[0].clone();
     let (s, t) = two_way_pair(g);
     // Observations an hour old, beyond the 600 s TTL.
@@ -677,7 +677,7 @@ async fn unavailable_region_answers_from_the_defaults() {
     std::fs::write(&broken, b"not an artifact").unwrap();
     let c = city();
     let svc = catalog(&broken, &c.graph, &dir.path().join("state")).await;
-    let cat = &*svc.catalog;
+    let cat = svc.catalog.clone();
     let region = svc.regions[0].clone();
     assert!(region.snapshot().is_none());
     let reason = region.status().degraded_reason.unwrap();
@@ -746,7 +746,7 @@ async fn unreachable_pairs_fall_back_per_trip_and_per_cell() {
     let dir = tempfile::tempdir().unwrap();
     let (artifact, g) = islands(dir.path());
     let svc = catalog(&artifact, &g, &dir.path().join("state")).await;
-    let cat = &*svc.catalog;
+    let cat = svc.catalog.clone();
     let (s, t, u) = (0u32, 16u32, 5u32);
     // petgraph's Dijkstra agrees there is no path from island one to two.
     let ones = vec![1; g.num_edges()];
@@ -983,7 +983,7 @@ async fn sources_name_the_speeds_the_route_used() {
     let dir = tempfile::tempdir().unwrap();
     let (artifact, g) = line(dir.path());
     let svc = catalog(&artifact, &g, &dir.path().join("state")).await;
-    let cat = &*svc.catalog;
+    let cat = svc.catalog.clone();
     let region = svc.regions[0].clone();
     let (a, b) = (g.node_pos(0), g.node_pos(3));
     let shares = |r: &super::Answer| {
