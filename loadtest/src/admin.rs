@@ -126,86 +126,115 @@ pub fn historical_table(
     Bytes::from(table.into_string())
 }
 
-fn finish(mut r: StreamReport, h: &Histogram<u64>) -> StreamReport {
-    if !h.is_empty() {
-        r.p50_ms = h.value_at_quantile(0.5) as f64 / 1000.0;
-        r.p99_ms = h.value_at_quantile(0.99) as f64 / 1000.0;
-        r.max_ms = h.max() as f64 / 1000.0;
-    }
-    r
+/// The calls of one admin stream so far: its report and the latency of
+/// its accepted calls.
+struct Calls<'a> {
+    feed: &'a Feed,
+    r: StreamReport,
+    h: Histogram<u64>,
 }
 
-#[allow(clippy::too_many_arguments)]
-async fn one_call(
-    addr: SocketAddr,
-    method: &str,
-    path: &str,
-    token: &str,
-    ct: &str,
-    body: Bytes,
-    r: &mut StreamReport,
-    h: &mut Histogram<u64>,
-) {
-    let t = Instant::now();
-    r.calls += 1;
-    match call(
-        addr,
-        method,
-        path,
-        Some(token),
-        ct,
-        body,
-        Duration::from_secs(30),
-    )
-    .await
-    {
-        Ok((200, _)) => {
-            r.accepted += 1;
-            h.saturating_record((t.elapsed().as_micros() as u64).max(1));
+impl<'a> Calls<'a> {
+    fn new(feed: &'a Feed) -> Calls<'a> {
+        Calls {
+            feed,
+            r: StreamReport::default(),
+            h: Histogram::new_with_bounds(1, 600_000_000, 3).expect("static bounds"),
         }
-        Ok((code, _)) => *r.failed.entry(format!("http_{code}")).or_default() += 1,
-        Err(_) => *r.failed.entry("error".into()).or_default() += 1,
+    }
+
+    /// One call to the feed's admin listener (30 s timeout), counted; its
+    /// latency recorded when accepted.
+    async fn one(&mut self, method: &str, path: &str, ct: &str, body: Bytes) {
+        let t = Instant::now();
+        let r = &mut self.r;
+        r.calls += 1;
+        let token = Some(self.feed.token.as_str());
+        let timeout = Duration::from_secs(30);
+        match call(self.feed.admin, method, path, token, ct, body, timeout).await {
+            Ok((200, _)) => {
+                r.accepted += 1;
+                self.h
+                    .saturating_record((t.elapsed().as_micros() as u64).max(1));
+            }
+            Ok((code, _)) => *r.failed.entry(format!("http_{code}")).or_default() += 1,
+            Err(_) => *r.failed.entry("error".into()).or_default() += 1,
+        }
+    }
+
+    /// POSTs a batch of observations to the region's live endpoint `path`.
+    async fn post_live(&mut self, path: &str, body: Bytes) {
+        self.one("POST", path, "application/json", body).await;
+    }
+
+    /// The report, with the latency percentiles of the accepted calls.
+    fn finish(self) -> StreamReport {
+        let (mut r, h) = (self.r, self.h);
+        if !h.is_empty() {
+            r.p50_ms = h.value_at_quantile(0.5) as f64 / 1000.0;
+            r.p99_ms = h.value_at_quantile(0.99) as f64 / 1000.0;
+            r.max_ms = h.max() as f64 / 1000.0;
+        }
+        r
     }
 }
 
-fn hist() -> Histogram<u64> {
-    Histogram::new_with_bounds(1, 600_000_000, 3).expect("static bounds")
+/// A fixed schedule from now: call `k` is due at start + `k` × `every`,
+/// the last one before `until`.
+struct Schedule {
+    start: Instant,
+    every: Duration,
+    until: Instant,
+    k: u32,
+}
+
+impl Schedule {
+    fn new(every: Duration, until: Instant) -> Schedule {
+        Schedule {
+            start: Instant::now(),
+            every,
+            until,
+            k: 0,
+        }
+    }
+
+    /// Sleeps until the next call is due and returns its number (None once
+    /// it would fall at or after `until`); a call that starts more than one
+    /// interval late is counted in `late`.
+    async fn next(&mut self, late: &mut u64) -> Option<u32> {
+        let at = self.start + self.every * self.k;
+        if at >= self.until {
+            return None;
+        }
+        tokio::time::sleep_until(at.into()).await;
+        if Instant::now().saturating_duration_since(at) > self.every {
+            *late += 1;
+        }
+        let k = self.k;
+        self.k += 1;
+        Some(k)
+    }
+}
+
+/// The region's live endpoint.
+fn live_path(feed: &Feed) -> String {
+    format!("/admin/regions/{}/live", feed.region)
 }
 
 /// Posts a live batch every `every` until `until`.
 pub async fn live_stream(feed: Feed, every: Duration, until: Instant) -> StreamReport {
     let mut rng = ChaCha8Rng::seed_from_u64(feed.seed);
-    let path = format!("/admin/regions/{}/live", feed.region);
-    let (mut r, mut h) = (StreamReport::default(), hist());
-    let start = Instant::now();
-    let mut k = 0u32;
+    let path = live_path(&feed);
+    let mut calls = Calls::new(&feed);
+    let mut schedule = Schedule::new(every, until);
     let mut bytes = 0usize;
-    loop {
-        let at = start + every * k;
-        if at >= until {
-            break;
-        }
-        tokio::time::sleep_until(at.into()).await;
-        if Instant::now().saturating_duration_since(at) > every {
-            r.late += 1;
-        }
+    while schedule.next(&mut calls.r.late).await.is_some() {
         let body = observations(&feed, &mut rng);
         bytes = body.len();
-        one_call(
-            feed.admin,
-            "POST",
-            &path,
-            &feed.token,
-            "application/json",
-            body,
-            &mut r,
-            &mut h,
-        )
-        .await;
-        k += 1;
+        calls.post_live(&path, body).await;
     }
-    r.body_kb = bytes as f64 / 1024.0;
-    finish(r, &h)
+    calls.r.body_kb = bytes as f64 / 1024.0;
+    calls.finish()
 }
 
 /// PUTs the tables in turn every `every` until `until`.
@@ -216,53 +245,24 @@ pub async fn table_stream(
     until: Instant,
 ) -> StreamReport {
     let path = format!("/admin/regions/{}/historical", feed.region);
-    let (mut r, mut h) = (StreamReport::default(), hist());
-    r.body_kb = tables.first().map(|t| t.len()).unwrap_or(0) as f64 / 1024.0;
-    let start = Instant::now();
-    let mut k = 0u32;
-    loop {
-        let at = start + every * k;
-        if at >= until || tables.is_empty() {
-            break;
+    let mut calls = Calls::new(&feed);
+    calls.r.body_kb = tables.first().map(|t| t.len()).unwrap_or(0) as f64 / 1024.0;
+    if !tables.is_empty() {
+        let mut schedule = Schedule::new(every, until);
+        while let Some(k) = schedule.next(&mut calls.r.late).await {
+            let body = tables[k as usize % tables.len()].clone();
+            calls.one("PUT", &path, "text/csv", body).await;
         }
-        tokio::time::sleep_until(at.into()).await;
-        if Instant::now().saturating_duration_since(at) > every {
-            r.late += 1;
-        }
-        let body = tables[k as usize % tables.len()].clone();
-        one_call(
-            feed.admin,
-            "PUT",
-            &path,
-            &feed.token,
-            "text/csv",
-            body,
-            &mut r,
-            &mut h,
-        )
-        .await;
-        k += 1;
     }
-    finish(r, &h)
+    calls.finish()
 }
 
 /// Posts one batch (e.g. stale observations) and returns the report.
 pub async fn post_once(feed: &Feed) -> StreamReport {
     let mut rng = ChaCha8Rng::seed_from_u64(feed.seed);
-    let path = format!("/admin/regions/{}/live", feed.region);
-    let (mut r, mut h) = (StreamReport::default(), hist());
+    let mut calls = Calls::new(feed);
     let body = observations(feed, &mut rng);
-    r.body_kb = body.len() as f64 / 1024.0;
-    one_call(
-        feed.admin,
-        "POST",
-        &path,
-        &feed.token,
-        "application/json",
-        body,
-        &mut r,
-        &mut h,
-    )
-    .await;
-    finish(r, &h)
+    calls.r.body_kb = body.len() as f64 / 1024.0;
+    calls.post_live(&live_path(feed), body).await;
+    calls.finish()
 }

@@ -6,13 +6,43 @@
 //! curves themselves are computed in `model::latency`).
 
 use crate::model::{Summary, Window};
+use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
 use std::path::Path;
+
+/// A chart with a linear x axis and a logarithmic latency axis.
+type Chart<'a, 'b> = ChartContext<'a, SVGBackend<'b>, Cartesian2d<RangedCoordf64, LogCoord<f64>>>;
 
 fn y_range(max: f64, min: f64) -> (f64, f64) {
     let lo = 10f64.powf(min.max(0.001).log10().floor());
     let hi = 10f64.powf(max.max(lo * 10.0).log10().ceil());
     (lo, hi)
+}
+
+/// Draws one line, 2 px wide, with its entry in the legend.
+fn line(
+    chart: &mut Chart<'_, '_>,
+    points: impl IntoIterator<Item = (f64, f64)>,
+    color: RGBAColor,
+    label: impl Into<String>,
+) -> Result<(), String> {
+    chart
+        .draw_series(LineSeries::new(points, color.stroke_width(2)))
+        .map_err(|x| x.to_string())?
+        .label(label)
+        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], color.stroke_width(2)));
+    Ok(())
+}
+
+/// Draws the legend (on white at 85%, black border) at `at`.
+fn legend<'a, 'b: 'a>(chart: &mut Chart<'a, 'b>, at: SeriesLabelPosition) -> Result<(), String> {
+    chart
+        .configure_series_labels()
+        .position(at)
+        .background_style(WHITE.mix(0.85))
+        .border_style(BLACK)
+        .draw()
+        .map_err(|x| x.to_string())
 }
 
 /// One chart of latency by percentile, one line per (label, curve).
@@ -60,21 +90,9 @@ pub fn percentiles(
         .map_err(|x| e(&x))?;
     for (i, (label, c)) in lines.iter().enumerate() {
         let color = Palette99::pick(i).to_rgba();
-        chart
-            .draw_series(LineSeries::new(c.iter().cloned(), color.stroke_width(2)))
-            .map_err(|x| e(&x))?
-            .label(label.clone())
-            .legend(move |(x, y)| {
-                PathElement::new(vec![(x, y), (x + 18, y)], color.stroke_width(2))
-            });
+        line(&mut chart, c.iter().cloned(), color, label.clone())?;
     }
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperLeft)
-        .background_style(WHITE.mix(0.85))
-        .border_style(BLACK)
-        .draw()
-        .map_err(|x| e(&x))?;
+    legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
     root.present().map_err(|x| e(&x))?;
     Ok(())
 }
@@ -122,24 +140,10 @@ pub fn timeline(path: &Path, s: &Summary) -> Result<(), String> {
         ("max", |x| x.max_ms, BLACK.mix(0.5)),
     ];
     for (label, f, color) in series {
-        chart
-            .draw_series(LineSeries::new(
-                w.iter().map(|x| (x.t_s, f(x).max(lo))),
-                color.stroke_width(2),
-            ))
-            .map_err(|x| e(&x))?
-            .label(label)
-            .legend(move |(x, y)| {
-                PathElement::new(vec![(x, y), (x + 18, y)], color.stroke_width(2))
-            });
+        let points = w.iter().map(|x| (x.t_s, f(x).max(lo)));
+        line(&mut chart, points, color, label)?;
     }
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperRight)
-        .background_style(WHITE.mix(0.85))
-        .border_style(BLACK)
-        .draw()
-        .map_err(|x| e(&x))?;
+    legend(&mut chart, SeriesLabelPosition::UpperRight)?;
     root.present().map_err(|x| e(&x))?;
     Ok(())
 }

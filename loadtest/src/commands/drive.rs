@@ -42,8 +42,7 @@ pub async fn run(
                 System::Hodos
             };
             let label = format!("{}-fixed", w.kind.label());
-            let (c, d) = (ctx.s.connections, ctx.s.drain);
-            Some(ctx.drive(&label, sys, &w, rate, dur, c, d).await)
+            Some(ctx.drive(&label, sys, &w, rate, dur, ctx.s.wire()).await)
         }
     };
     let Some(sum) = sum else {

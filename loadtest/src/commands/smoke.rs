@@ -14,7 +14,7 @@ use crate::guard;
 use crate::open::{close, serve_in_process, Held};
 use crate::output::write_outputs;
 use crate::server::{self, ServerInfo};
-use crate::suite::{Ctx, Drawn, System};
+use crate::suite::{Ctx, Drawn, System, Wire};
 use anyhow::bail;
 use std::path::{Path, PathBuf};
 use std::time::Duration;
@@ -133,7 +133,10 @@ fn smoke_ctx(info: ServerInfo, d: Drawn, out: &Path) -> anyhow::Result<Ctx> {
 async fn query_runs(ctx: &mut Ctx, rate: f64, seconds: f64) {
     let dur = Duration::from_secs_f64(seconds.clamp(0.5, 60.0));
     let short = Duration::from_secs_f64((seconds / 2.0).clamp(0.5, 30.0));
-    let (c, dr) = (4, Duration::from_secs(10));
+    let wire = Wire {
+        connections: 4,
+        drain: Duration::from_secs(10),
+    };
     let w = ctx.w.clone();
     let plans = [
         ("smoke-eta", System::Hodos, &w.eta, rate, dur),
@@ -161,7 +164,7 @@ async fn query_runs(ctx: &mut Ctx, rate: f64, seconds: f64) {
         ("smoke-eta", System::Baseline, &w.eta, rate, short),
     ];
     for (name, sys, wl, r, t) in plans {
-        let s = ctx.drive(name, sys, wl, r, t, c, dr).await;
+        let s = ctx.drive(name, sys, wl, r, t, wire).await;
         ctx.runs.push(s);
     }
 }

@@ -10,7 +10,7 @@ use crate::model::Summary;
 use crate::suite::ctx::{Ctx, System};
 use crate::suite::pools::Workset;
 use crate::suite::records::{Capacity, Probe, Step};
-use crate::suite::settings::Settings;
+use crate::suite::settings::{Settings, Wire};
 use crate::workload::Workload;
 use std::time::Duration;
 
@@ -89,8 +89,12 @@ impl Ctx {
         rate: f64,
     ) -> (Summary, Option<String>) {
         let name = format!("{scenario}@{rate:.0}");
-        let (len, conns, drain) = (self.s.step, self.s.connections, Duration::from_secs(2));
-        let mut s = self.drive(&name, sys, w, rate, len, conns, drain).await;
+        let len = self.s.step;
+        let wire = Wire {
+            connections: self.s.connections,
+            drain: Duration::from_secs(2),
+        };
+        let mut s = self.drive(&name, sys, w, rate, len, wire).await;
         let mut why = self.verdict(&s);
         // Other work on a shared machine can spoil one step's tail: a
         // step that failed on its tail alone is run once more.
@@ -101,7 +105,7 @@ impl Ctx {
         {
             tokio::time::sleep(Duration::from_millis(800)).await;
             let again = format!("{name}(again)");
-            s = self.drive(&again, sys, w, rate, len, conns, drain).await;
+            s = self.drive(&again, sys, w, rate, len, wire).await;
             why = self.verdict(&s);
         }
         (s, why)

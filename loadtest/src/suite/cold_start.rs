@@ -2,7 +2,7 @@
 //! while its first metric is still being customized in the background (no
 //! quiet wait), then how long until the graph answers.
 
-use crate::suite::ctx::{Ctx, System};
+use crate::suite::ctx::Ctx;
 use std::time::Duration;
 
 impl Ctx {
@@ -11,18 +11,9 @@ impl Ctx {
     pub(crate) async fn cold_start(&mut self) {
         // Right after the server says it is ready: its first metric is
         // still being customized in the background. No quiet wait here.
-        let w = self.w.eta.clone();
         let quiet = std::mem::replace(&mut self.s.quiet_per_run, Duration::ZERO);
         let cold = self
-            .drive(
-                "cold-start-eta",
-                System::Hodos,
-                &w,
-                1000.0,
-                Duration::from_secs(3),
-                self.s.connections,
-                self.s.drain,
-            )
+            .drive_eta("cold-start-eta", 1000.0, Duration::from_secs(3))
             .await;
         self.runs.push(cold);
         self.s.quiet_per_run = quiet;

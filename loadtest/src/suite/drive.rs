@@ -13,6 +13,7 @@ use crate::report;
 use crate::server::{self, proc_stat, ProcStat};
 use crate::suite::ctx::{Ctx, System};
 use crate::suite::records::Beside;
+use crate::suite::settings::Wire;
 use crate::workload::Workload;
 use std::time::{Duration, Instant};
 
@@ -49,7 +50,6 @@ struct Alongside {
 
 impl Ctx {
     /// One run at a fixed rate; prints its row.
-    #[allow(clippy::too_many_arguments)]
     pub async fn drive(
         &mut self,
         scenario: &str,
@@ -57,14 +57,25 @@ impl Ctx {
         w: &Workload,
         rate: f64,
         duration: Duration,
-        connections: usize,
-        drain: Duration,
+        wire: Wire,
     ) -> Summary {
+        let Wire { connections, drain } = wire;
+        let plan = Plan {
+            scenario: scenario.to_string(),
+            system: sys.name().to_string(),
+            target: self.target(sys),
+            workload: w.clone(),
+            rate,
+            duration,
+            max_requests: self.s.max_requests,
+            connections,
+            request_timeout: self.s.request_timeout.max(drain),
+            drain,
+            realtime_pacer: self.s.realtime_pacer,
+        };
         let mut attempt = 0;
         loop {
-            let sum = self
-                .drive_once(scenario, sys, w, rate, duration, connections, drain)
-                .await;
+            let sum = self.drive_once(sys, &plan).await;
             let noisy = report::is_noisy(&sum);
             let row = report::table_row(&sum);
             if !noisy || attempt >= self.s.noise_retries || !self.s.retry_noisy {
@@ -79,31 +90,17 @@ impl Ctx {
         }
     }
 
-    /// One measured run (no printing, no retry).
-    #[allow(clippy::too_many_arguments)]
-    async fn drive_once(
-        &mut self,
-        scenario: &str,
-        sys: System,
-        w: &Workload,
-        rate: f64,
-        duration: Duration,
-        connections: usize,
-        drain: Duration,
-    ) -> Summary {
-        let plan = Plan {
-            scenario: scenario.to_string(),
-            system: sys.name().to_string(),
-            target: self.target(sys),
-            workload: w.clone(),
-            rate,
-            duration,
-            max_requests: self.s.max_requests,
-            connections,
-            request_timeout: self.s.request_timeout.max(drain),
-            drain,
-            realtime_pacer: self.s.realtime_pacer,
-        };
+    /// Single ETAs on hodos at `rate` for `duration`, with the ordinary
+    /// connections and drain; prints its row.
+    pub async fn drive_eta(&mut self, scenario: &str, rate: f64, duration: Duration) -> Summary {
+        let (w, wire) = (self.w.eta.clone(), self.s.wire());
+        self.drive(scenario, System::Hodos, &w, rate, duration, wire)
+            .await
+    }
+
+    /// One measured run of `plan` on `sys` (no printing, no retry).
+    async fn drive_once(&mut self, sys: System, plan: &Plan) -> Summary {
+        let (duration, drain) = (plan.duration, plan.drain);
         if !self.s.quiet_per_run.is_zero() {
             // Other work on a shared machine spoils a run: give it a
             // moment to pass (bounded), and record what was left.
@@ -118,7 +115,7 @@ impl Ctx {
         let before = Readings::now(spid, along.neighbour.as_ref());
         let la = server::loadavg_1m();
         let t0 = Instant::now();
-        let out = engine::run(&plan).await;
+        let out = engine::run(plan).await;
         let wall = t0.elapsed().as_secs_f64();
         let after = Readings::now(spid, along.neighbour.as_ref());
         let neighbour_cpu = match (before.neighbour, after.neighbour) {

@@ -4,10 +4,10 @@
 //! stale live feed: two customized metrics; then around a 100 MiB live
 //! batch, in `live_batch`).
 
-use crate::admin;
 use crate::server::{proc_stat, ProcStat};
-use crate::suite::ctx::{Ctx, System};
+use crate::suite::ctx::Ctx;
 use crate::suite::records::Memory;
+use crate::suite::stale::StalePost;
 use std::time::{Duration, Instant};
 
 /// Smallest and largest VmRSS (MB) over a sampling window, and the last
@@ -73,18 +73,8 @@ impl Ctx {
             warm.map(|d| format!("{:.2} s", d.as_secs_f64()))
                 .unwrap_or_else(|| "never".into())
         ));
-        let w = self.w.eta.clone();
-        let (c, d) = (self.s.connections, self.s.drain);
         let run = self
-            .drive(
-                "memory-eta-100k",
-                System::Hodos,
-                &w,
-                5000.0,
-                Duration::from_secs(20),
-                c,
-                d,
-            )
+            .drive_eta("memory-eta-100k", 5000.0, Duration::from_secs(20))
             .await;
         self.runs.push(run);
         self.memory_now("after 100,000 ETAs, /metrics never scraped");
@@ -97,20 +87,9 @@ impl Ctx {
     /// A stale live feed (so the live metric is customized too), then
     /// resident memory sampled for 12 s.
     async fn memory_two_metrics(&mut self) {
-        let Some(feed) = self.feed(
-            Duration::from_secs_f64(self.server.live_ttl_s + 1800.0),
-            self.s.seed ^ 0x77,
-        ) else {
+        let Some(StalePost { posted, seen, .. }) = self.post_stale(0x77).await else {
             return;
         };
-        let posted = admin::post_once(&feed).await;
-        let seen = self
-            .wait_for_tier(
-                &["historical", "free_flow"],
-                Some("live_stale"),
-                Duration::from_secs(20),
-            )
-            .await;
         let Some(pid) = self.server.pid else { return };
         let Sampled { lo, hi, last } = sample_rss(pid, Duration::from_secs(12)).await;
         if let Some(p) = last {

@@ -5,7 +5,8 @@
 //!
 //! # Layout
 //!
-//! - `settings`: the knobs shared by every scenario;
+//! - `settings`: the knobs shared by every scenario, and a run's `Wire`
+//!   (its connections and drain);
 //! - `pools`: the request pools, what is drawn from the artifact, and the
 //!   workloads the suite measures;
 //! - `records`: what the suite records (plain data, below `ctx`);
@@ -43,4 +44,4 @@ mod verdicts;
 pub use ctx::{Ctx, System};
 pub use pools::{pick, Drawn, Workloads};
 pub use records::{Goal, LiveBatch, Memory, Probe};
-pub use settings::Settings;
+pub use settings::{Settings, Wire};

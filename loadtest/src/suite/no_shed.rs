@@ -4,7 +4,7 @@
 //! shares and the neighbour's threads are in `goals`.
 
 use crate::goals::{NEIGHBOUR_SHARE_OF_CAPACITY, NEIGHBOUR_THREADS, NO_SHED_SHARE_OF_CAPACITY};
-use crate::suite::ctx::{Ctx, System};
+use crate::suite::ctx::Ctx;
 use crate::suite::records::{Beside, NoShed};
 
 impl Ctx {
@@ -15,18 +15,9 @@ impl Ctx {
             neighbour: None,
         };
         let Some(cap) = eta_cap else { return got };
-        let w = self.w.eta.clone();
-        let (len, c, d) = (self.s.steady, self.s.connections, self.s.drain);
+        let len = self.s.steady;
         let at90 = self
-            .drive(
-                "noshed-eta-90pct",
-                System::Hodos,
-                &w,
-                cap * NO_SHED_SHARE_OF_CAPACITY,
-                len,
-                c,
-                d,
-            )
+            .drive_eta("noshed-eta-90pct", cap * NO_SHED_SHARE_OF_CAPACITY, len)
             .await;
         self.runs.push(at90.clone());
         got.at90 = Some(at90);
@@ -34,15 +25,7 @@ impl Ctx {
             threads: NEIGHBOUR_THREADS,
         };
         let nb = self
-            .drive(
-                "neighbour-eta-half",
-                System::Hodos,
-                &w,
-                cap * NEIGHBOUR_SHARE_OF_CAPACITY,
-                len,
-                c,
-                d,
-            )
+            .drive_eta("neighbour-eta-half", cap * NEIGHBOUR_SHARE_OF_CAPACITY, len)
             .await;
         self.beside = Beside::Nothing;
         self.runs.push(nb.clone());

@@ -7,6 +7,7 @@ use crate::goals::OVERLOAD_MULTIPLES;
 use crate::suite::ctx::{Ctx, System};
 use crate::suite::pools::Workset;
 use crate::suite::records::{Capacity, Overload};
+use crate::suite::settings::Wire;
 use crate::workload::Workload;
 use std::time::Duration;
 
@@ -47,8 +48,10 @@ impl Ctx {
                     w,
                     rate,
                     s.overload,
-                    s.overload_connections,
-                    drain,
+                    Wire {
+                        connections: s.overload_connections,
+                        drain,
+                    },
                 )
                 .await;
             self.runs.push(sum.clone());

@@ -8,7 +8,7 @@
 
 use crate::goals::STEADY_SHARE_OF_CAPACITY;
 use crate::model::Summary;
-use crate::suite::ctx::{Ctx, System};
+use crate::suite::ctx::Ctx;
 use crate::suite::pools::Workset;
 use crate::suite::records::SuiteOutcome;
 
@@ -66,11 +66,8 @@ impl Ctx {
 
     /// A steady ETA run at `rate`, then the reload storm at the same rate.
     async fn storm_beside_steady(&mut self, rate: f64) -> (Summary, Option<Summary>) {
-        let w = self.w.eta.clone();
-        let (len, c, d) = (self.s.steady, self.s.connections, self.s.drain);
-        let pre = self
-            .drive("steady-eta-pre-storm", System::Hodos, &w, rate, len, c, d)
-            .await;
+        let len = self.s.steady;
+        let pre = self.drive_eta("steady-eta-pre-storm", rate, len).await;
         self.runs.push(pre.clone());
         let storm = self.reload_storm(rate, self.s.storm).await;
         if let Some(st) = &storm {

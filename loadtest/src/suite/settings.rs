@@ -1,6 +1,8 @@
 //! The knobs shared by every scenario: pool sizes, run lengths, the
 //! capacity-search criteria, the storm's schedule, the noise guard. Built
 //! from the command line (`cli`) or, for the smoke, from its defaults.
+//! `Wire` is the connections and drain of one run (`Settings::wire` for
+//! an ordinary one).
 
 use std::time::Duration;
 
@@ -41,4 +43,22 @@ pub struct Settings {
     pub noise_retries: u32,
     /// Whether noisy runs may be redone (off while admin streams run).
     pub retry_noisy: bool,
+}
+
+/// How one run's requests go out: over how many connections, and how long
+/// answers are awaited after the last send.
+#[derive(Debug, Clone, Copy)]
+pub struct Wire {
+    pub connections: usize,
+    pub drain: Duration,
+}
+
+impl Settings {
+    /// The connections and drain of an ordinary run.
+    pub fn wire(&self) -> Wire {
+        Wire {
+            connections: self.connections,
+            drain: self.drain,
+        }
+    }
 }

@@ -1,19 +1,31 @@
 //! The stale feed: one batch of observations stamped older than the live
 //! TTL, then ETAs at a fixed rate; answers should be historical (free-flow
-//! without a table) with reason `live_stale`.
+//! without a table) with reason `live_stale`. The post and the wait for
+//! `live_stale` answers are shared with the memory phase.
 
-use crate::admin;
+use crate::admin::{self, StreamReport};
 use crate::model::Summary;
-use crate::suite::ctx::{Ctx, System};
+use crate::suite::ctx::Ctx;
 use std::time::Duration;
 
+/// One stale batch posted, and when its answers showed.
+pub(crate) struct StalePost {
+    /// How old the observations were stamped.
+    pub ago: Duration,
+    pub posted: StreamReport,
+    /// How long until an ETA answered with reason `live_stale` (at most
+    /// 20 s).
+    pub seen: Option<Duration>,
+}
+
 impl Ctx {
-    /// Observations stamped older than the live TTL, then ETAs at `rate`:
-    /// answers should be historical (free-flow without a table) with reason
-    /// `live_stale`.
-    pub async fn stale_feed(&mut self, rate: f64, duration: Duration) -> Option<Summary> {
+    /// Posts one batch stamped 30 minutes past the live TTL (seeded with
+    /// the settings' seed ^ `salt`), then waits up to 20 s for an ETA
+    /// answered historical or free-flow with reason `live_stale`. None
+    /// without an admin listener and token.
+    pub(crate) async fn post_stale(&self, salt: u64) -> Option<StalePost> {
         let ago = Duration::from_secs_f64(self.server.live_ttl_s + 1800.0);
-        let feed = self.feed(ago, self.s.seed ^ 0x5a)?;
+        let feed = self.feed(ago, self.s.seed ^ salt)?;
         let posted = admin::post_once(&feed).await;
         let seen = self
             .wait_for_tier(
@@ -22,19 +34,16 @@ impl Ctx {
                 Duration::from_secs(20),
             )
             .await;
-        let w = self.w.eta.clone();
+        Some(StalePost { ago, posted, seen })
+    }
+
+    /// Observations stamped older than the live TTL, then ETAs at `rate`:
+    /// answers should be historical (free-flow without a table) with reason
+    /// `live_stale`.
+    pub async fn stale_feed(&mut self, rate: f64, duration: Duration) -> Option<Summary> {
+        let StalePost { ago, posted, seen } = self.post_stale(0x5a).await?;
         let retry = std::mem::replace(&mut self.s.retry_noisy, false);
-        let mut s = self
-            .drive(
-                "stale-feed",
-                System::Hodos,
-                &w,
-                rate,
-                duration,
-                self.s.connections,
-                self.s.drain,
-            )
-            .await;
+        let mut s = self.drive_eta("stale-feed", rate, duration).await;
         self.s.retry_noisy = retry;
         s.notes.push(format!(
             "posted {} observations stamped {:.0} s ago (TTL {:.0} s): {} accepted; live_stale seen after {}",

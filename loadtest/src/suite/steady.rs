@@ -27,8 +27,7 @@ impl Ctx {
                     &set.w,
                     rate,
                     s.steady,
-                    s.connections,
-                    s.drain,
+                    s.wire(),
                 )
                 .await;
             if set.name == "eta" {
@@ -41,8 +40,7 @@ impl Ctx {
                             &set.w,
                             rate,
                             s.steady,
-                            s.connections,
-                            s.drain,
+                            s.wire(),
                         )
                         .await;
                     self.runs.push(b);

@@ -8,7 +8,7 @@ use crate::admin::{self, Feed, StreamReport};
 use crate::model::Summary;
 use crate::noise::QUIET_CORES;
 use crate::server;
-use crate::suite::ctx::{Ctx, System};
+use crate::suite::ctx::Ctx;
 use bytes::Bytes;
 use std::time::{Duration, Instant};
 
@@ -89,18 +89,7 @@ impl Ctx {
             self.s.table_every,
             until,
         ));
-        let w = self.w.eta.clone();
-        let s = self
-            .drive(
-                "reload-storm",
-                System::Hodos,
-                &w,
-                rate,
-                duration,
-                self.s.connections,
-                self.s.drain,
-            )
-            .await;
+        let s = self.drive_eta("reload-storm", rate, duration).await;
         self.s.quiet_per_run = quiet;
         self.s.retry_noisy = retry;
         let live = lt.await.unwrap_or_default();
