@@ -15,33 +15,19 @@ use super::dto::{
 };
 use super::problem::ApiError;
 use super::upload::{self, BodyReader, Pumped};
-use super::{routes, AppState};
+use super::AppState;
 use axum::extract::{Path, Request, State};
 use axum::http::{header, HeaderMap};
 use axum::middleware::Next;
 use axum::response::{IntoResponse, Response};
-use axum::{Json, Router};
+use axum::Json;
 use hodos_serving::snapshot::{RegionUpdater, Reloaded, UpdateError, UpdateFailure};
 use std::sync::Arc;
 use subtle::ConstantTimeEq;
 
-/// The admin router, built from [`routes::ADMIN`].
-pub fn router(state: AppState) -> Router {
-    routes::ADMIN
-        .iter()
-        .fold(Router::new(), |r, route| {
-            r.route(route.path, route.method_router())
-        })
-        .fallback(|| async { ApiError::NotFound("no such admin endpoint".into()) })
-        .layer(axum::middleware::map_response(
-            super::problem::method_not_allowed,
-        ))
-        .layer(axum::extract::DefaultBodyLimit::disable())
-        .layer(axum::middleware::from_fn_with_state(
-            state.clone(),
-            require_token,
-        ))
-        .with_state(state)
+/// `GET /admin/openapi.json`: the document made when the state was.
+pub(super) async fn openapi_document(State(state): State<AppState>) -> Response {
+    state.docs.admin()
 }
 
 /// Constant-time bearer token check.
@@ -67,7 +53,11 @@ pub fn token_ok(headers: &HeaderMap, expected: &str) -> bool {
     given.as_bytes().ct_eq(expected.as_bytes()).into()
 }
 
-async fn require_token(State(state): State<AppState>, req: Request, next: Next) -> Response {
+pub(super) async fn require_token(
+    State(state): State<AppState>,
+    req: Request,
+    next: Next,
+) -> Response {
     if !token_ok(req.headers(), &state.settings.admin.token) {
         return ApiError::Unauthorized.into_response();
     }

@@ -6,7 +6,7 @@ use super::dto::{
     MatrixResponse, ReadyResponse, RegionReadiness, RouteResponse, Trip,
 };
 use super::problem::ApiError;
-use super::routes;
+use super::table as routes;
 use super::{AnswerLabels, AppState};
 use axum::body::Bytes;
 use axum::extract::{Request, State};
@@ -187,8 +187,9 @@ pub async fn metrics_text(State(state): State<AppState>) -> impl IntoResponse {
     )
 }
 
-pub async fn openapi() -> impl IntoResponse {
-    Json(super::openapi::document())
+/// `GET /openapi.json`: the document made when the state was.
+pub async fn openapi(State(state): State<AppState>) -> Response {
+    state.docs.public()
 }
 
 pub async fn not_found() -> Response {

@@ -17,7 +17,8 @@
 //!
 //! # Layout
 //!
-//! - [`routes`]: the route table (routers, metric labels, OpenAPI paths).
+//! - [`routes`]: the route table (routers, metric labels, OpenAPI paths);
+//!   `table`: its types and the answer templates.
 //! - [`handlers`]: public handlers; [`admin`]: admin handlers and token.
 //! - [`dto`]: request and response shapes, conversions from serving types.
 //! - [`openapi`]: the OpenAPI document; [`problem`]: RFC 9457 errors.
@@ -38,6 +39,7 @@ pub mod openapi;
 pub mod problem;
 pub mod routes;
 pub mod settings;
+mod table;
 pub mod trips;
 pub mod upload;
 
@@ -63,6 +65,8 @@ pub struct AppState {
     /// The `[server]` and `[admin]` sections (body limits, drain, token).
     pub settings: Arc<settings::Settings>,
     pub prometheus: PrometheusHandle,
+    /// Both OpenAPI documents, made once from the route table.
+    pub docs: Arc<openapi::Documents>,
 }
 
 impl AppState {
@@ -87,6 +91,7 @@ impl AppState {
             service,
             settings: Arc::new(settings),
             prometheus,
+            docs: Arc::new(openapi::Documents::new(routes::PUBLIC, routes::ADMIN)),
         }
     }
 }
@@ -160,10 +165,23 @@ fn ms(v: u64) -> std::time::Duration {
 /// The admin router (bearer token on every route).
 pub fn admin_app(state: AppState) -> Router {
     let limit = body_deadline::BodyTimeout(ms(state.settings.admin.body_timeout_ms));
-    admin::router(state).layer(axum::middleware::from_fn_with_state(
-        limit,
-        body_deadline::body_deadline,
-    ))
+    routes::ADMIN
+        .iter()
+        .fold(Router::new(), |r, route| {
+            r.route(route.path, route.method_router())
+        })
+        .fallback(|| async { problem::ApiError::NotFound("no such admin endpoint".into()) })
+        .layer(axum::middleware::map_response(problem::method_not_allowed))
+        .layer(axum::extract::DefaultBodyLimit::disable())
+        .layer(axum::middleware::from_fn_with_state(
+            state.clone(),
+            admin::require_token,
+        ))
+        .with_state(state)
+        .layer(axum::middleware::from_fn_with_state(
+            limit,
+            body_deadline::body_deadline,
+        ))
 }
 
 /// Runs both listeners (and the exporter's upkeep) until `shutdown`

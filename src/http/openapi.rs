@@ -4,7 +4,8 @@
 //! admin route). Written by hand next to the DTOs they describe: one
 //! Operation Object per table operation (the functions below, named in
 //! [`super::routes`]), and the component schemas. [`document`] takes its
-//! `paths` from [`PUBLIC`] and [`admin_document`] from [`ADMIN`], so each
+//! `paths` from the public table and [`admin_document`] from the admin one
+//! (given by the caller, so this module never names the table), so each
 //! lists exactly what its router serves; `tests/routes.rs` checks that
 //! from outside, and `tests/service_api.rs` runs an external validator on
 //! the result.
@@ -14,7 +15,7 @@
 //! where it was fetched (OpenAPI 3.1 §4.8.1), which is the right listener.
 
 use super::dto::request::{BUDGET_MAX, QUERY_COORD_PATTERN};
-use super::routes::{Route, ADMIN, PUBLIC};
+use super::table::Route;
 use serde_json::{json, Map, Value};
 
 fn problem_response(desc: &str) -> Value {
@@ -159,11 +160,6 @@ pub fn admin_openapi() -> Value {
                       "401": problem_response("Missing or wrong token")}})
 }
 
-/// `GET /admin/openapi.json`.
-pub async fn serve_admin_document() -> axum::Json<Value> {
-    axum::Json(admin_document())
-}
-
 pub fn admin_status() -> Value {
     json!({"operationId": "adminStatus", "summary": "Per-region snapshot generation, data ages, last reload outcome", "security": admin_auth(),
         "responses": {"200": json_response("Status", "StatusResponse"), "401": problem_response("Missing or wrong token")}})
@@ -236,8 +232,9 @@ fn paths(tables: &[&[Route]]) -> Value {
 
 const LICENSE: &str = "MIT OR Apache-2.0";
 
-/// The public API's document.
-pub fn document() -> Value {
+/// The public API's document, its paths from `public` (the table
+/// [`super::routes::PUBLIC`]).
+pub fn document(public: &[Route]) -> Value {
     json!({
         "openapi": "3.1.0",
         "info": {
@@ -246,14 +243,14 @@ pub fn document() -> Value {
             "description": "Travel times (ETAs), matrices and routes over road graphs, with live, historical, free-flow and heuristic tiers and the share of each answer's time on each speed source. Every valid request gets an answer that says which tier produced it and why. Estimates only: see the README's cautions.",
             "license": {"name": LICENSE, "identifier": LICENSE}
         },
-        "paths": paths(&[PUBLIC]),
+        "paths": paths(&[public]),
         "components": {"schemas": schemas()}
     })
 }
 
 /// The admin API's document (its own listener; every operation needs the
-/// bearer token).
-pub fn admin_document() -> Value {
+/// bearer token), its paths from `admin` ([`super::routes::ADMIN`]).
+pub fn admin_document(admin: &[Route]) -> Value {
     json!({
         "openapi": "3.1.0",
         "info": {
@@ -263,7 +260,7 @@ pub fn admin_document() -> Value {
             "license": {"name": LICENSE, "identifier": LICENSE}
         },
         "security": admin_auth(),
-        "paths": paths(&[ADMIN]),
+        "paths": paths(&[admin]),
         "components": {
             "securitySchemes": {"adminToken": {"type": "http", "scheme": "bearer"}},
             "schemas": schemas()
@@ -429,4 +426,39 @@ fn schemas() -> Value {
                            "field": {"type": "string"}, "rule": {"type": "string"},
                            "report": {"$ref": "#/components/schemas/TableReport", "description": "a rejected table's validation report; absent when it was refused before rows were read"}}}
     })
+}
+
+/// Both documents, serialized once when the state is made: the handlers of
+/// `/openapi.json` and `/admin/openapi.json` answer these bytes.
+#[derive(Debug)]
+pub struct Documents {
+    public: axum::body::Bytes,
+    admin: axum::body::Bytes,
+}
+
+impl Documents {
+    /// The documents of the tables `public` and `admin`.
+    pub fn new(public: &[Route], admin: &[Route]) -> Self {
+        let bytes =
+            |v: Value| axum::body::Bytes::from(serde_json::to_vec(&v).expect("a JSON value"));
+        Documents {
+            public: bytes(document(public)),
+            admin: bytes(admin_document(admin)),
+        }
+    }
+
+    /// The public document as a response (`application/json`).
+    pub fn public(&self) -> axum::response::Response {
+        json_bytes(self.public.clone())
+    }
+
+    /// The admin document as a response (`application/json`).
+    pub fn admin(&self) -> axum::response::Response {
+        json_bytes(self.admin.clone())
+    }
+}
+
+fn json_bytes(b: axum::body::Bytes) -> axum::response::Response {
+    use axum::response::IntoResponse;
+    ([(axum::http::header::CONTENT_TYPE, "application/json")], b).into_response()
 }
