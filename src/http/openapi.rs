@@ -5,8 +5,8 @@
 //! Operation Object per table operation (the functions below, named in
 //! [`super::routes`]), and the component schemas. [`document`] takes its
 //! `paths` from [`PUBLIC`] and [`admin_document`] from [`ADMIN`], so each
-//! lists exactly what its router serves; `tests/routes.rs` checks that
-//! from outside, and `tests/service_api.rs` runs an external validator on
+//! lists exactly what its router serves; `tests/service/routes.rs` checks that
+//! from outside, and `tests/service/service_api.rs` runs an external validator on
 //! the result.
 //!
 //! Neither document has `servers`: the listeners are configured

@@ -12,7 +12,7 @@
 //! - [`super::openapi::document`] builds its `paths` from [`PUBLIC`],
 //!   [`super::openapi::admin_document`] from [`ADMIN`].
 //!
-//! `tests/routes.rs` checks the three against one another from outside:
+//! `tests/service/routes.rs` checks the three against one another from outside:
 //! the served document, the router's answers and `Allow` headers, and the
 //! scraped metric labels.
 

@@ -11,12 +11,10 @@ pub fn available() -> bool {
     if Path::new(CHROMIUM).exists() {
         return true;
     }
-    let required = std::env::var("HODOS_REQUIRE_CHROMIUM").is_ok_and(|v| v == "1");
-    assert!(
-        !required,
-        "{CHROMIUM} is required here (HODOS_REQUIRE_CHROMIUM=1)"
+    crate::skipped_unless_required(
+        "HODOS_REQUIRE_CHROMIUM",
+        format!("{CHROMIUM} not installed"),
     );
-    hodos_testkit::skipped(format!("{CHROMIUM} not installed"));
     false
 }
 

@@ -10,9 +10,7 @@
 //! would miss its own budget), never a timing, except the upper bound on
 //! a shed answer's latency, which has seconds of slack.
 
-mod common;
-
-use common::service::{at, city, config_text};
+use hodos_test_service::service::{at, city, config_text};
 use serde_json::{json, Value};
 use std::io::{BufRead, BufReader, Write};
 use std::net::{SocketAddr, TcpStream};

@@ -134,8 +134,25 @@ fn bad_inputs_exit_non_zero_naming_the_file() {
     assert!(!ok);
     assert!(err.contains("bad.gr:4"), "names file and line: {err}");
 
-    // (An extract with no drivable road is checked in tests/osm_import.rs,
-    // which can write a well-formed PBF.) A damaged artifact:
+    // An extract with no drivable road (a well-formed PBF: hodos-engine's
+    // osm_import test reads the same fixture back with osmpbf) exits
+    // non-zero with the library's message.
+    let no_roads = d("paths-only.osm.pbf");
+    std::fs::write(&no_roads, hodos_test_support::osm_pbf::without_roads()).unwrap();
+    let (ok, _, err) = hodos(&[
+        "build",
+        "--osm",
+        no_roads.to_str().unwrap(),
+        "--out",
+        d("x.hodos").to_str().unwrap(),
+    ]);
+    assert!(!ok);
+    assert!(
+        err.contains("paths-only.osm.pbf") && err.contains("no drivable road"),
+        "{err}"
+    );
+
+    // A damaged artifact:
     let (ok, _, err) = hodos(&["build", "--synthetic", "2000", "--out", out]);
     assert!(ok, "{err}");
     let mut art = std::fs::read(out).unwrap();

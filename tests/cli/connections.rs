@@ -13,9 +13,7 @@
 //! Every wait is bounded; timings are asserted only as "within the timeout
 //! plus slack", never as speed goals.
 
-mod common;
-
-use common::service::{at, city, config_text};
+use hodos_test_service::service::{at, city, config_text};
 use serde_json::{json, Value};
 use std::io::{BufRead, BufReader, Read};
 use std::net::SocketAddr;

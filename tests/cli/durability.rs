@@ -9,10 +9,8 @@
 //! here), the CRC-32 of the table bytes (the published CRC-32/ISO-HDLC, as
 //! `crc32fast` computes it) and counts of what the test itself posted.
 
-mod common;
-
-use common::service::{city, config_text, TOKEN};
-use common::tables::every_edge_at_ten;
+use hodos_test_service::service::{city, config_text, TOKEN};
+use hodos_test_service::tables::every_edge_at_ten;
 use hodos_testkit::observation;
 use serde_json::Value;
 use std::io::{BufRead, BufReader};
@@ -447,7 +445,7 @@ async fn newer_of_configured_file_and_upload_serves() {
     // A bad edit of the configured file: refused, the other candidate (the
     // earlier upload) serves and the region reports itself degraded.
     std::thread::sleep(Duration::from_millis(20));
-    std::fs::write(&configured, common::tables::corrupt()).unwrap();
+    std::fs::write(&configured, hodos_test_service::tables::corrupt()).unwrap();
     p.reload().await;
     let s = p.status().await;
     assert_eq!(s["historical_version"], version_of(tb.as_bytes()), "{s}");
@@ -562,15 +560,15 @@ async fn damaged_saved_table_is_refused_loudly() {
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn readiness_reports_loading_until_loaded() {
     let dir = tempfile::tempdir().unwrap();
-    let st = hodos::http::AppState::unloaded(common::service::config(dir.path(), ""));
+    let st = hodos::http::AppState::unloaded(hodos_test_service::service::config(dir.path(), ""));
     let a = hodos::http::app(st.clone());
-    let r = common::http::send(&a, "GET", "/readyz", None, vec![], None).await;
+    let r = hodos_test_service::http::send(&a, "GET", "/readyz", None, vec![], None).await;
     assert_eq!(r.status, 503, "{}", r.text);
     assert_eq!(r.json()["regions"][0]["state"], "loading");
-    let h = common::http::send(&a, "GET", "/healthz", None, vec![], None).await;
+    let h = hodos_test_service::http::send(&a, "GET", "/healthz", None, vec![], None).await;
     assert_eq!(h.status, 200);
     st.load_regions().await;
-    let r = common::http::send(&a, "GET", "/readyz", None, vec![], None).await;
+    let r = hodos_test_service::http::send(&a, "GET", "/readyz", None, vec![], None).await;
     assert_eq!(r.status, 200, "{}", r.text);
     assert_eq!(r.json()["regions"][0]["state"], "serving");
     assert_eq!(r.json()["status"], "ready");

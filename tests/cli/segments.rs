@@ -9,12 +9,10 @@
 //!   four, so each must agree with the graph) is accepted whole by a speed
 //!   table upload: 0 rows refused.
 
-mod common;
-
-use common::service::city;
 use hodos::engine::artifact::Artifact;
 use hodos::serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
 use hodos::serving::snapshot::{RegionHandle, UpdateSettings};
+use hodos_test_service::service::city;
 use std::fmt::Write as _;
 use std::process::Command;
 

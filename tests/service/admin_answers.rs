@@ -3,14 +3,12 @@
 //! that fail, empty live batches, and a refused file in the watched folder
 //! being logged. Through the in-process routers with `oneshot`.
 
-mod common;
-
 use axum::body::Body;
 use axum::http::Request;
-use common::http::send;
-use common::service::{at, city, config_text, TOKEN};
 use hodos::config::Config;
 use hodos::http::{admin_app, app, AppState};
+use hodos_test_service::http::send;
+use hodos_test_service::service::{at, city, config_text, TOKEN};
 use hodos_testkit::LiveCsv;
 use serde_json::json;
 use std::path::Path;
@@ -56,7 +54,7 @@ async fn uploads_to_a_region_without_graph_say_why() {
     let broken = dir.path().join("broken.hodos");
     std::fs::write(&broken, b"not an artifact").unwrap();
     let admin = admin_app(open(&broken, &dir.path().join("s"), "").await);
-    let live = serde_json::to_vec(&common::tables::observations(
+    let live = serde_json::to_vec(&hodos_test_service::tables::observations(
         3,
         20.0,
         &chrono::Utc::now().to_rfc3339(),
@@ -68,7 +66,7 @@ async fn uploads_to_a_region_without_graph_say_why() {
             "PUT",
             "/admin/regions/testcity/historical",
             "text/csv",
-            common::tables::every_edge_at_ten(20.0).into_bytes(),
+            hodos_test_service::tables::every_edge_at_ten(20.0).into_bytes(),
         ),
         (
             "POST",
@@ -108,7 +106,11 @@ async fn failed_reloads_answer_an_error_status() {
     let artifact = dir.path().join("city.hodos");
     std::fs::copy(&city().artifact, &artifact).unwrap();
     let configured = dir.path().join("historical.csv");
-    std::fs::write(&configured, common::tables::every_edge_at_ten(20.0)).unwrap();
+    std::fs::write(
+        &configured,
+        hodos_test_service::tables::every_edge_at_ten(20.0),
+    )
+    .unwrap();
     let st = open(
         &artifact,
         &dir.path().join("s"),
@@ -139,7 +141,7 @@ async fn failed_reloads_answer_an_error_status() {
 
     // Every historical candidate refused: 422, the table serving stays.
     std::thread::sleep(std::time::Duration::from_millis(20));
-    std::fs::write(&configured, common::tables::corrupt()).unwrap();
+    std::fs::write(&configured, hodos_test_service::tables::corrupt()).unwrap();
     let r = reload().await;
     assert_eq!(r.status, 422, "{}", r.text);
     assert_eq!(r.content_type, "application/problem+json");

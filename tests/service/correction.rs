@@ -14,17 +14,15 @@
 //!   the model before it keeps serving; the accepted model survives a
 //!   restart; a region configured with `model = ...` starts with it.
 
-mod common;
-
-use common::running::{client, start, Running};
-use common::service::{at, city, config_text, TOKEN};
-use common::SplitMix64;
 use hodos::learn::train::{booster_predict, conformal, fit_booster, forest_of, TrainOptions};
 use hodos::serving::correction::features::{N, NAMES};
 use hodos::serving::correction::file;
 use hodos::serving::correction::model::{
     Compiled, CorrectionModel, Forest, Interval, ModelMeta, Node,
 };
+use hodos_test_service::running::{client, start, Running};
+use hodos_test_service::service::{at, city, config_text, TOKEN};
+use hodos_test_support::SplitMix64;
 use serde_json::{json, Value};
 
 /// A uniform draw in [0, 1) (the top 53 bits).
@@ -357,6 +355,13 @@ async fn the_service_applies_swaps_refuses_and_keeps_models() {
 /// the answer), and the histograms' sums and counts are those multiples.
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn posted_trips_are_answered_and_their_error_recorded() {
+    // Reads the process-wide metrics: alone in a child process.
+    if !hodos_testkit::child::alone(
+        module_path!(),
+        "posted_trips_are_answered_and_their_error_recorded",
+    ) {
+        return;
+    }
     let dir = tempfile::tempdir().unwrap();
     let s = start(&config_text(
         &city().artifact,

@@ -14,17 +14,15 @@
 //! (`metric::travel_ms`: length × 3600 / speed, rounded to the
 //! millisecond).
 
-mod common;
-
-use common::graphs::distinct_nodes;
-use common::http::send;
-use common::service::TOKEN;
-use common::{dimacs_ny, petgraph_of, reference_dists, write, SplitMix64};
 use hodos::engine::build::{build, Quiet, Source};
 use hodos::engine::graph::RoadGraph;
 use hodos::engine::metric::{free_flow, from_speeds};
 use hodos::http::{admin_app, app, AppState};
+use hodos_test_service::http::send;
+use hodos_test_service::service::TOKEN;
+use hodos_test_support::graphs::distinct_nodes;
 use hodos_test_support::region_table;
+use hodos_test_support::{dimacs_ny, petgraph_of, reference_dists, write, SplitMix64};
 use hodos_testkit::HistoricalCsv;
 use serde_json::{json, Value};
 use std::collections::HashMap;

@@ -11,10 +11,8 @@
 //! `hodos:*` recording a panel uses must be recorded by the rules. The
 //! rules' own syntax and alerts are checked by promtool in `.ci/run`.
 
-mod common;
-
-use common::running::{client, start};
-use common::service::{at, city, config_text, TOKEN};
+use hodos_test_service::running::{client, start};
+use hodos_test_service::service::{at, city, config_text, TOKEN};
 use serde_json::{json, Value};
 use std::collections::BTreeSet;
 use std::time::Duration;
@@ -41,6 +39,10 @@ fn root(p: &str) -> std::path::PathBuf {
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn rules_and_dashboard_name_exported_series() {
+    // Reads the process-wide metrics: alone in a child process.
+    if !hodos_testkit::child::alone(module_path!(), "rules_and_dashboard_name_exported_series") {
+        return;
+    }
     let dir = tempfile::tempdir().unwrap();
     let server = start(&config_text(
         &city().artifact,

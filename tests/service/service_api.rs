@@ -4,13 +4,11 @@
 //! Prometheus text (prometheus-parse), GeoJSON (geojson crate, RFC 7946),
 //! OpenAPI 3.1 (openapi-spec-validator, PyPI, when installed).
 
-mod common;
-
 use axum::Router;
-use common::http::{send, Resp};
-use common::service::{at, city, config, TOKEN};
-use common::tables;
 use hodos::http::{admin_app, app, AppState};
+use hodos_test_service::http::{send, Resp};
+use hodos_test_service::service::{at, city, config, TOKEN};
+use hodos_test_service::tables;
 use hodos_testkit::{HistoricalCsv, LiveCsv};
 use serde_json::{json, Value};
 
@@ -401,7 +399,7 @@ async fn every_tier_and_reason() {
     // artifact file keeps the loaded graph, so the file is touched first.)
     std::fs::File::options()
         .write(true)
-        .open(&common::service::city().artifact)
+        .open(&hodos_test_service::service::city().artifact)
         .unwrap()
         .set_modified(std::time::SystemTime::now())
         .unwrap();
@@ -630,7 +628,7 @@ async fn unreachable_pair_and_degraded_region() {
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("islands.hodos");
     art.save(&path).unwrap();
-    let text = common::service::config_text(&path, &dir.path().join("state"), "");
+    let text = hodos_test_service::service::config_text(&path, &dir.path().join("state"), "");
     let st = AppState::open(hodos::config::Config::parse(&text).unwrap()).await;
     let a = app(st);
     let (p, q) = (g.node_pos(5), g.node_pos(150));
@@ -647,7 +645,7 @@ async fn unreachable_pair_and_degraded_region() {
     // answers with region_unavailable; readiness names it.
     let broken = dir.path().join("broken.hodos");
     std::fs::write(&broken, b"not an artifact").unwrap();
-    let text = common::service::config_text(&broken, &dir.path().join("state2"), "");
+    let text = hodos_test_service::service::config_text(&broken, &dir.path().join("state2"), "");
     let st = AppState::open(hodos::config::Config::parse(&text).unwrap()).await;
     assert_eq!(st.degraded().len(), 1);
     let a = app(st);
@@ -720,6 +718,13 @@ async fn admin_requires_the_token() {
 
 #[tokio::test]
 async fn rejected_table_is_reported_and_never_served() {
+    // Reads the process-wide metrics: alone in a child process.
+    if !hodos_testkit::child::alone(
+        module_path!(),
+        "rejected_table_is_reported_and_never_served",
+    ) {
+        return;
+    }
     let (st, _d) = state("").await;
     let admin = admin_app(st.clone());
     let c = city();
@@ -767,6 +772,13 @@ async fn rejected_table_is_reported_and_never_served() {
 
 #[tokio::test]
 async fn metrics_geojson_and_openapi_parse_with_outside_tools() {
+    // Reads the process-wide metrics: alone in a child process.
+    if !hodos_testkit::child::alone(
+        module_path!(),
+        "metrics_geojson_and_openapi_parse_with_outside_tools",
+    ) {
+        return;
+    }
     let (st, _d) = state("").await;
     let a = app(st.clone());
     let admin = admin_app(st);

@@ -3,11 +3,9 @@
 //! live updates reaching answers, restart recovery from disk, and graceful
 //! shutdown. Every loop here is bounded in count and time.
 
-mod common;
-
-use common::service::{at, config, TOKEN};
-use common::tables;
 use hodos::http::{bind, serve, AppState};
+use hodos_test_service::service::{at, config, TOKEN};
+use hodos_test_service::tables;
 use serde_json::{json, Value};
 use std::net::SocketAddr;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};

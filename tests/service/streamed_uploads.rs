@@ -13,11 +13,9 @@
 //! round through the E segments, so every row after the first round is
 //! superseded; bad rows at chosen positions.
 
-mod common;
-
-use common::service::{city, config_text, TOKEN};
 use hodos::config::Config;
 use hodos::http::{bind, serve, AppState};
+use hodos_test_service::service::{city, config_text, TOKEN};
 use serde_json::{json, Value};
 use std::net::SocketAddr;
 use std::time::Duration;
@@ -372,7 +370,7 @@ async fn batch_over_the_limit_gets_413_and_changes_nothing() {
 async fn historical_table_streamed_in_chunks() {
     let dir = tempfile::tempdir().unwrap();
     let srv = start(dir.path()).await;
-    let table = common::tables::every_edge_at_ten(27.0);
+    let table = hodos_test_service::tables::every_edge_at_ten(27.0);
     let (status, text) = srv
         .post_chunked_put("/admin/regions/testcity/historical", table.as_bytes())
         .await;

@@ -1,7 +1,7 @@
 //! The shared NYC TLC trip sample answered on USA-road-d.NY: the artifact
 //! built from the DIMACS files (free-flow at the importer's default speed),
 //! every trip of the four monthly files replayed at its departure with no
-//! historical table and no model. What `tests/correction_ny.rs` and
+//! historical table and no model. What `hodos-learn`'s `correction_ny` test and
 //! `examples/train_sweep.rs` train and measure on.
 
 use hodos_engine::build::{build_from_graph, Quiet};

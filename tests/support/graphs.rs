@@ -2,14 +2,14 @@
 //! built on it, irregular grids and their hierarchies, points sampled in a
 //! bounding box, random metrics and a field-by-field graph comparison.
 
-use super::SplitMix64;
-use hodos::engine::build::{build, Quiet, Source};
-use hodos::engine::cch::{Cch, CchQuery};
-use hodos::engine::geo::{LatLon, LocalProjection};
-use hodos::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
-use hodos::engine::order::{nested_dissection, UndirectedGraph};
-use hodos::engine::region::{Metric, Region};
+use hodos_engine::build::{build, Quiet, Source};
+use hodos_engine::cch::{Cch, CchQuery};
+use hodos_engine::geo::{LatLon, LocalProjection};
+use hodos_engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
+use hodos_engine::order::{nested_dissection, UndirectedGraph};
+use hodos_engine::region::{Metric, Region};
 use hodos_testkit::ReferenceGraph;
+use hodos_testkit::SplitMix64;
 
 /// A region built from `source` (artifact built in memory).
 pub fn region_of(source: Source) -> Region {

@@ -2,8 +2,8 @@
 //! wrong version, a flipped payload bit and every truncation are rejected
 //! with their own clear error (never a panic).
 
-use hodos::engine::artifact::{Artifact, ArtifactError};
-use hodos::engine::build::{build, Quiet, Source};
+use hodos_engine::artifact::{Artifact, ArtifactError};
+use hodos_engine::build::{build, Quiet, Source};
 
 #[test]
 fn round_trip_and_every_kind_of_damage() {

@@ -8,17 +8,17 @@
 //! tests/data (attribution in tests/data/SOURCES.md) and on the synthetic
 //! city with its one-way streets.
 
-mod common;
-
-use common::graphs::{distinct_nodes, region_of};
-use common::{dimacs_ny, fixture, petgraph_of, random_speeds, reference_dists, SplitMix64};
-use hodos::engine::build::{build_from_graph, Quiet, Source};
-use hodos::engine::cch::matrix::ManyToMany;
-use hodos::engine::cch::CchQuery;
-use hodos::engine::geo::haversine_m;
-use hodos::engine::import::dimacs;
-use hodos::engine::region::matrix::{matrix, Cell, MatrixLimits, PointMatrix};
-use hodos::engine::region::{EtaError, Metric, Region};
+use hodos_engine::build::{build_from_graph, Quiet, Source};
+use hodos_engine::cch::matrix::ManyToMany;
+use hodos_engine::cch::CchQuery;
+use hodos_engine::geo::haversine_m;
+use hodos_engine::import::dimacs;
+use hodos_engine::region::matrix::{matrix, Cell, MatrixLimits, PointMatrix};
+use hodos_engine::region::{EtaError, Metric, Region};
+use hodos_test_support::graphs::{distinct_nodes, region_of};
+use hodos_test_support::{
+    dimacs_ny, fixture, petgraph_of, random_speeds, reference_dists, SplitMix64,
+};
 
 /// `sources × targets` random node pairs: `Region::eta` between the nodes'
 /// coordinates against petgraph's Dijkstra between the nodes; `Region::route`
@@ -143,7 +143,7 @@ fn check(region: &Region, pairs: (usize, usize), label: &str) {
     );
     check_matrix(region, &ff, &nodes, 25, 32, &format!("{label} free-flow"));
     let speeds = random_speeds(&region.graph, 33);
-    let slow = region.metric(hodos::engine::metric::from_speeds(&region.graph, &speeds));
+    let slow = region.metric(hodos_engine::metric::from_speeds(&region.graph, &speeds));
     let l = format!("{label} random speeds");
     check_eta(region, &slow, &nodes, pairs, 34, &l);
     check_matrix(region, &slow, &nodes, 25, 35, &l);
@@ -178,7 +178,7 @@ fn synthetic_city_node_coordinates_match_dijkstra() {
     });
     let g = &region.graph;
     let one_way = (0..g.num_edges())
-        .filter(|&e| g.edge_twin[e] == hodos::engine::graph::NONE)
+        .filter(|&e| g.edge_twin[e] == hodos_engine::graph::NONE)
         .count();
     assert!(one_way > 100, "the city has one-way streets ({one_way})");
     check(&region, (20, 25), "synthetic");

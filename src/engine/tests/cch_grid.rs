@@ -2,12 +2,10 @@
 //! (the reference implementation). Fast; exercises one-way arcs and parallel
 //! edges that the real-data checks may not hit.
 
-mod common;
-
-use common::graphs::{add_link, grid_nodes, hierarchy, Link};
-use common::{petgraph_of, reference_dists, SplitMix64};
-use hodos::engine::cch::{customize::CustomizedMetric, CchQuery};
-use hodos::engine::graph::{GraphBuilder, RoadGraph};
+use hodos_engine::cch::{customize::CustomizedMetric, CchQuery};
+use hodos_engine::graph::{GraphBuilder, RoadGraph};
+use hodos_test_support::graphs::{add_link, grid_nodes, hierarchy, Link};
+use hodos_test_support::{petgraph_of, reference_dists, SplitMix64};
 
 fn grid(w: u32, h: u32, seed: u64) -> RoadGraph {
     let mut rng = SplitMix64::new(seed);
@@ -47,7 +45,7 @@ fn grid_queries_equal_petgraph_dijkstra() {
     for (w, h, seed) in [(5, 4, 1), (30, 20, 2), (60, 50, 3)] {
         let g = grid(w, h, seed);
         let cch = hierarchy(&g);
-        let weights = hodos::engine::metric::free_flow(&g);
+        let weights = hodos_engine::metric::free_flow(&g);
         let metric = CustomizedMetric::new(&cch, &weights, &g.edge_len_m);
         let pg = petgraph_of(&g, &weights);
         let mut q = CchQuery::new(&cch);

@@ -6,13 +6,11 @@
 //! `../shared/data/dimacs` next to the crate) and print `SKIPPED: <why>` and
 //! pass when the files are absent.
 
-mod common;
-
-use common::graphs::assert_same_graph;
-use common::write;
-use hodos::engine::geo::{haversine_m, LatLon};
-use hodos::engine::graph::{RoadClass, NONE};
-use hodos::engine::import::{dimacs, ImportError};
+use hodos_engine::geo::{haversine_m, LatLon};
+use hodos_engine::graph::{RoadClass, NONE};
+use hodos_engine::import::{dimacs, ImportError};
+use hodos_test_support::graphs::assert_same_graph;
+use hodos_test_support::write;
 use hodos_testkit::{skipped, DimacsNy};
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -24,7 +22,7 @@ use std::sync::OnceLock;
 
 /// Shared NY distance graph and its raw arcs, loaded once per test binary.
 struct Ny {
-    graph: hodos::engine::graph::RoadGraph,
+    graph: hodos_engine::graph::RoadGraph,
     arcs: Vec<(u32, u32, u32)>,
     dir: PathBuf,
 }

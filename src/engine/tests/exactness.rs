@@ -5,14 +5,14 @@
 //! without rebuilding. Also snapped, mid-edge queries against a reference
 //! assembled from petgraph distances.
 
-mod common;
-
-use common::graphs::{point_in_box, region_of};
-use common::{assert_exact, fixture, petgraph_of, random_speeds, reference_dists, SplitMix64};
-use hodos::engine::build::Source;
-use hodos::engine::cch::CchQuery;
-use hodos::engine::graph::NONE;
-use hodos::engine::region::Region;
+use hodos_engine::build::Source;
+use hodos_engine::cch::CchQuery;
+use hodos_engine::graph::NONE;
+use hodos_engine::region::Region;
+use hodos_test_support::graphs::{point_in_box, region_of};
+use hodos_test_support::{
+    assert_exact, fixture, petgraph_of, random_speeds, reference_dists, SplitMix64,
+};
 
 fn check(region: &Region, label: &str) {
     let ff = region.free_flow();
@@ -20,7 +20,7 @@ fn check(region: &Region, label: &str) {
     let n = assert_exact(region, &ff, 20, 60, 11, &format!("{label} free-flow"));
     assert!(n >= 1000);
     let speeds = random_speeds(&region.graph, 99);
-    let second = region.metric(hodos::engine::metric::from_speeds(&region.graph, &speeds));
+    let second = region.metric(hodos_engine::metric::from_speeds(&region.graph, &speeds));
     let n = assert_exact(
         region,
         &second,
@@ -36,7 +36,7 @@ fn check(region: &Region, label: &str) {
 /// Snapped queries: the answer equals the best of (partial edge + Dijkstra
 /// distance + partial edge) over the ways out of the origin's road and into
 /// the destination's road, or the direct stretch along one road.
-fn check_snapped(region: &Region, metric: &hodos::engine::region::Metric, label: &str) {
+fn check_snapped(region: &Region, metric: &hodos_engine::region::Metric, label: &str) {
     let g = &region.graph;
     let pg = petgraph_of(g, &metric.weights);
     let mut q = CchQuery::new(&region.cch);
@@ -88,8 +88,8 @@ fn check_snapped(region: &Region, metric: &hodos::engine::region::Metric, label:
 /// `e`: (node, partial cost in ms). A point exactly at the node a one-way
 /// road leaves (origin) or enters (destination) is that node, at no cost.
 fn ways(
-    g: &hodos::engine::graph::RoadGraph,
-    m: &hodos::engine::region::Metric,
+    g: &hodos_engine::graph::RoadGraph,
+    m: &hodos_engine::region::Metric,
     e: u32,
     t: f64,
     origin: bool,

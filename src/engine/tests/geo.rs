@@ -2,11 +2,9 @@
 //! implementation of Karney, "Algorithms for geodesics", J. Geodesy 2013),
 //! and against a published worked example.
 
-mod common;
-
-use common::SplitMix64;
 use geographiclib_rs::{Geodesic, InverseGeodesic};
-use hodos::engine::geo::{haversine_m, haversine_with_radius, LatLon};
+use hodos_engine::geo::{haversine_m, haversine_with_radius, LatLon};
+use hodos_test_support::SplitMix64;
 
 #[test]
 fn haversine_within_half_percent_of_ellipsoidal_geodesic() {

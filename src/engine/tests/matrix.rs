@@ -14,19 +14,19 @@
 //!   including off-network points and trips along one road.
 //! - Deadlines: a passed deadline computes no row and does not panic.
 
-mod common;
-
-use common::graphs::{add_link, grid_nodes, hierarchy, point_in_box, region_of, Link};
-use common::{dimacs_ny, fixture, petgraph_of, random_speeds, reference_dists, SplitMix64};
-use hodos::engine::build::{build_from_graph, Quiet, Source};
-use hodos::engine::cch::customize::{CustomizedMetric, INFINITY};
-use hodos::engine::cch::matrix::{ManyToMany, MatrixError, NodeCells};
-use hodos::engine::cch::query::Endpoint;
-use hodos::engine::cch::{Cch, CchQuery};
-use hodos::engine::geo::LatLon;
-use hodos::engine::graph::{RoadGraph, NONE};
-use hodos::engine::region::matrix::{matrix, Cell, MatrixLimits, PointMatrix};
-use hodos::engine::region::{Metric, Region};
+use hodos_engine::build::{build_from_graph, Quiet, Source};
+use hodos_engine::cch::customize::{CustomizedMetric, INFINITY};
+use hodos_engine::cch::matrix::{ManyToMany, MatrixError, NodeCells};
+use hodos_engine::cch::query::Endpoint;
+use hodos_engine::cch::{Cch, CchQuery};
+use hodos_engine::geo::LatLon;
+use hodos_engine::graph::{RoadGraph, NONE};
+use hodos_engine::region::matrix::{matrix, Cell, MatrixLimits, PointMatrix};
+use hodos_engine::region::{Metric, Region};
+use hodos_test_support::graphs::{add_link, grid_nodes, hierarchy, point_in_box, region_of, Link};
+use hodos_test_support::{
+    dimacs_ny, fixture, petgraph_of, random_speeds, reference_dists, SplitMix64,
+};
 use petgraph::graph::{DiGraph, NodeIndex};
 use std::alloc::{GlobalAlloc, Layout, System};
 use std::cell::Cell as Counter;
@@ -219,7 +219,7 @@ fn check_region(region: &Region, label: &str) {
     let ff = region.free_flow();
     check_region_nodes(region, &ff, &mut m2m, &format!("{label} free-flow"));
     let speeds = random_speeds(&region.graph, 41);
-    let second = region.metric(hodos::engine::metric::from_speeds(&region.graph, &speeds));
+    let second = region.metric(hodos_engine::metric::from_speeds(&region.graph, &speeds));
     check_region_nodes(region, &second, &mut m2m, &format!("{label} random speeds"));
     check_points(region, &second, &mut m2m, label);
 }
@@ -253,7 +253,7 @@ fn on_road_points(region: &Region, fractions: &[f64]) -> Vec<LatLon> {
         }
         let poly = g.edge_polyline(e);
         for &f in fractions {
-            out.push(hodos::engine::geo::lerp(poly[0], poly[1], f));
+            out.push(hodos_engine::geo::lerp(poly[0], poly[1], f));
         }
         if tw {
             two_way = true;
@@ -319,12 +319,12 @@ fn check_points(region: &Region, metric: &Metric, m2m: &mut ManyToMany, label: &
                         e.meters
                     );
                 }
-                (Cell::Unavailable, Err(hodos::engine::region::EtaError::OffNetwork { .. })) => {
+                (Cell::Unavailable, Err(hodos_engine::region::EtaError::OffNetwork { .. })) => {
                     unavailable += 1;
                     let off = |r: &Result<_, _>| r.is_err();
                     assert!(off(&out.from[i]) || off(&out.to[j]));
                 }
-                (Cell::Unreachable, Err(hodos::engine::region::EtaError::Unreachable)) => {}
+                (Cell::Unreachable, Err(hodos_engine::region::EtaError::Unreachable)) => {}
                 (c, e) => panic!("{label}: {a} -> {b}: matrix {c:?}, eta {e:?}"),
             }
         }
@@ -334,7 +334,7 @@ fn check_points(region: &Region, metric: &Metric, m2m: &mut ManyToMany, label: &
         assert_eq!(
             s.as_ref().map(|s| s.edge).map_err(|e| *e),
             region
-                .snap_within(from[i], hodos::engine::region::End::From, max_snap)
+                .snap_within(from[i], hodos_engine::region::End::From, max_snap)
                 .map(|s| s.edge)
         );
     }
@@ -394,7 +394,7 @@ fn check_points(region: &Region, metric: &Metric, m2m: &mut ManyToMany, label: &
     });
     let snapping = allocations_during(|| {
         for &p in from.iter().chain(&to) {
-            let _ = region.snap_within(p, hodos::engine::region::End::From, max_snap);
+            let _ = region.snap_within(p, hodos_engine::region::End::From, max_snap);
         }
     });
     eprintln!("{label}: {allocs} allocations in a warmed-up coordinate matrix, {snapping} in snapping alone");
@@ -458,7 +458,7 @@ fn grids_with_unreachable_pairs_equal_dijkstra() {
     for (w, h, seed) in [(6, 5, 1), (14, 11, 2), (40, 30, 3)] {
         let g = grid(w, h, seed);
         let cch = hierarchy(&g);
-        let weights = hodos::engine::metric::free_flow(&g);
+        let weights = hodos_engine::metric::free_flow(&g);
         let metric = CustomizedMetric::new(&cch, &weights, &g.edge_len_m);
         let mut m2m = ManyToMany::new(&cch);
         let n = g.num_nodes() as u32;
@@ -484,7 +484,7 @@ fn grids_with_unreachable_pairs_equal_dijkstra() {
 fn passed_deadline_and_bad_input() {
     let g = grid(10, 8, 5);
     let cch = hierarchy(&g);
-    let weights = hodos::engine::metric::free_flow(&g);
+    let weights = hodos_engine::metric::free_flow(&g);
     let metric = CustomizedMetric::new(&cch, &weights, &g.edge_len_m);
     let mut m2m = ManyToMany::new(&cch);
     let (mut time, mut len) = (Vec::new(), Vec::new());
@@ -612,7 +612,7 @@ fn ny_node_matrix_equals_dijkstra() {
         return;
     };
     let raw =
-        hodos::engine::import::dimacs::read(&ny.distance_gr, &ny.coordinates).expect("read NY");
+        hodos_engine::import::dimacs::read(&ny.distance_gr, &ny.coordinates).expect("read NY");
     let art = build_from_graph("dimacs:NY".into(), raw, 0.0, &mut Quiet).expect("build");
     let region = Region::from_artifact(art);
     let ff = region.free_flow();

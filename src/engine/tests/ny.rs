@@ -3,12 +3,10 @@
 //! One test builds the hierarchy once and runs every NY check on it; without
 //! the data it prints SKIPPED and passes.
 
-mod common;
-
-use common::{assert_exact, dimacs_ny, random_speeds};
-use hodos::engine::build::{build_from_graph, Quiet};
-use hodos::engine::import::dimacs;
-use hodos::engine::region::Region;
+use hodos_engine::build::{build_from_graph, Quiet};
+use hodos_engine::import::dimacs;
+use hodos_engine::region::Region;
+use hodos_test_support::{assert_exact, dimacs_ny, random_speeds};
 use std::collections::HashMap;
 use std::time::Instant;
 
@@ -104,6 +102,6 @@ fn ny_hierarchy_is_exact_small_and_calibrated() {
     assert_exact(&region, &tm, 10, 100, 22, "NY USA-road-t");
 
     // A third: random per-edge speeds.
-    let rs = region.metric(hodos::engine::metric::from_speeds(g, &random_speeds(g, 7)));
+    let rs = region.metric(hodos_engine::metric::from_speeds(g, &random_speeds(g, 7)));
     assert_exact(&region, &rs, 5, 200, 23, "NY random speeds");
 }

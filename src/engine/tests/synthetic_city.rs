@@ -3,13 +3,11 @@
 //! one-way streets, geometry (haversine lengths, cross-checked against
 //! geographiclib's WGS84 geodesic) and the river that only bridges cross.
 
-mod common;
-
-use common::graphs::assert_same_graph;
 use geographiclib_rs::{Geodesic, InverseGeodesic};
-use hodos::engine::geo::{polyline_length_m, LatLon};
-use hodos::engine::graph::{RoadClass, RoadGraph, NONE};
-use hodos::engine::import::synthetic::{self, CityInfo};
+use hodos_engine::geo::{polyline_length_m, LatLon};
+use hodos_engine::graph::{RoadClass, RoadGraph, NONE};
+use hodos_engine::import::synthetic::{self, CityInfo};
+use hodos_test_support::graphs::assert_same_graph;
 use std::collections::{HashMap, HashSet};
 
 #[test]

@@ -19,8 +19,8 @@
 //!
 //! The figures are printed for BENCHMARKS.md.
 
-use hodos::learn::train::{train, TrainOptions};
-use hodos_test_support::replayed_tlc_on_ny;
+use hodos_learn::train::{train, TrainOptions};
+use hodos_test_replay::replayed_tlc_on_ny;
 use hodos_testkit::skipped;
 
 #[test]

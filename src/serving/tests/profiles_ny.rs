@@ -15,17 +15,15 @@
 //!   speed of that profile's representative hour as written in the table
 //!   (free-flow where it has no row), worked out here from the table rows.
 
-mod common;
-
 use chrono::{Datelike, Duration, TimeZone, Timelike, Utc};
-use common::graphs::distinct_nodes;
-use common::{dimacs_ny, petgraph_of, reference_dists, SplitMix64};
-use hodos::engine::build::{build_from_graph, Quiet};
-use hodos::engine::import::dimacs;
-use hodos::serving::answer::{trip, Catalog};
-use hodos::serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
-use hodos::serving::snapshot::{RegionHandle, UpdateSettings};
-use hodos::serving::tier::Tier;
+use hodos_engine::build::{build_from_graph, Quiet};
+use hodos_engine::import::dimacs;
+use hodos_serving::answer::{trip, Catalog};
+use hodos_serving::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
+use hodos_serving::snapshot::{RegionHandle, UpdateSettings};
+use hodos_serving::tier::Tier;
+use hodos_test_support::graphs::distinct_nodes;
+use hodos_test_support::{dimacs_ny, petgraph_of, reference_dists, SplitMix64};
 use hodos_test_support::{weekly_table, WeeklyTable};
 use std::collections::BTreeMap;
 use std::time::Instant;

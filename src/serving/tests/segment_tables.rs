@@ -6,11 +6,11 @@
 //! graph's own arrays (`edge_tail`, `edge_head`, `node_ext`, `edge_way`).
 
 use chrono::{DateTime, Utc};
-use hodos::engine::geo::LatLon;
-use hodos::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
-use hodos::engine::import::synthetic::generate;
-use hodos::engine::metric::from_speeds;
-use hodos::serving::speeds::*;
+use hodos_engine::geo::LatLon;
+use hodos_engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
+use hodos_engine::import::synthetic::generate;
+use hodos_engine::metric::from_speeds;
+use hodos_serving::speeds::*;
 use hodos_testkit::{observation, segment_observation, HistoricalCsv, LiveCsv, SplitMix64};
 use std::collections::HashMap;
 

@@ -19,17 +19,15 @@
 //!   WGS84 ellipsoid within 0.5 % (haversine on the mean sphere; its error
 //!   is at most about 0.5 %, common knowledge of the spherical model).
 
-mod common;
-
 use chrono::{Datelike, Duration, TimeZone, Timelike};
-use common::graphs::distinct_nodes;
-use common::{petgraph_of, reference_dists, SplitMix64};
 use geographiclib_rs::{Geodesic, InverseGeodesic};
-use hodos::engine::build::{build, Quiet, Source};
-use hodos::serving::tier::Tier;
-use hodos::truth::replay::{open_catalog, replay_all, replay_settings, ReplayRegion};
-use hodos::truth::trips::{read_trips_file, ReadOptions, TripFormat};
+use hodos_engine::build::{build, Quiet, Source};
+use hodos_serving::tier::Tier;
+use hodos_test_support::graphs::distinct_nodes;
+use hodos_test_support::{petgraph_of, reference_dists, SplitMix64};
 use hodos_test_support::{weekly_table, WeeklyTable};
+use hodos_truth::replay::{open_catalog, replay_all, replay_settings, ReplayRegion};
+use hodos_truth::trips::{read_trips_file, ReadOptions, TripFormat};
 use std::fmt::Write as _;
 
 const TRIPS: usize = 300;
@@ -49,7 +47,7 @@ fn replayed_trips_answer_from_their_departure_hour() {
     art.save(&artifact).unwrap();
     let g = &art.graph;
     let WeeklyTable { csv, speed } = weekly_table(g, 3, 12);
-    let table = common::write(dir.path(), "historical.csv", csv);
+    let table = hodos_test_support::write(dir.path(), "historical.csv", csv);
 
     // Trips as our CSV, departures in EST (−05:00).
     let ny = chrono_tz::America::New_York;
@@ -79,7 +77,7 @@ fn replayed_trips_answer_from_their_departure_hour() {
         .unwrap();
         asked.push((s, t, leaving));
     }
-    let trips_csv = common::write(dir.path(), "trips.csv", text);
+    let trips_csv = hodos_test_support::write(dir.path(), "trips.csv", text);
     let (trips, report) =
         read_trips_file(&trips_csv, TripFormat::Csv, &ReadOptions::default()).unwrap();
     assert_eq!(report.accepted as usize, TRIPS, "{report:?}");

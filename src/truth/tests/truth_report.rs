@@ -16,14 +16,12 @@
 //! it prints SKIPPED, unless `HODOS_REQUIRE_CHROMIUM=1` (set by `.ci/run`).
 //! `HODOS_SCREENSHOT_DIR` keeps the screenshot for a person to look at.
 
-use hodos::serving::answer::Catalog;
-mod common;
-
-use common::chromium::run as chromium;
-use hodos::serving::tier::Tier;
-use hodos::truth::replay::{replay_all, replay_settings};
-use hodos::truth::report::{Inputs, Report};
-use hodos::truth::trips::{read_trips_file, ReadOptions, TripFormat};
+use hodos_serving::answer::Catalog;
+use hodos_serving::tier::Tier;
+use hodos_testkit::chromium::run as chromium;
+use hodos_truth::replay::{replay_all, replay_settings};
+use hodos_truth::report::{Inputs, Report};
+use hodos_truth::trips::{read_trips_file, ReadOptions, TripFormat};
 use std::path::Path;
 
 #[test]
@@ -68,7 +66,7 @@ fn the_report_renders_with_its_plots() {
         assert!(!text.contains(bad), "the page refers out: {bad}");
     }
 
-    if !common::chromium::available() {
+    if !hodos_testkit::chromium::available() {
         return;
     }
     let url = format!("file://{}", html.display());

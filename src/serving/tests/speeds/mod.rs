@@ -1,14 +1,24 @@
 //! Speed data layer: edge naming, the hour-of-week clock, historical and live
 //! table validation, blending and persistence, on a tiny hand-built graph
 //! whose expected answers can be worked out by hand.
+//!
+//! # Layout
+//!
+//! - this file: the graph and helpers, edge naming, the clock, historical
+//!   and live table validation.
+//! - [`blend`]: live observations blended into the historical vector.
+//! - [`persistence`]: saved tables, their round trips and damage.
 
 use chrono::{DateTime, Duration as TimeDelta, Utc};
 use chrono_tz::Tz;
-use hodos::engine::geo::LatLon;
-use hodos::engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
-use hodos::serving::speeds::*;
+use hodos_engine::geo::LatLon;
+use hodos_engine::graph::{EdgeSpec, GraphBuilder, RoadClass, RoadGraph};
+use hodos_serving::speeds::*;
 use hodos_testkit::HistoricalCsv;
 use std::time::Duration;
+
+mod blend;
+mod persistence;
 
 /// A historical header naming segments by their ends only (a valid shape:
 /// `tail` and `head` without `segment`), so hand-written rows stay short.
@@ -701,233 +711,4 @@ fn live_layer_must_match_the_index() {
         .apply(&idx, &[], t(NOW), &ValidationConfig::default())
         .unwrap_err();
     assert!(matches!(e, SpeedsError::LengthMismatch { .. }));
-}
-
-// ----------------------------------------------------------------- blend
-
-#[test]
-fn blend_decays_live_weight_and_ignores_expired() {
-    let (_, idx, ff) = setup();
-    let cfg = ValidationConfig::default();
-    let now = t(NOW);
-    let half_life = Duration::from_secs(300);
-    let ttl = Duration::from_secs(900);
-    let mut live = LiveLayer::new(idx.num_edges());
-    let at = |secs_ago: i64| (now - TimeDelta::seconds(secs_ago)).to_rfc3339();
-    live.apply(
-        &idx,
-        &[
-            obs(B, C, 10.0, &at(0), 1),   // age 0: weight 1
-            obs(C, D, 40.0, &at(300), 1), // one half-life: weight 0.5
-            obs(A, B, 5.0, &at(901), 1),  // past the TTL: ignored
-            obs(B, A, 20.0, &at(900), 1), // exactly the TTL: still fresh, weight 1/8
-        ],
-        now,
-        &cfg,
-    )
-    .unwrap();
-    let (s, stats) = blend(&ff, &live, now, half_life, ttl).unwrap();
-    // Exponential decay (common practice): w = 0.5^(age / half_life).
-    // e0, e4: expired → historical 50, 20. e1: w = 0.5^3 = 0.125 →
-    // 0.125·20 + 0.875·50 = 46.25. e2: 10. e3: 0.5·40 + 0.5·80 = 60.
-    assert_eq!(s, vec![50.0, 46.25, 10.0, 60.0, 20.0]);
-    assert_eq!(stats.fresh_edges, 3);
-    assert!(stats.any_fresh);
-    assert_eq!(stats.newest_age_s, Some(0.0));
-
-    // Reused buffer, later: everything has aged by 901 s → all expired.
-    let mut buf = Vec::new();
-    let later = now + TimeDelta::seconds(901);
-    let stats = blend_into(&ff, &live, later, half_life, ttl, &mut buf).unwrap();
-    assert_eq!(buf, ff);
-    assert_eq!(stats.fresh_edges, 0);
-    assert!(!stats.any_fresh);
-    assert_eq!(stats.newest_age_s, Some(901.0));
-
-    // Expire drops what the blend ignores; the newest stays.
-    let n = live.len();
-    assert_eq!(live.expire(now, ttl), 2); // A→B's two parallel edges
-    assert_eq!(live.len(), n - 2);
-    assert_eq!(live.get(0), None);
-    assert_eq!(live.newest_observed_at(), Some(now));
-    let (s2, _) = blend(&ff, &live, now, half_life, ttl).unwrap();
-    assert_eq!(s2, s);
-}
-
-#[test]
-fn blend_without_live_data_is_the_historical_vector() {
-    let (_, idx, ff) = setup();
-    let live = LiveLayer::new(idx.num_edges());
-    let (s, stats) = blend(
-        &ff,
-        &live,
-        t(NOW),
-        Duration::from_secs(300),
-        Duration::from_secs(900),
-    )
-    .unwrap();
-    assert_eq!(s, ff);
-    assert_eq!(
-        stats,
-        BlendStats {
-            fresh_edges: 0,
-            newest_age_s: None,
-            any_fresh: false
-        }
-    );
-    let e = blend(
-        &ff[..4],
-        &live,
-        t(NOW),
-        Duration::from_secs(300),
-        Duration::from_secs(900),
-    );
-    assert!(matches!(e, Err(SpeedsError::LengthMismatch { .. })));
-}
-
-#[test]
-fn observation_within_skew_counts_as_age_zero() {
-    let (_, idx, ff) = setup();
-    let mut live = LiveLayer::new(idx.num_edges());
-    live.apply(
-        &idx,
-        &[obs(B, C, 12.0, "2026-03-29T08:06:00Z", 1)],
-        t(NOW),
-        &ValidationConfig::default(),
-    )
-    .unwrap();
-    let (s, stats) = blend(
-        &ff,
-        &live,
-        t(NOW),
-        Duration::from_secs(300),
-        Duration::from_secs(900),
-    )
-    .unwrap();
-    assert_eq!(s[2], 12.0);
-    assert_eq!(stats.newest_age_s, Some(0.0));
-}
-
-// ----------------------------------------------------------- persistence
-
-#[test]
-fn write_atomic_replaces_and_leaves_no_temp_file() {
-    let dir = tempfile::tempdir().unwrap();
-    let path = dir.path().join("table.bin");
-    write_atomic(&path, b"first").unwrap();
-    write_atomic(&path, b"second version").unwrap();
-    assert_eq!(std::fs::read(&path).unwrap(), b"second version");
-    let names: Vec<_> = std::fs::read_dir(dir.path())
-        .unwrap()
-        .map(|e| e.unwrap().file_name().into_string().unwrap())
-        .collect();
-    assert_eq!(names, vec!["table.bin".to_string()]);
-    // A directory that does not exist: an error, nothing created.
-    assert!(write_atomic(&dir.path().join("nope/x.bin"), b"x").is_err());
-}
-
-#[test]
-fn historical_round_trip_and_damage() {
-    let (_, idx, ff) = setup();
-    let cfg = ValidationConfig::default();
-    let dir = tempfile::tempdir().unwrap();
-    let path = dir.path().join("historical.saved");
-    assert!(load_historical(&path, &idx, &cfg).unwrap().is_none());
-
-    let csv = hist_rows(19, 1);
-    let (p, _) = HistoricalProfile::parse(csv.as_bytes(), &idx, &cfg).unwrap();
-    save_historical(&path, csv.as_bytes()).unwrap();
-    let (q, r) = load_historical(&path, &idx, &cfg).unwrap().unwrap();
-    assert_eq!(q, p);
-    assert_eq!(q.version(), p.version());
-    assert_eq!(r.bad, 1);
-    for h in 0..HOURS_PER_WEEK {
-        assert_eq!(q.speeds_for_hour(&ff, h), p.speeds_for_hour(&ff, h));
-    }
-
-    // Truncated by a few bytes: a clear corruption error, not a shorter table.
-    let full = std::fs::read(&path).unwrap();
-    std::fs::write(&path, &full[..full.len() - 7]).unwrap();
-    let e = load_historical(&path, &idx, &cfg).unwrap_err();
-    assert!(matches!(e, PersistError::Corrupt { .. }), "{e}");
-    assert!(e.to_string().contains("truncated"), "{e}");
-    // Cut inside the header line.
-    std::fs::write(&path, &full[..12]).unwrap();
-    assert!(matches!(
-        load_historical(&path, &idx, &cfg),
-        Err(PersistError::Corrupt { .. })
-    ));
-    // Same length, one byte changed.
-    let mut bad = full.clone();
-    let n = bad.len();
-    bad[n - 3] ^= 0x01;
-    std::fs::write(&path, &bad).unwrap();
-    assert!(load_historical(&path, &idx, &cfg)
-        .unwrap_err()
-        .to_string()
-        .contains("checksum"));
-    // A live file is not a historical file.
-    let live = LiveLayer::new(idx.num_edges());
-    save_live(&path, &live, &idx).unwrap();
-    assert!(matches!(
-        load_historical(&path, &idx, &cfg),
-        Err(PersistError::Corrupt { .. })
-    ));
-
-    // Intact file, different graph (B→C gone): no longer valid.
-    save_historical(&path, csv.as_bytes()).unwrap();
-    let mut b = GraphBuilder::default();
-    let x = b.add_node(LatLon::new(0.0, 0.0), A);
-    let y = b.add_node(LatLon::new(0.0, 0.001), B);
-    b.add_edge(EdgeSpec {
-        tail: x,
-        head: y,
-        length_m: None,
-        speed_kmh: 50.0,
-        way_id: 1,
-        class: RoadClass::Residential,
-        shape: &[],
-    });
-    let other = EdgeIndex::new(&b.finish());
-    let e = load_historical(&path, &other, &cfg).unwrap_err();
-    assert!(matches!(e, PersistError::Invalid { .. }), "{e}");
-}
-
-#[test]
-fn live_round_trip_and_damage() {
-    let (_, idx, _) = setup();
-    let cfg = ValidationConfig::default();
-    let dir = tempfile::tempdir().unwrap();
-    let path = dir.path().join("live.saved");
-    assert!(load_live(&path, &idx, t(NOW), &cfg).unwrap().is_none());
-
-    let mut live = LiveLayer::new(idx.num_edges());
-    live.apply(
-        &idx,
-        &[
-            obs(A, B, 33.25, "2026-03-29T08:00:00.125Z", 7),
-            obs(C, D, 61.0, "2026-03-29T09:03:00+01:00", 2),
-        ],
-        t(NOW),
-        &cfg,
-    )
-    .unwrap();
-    save_live(&path, &live, &idx).unwrap();
-    let (back, r) = load_live(&path, &idx, t(NOW), &cfg).unwrap().unwrap();
-    assert_eq!(r.bad, 0);
-    for e in 0..idx.num_edges() as u32 {
-        assert_eq!(back.get(e), live.get(e), "edge {e}");
-    }
-    assert_eq!(back.len(), 3);
-    assert_eq!(back.newest_observed_at(), live.newest_observed_at());
-
-    let full = std::fs::read(&path).unwrap();
-    std::fs::write(&path, &full[..full.len() / 2]).unwrap();
-    let e = load_live(&path, &idx, t(NOW), &cfg).unwrap_err();
-    assert!(matches!(e, PersistError::Corrupt { .. }), "{e}");
-    std::fs::write(&path, b"").unwrap();
-    assert!(matches!(
-        load_live(&path, &idx, t(NOW), &cfg),
-        Err(PersistError::Corrupt { .. })
-    ));
 }
