@@ -7,7 +7,7 @@
 //! `cargo run --release --example train_sweep` (needs `$HODOS_DATA_DIR`).
 
 use hodos::learn::train::{split_by_time, train, TrainOptions};
-use hodos_test_support::replayed_tlc_on_ny;
+use hodos_test_replay::replayed_tlc_on_ny;
 
 fn main() {
     let dir = tempfile::tempdir().unwrap();

@@ -5,8 +5,10 @@
 //!   external crate its layer must not know (the engine no runtime, HTTP or
 //!   metrics; serving, truth and learn no HTTP stack), read from each
 //!   crate's `Cargo.toml`;
-//! - the dev-only crates (`hodos-testkit`, `hodos-test-support`) are never a
-//!   normal dependency of a layer;
+//! - the dev-only crates (`hodos-testkit` and the `tests/support*` crates)
+//!   are never a normal dependency of a layer, and a layer's tests use only
+//!   those whose hodos crates are at or below that layer (so a change above
+//!   a layer never rebuilds its tests);
 //! - every crate root forbids `unsafe`, except serving's, which denies it
 //!   everywhere but its `os` module;
 //! - inside `hodos-engine`, modules name only modules below them (`geo` →
@@ -22,7 +24,9 @@
 //!
 //! Lines that are comments are skipped, and so is everything from the
 //! first `#[cfg(test)]` of a file on, and files named `tests.rs` or
-//! `testing.rs`: unit tests may reach anywhere inside their crate.
+//! `testing.rs`: unit tests may reach anywhere inside their crate. So is
+//! the engine's `tests/` folder: its integration tests see only the public
+//! API.
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -80,8 +84,37 @@ fn forbidden_crates(krate: &str) -> &'static [&'static str] {
     }
 }
 
-/// Dev-only crates: tests, benches, examples and the load generator.
-const DEV_ONLY: &[&str] = &["hodos-testkit", "hodos-test-support"];
+/// Dev-only crates (tests, benches, examples and the load generator) and
+/// their folders.
+const DEV_ONLY: &[(&str, &str)] = &[
+    ("hodos-testkit", "src/testkit"),
+    ("hodos-test-support", "tests/support"),
+    ("hodos-test-replay", "tests/support-replay"),
+    ("hodos-test-service", "tests/support-service"),
+];
+
+fn is_dev_only(name: &str) -> bool {
+    DEV_ONLY.iter().any(|(n, _)| *n == name)
+}
+
+/// The layer crates a dev-only crate needs, through the dev-only crates it
+/// depends on as well.
+fn layers_needed(dev: &str, crates: &BTreeMap<String, (String, String)>) -> Vec<String> {
+    let Some((manifest, _)) = crates.get(dev) else {
+        return Vec::new();
+    };
+    let mut out = Vec::new();
+    for d in deps(manifest).0 {
+        if is_dev_only(&d) {
+            out.extend(layers_needed(&d, crates));
+        } else if d.starts_with("hodos") {
+            out.push(d);
+        }
+    }
+    out.sort();
+    out.dedup();
+    out
+}
 
 fn root() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))
@@ -112,7 +145,7 @@ fn crate_violations(crates: &BTreeMap<String, (String, String)>) -> Vec<String> 
         for d in &normal {
             if d.starts_with("hodos") && !allowed.contains(&d.as_str()) {
                 let above = LAYERS[i..].iter().any(|(n, _, _)| n == d);
-                let what = if DEV_ONLY.contains(&d.as_str()) {
+                let what = if is_dev_only(d) {
                     "a dev-only crate"
                 } else if above {
                     "a layer at or above it"
@@ -128,11 +161,17 @@ fn crate_violations(crates: &BTreeMap<String, (String, String)>) -> Vec<String> 
             }
         }
         for d in &dev {
-            if d.starts_with("hodos")
-                && !DEV_ONLY.contains(&d.as_str())
-                && !allowed.contains(&d.as_str())
-            {
+            if d.starts_with("hodos") && !is_dev_only(d) && !allowed.contains(&d.as_str()) {
                 bad.push(format!("{name}'s tests depend on {d}, a layer above it"));
+            }
+            if is_dev_only(d) {
+                for needed in layers_needed(d, crates) {
+                    if needed != *name && !allowed.contains(&needed.as_str()) {
+                        bad.push(format!(
+                            "{name}'s tests use {d}, which needs {needed} (above {name})"
+                        ));
+                    }
+                }
             }
         }
         let forbids = root_src.contains("#![forbid(unsafe_code)]");
@@ -231,7 +270,7 @@ fn engine_violations(engine: &Path) -> Vec<String> {
     let mut bad = Vec::new();
     for f in files {
         let rel = f.strip_prefix(engine).expect("under engine");
-        if rel == Path::new("lib.rs") || is_test_file(rel) {
+        if rel == Path::new("lib.rs") || is_test_file(rel) || rel.starts_with("tests") {
             continue;
         }
         let m = rel
@@ -367,6 +406,12 @@ fn workspace_crates() -> BTreeMap<String, (String, String)> {
         let src = std::fs::read_to_string(dir.join(lib)).expect("crate root");
         out.insert(name.to_string(), (manifest, src));
     }
+    for (name, dir) in DEV_ONLY {
+        let dir = root().join(dir);
+        let manifest = std::fs::read_to_string(dir.join("Cargo.toml")).expect("manifest");
+        let src = std::fs::read_to_string(dir.join("lib.rs")).expect("crate root");
+        out.insert(name.to_string(), (manifest, src));
+    }
     out
 }
 
@@ -400,10 +445,17 @@ fn checkers_catch_planted_violations() {
     plant(&mut crates, "hodos-truth", "axum");
     plant(&mut crates, "hodos-http", "hodos-testkit");
     plant(&mut crates, "hodos-truth", "hodos-learn");
+    plant(&mut crates, "hodos-test-support", "hodos-serving");
+    let engine = crates.get_mut("hodos-engine").unwrap();
+    engine.0 = engine.0.replacen(
+        "[dev-dependencies]\n",
+        "[dev-dependencies]\nhodos-test-service = { workspace = true }\n",
+        1,
+    );
     let http = crates.get_mut("hodos-http").unwrap();
     http.1 = http.1.replace("#![forbid(unsafe_code)]", "");
     let bad = crate_violations(&crates);
-    assert_eq!(bad.len(), 6, "{bad:#?}");
+    assert_eq!(bad.len(), 9, "{bad:#?}");
     let has = |s: &str| assert!(bad.iter().any(|b| b.contains(s)), "{s} not in {bad:#?}");
     has("hodos-engine depends on metrics");
     has("hodos-serving depends on hodos-http (a layer at or above it)");
@@ -411,6 +463,9 @@ fn checkers_catch_planted_violations() {
     has("hodos-truth depends on axum");
     has("hodos-http depends on hodos-testkit (a dev-only crate)");
     has("hodos-http: crate root does not forbid unsafe code");
+    has("hodos-engine's tests use hodos-test-support, which needs hodos-serving");
+    has("hodos-engine's tests use hodos-test-service, which needs hodos (above");
+    has("hodos-engine's tests use hodos-test-service, which needs hodos-serving");
 
     let dir = tempfile::tempdir().unwrap();
     let write = |rel: &str, text: &str| {
@@ -429,6 +484,8 @@ fn checkers_catch_planted_violations() {
     );
     write("snap.rs", "use super::cch::Cch;\n");
     write("cch/tests.rs", "use crate::testing::city;\n");
+    write("tests/main.rs", "mod geo;\n");
+    write("tests/geo.rs", "use hodos_engine::region::Region;\n");
     let bad = engine_violations(dir.path());
     assert_eq!(bad.len(), 3, "{bad:#?}");
     assert!(bad[0].contains("cch/matrix.rs:1: engine::cch reaches up to engine::region"));

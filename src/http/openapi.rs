@@ -6,8 +6,8 @@
 //! [`super::routes`]), and the component schemas. [`document`] takes its
 //! `paths` from the public table and [`admin_document`] from the admin one
 //! (given by the caller, so this module never names the table), so each
-//! lists exactly what its router serves; `tests/routes.rs` checks that
-//! from outside, and `tests/service_api.rs` runs an external validator on
+//! lists exactly what its router serves; `tests/service/routes.rs` checks that
+//! from outside, and `tests/service/service_api.rs` runs an external validator on
 //! the result.
 //!
 //! Neither document has `servers`: the listeners are configured

@@ -16,7 +16,7 @@
 //! The table's types and the answer routes' templates are `table`'s, so
 //! the handlers and the documents this table binds never name it back.
 //!
-//! `tests/routes.rs` checks the three against one another from outside:
+//! `tests/service/routes.rs` checks the three against one another from outside:
 //! the served document, the router's answers and `Allow` headers, and the
 //! scraped metric labels.
 

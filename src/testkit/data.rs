@@ -1,7 +1,8 @@
 //! Where the shared open datasets are: `$HODOS_DATA_DIR` (set by the CI
 //! script), else `../shared/data` beside the repository. Checks that need
-//! them and find them absent print one `SKIPPED: <why>` line and pass;
-//! benchmarks say so and fall back to a synthetic city.
+//! them and find them absent print one `SKIPPED: <why>` line and pass,
+//! unless `HODOS_REQUIRE_DATA=1` (set by the CI script), which makes the
+//! absence a failure; benchmarks say so and fall back to a synthetic city.
 
 use std::fmt::Display;
 use std::path::{Path, PathBuf};
@@ -17,8 +18,22 @@ pub fn data_dir() -> PathBuf {
         .unwrap_or_else(|| Path::new(env!("CARGO_MANIFEST_DIR")).join("../../../shared/data"))
 }
 
-/// Prints the line a check prints when it passes without running.
+/// The environment variable that turns a check skipped for want of the
+/// shared data into a failure (when `1`).
+pub const REQUIRE_DATA_ENV: &str = "HODOS_REQUIRE_DATA";
+
+/// Prints the line a check prints when it passes without running because
+/// the shared data is absent; panics instead when `HODOS_REQUIRE_DATA=1`.
 pub fn skipped(why: impl Display) {
+    skipped_unless_required(REQUIRE_DATA_ENV, why);
+}
+
+/// Prints `SKIPPED: <why>` for a check that passes without running;
+/// panics instead when the environment variable `require` is `1` (CI sets
+/// `HODOS_REQUIRE_DATA`, `HODOS_REQUIRE_NUMPY`, `HODOS_REQUIRE_CHROMIUM`).
+pub fn skipped_unless_required(require: &str, why: impl Display) {
+    let required = std::env::var(require).is_ok_and(|v| v == "1");
+    assert!(!required, "{why} ({require}=1: required here, not skipped)");
     eprintln!("SKIPPED: {why}");
 }
 
@@ -82,4 +97,39 @@ pub fn tlc_trip_files() -> Result<Vec<PathBuf>, String> {
         }
     }
     Ok(files)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::child::{is_child, run_alone, test_name};
+
+    /// A skip run in a child process: `HODOS_REQUIRE_DATA=1` makes it fail
+    /// naming the variable and the reason; any other value lets it pass
+    /// with its `SKIPPED` line.
+    #[test]
+    fn require_data_turns_a_skip_into_a_failure() {
+        let name = test_name(module_path!(), "require_data_turns_a_skip_into_a_failure");
+        if is_child(&name) {
+            skipped("planted absence");
+            return;
+        }
+        let passed = run_alone(&name, &[(REQUIRE_DATA_ENV, "0")]);
+        let err = String::from_utf8_lossy(&passed.stderr);
+        assert!(passed.status.success(), "{err}");
+        assert!(err.contains("SKIPPED: planted absence"), "{err}");
+
+        let failed = run_alone(&name, &[(REQUIRE_DATA_ENV, "1")]);
+        let all = format!(
+            "{}{}",
+            String::from_utf8_lossy(&failed.stdout),
+            String::from_utf8_lossy(&failed.stderr)
+        );
+        assert!(!failed.status.success(), "{all}");
+        assert!(
+            all.contains("planted absence (HODOS_REQUIRE_DATA=1: required here"),
+            "{all}"
+        );
+        assert!(!all.contains("SKIPPED: planted absence"), "{all}");
+    }
 }

@@ -22,7 +22,7 @@
 //! Quantiles are numpy's default (`method="linear"`, Hyndman & Fan 1996
 //! type 7): on the sorted values `x_0 ≤ … ≤ x_{n−1}`,
 //! `h = (n − 1) q`, `Q(q) = x_⌊h⌋ + (h − ⌊h⌋)(x_⌊h⌋+1 − x_⌊h⌋)`.
-//! Checked against numpy by `tests/truth_numpy.rs`.
+//! Checked against numpy by `src/truth/tests/truth_numpy.rs`.
 //!
 //! # Groups
 //!

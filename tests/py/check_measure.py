@@ -1,7 +1,7 @@
 #!/usr/bin/env python3
 """Checks hodos's accuracy metrics against numpy on a fixed sample.
 
-Reads the JSON written by tests/truth_numpy.rs: the sample (estimates,
+Reads the JSON written by src/truth/tests/truth_numpy.rs: the sample (estimates,
 actual durations, interval ends) and hodos's figures for it (quantiles of
 the absolute percentage error at several levels, and the summary), and
 recomputes each with numpy: np.quantile's default method ("linear",
