@@ -12,13 +12,13 @@
 //!   written out here;
 //! - unreachable pairs: petgraph's Dijkstra reaches no distance.
 
-use super::{matrix_trip, trip, Catalog, MatrixQuery, TripQuery};
+use super::{matrix_trip, trip, Answer, Catalog, MatrixAnswer, MatrixQuery, TripQuery};
 use crate::admission::{Admission, Admit, Ticket};
 use crate::service::Service;
 use crate::settings::{Coverage, CustomizePriority, RegionConfig, ServingSettings};
 use crate::snapshot::{RegionUpdater, UpdateError, UpdateSettings};
 use crate::tier::{FallbackReason as R, Tier};
-use chrono::{Duration as Days, Utc};
+use chrono::{DateTime, Duration as Days, Utc};
 use hodos_engine::build::{assemble, build_from_graph, Quiet};
 use hodos_engine::calibration::Calibration;
 use hodos_engine::geo::LatLon;
@@ -63,10 +63,73 @@ fn settings() -> ServingSettings {
     s
 }
 
+/// A service of one region on the synthetic city, with a fresh state
+/// directory (removed when the returned one is dropped).
+async fn city_service() -> (tempfile::TempDir, Service) {
+    let c = city();
+    let state = tempfile::tempdir().unwrap();
+    let svc = catalog(&c.artifact, &c.graph, state.path()).await;
+    (state, svc)
+}
+
 /// A ticket over the hard cap on requests in flight (an admission of
 /// limit 0): the request it admits is shed.
 fn shed_ticket() -> Ticket {
     Admission::new(0).enter()
+}
+
+/// A trip query without geometry.
+fn query(
+    from: LatLon,
+    to: LatLon,
+    depart: Option<DateTime<Utc>>,
+    budget_ms: Option<u64>,
+) -> TripQuery {
+    TripQuery {
+        from,
+        to,
+        depart,
+        budget_ms,
+        geometry: false,
+    }
+}
+
+/// [`trip`] on [`query`], not counted by admission.
+async fn ask(
+    cat: &Catalog,
+    from: LatLon,
+    to: LatLon,
+    depart: Option<DateTime<Utc>>,
+    budget_ms: Option<u64>,
+) -> Answer {
+    trip(cat, &query(from, to, depart, budget_ms), Admit::Uncounted).await
+}
+
+/// [`ask`] leaving now with geometry, in a budget of 2 s.
+async fn ask_route(cat: &Catalog, from: LatLon, to: LatLon) -> Answer {
+    let q = TripQuery {
+        geometry: true,
+        ..query(from, to, None, Some(2000))
+    };
+    trip(cat, &q, Admit::Uncounted).await
+}
+
+/// [`matrix_trip`] from every `from` to every `to`, not counted by
+/// admission.
+async fn ask_matrix(
+    cat: &Catalog,
+    from: Vec<LatLon>,
+    to: Vec<LatLon>,
+    depart: Option<DateTime<Utc>>,
+    budget_ms: Option<u64>,
+) -> MatrixAnswer {
+    let q = MatrixQuery {
+        from,
+        to,
+        depart,
+        budget_ms,
+    };
+    matrix_trip(cat, q, Admit::Uncounted).await
 }
 
 /// A service of one region on `artifact` (coverage: the graph's box with a
@@ -157,10 +220,8 @@ fn two_way_pair(g: &RoadGraph) -> (u32, u32) {
 
 #[tokio::test]
 async fn gate_fallbacks_and_graph_tiers() {
-    let c = city();
-    let g = &c.graph;
-    let state = tempfile::tempdir().unwrap();
-    let svc = catalog(&c.artifact, g, state.path()).await;
+    let g = &city().graph;
+    let (_state, svc) = city_service().await;
     let cat = svc.catalog.clone();
     let region = svc.regions[0].clone();
     let cal = region.snapshot().unwrap().region.calibration.clone();
@@ -170,18 +231,7 @@ async fn gate_fallbacks_and_graph_tiers() {
 
     // Outside every region: configured defaults (1.3, 30 km/h), no tag.
     let (p, q) = (LatLon::new(10.0, 10.0), LatLon::new(10.1, 10.1));
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: p,
-            to: q,
-            depart: None,
-            budget_ms: None,
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, p, q, None, None).await;
     assert_eq!(
         (r.tier, r.reason, r.snapshot.clone()),
         (Tier::Heuristic, Some(R::OutsideRegions), None)
@@ -195,13 +245,7 @@ async fn gate_fallbacks_and_graph_tiers() {
     // Not admitted → overloaded, from the region's calibration.
     let r = trip(
         &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: None,
-            budget_ms: Some(2000),
-            geometry: false,
-        },
+        &query(a, b, None, Some(2000)),
         Admit::Counted(&shed_ticket()),
     )
     .await;
@@ -216,30 +260,9 @@ async fn gate_fallbacks_and_graph_tiers() {
     let n = cat.cfg.query.graph_concurrency as u32;
     let held = cat.permits.clone().try_acquire_many_owned(n).unwrap();
     let t0 = std::time::Instant::now();
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: None,
-            budget_ms: Some(50),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, a, b, None, Some(50)).await;
     assert_eq!((r.tier, r.reason), (Tier::Heuristic, Some(R::Overloaded)));
-    let mx = matrix_trip(
-        &cat,
-        MatrixQuery {
-            from: vec![a],
-            to: vec![b],
-            depart: None,
-            budget_ms: Some(50),
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let mx = ask_matrix(&cat, vec![a], vec![b], None, Some(50)).await;
     assert_eq!(
         (mx.cells[0].tier, mx.cells[0].reason),
         (Tier::Heuristic, Some(R::Overloaded))
@@ -251,18 +274,7 @@ async fn gate_fallbacks_and_graph_tiers() {
         tokio::time::sleep(std::time::Duration::from_millis(30)).await;
         drop(held);
     });
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: None,
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, a, b, None, Some(2000)).await;
     assert_ne!(r.tier, Tier::Heuristic, "{r:?}");
     release.await.unwrap();
 
@@ -270,18 +282,7 @@ async fn gate_fallbacks_and_graph_tiers() {
     // time is petgraph's Dijkstra on free-flow weights.
     let free = weights_at(g, |e| f64::from(g.edge_speed_kmh[e]));
     let want = dijkstra_ms(g, &free, s, t).unwrap() as f64 / 1000.0;
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: None,
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, a, b, None, Some(2000)).await;
     assert_eq!(
         (r.tier, r.reason),
         (Tier::FreeFlow, Some(R::NoLiveData)),
@@ -294,67 +295,24 @@ async fn gate_fallbacks_and_graph_tiers() {
     );
     assert!(r.from_snap_m.unwrap() < 1e-3 && r.to_snap_m.unwrap() < 1e-3);
     // Routes take the same path and time.
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: None,
-            budget_ms: Some(2000),
-            geometry: true,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask_route(&cat, a, b).await;
     assert!((r.eta_s - want).abs() < 1e-6 && r.geometry.is_some());
 
     // A departure next week is not "now": free_flow (no table), no reason.
     let later = Utc::now() + Days::days(7);
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: Some(later),
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, a, b, Some(later), Some(2000)).await;
     assert_eq!((r.tier, r.reason), (Tier::FreeFlow, None));
 
     // Far off-road but inside the coverage → off_network.
     let (lo, _) = g.bbox();
     let corner = LatLon::new(lo.lat - 0.04, lo.lon - 0.04);
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: corner,
-            to: b,
-            depart: None,
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, corner, b, None, Some(2000)).await;
     assert_eq!((r.tier, r.reason), (Tier::Heuristic, Some(R::OffNetwork)));
     let (m, secs) = region_estimate(&cal, corner, b);
     assert!(close(r.meters, m) && close(r.eta_s, secs), "{r:?}");
 
     // Matrix: graph cells from petgraph, the off-road row per cell.
-    let mx = matrix_trip(
-        &cat,
-        MatrixQuery {
-            from: vec![a, corner],
-            to: vec![b, a],
-            depart: None,
-            budget_ms: Some(2000),
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let mx = ask_matrix(&cat, vec![a, corner], vec![b, a], None, Some(2000)).await;
     assert_eq!(
         (mx.rows, mx.cols, mx.snapshot.clone()),
         (2, 2, Some(("quellhaven".into(), gen)))
@@ -378,17 +336,7 @@ async fn gate_fallbacks_and_graph_tiers() {
     let (_, secs) = region_estimate(&cal, corner, b);
     assert!(close(mx.cells[2].eta_s, secs));
     // Matrix outside every region.
-    let mx = matrix_trip(
-        &cat,
-        MatrixQuery {
-            from: vec![p],
-            to: vec![q],
-            depart: None,
-            budget_ms: None,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let mx = ask_matrix(&cat, vec![p], vec![q], None, None).await;
     assert_eq!(
         (mx.cells[0].tier, mx.cells[0].reason, mx.snapshot),
         (Tier::Heuristic, Some(R::OutsideRegions), None)
@@ -398,29 +346,8 @@ async fn gate_fallbacks_and_graph_tiers() {
     // the cell whose ends share the region is the graph's answer (the trip
     // between the same points, petgraph-checked above), the others are
     // estimates from the configured defaults (haversine × 1.3 ÷ 30 km/h).
-    let mx = matrix_trip(
-        &cat,
-        MatrixQuery {
-            from: vec![a, p],
-            to: vec![b, q],
-            depart: None,
-            budget_ms: Some(2000),
-        },
-        Admit::Uncounted,
-    )
-    .await;
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: None,
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let mx = ask_matrix(&cat, vec![a, p], vec![b, q], None, Some(2000)).await;
+    let r = ask(&cat, a, b, None, Some(2000)).await;
     assert_eq!(
         (mx.cells[0].tier, mx.cells[0].reason, mx.cells[0].eta_s),
         (r.tier, r.reason, r.eta_s)
@@ -439,32 +366,10 @@ async fn gate_fallbacks_and_graph_tiers() {
     // A table of one speed (20 km/h) for next week's hour: historical, and
     // the time is petgraph's Dijkstra on length ÷ 20 km/h.
     let hour = crate::speeds::hour_of_week(later, region.tz);
-    let mut csv = hodos_testkit::HistoricalCsv::with_header();
-    for e in 0..g.num_edges() {
-        let (u, v) = (
-            g.node_ext[g.edge_tail[e] as usize],
-            g.node_ext[g.edge_head[e] as usize],
-        );
-        csv.row(u, v, hour, 20);
-    }
-    region
-        .put_historical(csv.into_string().into_bytes())
-        .await
-        .unwrap();
+    put_table(&region, g, hour, 20).await;
     let slow = weights_at(g, |_| 20.0);
     let want20 = dijkstra_ms(g, &slow, s, t).unwrap() as f64 / 1000.0;
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: Some(later),
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, a, b, Some(later), Some(2000)).await;
     assert_eq!((r.tier, r.reason), (Tier::Historical, None));
     assert!(
         (r.eta_s - want20).abs() < 1e-6,
@@ -483,18 +388,7 @@ async fn gate_fallbacks_and_graph_tiers() {
     // table names no edge in that hour, so the time is petgraph's
     // free-flow Dijkstra, and the answer is labelled free_flow.
     let cold = later + Days::hours(5);
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: Some(cold),
-            budget_ms: Some(0),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, a, b, Some(cold), Some(0)).await;
     assert_eq!((r.tier, r.reason), (Tier::FreeFlow, None), "{r:?}");
     assert!(
         (r.eta_s - want).abs() < 1e-6,
@@ -517,13 +411,7 @@ async fn gate_fallbacks_and_graph_tiers() {
     let (_, ff_secs) = region_estimate(&cal, a, b);
     let r = trip(
         &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: Some(later),
-            budget_ms: None,
-            geometry: false,
-        },
+        &query(a, b, Some(later), None),
         Admit::Counted(&shed_ticket()),
     )
     .await;
@@ -538,13 +426,7 @@ async fn gate_fallbacks_and_graph_tiers() {
     assert_eq!(r.hour_of_week, Some(hour));
     let r = trip(
         &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: Some(cold),
-            budget_ms: None,
-            geometry: false,
-        },
+        &query(a, b, Some(cold), None),
         Admit::Counted(&shed_ticket()),
     )
     .await;
@@ -552,17 +434,7 @@ async fn gate_fallbacks_and_graph_tiers() {
 
     // A matrix with no budget still stops before its many-to-many.
     let cold2 = later + Days::hours(9);
-    let mx = matrix_trip(
-        &cat,
-        MatrixQuery {
-            from: vec![a],
-            to: vec![b],
-            depart: Some(cold2),
-            budget_ms: Some(0),
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let mx = ask_matrix(&cat, vec![a], vec![b], Some(cold2), Some(0)).await;
     assert_eq!(
         (mx.cells[0].tier, mx.cells[0].reason),
         (Tier::Heuristic, Some(R::BudgetExceeded))
@@ -571,46 +443,20 @@ async fn gate_fallbacks_and_graph_tiers() {
     // Fresh live observations (12 km/h everywhere) → live, no reason, and
     // slower than petgraph's free-flow time (every road is faster than 12).
     let now = Utc::now().to_rfc3339();
-    let batch: Vec<serde_json::Value> = (0..g.num_edges())
-        .map(|e| {
-            let (u, v) = (
-                g.node_ext[g.edge_tail[e] as usize],
-                g.node_ext[g.edge_head[e] as usize],
-            );
-            serde_json::json!({"tail": u, "head": v, "kmh": 12.0, "observed_at": now, "samples": 3})
-        })
-        .collect();
-    region
-        .put_live(&serde_json::to_vec(&batch).unwrap(), false)
-        .await
-        .unwrap();
-    assert!(region.refresh_live(true).await);
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: None,
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
+    put_live(
+        &region,
+        (0..g.num_edges()).map(|e| road(g, e)),
+        12.0,
+        &now,
+        3,
     )
     .await;
+    assert!(region.refresh_live(true).await);
+    let r = ask(&cat, a, b, None, Some(2000)).await;
     assert_eq!((r.tier, r.reason), (Tier::Live, None), "{r:?}");
     assert!(r.eta_s > want, "{} vs free-flow {want}", r.eta_s);
     assert!(r.speeds_age_s.unwrap() < 60.0);
-    let mx = matrix_trip(
-        &cat,
-        MatrixQuery {
-            from: vec![a],
-            to: vec![b],
-            depart: None,
-            budget_ms: Some(2000),
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let mx = ask_matrix(&cat, vec![a], vec![b], None, Some(2000)).await;
     assert_eq!((mx.cells[0].tier, mx.cells[0].reason), (Tier::Live, None));
     assert!(
         (mx.cells[0].eta_s - r.eta_s).abs() < 1e-6,
@@ -620,41 +466,16 @@ async fn gate_fallbacks_and_graph_tiers() {
 
 #[tokio::test]
 async fn stale_live_data_falls_back_to_historical() {
-    let c = city();
-    let g = &c.graph;
-    let state = tempfile::tempdir().unwrap();
-    let svc = catalog(&c.artifact, g, state.path()).await;
+    let g = &city().graph;
+    let (_state, svc) = city_service().await;
     let cat = svc.catalog.clone();
     let region = svc.regions[0].clone();
     let (s, t) = two_way_pair(g);
     // Observations an hour old, beyond the 600 s TTL.
     let old = (Utc::now() - Days::seconds(3600)).to_rfc3339();
-    let batch: Vec<serde_json::Value> = (0..50)
-        .map(|e| {
-            let (u, v) = (
-                g.node_ext[g.edge_tail[e] as usize],
-                g.node_ext[g.edge_head[e] as usize],
-            );
-            serde_json::json!({"tail": u, "head": v, "kmh": 20.0, "observed_at": old, "samples": 1})
-        })
-        .collect();
-    region
-        .put_live(&serde_json::to_vec(&batch).unwrap(), false)
-        .await
-        .unwrap();
+    put_live(&region, (0..50).map(|e| road(g, e)), 20.0, &old, 1).await;
     region.refresh_live(true).await;
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: g.node_pos(s),
-            to: g.node_pos(t),
-            depart: None,
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, g.node_pos(s), g.node_pos(t), None, Some(2000)).await;
     assert_eq!(
         (r.tier, r.reason),
         (Tier::FreeFlow, Some(R::LiveStale)),
@@ -683,18 +504,7 @@ async fn unavailable_region_answers_from_the_defaults() {
     let reason = region.status().degraded_reason.unwrap();
     assert!(reason.contains("broken.hodos"), "{reason}");
     let (a, b) = (c.graph.node_pos(0), c.graph.node_pos(1));
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: None,
-            budget_ms: None,
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, a, b, None, None).await;
     assert_eq!(
         (r.tier, r.reason),
         (Tier::Heuristic, Some(R::RegionUnavailable))
@@ -702,17 +512,7 @@ async fn unavailable_region_answers_from_the_defaults() {
     assert_eq!(r.snapshot, Some(("quellhaven".into(), 0)));
     let (m, secs) = by_hand(a, b, 1.3, 30.0); // haversine × 1.3 ÷ 30 km/h
     assert!(close(r.meters, m) && close(r.eta_s, secs), "{r:?}");
-    let mx = matrix_trip(
-        &cat,
-        MatrixQuery {
-            from: vec![a],
-            to: vec![b, a],
-            depart: None,
-            budget_ms: None,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let mx = ask_matrix(&cat, vec![a], vec![b, a], None, None).await;
     assert!(mx
         .cells
         .iter()
@@ -752,18 +552,7 @@ async fn unreachable_pairs_fall_back_per_trip_and_per_cell() {
     let ones = vec![1; g.num_edges()];
     assert_eq!(dijkstra_ms(&g, &ones, s, t), None);
     let (a, b, c) = (g.node_pos(s), g.node_pos(t), g.node_pos(u));
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: None,
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, a, b, None, Some(2000)).await;
     assert_eq!(
         (r.tier, r.reason),
         (Tier::Heuristic, Some(R::Unreachable)),
@@ -775,17 +564,7 @@ async fn unreachable_pairs_fall_back_per_trip_and_per_cell() {
     assert!(close(r.meters, m) && close(r.eta_s, secs), "{r:?}");
     // Matrix: the reachable cell from the graph (petgraph Dijkstra), the
     // other per cell unreachable.
-    let mx = matrix_trip(
-        &cat,
-        MatrixQuery {
-            from: vec![a],
-            to: vec![b, c],
-            depart: None,
-            budget_ms: Some(2000),
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let mx = ask_matrix(&cat, vec![a], vec![b, c], None, Some(2000)).await;
     assert_eq!(
         (mx.cells[0].tier, mx.cells[0].reason),
         (Tier::Heuristic, Some(R::Unreachable))
@@ -840,33 +619,12 @@ async fn matrix_cells_belong_to_the_region_holding_both_ends() {
     };
     let ((w1, w2), (e1, e2)) = (pick(true), pick(false));
     let pts: Vec<LatLon> = [w1, w2, e1, e2].iter().map(|&n| g.node_pos(n)).collect();
-    let mx = matrix_trip(
-        &cat,
-        MatrixQuery {
-            from: pts.clone(),
-            to: pts.clone(),
-            depart: None,
-            budget_ms: Some(2000),
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let mx = ask_matrix(&cat, pts.clone(), pts.clone(), None, Some(2000)).await;
     for (i, &x) in pts.iter().enumerate() {
         for (j, &y) in pts.iter().enumerate() {
             let cell = mx.cells[i * 4 + j];
             if (i < 2) == (j < 2) {
-                let r = trip(
-                    &cat,
-                    &TripQuery {
-                        from: x,
-                        to: y,
-                        depart: None,
-                        budget_ms: Some(2000),
-                        geometry: false,
-                    },
-                    Admit::Uncounted,
-                )
-                .await;
+                let r = ask(&cat, x, y, None, Some(2000)).await;
                 assert_eq!(
                     (cell.tier, cell.reason, cell.eta_s),
                     (r.tier, r.reason, r.eta_s),
@@ -894,23 +652,11 @@ async fn matrix_cells_belong_to_the_region_holding_both_ends() {
 #[tokio::test]
 async fn a_held_profile_metric_keeps_its_snapshot_retired() {
     let c = city();
-    let state = tempfile::tempdir().unwrap();
-    let svc = catalog(&c.artifact, &c.graph, state.path()).await;
+    let (_state, svc) = city_service().await;
     let region = svc.regions[0].clone();
     let held = region.snapshot().unwrap().profiles.metrics[0].clone();
     let g = &c.graph;
-    let mut csv = hodos_testkit::HistoricalCsv::with_header();
-    for e in 0..g.num_edges() {
-        let (u, v) = (
-            g.node_ext[g.edge_tail[e] as usize],
-            g.node_ext[g.edge_head[e] as usize],
-        );
-        csv.row(u, v, 3, 15);
-    }
-    region
-        .put_historical(csv.into_string().into_bytes())
-        .await
-        .unwrap();
+    put_table(&region, g, 3, 15).await;
     let settle = || async {
         for _ in 0..40 {
             region.sweep_retired();
@@ -959,17 +705,49 @@ fn line(dir: &Path) -> (PathBuf, RoadGraph) {
 /// Fresh live observations (stamped 5 s ahead: within the allowed skew,
 /// so age 0 and live weight exactly 1) at `kmh` on the directed roads
 /// `(from, to)` (outside node ids).
-async fn observe(region: &crate::snapshot::RegionUpdater, roads: &[(u64, u64)], kmh: f64) {
+async fn observe(region: &RegionUpdater, roads: &[(u64, u64)], kmh: f64) {
     let at = (Utc::now() + Days::seconds(5)).to_rfc3339();
+    put_live(region, roads.iter().copied(), kmh, &at, 1).await;
+    assert!(region.refresh_live(true).await);
+}
+
+/// The external ids of edge `e`'s tail and head.
+fn road(g: &RoadGraph, e: usize) -> (u64, u64) {
+    (
+        g.node_ext[g.edge_tail[e] as usize],
+        g.node_ext[g.edge_head[e] as usize],
+    )
+}
+
+/// Puts one live JSON batch: `kmh` on each road (tail, head), observed
+/// `at` by `samples`.
+async fn put_live(
+    region: &RegionUpdater,
+    roads: impl Iterator<Item = (u64, u64)>,
+    kmh: f64,
+    at: &str,
+    samples: u32,
+) {
     let batch: Vec<serde_json::Value> = roads
-        .iter()
-        .map(|&(u, v)| serde_json::json!({"tail": u, "head": v, "kmh": kmh, "observed_at": at, "samples": 1}))
+        .map(|(u, v)| serde_json::json!({"tail": u, "head": v, "kmh": kmh, "observed_at": at, "samples": samples}))
         .collect();
     region
         .put_live(&serde_json::to_vec(&batch).unwrap(), false)
         .await
         .unwrap();
-    assert!(region.refresh_live(true).await);
+}
+
+/// Puts a historical table of `kmh` on every road of `g` in `hour`.
+async fn put_table(region: &std::sync::Arc<RegionUpdater>, g: &RoadGraph, hour: u8, kmh: u32) {
+    let mut csv = hodos_testkit::HistoricalCsv::with_header();
+    for e in 0..g.num_edges() {
+        let (u, v) = road(g, e);
+        csv.row(u, v, hour, kmh);
+    }
+    region
+        .put_historical(csv.into_string().into_bytes())
+        .await
+        .unwrap();
 }
 
 /// Sources, tier and reason on the straight road 0→3, worked by hand:
@@ -996,36 +774,14 @@ async fn sources_name_the_speeds_the_route_used() {
     };
 
     // No table, no live data: all free-flow, 900 m at 36 km/h = 90 s.
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: None,
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, a, b, None, Some(2000)).await;
     assert_eq!((r.tier, r.reason), (Tier::FreeFlow, Some(R::NoLiveData)));
     assert_eq!(
         (r.eta_s, shares(&r), r.speeds_age_s),
         (90.0, (0.0, 0.0, 1.0), None)
     );
     let later = Utc::now() + Days::days(7);
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: Some(later),
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, a, b, Some(later), Some(2000)).await;
     assert_eq!((r.tier, r.reason), (Tier::FreeFlow, None));
 
     // A table row for 1→2 in every hour: 20 + 45 + 40 = 105 s; free-flow
@@ -1038,18 +794,7 @@ async fn sources_name_the_speeds_the_route_used() {
         .put_historical(csv.into_string().into_bytes())
         .await
         .unwrap();
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: Some(later),
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, a, b, Some(later), Some(2000)).await;
     assert_eq!((r.tier, r.reason, r.eta_s), (Tier::FreeFlow, None, 105.0));
     assert!(near(shares(&r), (0.0, 45.0 / 105.0, 60.0 / 105.0)), "{r:?}");
 
@@ -1057,18 +802,7 @@ async fn sources_name_the_speeds_the_route_used() {
     // observation 1): same time, no live share, not live, no live age
     // (free-flow carries most, so no age at all).
     observe(&region, &[(2, 5)], 18.0).await;
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: None,
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, a, b, None, Some(2000)).await;
     assert_eq!(
         (r.tier, r.reason, r.eta_s, r.speeds_age_s),
         (Tier::FreeFlow, Some(R::NoLiveOnRoute), 105.0, None),
@@ -1081,18 +815,7 @@ async fn sources_name_the_speeds_the_route_used() {
     // 0.32 / 0.36 / 0.32 → historical, with the table's age; the route is
     // partly live, so the reason is live_minority.
     observe(&region, &[(1, 2)], 18.0).await;
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: None,
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, a, b, None, Some(2000)).await;
     assert_eq!(
         (r.tier, r.reason, r.eta_s),
         (Tier::Historical, Some(R::LiveMinority), 125.0),
@@ -1101,30 +824,9 @@ async fn sources_name_the_speeds_the_route_used() {
     assert!(near(shares(&r), (0.32, 0.36, 0.32)), "{r:?}");
     assert!(r.speeds_age_s.is_some_and(|s| s < 600.0));
     // The route answer and the matrix cell say the same.
-    let route = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: None,
-            budget_ms: Some(2000),
-            geometry: true,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let route = ask_route(&cat, a, b).await;
     assert_eq!((route.tier, route.sources), (r.tier, r.sources));
-    let mx = matrix_trip(
-        &cat,
-        MatrixQuery {
-            from: vec![a],
-            to: vec![b],
-            depart: None,
-            budget_ms: Some(2000),
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let mx = ask_matrix(&cat, vec![a], vec![b], None, Some(2000)).await;
     let c = mx.cells[0];
     assert_eq!((c.tier, c.reason, c.eta_s), (r.tier, r.reason, r.eta_s));
     assert!(near(
@@ -1136,18 +838,7 @@ async fn sources_name_the_speeds_the_route_used() {
 
     // The whole road on fresh live data: 40 + 60 + 80 = 180 s, all live.
     observe(&region, &[(2, 3), (3, 4)], 18.0).await;
-    let r = trip(
-        &cat,
-        &TripQuery {
-            from: a,
-            to: b,
-            depart: None,
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let r = ask(&cat, a, b, None, Some(2000)).await;
     assert_eq!(
         (r.tier, r.reason, r.eta_s),
         (Tier::Live, None, 180.0),
@@ -1157,18 +848,7 @@ async fn sources_name_the_speeds_the_route_used() {
     assert!(r.speeds_age_s.is_some_and(|s| s < 60.0));
     // The other way (outside ids 4→1) has no live data and no table row
     // (the table names 2→3 only): all free-flow.
-    let back = trip(
-        &cat,
-        &TripQuery {
-            from: b,
-            to: a,
-            depart: None,
-            budget_ms: Some(2000),
-            geometry: false,
-        },
-        Admit::Uncounted,
-    )
-    .await;
+    let back = ask(&cat, b, a, None, Some(2000)).await;
     assert_eq!(
         (back.tier, back.reason, shares(&back)),
         (Tier::FreeFlow, Some(R::NoLiveOnRoute), (0.0, 0.0, 1.0))
